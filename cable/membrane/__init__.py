@@ -1,0 +1,51 @@
+"""Membrane models, registered by name.
+
+A model is one module of this package that defines ``MODEL`` (a
+:class:`cable.membrane.base.MembraneModel`). The registry name is the module name with
+``_`` written as ``-`` (``hodgkin_huxley_1952.py`` -> ``hodgkin-huxley-1952``), so adding a
+model means adding one file, and the contract tests pick it up by themselves.
+"""
+
+from __future__ import annotations
+
+import difflib
+import importlib
+import pkgutil
+from pathlib import Path
+
+from cable.membrane.base import MembraneModel, Parameter, State
+
+_NOT_MODELS = {"base"}
+
+
+def model_names() -> list[str]:
+    """The registered model names, sorted."""
+    here = str(Path(__file__).parent)
+    return sorted(m.name.replace("_", "-") for m in pkgutil.iter_modules([here])
+                  if m.name not in _NOT_MODELS and not m.name.startswith("_"))
+
+
+class UnknownModelError(KeyError):
+    """An unknown model name (the message lists the valid ones)."""
+
+    def __str__(self):
+        return self.args[0]
+
+
+def get_model(name: str) -> MembraneModel:
+    """Return the registered model ``name``; an unknown name lists the valid ones."""
+    names = model_names()
+    if name not in names:
+        near = difflib.get_close_matches(str(name), names, n=1, cutoff=0.4)
+        hint = f" Did you mean '{near[0]}'?" if near else ""
+        raise UnknownModelError(
+            f"unknown membrane model '{name}'.{hint} Known models: {', '.join(names)}."
+        )
+    module = importlib.import_module(f"cable.membrane.{name.replace('-', '_')}")
+    model = module.MODEL
+    if model.name != name:
+        raise RuntimeError(f"module {module.__name__} declares MODEL.name {model.name!r}, expected {name!r}")
+    return model
+
+
+__all__ = ["MembraneModel", "Parameter", "State", "get_model", "model_names"]

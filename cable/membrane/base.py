@@ -1,0 +1,170 @@
+"""The contract every membrane model fulfils.
+
+A membrane model is data plus kernels, declared in one module:
+
+* ``states``: the state variables other than the membrane potential, each with its
+  initial (resting) value, unit and meaning;
+* ``parameters``: every parameter with default, unit and a one-line meaning; a
+  parameter with ``choices`` (such as a cell type) is stored as the index of the
+  chosen label;
+* ``conductances``: the parameter names a ``[membrane.scale]`` factor multiplies;
+* ``current_basis``: ``"area"`` (currents in uA/cm^2, divided by C_m) or
+  ``"capacitance"`` (currents in uA/uF = pA/pF, used as they are);
+* ``reaction``: a numba kernel that advances all nodes of a strand by one reaction
+  step (see :func:`reaction_signature_doc`);
+* ``reference``: a plain-numpy function giving the time derivatives and the ionic
+  current, used by the contract tests and by scipy cross-checks.
+
+Kernel contract (``reaction``)::
+
+    reaction(v, s, p, i_stim, dt, ion_scale, gating)
+
+    v       float64[n]         membrane potential [mV], updated in place
+    s       float64[n, nstate] states, updated in place
+    p       float64[n, nparam] parameters per node (already scaled)
+    i_stim  float64[n]         stimulus current divided by C_m [mV/ms]
+    dt      float              reaction step [ms]
+    ion_scale float            1/C_m for area-based models, 1 for per-capacitance
+    gating  int                0 = Rush-Larsen gates, 1 = forward Euler for all
+
+Each node: gates advanced over ``dt`` at the old potential (Rush-Larsen or forward
+Euler), then ``v += dt * (i_stim - ion_scale * I_ion)`` with I_ion evaluated at the
+old potential and the updated gates (the usual Rush-Larsen ordering; Rush & Larsen
+1978, IEEE Trans Biomed Eng 25:389).
+
+Reference contract (``reference``)::
+
+    reference(v, s, p) -> (dv_ion, ds, i_ion)
+
+with ``v`` of shape (n,), ``s`` (n, nstate), ``p`` (n, nparam); ``ds`` the state
+derivatives [unit/ms], ``i_ion`` in the model's basis and ``dv_ion = -ion_scale*i_ion``
+left to the caller (so ``dv_ion`` is returned as ``None``).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class State:
+    """A state variable of a membrane model (the potential itself is not one)."""
+
+    name: str
+    initial: float
+    units: str
+    meaning: str
+
+
+@dataclass(frozen=True)
+class Parameter:
+    """A model parameter: default value [unit], quantity kind for unit conversion."""
+
+    name: str
+    default: float | str
+    units: str
+    meaning: str
+    quantity: str = "dimensionless"  # a key of cable.units.CANONICAL
+    choices: tuple[str, ...] | None = None  # for labelled parameters (cell type)
+    minimum: float | None = None
+    maximum: float | None = None
+
+    def encode(self, value) -> float:
+        """The float stored in the parameter array for ``value``."""
+        if self.choices is not None:
+            return float(self.choices.index(value))
+        return float(value)
+
+
+@dataclass(frozen=True)
+class MembraneModel:
+    """A published membrane model, ready for the solver.
+
+    Attributes
+    ----------
+    name : str
+        Registry name, e.g. ``"hodgkin-huxley-1952"``.
+    citation : str
+        Authors, year, journal.
+    summary : str
+        One line on what it models.
+    resting_potential : float
+        Initial membrane potential [mV].
+    states, parameters : tuple
+        See :class:`State`, :class:`Parameter`.
+    conductances : tuple of str
+        Parameter names scalable by ``[membrane.scale]``.
+    current_basis : {"area", "capacitance"}
+        How the ionic current is normalised.
+    threshold : float
+        Default activation level for measurements [mV].
+    reaction : numba dispatcher
+        Compiled reaction step (see module docstring).
+    reference : callable
+        Plain-numpy derivatives (see module docstring).
+    currents : callable or None
+        Optional compiled ``currents(v, s, p, out)`` filling ``out[n, len(current_names)]``
+        with each ionic current (same basis as ``I_ion``; inward negative).
+    current_names : tuple of str
+    temperature_parameter : str or None
+        Name of the parameter that ``[membrane] temperature`` sets.
+    """
+
+    name: str
+    citation: str
+    summary: str
+    resting_potential: float
+    states: tuple[State, ...]
+    parameters: tuple[Parameter, ...]
+    conductances: tuple[str, ...]
+    current_basis: str
+    threshold: float
+    reaction: Callable
+    reference: Callable
+    currents: Callable | None = None
+    current_names: tuple[str, ...] = ()
+    temperature_parameter: str | None = None
+
+    def __post_init__(self):
+        if self.current_basis not in ("area", "capacitance"):
+            raise ValueError(f"model {self.name}: current_basis must be 'area' or 'capacitance'")
+        pnames = self.parameter_names
+        for c in self.conductances:
+            if c not in pnames:
+                raise ValueError(f"model {self.name}: conductance {c!r} is not a parameter")
+        if self.temperature_parameter and self.temperature_parameter not in pnames:
+            raise ValueError(f"model {self.name}: temperature parameter missing")
+
+    @property
+    def state_names(self) -> tuple[str, ...]:
+        return tuple(s.name for s in self.states)
+
+    @property
+    def parameter_names(self) -> tuple[str, ...]:
+        return tuple(p.name for p in self.parameters)
+
+    def parameter(self, name: str) -> Parameter:
+        for p in self.parameters:
+            if p.name == name:
+                return p
+        raise KeyError(name)
+
+    def initial_states(self) -> np.ndarray:
+        """Initial state vector, shape (nstate,)."""
+        return np.array([s.initial for s in self.states], dtype=np.float64)
+
+    def default_parameters(self) -> np.ndarray:
+        """Default parameter vector, shape (nparam,)."""
+        return np.array([p.encode(p.default) for p in self.parameters], dtype=np.float64)
+
+    def ion_scale(self, capacitance: float) -> float:
+        """Factor turning I_ion into dV/dt (1/C_m per area, 1 per capacitance)."""
+        return 1.0 / capacitance if self.current_basis == "area" else 1.0
+
+
+def rush_larsen(y, y_inf, tau, dt):
+    """Rush & Larsen (1978) update y <- y_inf - (y_inf - y) exp(-dt/tau) (numpy reference)."""
+    return y_inf - (y_inf - y) * np.exp(-dt / tau)
