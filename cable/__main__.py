@@ -1,0 +1,5 @@
+import sys
+
+from cable.cli import main
+
+sys.exit(main())

@@ -1,0 +1,8 @@
+"""Case files: the schema of their keys and the loader that validates them."""
+
+from cable.case.load import (Case, CaseError, Fiber, Membrane, Numerics, Stimulus, dumps_toml, load_case,
+                             parse_assignment, register_section, set_key)
+from cable.case.schema import SECTIONS
+
+__all__ = ["Case", "CaseError", "Fiber", "Membrane", "Numerics", "Stimulus", "SECTIONS", "dumps_toml",
+           "load_case", "parse_assignment", "register_section", "set_key"]

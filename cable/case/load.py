@@ -1,0 +1,580 @@
+"""Reading case files: TOML text or a dict -> a validated :class:`Case`.
+
+Units are converted here, once, to the canonical set of :mod:`cable.units`.
+Every problem raises :class:`CaseError` with a message that names the key, shows the
+value, says what is allowed and suggests the nearest valid name.
+"""
+
+from __future__ import annotations
+
+import copy
+import difflib
+import math
+import tomllib
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+
+from cable import units
+from cable.case.schema import LIST_SECTIONS, SECTIONS, Key
+
+
+class CaseError(ValueError):
+    """A case that cannot be run, with a message written for the user."""
+
+
+# ----------------------------------------------------------------------------- dataclasses
+@dataclass(frozen=True)
+class Stimulus:
+    """A current pulse train over a zone ``[x, x + width]`` (canonical units)."""
+
+    x: float
+    width: float
+    amplitude: float
+    duration: float
+    start: float = 0.0
+    count: int = 1
+    cycle_length: float | None = None
+
+    def onsets(self) -> list[float]:
+        """Pulse onset times [ms]."""
+        cl = self.cycle_length or 0.0
+        return [self.start + k * cl for k in range(self.count)]
+
+
+@dataclass(frozen=True)
+class Fiber:
+    """Fibre geometry and coupling (canonical units)."""
+
+    length: float
+    dx: float
+    capacitance: float = 1.0
+    radius: float | None = None
+    axial_resistivity: float | None = None
+    conductivity: float | None = None
+    surface_to_volume: float | None = None
+    cell_length: float | None = None
+    gap_junction_conductance: float | None = None
+
+    @property
+    def diffusivity(self) -> float:
+        """D [cm^2/ms]: a/(2 R_i C_m) (axon form) or sigma/(chi C_m) (tissue form)."""
+        if self.radius is not None:
+            # a [cm] / (ohm*cm) = S; S / (uF/cm^2) = cm^2 / (ohm*uF) = cm^2/us = 1e3 cm^2/ms
+            return self.radius / (2.0 * self.axial_resistivity * self.capacitance) * 1e3
+        return self.conductivity / (self.surface_to_volume * self.capacitance)
+
+    @property
+    def n_nodes(self) -> int:
+        return int(round(self.length / self.dx)) + 1
+
+
+@dataclass(frozen=True)
+class Membrane:
+    model: str
+    temperature: float | None = None
+    scale: dict = field(default_factory=dict)
+    parameters: dict = field(default_factory=dict)
+    prepace: dict | None = None
+
+
+@dataclass(frozen=True)
+class Numerics:
+    dt: float = 0.01
+    splitting: str = "strang"
+    diffusion: str = "crank-nicolson"
+    gating: str = "rush-larsen"
+    merge_half_steps: bool = True
+
+
+@dataclass(frozen=True)
+class Case:
+    """A validated case, every value in canonical units.
+
+    ``raw`` keeps the case as given (after ``--set`` overrides) so that it can be
+    written back as TOML into result files and rerun from them.
+    """
+
+    membrane: Membrane
+    fiber: Fiber | None
+    stimuli: tuple[Stimulus, ...]
+    numerics: Numerics
+    duration: float
+    output_every: float
+    output_states: tuple[str, ...]
+    threshold: float | None
+    cv_window: tuple[float, float] | None
+    apd_levels: tuple[float, ...]
+    raw: dict
+    notes: tuple[str, ...] = ()
+    extra: dict = field(default_factory=dict)  # validated sections owned by other modules
+
+    @property
+    def text(self) -> str:
+        """The case as TOML text."""
+        return dumps_toml(self.raw)
+
+    def with_overrides(self, overrides) -> "Case":
+        """A new case with ``{"section.key": value}`` overrides applied to the raw case."""
+        raw = copy.deepcopy(self.raw)
+        for key, value in dict(overrides).items():
+            set_key(raw, key, value)
+        return from_dict(raw)
+
+
+# ----------------------------------------------------------------------------- helpers
+def _nearest(name, candidates) -> str:
+    near = difflib.get_close_matches(str(name), list(candidates), n=1, cutoff=0.5)
+    return f" Did you mean '{near[0]}'?" if near else ""
+
+
+def _allowed_keys(candidates) -> str:
+    return ", ".join(sorted(candidates))
+
+
+def _fmt(value) -> str:
+    return repr(value)
+
+
+def convert(where: str, value, spec: Key):
+    """Validate and convert one value against its :class:`Key` spec."""
+    kind = spec.kind
+    if kind == "quantity":
+        try:
+            out = units.to_canonical(value, spec.quantity)
+        except units.UnitError as exc:
+            raise CaseError(f"{where} = {_fmt(value)}: {exc}. Give a number in "
+                            f"{units.CANONICAL[spec.quantity]} or a string with a unit.") from None
+        if not math.isfinite(out):
+            raise CaseError(f"{where} = {_fmt(value)}: must be a finite number.")
+        _check_range(where, value, out, spec)
+        return out
+    if kind == "int":
+        if isinstance(value, bool) or not isinstance(value, int):
+            if isinstance(value, float) and value.is_integer():
+                value = int(value)
+            else:
+                raise CaseError(f"{where} = {_fmt(value)}: must be a whole number.")
+        _check_range(where, value, value, spec)
+        return value
+    if kind == "bool":
+        if not isinstance(value, bool):
+            raise CaseError(f"{where} = {_fmt(value)}: must be true or false.")
+        return value
+    if kind == "str":
+        if not isinstance(value, str):
+            raise CaseError(f"{where} = {_fmt(value)}: must be a string.")
+        return value
+    if kind == "choice":
+        if value not in spec.choices:
+            raise CaseError(f"{where} = {_fmt(value)}: allowed values are "
+                            f"{', '.join(repr(c) for c in spec.choices)}.{_nearest(value, spec.choices)}")
+        return value
+    if kind == "list_str":
+        if isinstance(value, str):
+            value = [value]
+        if not isinstance(value, (list, tuple)) or not all(isinstance(v, str) for v in value):
+            raise CaseError(f"{where} = {_fmt(value)}: must be a list of names.")
+        return tuple(value)
+    if kind == "list_quantity":
+        if not isinstance(value, (list, tuple)) or not value:
+            raise CaseError(f"{where} = {_fmt(value)}: must be a non-empty list.")
+        item = replace(spec, kind="quantity")
+        return tuple(convert(f"{where}[{k}]", v, item) for k, v in enumerate(value))
+    if kind == "table":
+        if not isinstance(value, dict):
+            raise CaseError(f"{where} = {_fmt(value)}: must be a table.")
+        return value
+    raise AssertionError(kind)
+
+
+def _check_range(where, given, value, spec: Key):
+    lo, hi = spec.minimum, spec.maximum
+    unit = units.CANONICAL.get(spec.quantity, "")
+    unit = "" if unit == "1" else f" {unit}"
+    if lo is not None:
+        if spec.exclusive_minimum and not value > lo:
+            raise CaseError(f"{where} = {_fmt(given)}: must be greater than {lo:g}{unit}.")
+        if not value >= lo:
+            raise CaseError(f"{where} = {_fmt(given)}: must be at least {lo:g}{unit}.")
+    if hi is not None and not value <= hi:
+        raise CaseError(f"{where} = {_fmt(given)}: must be at most {hi:g}{unit}.")
+
+
+def _read_section(name: str, table, specs: dict[str, Key]) -> dict:
+    if not isinstance(table, dict):
+        raise CaseError(f"[{name}] must be a table of keys, got {_fmt(table)}.")
+    out = {}
+    for key in table:
+        if key not in specs:
+            raise CaseError(f"unknown key '{name}.{key}'.{_nearest(key, specs)} "
+                            f"Keys of [{name}]: {_allowed_keys(specs)}.")
+    for key, spec in specs.items():
+        if key in table:
+            out[key] = convert(f"{name}.{key}", table[key], spec)
+        elif spec.required:
+            raise CaseError(f"missing key '{name}.{key}' ({spec.meaning}).")
+        else:
+            out[key] = spec.default
+    return out
+
+
+# ----------------------------------------------------------------------------- --set
+def parse_assignment(text: str) -> tuple[str, object]:
+    """Split ``KEY=VALUE`` and read VALUE as a TOML value (a bare word is a string)."""
+    if "=" not in text:
+        raise CaseError(f"--set {text!r}: expected KEY=VALUE, e.g. membrane.scale.g_Na=0.5.")
+    key, value = text.split("=", 1)
+    key, value = key.strip(), value.strip()
+    try:
+        parsed = tomllib.loads(f"v = {value}")["v"]
+    except tomllib.TOMLDecodeError:
+        parsed = value
+    return key, parsed
+
+
+def set_key(raw: dict, dotted: str, value) -> None:
+    """Set ``section.key`` (list entries by index: ``stimulus.0.amplitude``) in a raw case."""
+    parts = dotted.split(".")
+    if not all(parts):
+        raise CaseError(f"key {dotted!r} is not a dotted case key such as membrane.scale.g_Na.")
+    node = raw
+    for depth, part in enumerate(parts[:-1]):
+        nxt = parts[depth + 1]
+        if isinstance(node, list):
+            index = _index(dotted, part, node)
+            node = node[index]
+            continue
+        if part not in node:
+            if depth == 0 and part not in SECTIONS and part not in _extra_sections():
+                raise CaseError(f"unknown section '{part}' in key {dotted!r}.{_nearest(part, _all_sections())}")
+            node[part] = [] if nxt.isdigit() else {}
+        node = node[part]
+        if isinstance(node, dict) and nxt.isdigit() and part in _list_sections():
+            raise CaseError(f"{dotted!r}: [{part}] is a single table; write [[{part}]] to index it.")
+    last = parts[-1]
+    if isinstance(node, list):
+        node[_index(dotted, last, node)] = value
+    else:
+        node[last] = value
+
+
+def _index(dotted, part, seq):
+    if not part.isdigit():
+        raise CaseError(f"key {dotted!r}: '{part}' must be a list index (0 to {len(seq) - 1}).")
+    index = int(part)
+    if index >= len(seq):
+        raise CaseError(f"key {dotted!r}: index {index} is out of range; the case has {len(seq)} entries.")
+    return index
+
+
+# Other modules (regions, sweeps) register the sections they own here, at import of
+# cable.case; they are validated by the function given.
+_EXTERNAL: dict[str, tuple[bool, object]] = {}
+
+
+def register_section(name: str, *, is_list: bool, validate) -> None:
+    """Let another module own a case section: ``validate(raw_value, case_so_far) -> value``."""
+    _EXTERNAL[name] = (is_list, validate)
+
+
+def _extra_sections():
+    return set(_EXTERNAL)
+
+
+def _all_sections():
+    return set(SECTIONS) | set(_EXTERNAL)
+
+
+def _list_sections():
+    return set(LIST_SECTIONS) | {k for k, (is_list, _) in _EXTERNAL.items() if is_list}
+
+
+# ----------------------------------------------------------------------------- loading
+def load_case(source, overrides=()) -> Case:
+    """Load and validate a case.
+
+    Parameters
+    ----------
+    source : str, pathlib.Path, dict or Case
+        A path to a TOML file, TOML text, a dict of the same structure, or a Case.
+    overrides : iterable of str or dict
+        ``"KEY=VALUE"`` strings (as on the command line) or a ``{key: value}`` dict.
+
+    Returns
+    -------
+    Case
+
+    Raises
+    ------
+    CaseError
+        With a message naming the key, the value and what is allowed.
+    """
+    if isinstance(source, Case):
+        raw = copy.deepcopy(source.raw)
+    elif isinstance(source, dict):
+        raw = copy.deepcopy(source)
+    else:
+        raw = _read_toml(source)
+    items = overrides.items() if isinstance(overrides, dict) else (parse_assignment(o) for o in overrides)
+    for key, value in items:
+        set_key(raw, key, value)
+    return from_dict(raw)
+
+
+def _read_toml(source) -> dict:
+    text = None
+    path = None
+    if isinstance(source, Path) or (isinstance(source, str) and "\n" not in source and "=" not in source):
+        path = Path(source)
+        if not path.is_file():
+            raise CaseError(f"case file '{source}' not found.")
+        try:
+            text = path.read_text(encoding="utf-8")
+        except (OSError, UnicodeDecodeError) as exc:
+            raise CaseError(f"case file '{source}' cannot be read: {exc}.") from None
+    else:
+        text = str(source)
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        where = f"case file '{path}'" if path else "case text"
+        raise CaseError(f"{where} is not valid TOML: {exc}.") from None
+
+
+def from_dict(raw: dict) -> Case:
+    """Validate a raw case dict (see :func:`load_case`)."""
+    from cable.membrane import UnknownModelError, get_model
+
+    if not isinstance(raw, dict):
+        raise CaseError(f"a case must be a table of sections, got {_fmt(raw)}.")
+    for name in raw:
+        if name not in _all_sections():
+            raise CaseError(f"unknown section [{name}].{_nearest(name, _all_sections())} "
+                            f"Sections: {_allowed_keys(_all_sections())}.")
+    if "membrane" not in raw:
+        raise CaseError("missing section [membrane] (at least: model = \"hodgkin-huxley-1952\"; see `cable models`).")
+    if "run" not in raw:
+        raise CaseError("missing section [run] (duration = ... ms).")
+    notes: list[str] = []
+
+    mem = _read_section("membrane", raw["membrane"], SECTIONS["membrane"])
+    try:
+        model = get_model(mem["model"])
+    except UnknownModelError as exc:
+        raise CaseError(f"membrane.model = {mem['model']!r}: {exc}") from None
+    scale = _read_scale(mem["scale"] or {}, model)
+    params = _read_parameters(mem["parameters"] or {}, model)
+    if mem["temperature"] is not None:
+        if model.temperature_parameter is None:
+            raise CaseError(f"membrane.temperature: model '{model.name}' has no temperature dependence; remove the key.")
+        params[model.temperature_parameter] = _param_value("membrane.temperature", mem["temperature"],
+                                                           model.parameter(model.temperature_parameter))
+    prepace = _read_prepace(mem["prepace"]) if mem["prepace"] is not None else None
+    membrane = Membrane(model.name, mem["temperature"], scale, params, prepace)
+
+    fiber = None
+    if "fiber" in raw:
+        fiber = _read_fiber(_read_section("fiber", raw["fiber"], SECTIONS["fiber"]), notes)
+
+    stim_raw = raw.get("stimulus", [])
+    if isinstance(stim_raw, dict):
+        stim_raw = [stim_raw]
+    if not isinstance(stim_raw, list):
+        raise CaseError("[[stimulus]] must be a list of tables.")
+    stimuli = tuple(_read_stimulus(k, s, fiber) for k, s in enumerate(stim_raw))
+
+    num = Numerics(**_read_section("numerics", raw.get("numerics", {}), SECTIONS["numerics"]))
+    run = _read_section("run", raw["run"], SECTIONS["run"])
+    out = _read_section("output", raw.get("output", {}), SECTIONS["output"])
+    meas = _read_section("measure", raw.get("measure", {}), SECTIONS["measure"])
+
+    for name in out["states"]:
+        if name not in model.state_names:
+            raise CaseError(f"output.states: '{name}' is not a state of '{model.name}'.{_nearest(name, model.state_names)} "
+                            f"States: {', '.join(model.state_names) or '(none)'}.")
+    if num.dt > run["duration"]:
+        raise CaseError(f"numerics.dt = {num.dt:g} ms is longer than run.duration = {run['duration']:g} ms.")
+    every = out["every"]
+    ratio = every / num.dt
+    if abs(ratio - round(ratio)) > 1e-9 * max(1.0, ratio) or round(ratio) < 1:
+        new_every = max(1, round(ratio)) * num.dt
+        notes.append(f"output.every = {every:g} ms is not a multiple of numerics.dt = {num.dt:g} ms; "
+                     f"using {new_every:g} ms.")
+        every = new_every
+    if every > run["duration"]:
+        raise CaseError(f"output.every = {every:g} ms is longer than run.duration = {run['duration']:g} ms.")
+    cv_window = meas["cv_window"]
+    if cv_window is not None:
+        if len(cv_window) != 2 or not cv_window[0] < cv_window[1]:
+            raise CaseError(f"measure.cv_window = {raw['measure']['cv_window']!r}: give two positions, left < right.")
+        if fiber is None:
+            raise CaseError("measure.cv_window needs a [fiber].")
+        if cv_window[0] < 0 or cv_window[1] > fiber.length + 1e-12:
+            raise CaseError(f"measure.cv_window = {raw['measure']['cv_window']!r}: must lie inside the fibre "
+                            f"(0 to {fiber.length:g} cm).")
+    for lvl in meas["apd_levels"]:
+        if not 0.0 < lvl < 100.0:
+            raise CaseError(f"measure.apd_levels: {lvl:g} must be a percentage between 0 and 100 (e.g. 90).")
+    if fiber is not None and num.diffusion == "forward-euler":
+        from cable.fiber import forward_euler_limit
+
+        limit = forward_euler_limit(fiber, num)
+        if num.dt > limit:
+            raise CaseError(f"numerics.dt = {num.dt:g} ms exceeds the stability limit of forward-Euler diffusion, "
+                            f"{limit:.4g} ms, for dx = {fiber.dx:g} cm and D = {fiber.diffusivity:.4g} cm^2/ms; "
+                            f"reduce dt or use diffusion = \"crank-nicolson\".")
+
+    case = Case(membrane=membrane, fiber=fiber, stimuli=stimuli, numerics=num,
+                duration=run["duration"], output_every=every, output_states=tuple(out["states"]),
+                threshold=meas["threshold"], cv_window=tuple(cv_window) if cv_window else None,
+                apd_levels=tuple(meas["apd_levels"]), raw=copy.deepcopy(raw), notes=tuple(notes))
+    extra = {}
+    for name, (is_list, validate) in _EXTERNAL.items():
+        if name in raw:
+            extra[name] = validate(raw[name], case)
+    if extra:
+        case = replace(case, extra=extra)
+    return case
+
+
+def _param_value(where, value, par):
+    if par.choices is not None:
+        if value not in par.choices:
+            raise CaseError(f"{where} = {_fmt(value)}: allowed values are "
+                            f"{', '.join(repr(c) for c in par.choices)}.{_nearest(value, par.choices)}")
+        return value
+    out = convert(where, value, Key("quantity", par.quantity, minimum=par.minimum, maximum=par.maximum))
+    return out
+
+
+def _read_scale(table: dict, model) -> dict:
+    out = {}
+    for name, value in table.items():
+        if name not in model.conductances:
+            raise CaseError(f"membrane.scale.{name}: '{name}' is not a scalable conductance of '{model.name}'."
+                            f"{_nearest(name, model.conductances)} Scalable: {', '.join(model.conductances)}.")
+        out[name] = convert(f"membrane.scale.{name}", value, Key("quantity", minimum=0.0))
+    return out
+
+
+def _read_parameters(table: dict, model) -> dict:
+    out = {}
+    for name, value in table.items():
+        if name not in model.parameter_names:
+            raise CaseError(f"membrane.parameters.{name}: '{name}' is not a parameter of '{model.name}'."
+                            f"{_nearest(name, model.parameter_names)} Parameters: {', '.join(model.parameter_names)}.")
+        out[name] = _param_value(f"membrane.parameters.{name}", value, model.parameter(name))
+    return out
+
+
+PREPACE_KEYS = {
+    "beats": Key("int", default=10, minimum=1, maximum=100000, meaning="number of paced beats"),
+    "cycle_length": Key("quantity", "time", default=1000.0, minimum=0.0, exclusive_minimum=True, meaning="pacing interval [ms]"),
+    "amplitude": Key("quantity", "current_density", minimum=0.0, exclusive_minimum=True,
+                     meaning="stimulus per area [uA/cm^2]; default: the first [[stimulus]]'s"),
+    "duration": Key("quantity", "time", minimum=0.0, exclusive_minimum=True, meaning="pulse duration [ms]; default: the first [[stimulus]]'s"),
+    "dt": Key("quantity", "time", minimum=0.0, exclusive_minimum=True, meaning="time step [ms]; default: numerics.dt"),
+}
+
+
+def _read_prepace(table) -> dict:
+    return _read_section("membrane.prepace", table, PREPACE_KEYS)
+
+
+def _read_fiber(f: dict, notes: list) -> Fiber:
+    axon = [k for k in ("radius", "axial_resistivity") if f[k] is not None]
+    tissue = [k for k in ("conductivity", "surface_to_volume") if f[k] is not None]
+    if axon and tissue:
+        raise CaseError(f"[fiber] mixes the axon form ({', '.join(axon)}) and the tissue form ({', '.join(tissue)}); "
+                        "give either radius and axial_resistivity, or conductivity and surface_to_volume.")
+    if not axon and not tissue:
+        raise CaseError("[fiber] needs its coupling: radius and axial_resistivity (axon form), "
+                        "or conductivity and surface_to_volume (tissue form).")
+    for pair in (("radius", "axial_resistivity"), ("conductivity", "surface_to_volume")):
+        given = [k for k in pair if f[k] is not None]
+        if len(given) == 1:
+            missing = [k for k in pair if k not in given][0]
+            raise CaseError(f"[fiber] has {given[0]} but not {missing}; the {'axon' if pair[0] == 'radius' else 'tissue'} "
+                            f"form needs both.")
+    if f["dx"] >= f["length"]:
+        raise CaseError(f"fiber.dx = {f['dx']:g} cm must be smaller than fiber.length = {f['length']:g} cm.")
+    n = f["length"] / f["dx"]
+    if n > 5_000_000:
+        raise CaseError(f"fiber.length / fiber.dx = {n:.3g} nodes; more than 5 million nodes is refused. Increase dx.")
+    if abs(n - round(n)) > 1e-6 * n:
+        new_dx = f["length"] / round(n)
+        notes.append(f"fiber.length = {f['length']:g} cm is not a multiple of dx = {f['dx']:g} cm; "
+                     f"using dx = {new_dx:.6g} cm.")
+        f = dict(f, dx=new_dx)
+    if (f["cell_length"] is None) != (f["gap_junction_conductance"] is None):
+        raise CaseError("[fiber] cell_length and gap_junction_conductance go together (discrete cell coupling).")
+    return Fiber(**f)
+
+
+def _read_stimulus(k: int, table, fiber: Fiber | None) -> Stimulus:
+    s = _read_section(f"stimulus.{k}", table, SECTIONS["stimulus"])
+    if s["count"] > 1 and s["cycle_length"] is None:
+        raise CaseError(f"stimulus.{k}.count = {s['count']} needs stimulus.{k}.cycle_length.")
+    if s["cycle_length"] is not None and s["count"] > 1 and s["cycle_length"] < s["duration"]:
+        raise CaseError(f"stimulus.{k}.cycle_length = {s['cycle_length']:g} ms is shorter than its duration "
+                        f"{s['duration']:g} ms.")
+    if fiber is not None:
+        if s["x"] >= fiber.length:
+            raise CaseError(f"stimulus.{k}.x = {s['x']:g} cm lies outside the fibre (0 to {fiber.length:g} cm).")
+        if s["x"] + s["width"] > fiber.length + 1e-9:
+            raise CaseError(f"stimulus.{k}: zone {s['x']:g} to {s['x'] + s['width']:g} cm extends beyond the fibre "
+                            f"end at {fiber.length:g} cm.")
+    return Stimulus(**s)
+
+
+# ----------------------------------------------------------------------------- TOML out
+def dumps_toml(raw: dict) -> str:
+    """Write a raw case dict as TOML (the subset case files use)."""
+    lines: list[str] = []
+
+    def value(v):
+        if isinstance(v, bool):
+            return "true" if v else "false"
+        if isinstance(v, (int, float)):
+            if isinstance(v, float) and not math.isfinite(v):
+                return "nan" if math.isnan(v) else ("inf" if v > 0 else "-inf")
+            return repr(v)
+        if isinstance(v, str):
+            return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
+        if isinstance(v, (list, tuple)):
+            return "[" + ", ".join(value(x) for x in v) + "]"
+        if isinstance(v, dict):
+            return "{" + ", ".join(f"{_bare(k)} = {value(x)}" for k, x in v.items()) + "}"
+        raise TypeError(f"cannot write {v!r} as TOML")
+
+    def table(prefix, d, header):
+        scalars = {k: v for k, v in d.items() if not isinstance(v, dict) and not _is_table_list(v)}
+        subs = {k: v for k, v in d.items() if isinstance(v, dict)}
+        lists = {k: v for k, v in d.items() if _is_table_list(v)}
+        if header:
+            lines.append(header)
+        for k, v in scalars.items():
+            lines.append(f"{_bare(k)} = {value(v)}")
+        if header or scalars:
+            lines.append("")
+        for k, v in subs.items():
+            name = f"{prefix}.{_bare(k)}" if prefix else _bare(k)
+            table(name, v, f"[{name}]")
+        for k, v in lists.items():
+            name = f"{prefix}.{_bare(k)}" if prefix else _bare(k)
+            for item in v:
+                table(name, item, f"[[{name}]]")
+
+    table("", raw, None)
+    return "\n".join(lines).strip() + "\n"
+
+
+def _is_table_list(v):
+    return isinstance(v, list) and v and all(isinstance(x, dict) for x in v)
+
+
+def _bare(k: str) -> str:
+    k = str(k)
+    if k and all(ch.isalnum() or ch in "-_" for ch in k):
+        return k
+    return '"' + k.replace('"', '\\"') + '"'

@@ -1,0 +1,91 @@
+"""The case file's sections and keys: their kind, unit, default and allowed range.
+
+This table is the single description of what a case file may contain; the loader
+validates against it, the error messages and suggestions come from it, and
+``cable keys`` prints it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class Key:
+    """One case-file key.
+
+    kind: "quantity" (number or string with unit), "int", "str", "bool", "choice",
+    "list_quantity" (list of numbers with units), "list_str", "table" (free table,
+    validated elsewhere, e.g. against the membrane model).
+    """
+
+    kind: str
+    quantity: str = "dimensionless"
+    default: object = None
+    required: bool = False
+    minimum: float | None = None
+    maximum: float | None = None
+    exclusive_minimum: bool = False
+    choices: tuple[str, ...] = ()
+    meaning: str = ""
+
+
+def _q(quantity, default=None, *, minimum=None, maximum=None, positive=False, meaning="", required=False):
+    return Key("quantity", quantity, default, required, 0.0 if positive else minimum, maximum,
+               positive, (), meaning)
+
+
+SECTIONS: dict[str, dict[str, Key]] = {
+    "membrane": {
+        "model": Key("str", required=True, meaning="registered membrane model name (see `cable models`)"),
+        "temperature": _q("temperature", meaning="temperature, for models with a temperature parameter [degC]"),
+        "scale": Key("table", meaning="factor per scalable conductance, e.g. g_Na = 0.5"),
+        "parameters": Key("table", meaning="value per model parameter, e.g. K_o = 8"),
+        "prepace": Key("table", meaning="single-cell pacing to steady state before the run (beats, cycle_length, amplitude, duration)"),
+    },
+    "fiber": {
+        "length": _q("length", required=True, positive=True, meaning="fibre length [cm]"),
+        "dx": _q("length", 0.01, positive=True, meaning="grid spacing [cm]"),
+        "radius": _q("length", positive=True, meaning="axon radius (axon form) [cm]"),
+        "axial_resistivity": _q("resistivity", positive=True, meaning="cytoplasmic resistivity (axon form) [ohm*cm]"),
+        "conductivity": _q("conductivity", positive=True, meaning="tissue conductivity sigma (tissue form) [mS/cm]"),
+        "surface_to_volume": _q("surface_to_volume", positive=True, meaning="membrane area per volume chi (tissue form) [1/cm]"),
+        "capacitance": _q("capacitance", 1.0, positive=True, meaning="membrane capacitance C_m [uF/cm^2]"),
+        "cell_length": _q("length", positive=True, meaning="cell length for discrete cell-by-cell coupling [cm]"),
+        "gap_junction_conductance": _q("conductance", positive=True, meaning="junctional conductance per membrane area of a cell's end [mS/cm^2]... see DEVELOPERS.md"),
+    },
+    "stimulus": {
+        "x": _q("length", 0.0, minimum=0.0, meaning="left edge of the stimulated zone [cm]"),
+        "width": _q("length", 0.05, positive=True, meaning="width of the zone [cm]; at least one node"),
+        "amplitude": _q("current_density", required=True, positive=True, meaning="depolarising current per membrane area [uA/cm^2]"),
+        "duration": _q("time", required=True, positive=True, meaning="pulse duration [ms]"),
+        "start": _q("time", 0.0, minimum=0.0, meaning="first pulse onset [ms]"),
+        "count": Key("int", default=1, minimum=1, meaning="number of pulses"),
+        "cycle_length": _q("time", positive=True, meaning="interval between pulse onsets [ms] (needed when count > 1)"),
+    },
+    "numerics": {
+        "dt": _q("time", 0.01, positive=True, meaning="time step [ms]"),
+        "splitting": Key("choice", default="strang", choices=("strang", "godunov"), meaning="operator splitting"),
+        "diffusion": Key("choice", default="crank-nicolson", choices=("crank-nicolson", "backward-euler", "forward-euler"), meaning="diffusion step"),
+        "gating": Key("choice", default="rush-larsen", choices=("rush-larsen", "forward-euler"), meaning="gate update of the reaction step"),
+        "merge_half_steps": Key("bool", default=True, meaning="Strang: join the two diffusion half steps between outputs into one (same order, half the solves)"),
+    },
+    "run": {
+        "duration": _q("time", required=True, positive=True, meaning="simulated time [ms]"),
+    },
+    "output": {
+        "every": _q("time", 0.1, positive=True, meaning="sampling interval of stored fields [ms]"),
+        "states": Key("list_str", default=(), meaning="extra state variables to store, e.g. [\"h\"]"),
+    },
+    "measure": {
+        "threshold": _q("potential", meaning="activation level [mV]; default: the model's"),
+        "cv_window": Key("list_quantity", quantity="length", meaning="two positions [cm]; default: the middle half of the fibre"),
+        "apd_levels": Key("list_quantity", quantity="dimensionless", default=(90.0,), meaning="repolarisation levels [%] for APD"),
+    },
+}
+
+#: sections that are lists of tables in TOML ([[stimulus]])
+LIST_SECTIONS = {"stimulus"}
+
+#: sections other modules own (validated there)
+EXTERNAL_SECTIONS: set[str] = set()

@@ -1,0 +1,33 @@
+"""``cable run CASE -o OUT.nc``: simulate a case and write its result."""
+
+import shlex
+import sys
+
+from cable.cli import add_set_option, say
+
+NAME = "run"
+HELP = "simulate a case file and write the result to netCDF"
+ORDER = 1
+
+
+def add_arguments(p):
+    p.add_argument("case", help="case file (TOML)")
+    p.add_argument("-o", "--output", help="result file (.nc); without it only the summary is printed")
+    p.add_argument("--overwrite", action="store_true", help="replace an existing result file")
+    add_set_option(p)
+    p.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+
+
+def run(args):
+    from cable import load_case, simulate
+    from cable.cli.summary import summarise
+
+    case = load_case(args.case, args.overrides)
+    command = "cable " + " ".join(shlex.quote(a) for a in sys.argv[1:])
+    ds = simulate(case, output=args.output, overwrite=args.overwrite, command=command,
+                  info=lambda m: say(args, m))
+    if not args.quiet:
+        print(summarise(ds))
+        if args.output:
+            print(f"wrote {args.output}")
+    return 0

@@ -1,0 +1,54 @@
+"""Names, dimensions, units and attributes of every variable cable writes.
+
+Writers and readers map these; nothing else in the package spells a unit string or a
+long name of an output. Unit strings are ones both udunits (CF) and pint read.
+"""
+
+from __future__ import annotations
+
+CONVENTIONS = "CF-1.10"
+
+#: name -> (dims, units, long_name, standard_name or None)
+COORDS = {
+    "t": (("t",), "ms", "time", "time"),
+    "x": (("x",), "cm", "position along the fibre", None),
+    "beat": (("beat",), "1", "beat number (stimulus onsets in order)", None),
+    "level": (("level",), "percent", "repolarisation level of the action-potential duration", None),
+}
+
+VARIABLES = {
+    "vm": (("t", "x"), "mV", "membrane potential", None),
+    "beat_onset": (("beat",), "ms", "stimulus onset of the beat", None),
+    "activation_time": (("beat", "x"), "ms", "activation time (upward threshold crossing)", None),
+    "conduction_velocity": (("beat",), "m/s", "conduction velocity in the measurement window", None),
+    "captured": (("beat",), "1", "the stimulus excited the tissue it was applied to", None),
+    "blocked": (("beat",), "1", "the wave started but did not reach an end of the fibre", None),
+    "block_x": (("beat",), "cm", "last activated position of a blocked wave", None),
+    "apd": (("level", "beat", "x"), "ms", "action-potential duration", None),
+    "resting_potential": (("beat", "x"), "mV", "lowest potential before the upstroke", None),
+    "peak_potential": (("beat", "x"), "mV", "peak potential of the action potential", None),
+    "upstroke_velocity": (("beat", "x"), "V/s", "maximal rate of rise of the upstroke", None),
+    "wavelength": (("beat",), "cm", "wavelength: CV times APD90 at the centre of the CV window", None),
+}
+
+#: long names of state variables come from the model; units from the model too
+STATE_PREFIX = "state_"
+
+#: boolean variables are stored as int8 0/1 with flag attributes
+FLAGS = {"captured", "blocked"}
+
+
+def attrs(name: str) -> dict:
+    """CF attributes of a coordinate or variable."""
+    dims, units, long_name, standard = {**COORDS, **VARIABLES}[name]
+    out = {"units": units, "long_name": long_name}
+    if standard:
+        out["standard_name"] = standard
+    if name in FLAGS:
+        out.update(flag_values=[0, 1], flag_meanings="false true")
+        out.pop("units")
+    return out
+
+
+def dims(name: str) -> tuple[str, ...]:
+    return {**COORDS, **VARIABLES}[name][0]

@@ -1,0 +1,452 @@
+"""The front door: :func:`simulate` runs a case and returns one ``xarray.Dataset``.
+
+Stages: :func:`prepare` turns a validated case into arrays (grid, parameters per
+node, initial state, stimulus pulses); the compiled time loop advances the strand
+between output times; samples go to memory or are streamed to a netCDF file; the
+measurements (activation, conduction velocity, block, APD) are computed at the end
+from probes the kernel kept, so they do not depend on the sampling interval.
+"""
+
+from __future__ import annotations
+
+import functools
+import os
+import time as _time
+from dataclasses import dataclass, field
+
+import numpy as np
+import xarray as xr
+
+from cable import __version__
+from cable.case import Case, CaseError, load_case
+from cable.fiber import Grid, build_grid, node_positions
+from cable.io import schema
+from cable.kernels import diffusion, integrate
+from cable.kernels.jit import specialise
+from cable.measure.activation import assign_beats, per_beat
+from cable.measure.apd import ApdTracker
+from cable.measure.velocity import conduction_velocity, default_window, window_nodes
+from cable.membrane import MembraneModel, get_model
+
+#: how often the loop checks for NaN / runaway potential [steps]
+CHECK_EVERY = 200
+
+
+class SimulationError(RuntimeError):
+    """A numerical failure during the run (NaN or runaway potential).
+
+    Attributes
+    ----------
+    time, position : float
+        Where it was found [ms], [cm] (position None for a single cell).
+    partial : xarray.Dataset or None
+        What was computed up to then.
+    """
+
+    def __init__(self, message, time=None, position=None, partial=None):
+        super().__init__(message)
+        self.time = time
+        self.position = position
+        self.partial = partial
+
+
+@functools.lru_cache(maxsize=None)
+def _integrator(model_name: str):
+    model = get_model(model_name)
+    return specialise(integrate.advance, model.name, reaction=model.reaction)
+
+
+def is_compiled(model_name: str) -> bool:
+    """Whether the time loop of ``model_name`` is in numba's on-disk cache already."""
+    fn = _integrator(model_name)
+    if fn.signatures:
+        return True
+    try:
+        return os.path.exists(fn._cache._cache_file._index_path)
+    except AttributeError:  # numba internals changed: assume not
+        return False
+
+
+@dataclass
+class Setup:
+    """Everything the time loop needs, in canonical units (see :func:`prepare`)."""
+
+    case: Case
+    model: MembraneModel
+    x: np.ndarray | None          # None for a single cell
+    grid: Grid
+    v0: np.ndarray
+    s0: np.ndarray
+    p: np.ndarray
+    pulses: np.ndarray            # (npulse, 5): on, off, i0, i1, amplitude/C_m
+    threshold: float
+    ion_scale: float
+    steps_per_sample: int
+    n_samples: int
+    cv_window: tuple[float, float] | None
+    notes: list[str] = field(default_factory=list)
+    prepace: dict | None = None
+
+    @property
+    def n(self) -> int:
+        return self.v0.size
+
+    @property
+    def t(self) -> np.ndarray:
+        return np.arange(self.n_samples) * self.steps_per_sample * self.case.numerics.dt
+
+
+def node_parameters(case: Case, model: MembraneModel, n: int) -> np.ndarray:
+    """Parameter array (n, nparam): defaults, then [membrane.parameters], then scales."""
+    row = model.default_parameters()
+    for name, value in case.membrane.parameters.items():
+        row[model.parameter_names.index(name)] = model.parameter(name).encode(value)
+    for name, factor in case.membrane.scale.items():
+        row[model.parameter_names.index(name)] *= factor
+    return np.tile(row, (n, 1))
+
+
+def stimulus_pulses(case: Case, x: np.ndarray | None, notes: list) -> np.ndarray:
+    """Pulse table (npulse, 5) from the case's stimuli; amplitudes divided by C_m."""
+    cm = case.fiber.capacitance if case.fiber is not None else 1.0
+    rows = []
+    for k, s in enumerate(case.stimuli):
+        if x is None:
+            i0, i1 = 0, 1
+        else:
+            tol = 1e-9 * max(1.0, x[-1])
+            inside = np.flatnonzero((x >= s.x - tol) & (x <= s.x + s.width + tol))
+            if inside.size == 0:
+                near = int(np.argmin(np.abs(x - (s.x + 0.5 * s.width))))
+                inside = np.array([near])
+                notes.append(f"stimulus.{k}: zone narrower than dx; applied at the nearest node x = {x[near]:g} cm.")
+            i0, i1 = int(inside[0]), int(inside[-1]) + 1
+        for onset in s.onsets():
+            rows.append((onset, onset + s.duration, i0, i1, s.amplitude / cm))
+    pulses = np.array(rows, dtype=np.float64).reshape(-1, 5)
+    return pulses[np.argsort(pulses[:, 0], kind="stable")]
+
+
+def prepare(case) -> Setup:
+    """Turn a case (path, dict or Case) into the arrays of the run.
+
+    Raises
+    ------
+    CaseError
+        When the case is invalid or too large.
+    """
+    case = case if isinstance(case, Case) else load_case(case)
+    model = get_model(case.membrane.model)
+    notes = list(case.notes)
+    num = case.numerics
+    if case.fiber is not None:
+        x = node_positions(case.fiber)
+        grid = build_grid(case.fiber)
+        cm = case.fiber.capacitance
+    else:
+        x = None
+        grid = Grid(x=np.zeros(1), lo=np.zeros(1), up=np.zeros(1))
+        cm = 1.0
+    n = grid.n
+    p = node_parameters(case, model, n)
+    s0 = np.tile(model.initial_states(), (n, 1)).reshape(n, len(model.states))
+    v0 = np.full(n, model.resting_potential)
+    pre = None
+    if case.membrane.prepace is not None:
+        from cable.prepace import prepace_nodes
+
+        v0, s0, pre = prepace_nodes(case, model, p, v0, s0)
+    pulses = stimulus_pulses(case, x, notes)
+    spb = max(1, int(round(case.output_every / num.dt)))
+    intervals = int(round(case.duration / (spb * num.dt)))
+    if abs(intervals * spb * num.dt - case.duration) > 1e-9 * case.duration:
+        intervals = int(np.ceil(case.duration / (spb * num.dt)))
+        notes.append(f"run.duration rounded up to {intervals * spb * num.dt:g} ms, a whole number of output intervals.")
+    cv_window = None
+    if x is not None:
+        cv_window = case.cv_window or default_window(case.fiber.length)
+        if window_nodes(x, cv_window).size < 3:
+            raise CaseError(f"measure.cv_window = {list(cv_window)} cm holds fewer than 3 nodes at dx = "
+                            f"{case.fiber.dx:g} cm; widen it or refine dx.")
+        if num.diffusion == "forward-euler":
+            h = num.dt if (num.splitting == "godunov" or num.merge_half_steps) else 0.5 * num.dt
+            rate = float(np.max(grid.lo + grid.up))
+            if h * rate > 1.0:
+                raise CaseError(f"numerics.dt = {num.dt:g} ms exceeds the stability limit of forward-Euler diffusion "
+                                f"on this grid ({(1.0 / rate) * num.dt / h:.4g} ms); reduce dt or use "
+                                f"diffusion = \"crank-nicolson\".")
+    setup = Setup(case=case, model=model, x=x, grid=grid, v0=v0, s0=s0, p=p, pulses=pulses,
+                  threshold=case.threshold if case.threshold is not None else model.threshold,
+                  ion_scale=model.ion_scale(cm), steps_per_sample=spb, n_samples=intervals + 1,
+                  cv_window=cv_window, notes=notes, prepace=pre)
+    _check_size(setup)
+    return setup
+
+
+def stored_bytes(setup: Setup) -> int:
+    """Bytes of the stored fields (vm and extra states, float32 on file, float64 in memory)."""
+    return setup.n_samples * setup.n * (1 + len(setup.case.output_states)) * 8
+
+
+def _check_size(setup: Setup, output=None) -> None:
+    need = stored_bytes(setup)
+    try:
+        avail = os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
+    except (ValueError, OSError, AttributeError):
+        return
+    if need > 0.8 * avail:
+        raise CaseError(f"the stored fields need {need / 2**30:.1f} GiB but {avail / 2**30:.1f} GiB of memory is "
+                        f"free: increase output.every (now {setup.case.output_every:g} ms), store fewer "
+                        f"output.states, or shorten run.duration.")
+
+
+class _MemorySink:
+    def __init__(self, setup: Setup, names):
+        self.fields = {name: np.empty((setup.n_samples, setup.n)) for name in names}
+        self.filled = 0
+
+    def write(self, k, values):
+        for name, arr in values.items():
+            self.fields[name][k] = arr
+        self.filled = k + 1
+
+
+def simulate(case, *, output=None, overwrite: bool = False, progress=None, command: str | None = None,
+             info=None) -> xr.Dataset:
+    """Run a case and return its result.
+
+    Parameters
+    ----------
+    case : str, pathlib.Path, dict or Case
+        A case file, its TOML text, a dict of the same structure, or a loaded case.
+    output : str or pathlib.Path, optional
+        netCDF file to write; ``vm`` is streamed to it during the run so memory does
+        not grow with the duration. Written under a temporary name and renamed.
+    overwrite : bool
+        Replace an existing ``output``.
+    progress : callable, optional
+        ``progress(t_done, t_total)`` called after each output interval.
+    command : str, optional
+        The command line, recorded in the provenance attributes.
+    info : callable, optional
+        Receives one-line notes (compilation, adjusted settings).
+
+    Returns
+    -------
+    xarray.Dataset
+        Coordinates ``t`` [ms], ``x`` [cm] (absent for a single cell), ``beat``;
+        ``vm(t, x)``, ``activation_time(beat, x)``, ``conduction_velocity(beat)`` [m/s],
+        ``captured``, ``blocked``, ``block_x`` and the APD family; see
+        :mod:`cable.io.schema`.
+
+    Raises
+    ------
+    CaseError
+        Invalid case (nothing is run).
+    SimulationError
+        NaN or runaway potential; the partial result is attached (and written, marked
+        partial, when ``output`` is given).
+    """
+    from cable.io import netcdf
+
+    setup = prepare(case)
+    case = setup.case
+    if output is not None:
+        netcdf.check_target(output, overwrite)
+    say = info or (lambda msg: None)
+    for note in setup.notes:
+        say(note)
+    if setup.prepace is not None:
+        say(setup.prepace["summary"])
+    model = setup.model
+    if not is_compiled(model.name):
+        say(f"compiling the '{model.name}' kernels (first run only; later runs use the cache)...")
+    advance = _integrator(model.name)
+
+    num = case.numerics
+    dt = num.dt
+    n = setup.n
+    state_names = list(case.output_states)
+    state_idx = [model.state_names.index(s) for s in state_names]
+    field_names = ["vm"] + [schema.STATE_PREFIX + s for s in state_names]
+    v = setup.v0.copy()
+    s = np.ascontiguousarray(setup.s0.copy())
+    p = np.ascontiguousarray(setup.p)
+    grid = setup.grid
+    theta = diffusion.THETA[num.diffusion]
+    half = diffusion.factor(grid.lo, grid.up, 0.5 * dt, theta)
+    full = diffusion.factor(grid.lo, grid.up, dt, theta)
+    splitting = integrate.STRANG if num.splitting == "strang" else integrate.GODUNOV
+    gating = 0 if num.gating == "rush-larsen" else 1
+    cap = max(16, 2 * setup.pulses.shape[0] + 8)
+    act = np.full((n, cap), np.nan)
+    nact = np.zeros(n, dtype=np.int64)
+    upstroke = np.full((n, cap), np.nan)
+    vprev = v.copy()
+    pre_rate = np.zeros(n)
+    open_up = np.zeros(n, dtype=np.int64)
+    i_stim = np.zeros(n)
+    work = np.zeros(n)
+    tracker = ApdTracker(v, act, case.apd_levels)
+
+    attrs = provenance(setup, command)
+    sink = netcdf.StreamWriter(output, setup, field_names, model, attrs) if output is not None else \
+        _MemorySink(setup, field_names)
+
+    def sample(k):
+        vals = {"vm": v}
+        for name, j in zip(state_names, state_idx):
+            vals[schema.STATE_PREFIX + name] = s[:, j]
+        sink.write(k, vals)
+
+    sample(0)
+    failure = None
+    interrupted = False
+    spb = setup.steps_per_sample
+    t_total = (setup.n_samples - 1) * spb * dt
+    wall0 = _time.perf_counter()
+    try:
+        for k in range(1, setup.n_samples):
+            t0 = (k - 1) * spb * dt
+            status, step, node = advance(v, s, p, t0, spb, dt, setup.pulses, grid.lo, grid.up, theta, half, full,
+                                         splitting, num.merge_half_steps, gating, setup.ion_scale, setup.threshold,
+                                         vprev, act, nact, pre_rate, open_up, upstroke, i_stim, work, CHECK_EVERY)
+            if status != integrate.OK:
+                failure = (status, t0 + (step + 1) * dt, node)
+                break
+            t_k = k * spb * dt
+            tracker.update(v, t_k, act, nact)
+            sample(k)
+            if progress is not None:
+                progress(t_k, t_total)
+    except KeyboardInterrupt:
+        interrupted = True
+    wall = _time.perf_counter() - wall0
+    n_done = sink.filled
+    attrs["wall_time_s"] = round(wall, 4)
+    meas = measurements(setup, act, nact, upstroke, tracker)
+    if failure is not None or interrupted:
+        reason = "interrupted" if interrupted else _failure_message(setup, failure)
+        attrs.update(status="partial", partial_reason=reason, completed_until_ms=(n_done - 1) * spb * dt)
+    else:
+        attrs["status"] = "complete"
+    if output is not None:
+        ds = sink.finish(meas, attrs, n_done)
+    else:
+        ds = assemble(setup, {k_: v_[:n_done] for k_, v_ in sink.fields.items()}, meas, attrs, model)
+    if interrupted:
+        raise KeyboardInterrupt
+    if failure is not None:
+        pos = None if setup.x is None else float(setup.x[failure[2]])
+        raise SimulationError(attrs["partial_reason"], time=failure[1], position=pos, partial=ds)
+    return ds
+
+
+def _failure_message(setup: Setup, failure) -> str:
+    status, t_fail, node = failure
+    what = "the potential became NaN" if status == integrate.NONFINITE else \
+        f"the potential left +/-{integrate.RUNAWAY_MV:g} mV"
+    where = "" if setup.x is None else f" at x = {setup.x[node]:.4g} cm"
+    num = setup.case.numerics
+    causes = []
+    if num.gating == "forward-euler":
+        causes.append(f"numerics.gating = \"forward-euler\" with dt = {num.dt:g} ms is likely too coarse; "
+                      "use \"rush-larsen\" or a smaller dt")
+    if num.diffusion == "forward-euler":
+        causes.append("forward-Euler diffusion near its stability limit; use \"crank-nicolson\"")
+    if setup.case.membrane.scale or setup.case.membrane.parameters:
+        causes.append("a changed parameter or conductance may have made the model unstable "
+                      f"({', '.join(list(setup.case.membrane.scale) + list(setup.case.membrane.parameters))})")
+    causes.append(f"numerics.dt = {num.dt:g} ms may be too large for this model; try half")
+    return f"{what}{where} near t = {t_fail:.4g} ms. Likely cause: " + "; or ".join(causes) + "."
+
+
+def measurements(setup: Setup, act, nact, upstroke, tracker: ApdTracker) -> dict:
+    """Per-beat measurements as ``{name: (dims, array)}`` (with the x dimension)."""
+    x = setup.x if setup.x is not None else np.zeros(1)
+    beats = assign_beats(act, nact, x, setup.pulses)
+    out = {
+        "beat_onset": (("beat",), beats.onset),
+        "activation_time": (("beat", "x"), beats.activation),
+        "captured": (("beat",), beats.captured.astype(np.int8)),
+        "blocked": (("beat",), beats.blocked.astype(np.int8)),
+        "block_x": (("beat",), beats.block_x),
+        "upstroke_velocity": (("beat", "x"), per_beat(upstroke, beats.index)),
+        "resting_potential": (("beat", "x"), per_beat(tracker.rest, beats.index)),
+        "peak_potential": (("beat", "x"), per_beat(tracker.peak, beats.index)),
+    }
+    repol = per_beat(tracker.repol, beats.index)          # (nbeat, n, nlev)
+    apd = np.moveaxis(repol, 2, 0) - beats.activation[None, :, :]
+    out["apd"] = (("level", "beat", "x"), apd)
+    if setup.x is not None:
+        cv = conduction_velocity(beats.activation, setup.x, setup.cv_window)
+        out["conduction_velocity"] = (("beat",), cv)
+        centre = int(np.argmin(np.abs(setup.x - 0.5 * (setup.cv_window[0] + setup.cv_window[1]))))
+        levels = list(setup.case.apd_levels)
+        if 90.0 in levels:
+            apd90 = apd[levels.index(90.0), :, centre]
+            out["wavelength"] = (("beat",), cv / 10.0 * apd90)  # m/s -> cm/ms, times ms
+    return out
+
+
+def provenance(setup: Setup, command: str | None) -> dict:
+    """Run facts recorded with the result (CF global attributes)."""
+    import numba
+
+    case = setup.case
+    num = case.numerics
+    attrs = {
+        "Conventions": schema.CONVENTIONS,
+        "title": f"cable run: {setup.model.name}",
+        "source": f"cable {__version__}",
+        "model": setup.model.name,
+        "model_citation": setup.model.citation,
+        "case": case.text,
+        "cable_version": __version__,
+        "numpy_version": np.__version__,
+        "numba_version": numba.__version__,
+        "command": command or "",
+        "dt_ms": num.dt,
+        "splitting": num.splitting,
+        "diffusion": num.diffusion,
+        "gating": num.gating,
+        "merge_half_steps": int(num.merge_half_steps),
+        "threshold_mV": setup.threshold,
+        "notes": "\n".join(setup.notes),
+        "comment": "Research tool; not for clinical decisions.",
+    }
+    if setup.x is not None:
+        attrs.update(dx_cm=float(case.fiber.dx), diffusivity_cm2_per_ms=case.fiber.diffusivity,
+                     cv_window_cm=list(setup.cv_window))
+    if setup.prepace is not None:
+        attrs["prepace"] = setup.prepace["summary"]
+        attrs["prepace_last_beat_change"] = setup.prepace["last_beat_change"]
+    return attrs
+
+
+def assemble(setup: Setup, fields: dict, meas: dict, attrs: dict, model: MembraneModel) -> xr.Dataset:
+    """Build the in-memory result Dataset (single cells lose the x dimension)."""
+    t = setup.t[: next(iter(fields.values())).shape[0]]
+    data = {}
+    for name, arr in fields.items():
+        data[name] = (("t", "x"), arr, _field_attrs(name, model))
+    for name, (dims, arr) in meas.items():
+        data[name] = (dims, arr, schema.attrs(name))
+    coords = {
+        "t": ("t", t, schema.attrs("t")),
+        "beat": ("beat", np.arange(len(meas["beat_onset"][1])), schema.attrs("beat")),
+        "level": ("level", np.array(setup.case.apd_levels), schema.attrs("level")),
+    }
+    x = setup.x if setup.x is not None else np.zeros(1)
+    coords["x"] = ("x", x, schema.attrs("x"))
+    ds = xr.Dataset(data, coords=coords, attrs=attrs)
+    if setup.x is None:
+        ds = ds.isel(x=0, drop=True)
+    return ds
+
+
+def _field_attrs(name: str, model: MembraneModel) -> dict:
+    if name == "vm":
+        return schema.attrs("vm")
+    state = model.states[model.state_names.index(name[len(schema.STATE_PREFIX):])]
+    return {"units": state.units, "long_name": state.meaning}
