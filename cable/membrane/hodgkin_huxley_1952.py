@@ -97,12 +97,14 @@ def reference(v, s, p):
     v = np.asarray(v, dtype=float)
     phi = 3.0 ** ((p[:, TEMPERATURE] - 6.3) / 10.0)
     x = -(v + 40.0)
-    am = phi * 0.1 * np.where(np.abs(x) < 1e-5, 10.0, x / np.expm1(x / 10.0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        am = phi * 0.1 * np.where(np.abs(x) < 1e-5, 10.0, x / np.expm1(x / 10.0))
     bm = phi * 4.0 * np.exp(-(v + 65.0) / 18.0)
     ah = phi * 0.07 * np.exp(-(v + 65.0) / 20.0)
     bh = phi / (1.0 + np.exp(-(v + 35.0) / 10.0))
     x = -(v + 55.0)
-    an = phi * 0.01 * np.where(np.abs(x) < 1e-5, 10.0, x / np.expm1(x / 10.0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        an = phi * 0.01 * np.where(np.abs(x) < 1e-5, 10.0, x / np.expm1(x / 10.0))
     bn = phi * 0.125 * np.exp(-(v + 65.0) / 80.0)
     m, h, n = s[:, 0], s[:, 1], s[:, 2]
     ds = np.stack([am * (1 - m) - bm * m, ah * (1 - h) - bh * h, an * (1 - n) - bn * n], axis=1)

@@ -1,0 +1,28 @@
+"""Shared test settings: a non-interactive matplotlib backend and a seeded generator."""
+
+import os
+
+import numpy as np
+import pytest
+
+os.environ.setdefault("MPLBACKEND", "Agg")
+
+
+@pytest.fixture
+def rng():
+    return np.random.default_rng(20261201)
+
+
+def hh_axon_case(length=3.0, dx=0.01, dt=0.005, duration=None, **extra):
+    """The Hodgkin & Huxley (1952) axon: radius 238 um, R_i 35.4 ohm*cm, 18.5 degC."""
+    case = {
+        "membrane": {"model": "hodgkin-huxley-1952", "temperature": 18.5},
+        "fiber": {"length": length, "dx": dx, "radius": "238 um", "axial_resistivity": "35.4 ohm*cm"},
+        "stimulus": [{"amplitude": 1000.0, "duration": 0.2, "width": 0.1}],
+        "numerics": {"dt": dt},
+        "run": {"duration": duration or (3.0 + 0.6 * length)},
+        "output": {"every": 0.5},
+    }
+    for key, value in extra.items():
+        case.setdefault(key, {}).update(value)
+    return case
