@@ -156,6 +156,12 @@ def prepare(case) -> Setup:
         from cable.prepace import prepace_nodes
 
         v0, s0, pre = prepace_nodes(case, model, p, v0, s0)
+    else:
+        from cable.prepace import settle_nodes
+
+        v0, s0, note = settle_nodes(case, model, p, v0, s0)
+        if note:
+            notes.append(note)
     pulses = stimulus_pulses(case, x, notes)
     spb = max(1, int(round(case.output_every / num.dt)))
     intervals = int(round(case.duration / (spb * num.dt)))

@@ -39,9 +39,12 @@ Conventions and choices of this implementation
   the CaL permeability, the RyR rate constants) are declared ``"dimensionless"``: a case
   file gives them as bare numbers in the listed unit. Conductances in nS/pF are declared
   ``"rate"`` (1 nS/pF = 1/ms exactly).
-* Initial state: the end-diastolic state of an epicardial cell paced at 1 Hz (52 mV/ms for
-  1 ms, Rush-Larsen, dt 0.02 ms) for 300 beats with this implementation, started from
-  the paper's initial values.
+* Initial state: computed, not copied: the end-diastolic state (just before the next
+  stimulus) of an epicardial cell paced with this kernel at 1 Hz (52 mV/ms for 1 ms,
+  Rush-Larsen, dt 0.02 ms) for 1000 beats, starting near the paper's initial values.
+  During that pacing only, the stimulus charge was added to K_i (as in the paper), so
+  that a true 1 Hz limit cycle exists; with the kernel's convention K_i then drifts by
+  about -6e-3 mM per beat, negligible over tens of beats.
 """
 
 import math
@@ -260,6 +263,7 @@ def _buffered(c, d_total, buf, k):
 
 @jit
 def reaction(v, s, p, i_stim, dt, ion_scale, gating):
+    """One reaction step of all nodes, in place (contract: :mod:`cable.membrane.base`)."""
     for i in range(v.shape[0]):
         V = v[i]
         Ca_i, Ca_SR, Ca_ss = s[i, CA_I], s[i, CA_SR], s[i, CA_SS]
@@ -298,6 +302,7 @@ def reaction(v, s, p, i_stim, dt, ion_scale, gating):
 
 @jit
 def currents(v, s, p, out):
+    """Fill ``out[n, 12]`` with the membrane currents [pA/pF] named in ``CURRENT_NAMES``."""
     for i in range(v.shape[0]):
         c = _membrane_currents(v[i], s, p, i)
         for k in range(len(c)):
@@ -419,26 +424,26 @@ CURRENT_NAMES = ("I_Na", "I_to", "I_Kr", "I_Ks", "I_K1", "I_NaCa", "I_NaK", "I_p
 
 # (name, initial value, units, meaning); initial values: see the module docstring
 _STATES = (
-    ("m", 0.00172, "1", "I_Na activation gate"),
-    ("h", 0.7444, "1", "I_Na fast inactivation gate"),
-    ("j", 0.7045, "1", "I_Na slow inactivation gate"),
-    ("Xr1", 0.00621, "1", "I_Kr activation gate"),
-    ("Xr2", 0.4712, "1", "I_Kr inactivation gate"),
-    ("Xs", 0.0095, "1", "I_Ks activation gate"),
-    ("r", 2.42e-8, "1", "I_to activation gate"),
-    ("s", 0.999998, "1", "I_to inactivation gate"),
-    ("d", 3.373e-5, "1", "I_CaL activation gate"),
-    ("f", 0.7888, "1", "I_CaL slow voltage inactivation gate"),
-    ("f2", 0.9755, "1", "I_CaL fast voltage inactivation gate"),
-    ("fCass", 0.9953, "1", "I_CaL subspace-calcium inactivation gate"),
-    ("R_prime", 0.9073, "1", "fraction of RyR not inactivated (R-bar)"),
-    ("Ca_i", 0.000126, "mM", "free cytoplasmic calcium"),
-    ("Ca_SR", 3.64, "mM", "free SR calcium"),
-    ("Ca_ss", 0.00036, "mM", "free subspace calcium"),
-    ("Na_i", 8.604, "mM", "intracellular sodium"),
-    ("K_i", 136.89, "mM", "intracellular potassium"),
+    ("m", 0.001647478, "1", "I_Na activation gate"),
+    ("h", 0.7500859, "1", "I_Na fast inactivation gate"),
+    ("j", 0.7497071, "1", "I_Na slow inactivation gate"),
+    ("Xr1", 0.0002063598, "1", "I_Kr activation gate"),
+    ("Xr2", 0.4731528, "1", "I_Kr inactivation gate"),
+    ("Xs", 0.003221247, "1", "I_Ks activation gate"),
+    ("r", 2.341281e-8, "1", "I_to activation gate"),
+    ("s", 0.9999979, "1", "I_to inactivation gate"),
+    ("d", 3.287728e-5, "1", "I_CaL activation gate"),
+    ("f", 0.9772254, "1", "I_CaL slow voltage inactivation gate"),
+    ("f2", 0.9995015, "1", "I_CaL fast voltage inactivation gate"),
+    ("fCass", 0.9999728, "1", "I_CaL subspace-calcium inactivation gate"),
+    ("R_prime", 0.9891751, "1", "fraction of RyR not inactivated (R-bar)"),
+    ("Ca_i", 0.000104492, "mM", "free cytoplasmic calcium"),
+    ("Ca_SR", 3.50023, "mM", "free SR calcium"),
+    ("Ca_ss", 0.0002130736, "mM", "free subspace calcium"),
+    ("Na_i", 9.782091, "mM", "intracellular sodium"),
+    ("K_i", 135.7416, "mM", "intracellular potassium"),
 )
-RESTING_POTENTIAL = -85.23  # [mV]
+RESTING_POTENTIAL = -85.42026  # [mV]
 
 MODEL = MembraneModel(
     name="ten-tusscher-panfilov-2006",
