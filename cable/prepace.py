@@ -108,7 +108,7 @@ def settle_nodes(case, model, p, v0, s0):
     if not changed:
         return v0, s0, None
     advance = _integrator(model.name)
-    dt = case.numerics.dt
+    dt = min(max(case.numerics.dt, 1e-3), 0.01)  # settling needs no finer step than the run's
     cm = case.fiber.capacitance if case.fiber is not None else 1.0
     lo = np.zeros(1)
     fac = diffusion.factor(lo, lo, dt, 0.5)

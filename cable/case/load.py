@@ -22,6 +22,11 @@ class CaseError(ValueError):
     """A case that cannot be run, with a message written for the user."""
 
 
+#: refuse runs beyond these sizes (a mistyped unit, not a study): steps, and nodes x steps
+MAX_STEPS = 1e9
+MAX_NODE_STEPS = 1e13
+
+
 # ----------------------------------------------------------------------------- dataclasses
 @dataclass(frozen=True)
 class Stimulus:
@@ -394,6 +399,14 @@ def from_dict(raw: dict) -> Case:
                             f"States: {', '.join(model.state_names) or '(none)'}.")
     if num.dt > run["duration"]:
         raise CaseError(f"numerics.dt = {num.dt:g} ms is longer than run.duration = {run['duration']:g} ms.")
+    steps = run["duration"] / num.dt
+    if steps > MAX_STEPS:
+        raise CaseError(f"numerics.dt = {num.dt:g} ms gives {steps:.3g} steps over run.duration = "
+                        f"{run['duration']:g} ms; at most {MAX_STEPS:.0e} are allowed. Increase dt or shorten the run.")
+    if fiber is not None and steps * fiber.n_nodes > MAX_NODE_STEPS:
+        raise CaseError(f"the run needs {steps * fiber.n_nodes:.3g} node-steps ({fiber.n_nodes} nodes x {steps:.3g} "
+                        f"steps); at most {MAX_NODE_STEPS:.0e} are allowed. Increase fiber.dx or numerics.dt, or "
+                        f"shorten the fibre or the run.")
     every = out["every"]
     ratio = every / num.dt
     if abs(ratio - round(ratio)) > 1e-9 * max(1.0, ratio) or round(ratio) < 1:
