@@ -96,10 +96,8 @@ def to_canonical(value, quantity: str) -> float:
         q = ureg.Quantity(text)
     except Exception as exc:  # pint raises several unrelated types for bad text
         raise UnitError(f"cannot read {value!r} as a quantity ({exc.__class__.__name__})") from None
-    if not hasattr(q, "to"):
+    if not hasattr(q, "to"):  # pint returns a plain number for unitless text
         return float(q)
-    if q.dimensionless and unit != "1" and not q.unitless:
-        pass
     if q.unitless:
         return float(q.magnitude)
     try:
