@@ -25,6 +25,8 @@ class CaseError(ValueError):
 #: refuse runs beyond these sizes (a mistyped unit, not a study): steps, and nodes x steps
 MAX_STEPS = 1e9
 MAX_NODE_STEPS = 1e13
+#: temperatures outside this range [degC] run, with a warning
+PHYSIOLOGICAL_TEMPERATURE = (0.0, 42.0)
 
 
 # ----------------------------------------------------------------------------- dataclasses
@@ -374,6 +376,11 @@ def from_dict(raw: dict) -> Case:
             raise CaseError(f"membrane.temperature: model '{model.name}' has no temperature dependence; remove the key.")
         params[model.temperature_parameter] = _param_value("membrane.temperature", mem["temperature"],
                                                            model.parameter(model.temperature_parameter))
+        t_c = params[model.temperature_parameter]
+        if not PHYSIOLOGICAL_TEMPERATURE[0] <= t_c <= PHYSIOLOGICAL_TEMPERATURE[1]:
+            notes.append(f"warning: membrane.temperature = {t_c:g} degC is outside the physiological range "
+                         f"{PHYSIOLOGICAL_TEMPERATURE[0]:g}-{PHYSIOLOGICAL_TEMPERATURE[1]:g} degC; the model's "
+                         f"temperature scaling was not validated there.")
     prepace = _read_prepace(mem["prepace"]) if mem["prepace"] is not None else None
     membrane = Membrane(model.name, mem["temperature"], scale, params, prepace)
 

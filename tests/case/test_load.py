@@ -119,3 +119,10 @@ def test_simulate_accepts_path_dict_and_case(tmp_path):
     b = cable.simulate(load_case(path))
     c = cable.simulate(load_case(path).raw)
     assert a.vm.equals(b.vm) and b.vm.equals(c.vm)
+
+
+def test_temperature_outside_physiological_range_warns():
+    case = load_case(BASE, ["membrane.temperature=44"])
+    assert any("outside the physiological range" in n for n in case.notes)
+    with pytest.raises(CaseError, match="membrane.temperature"):
+        load_case(BASE, ["membrane.temperature=80"])   # beyond the model's declared maximum
