@@ -22,6 +22,7 @@ __version__ = "0.1.0"
 from cable.case import Case, CaseError, load_case  # noqa: E402
 from cable.membrane import get_model, model_names  # noqa: E402
 from cable.simulate import SimulationError, prepare, simulate  # noqa: E402
+from cable.sweep import sweep  # noqa: E402  (the function; dask is imported on first call)
 
 # Imported on first use: they pull in dask, matplotlib or scipy, which a plain run does not need.
 _LAZY = {
@@ -30,7 +31,6 @@ _LAZY = {
     "refractory_period": "cable.protocols.refractory",
     "restitution": "cable.protocols.restitution",
     "convergence": "cable.protocols.converge",
-    "sweep": "cable.sweep",
     "open_result": "cable.io.netcdf",
     "rerun": "cable.io.netcdf",
     "plot": None,
@@ -46,4 +46,4 @@ def __getattr__(name):
 
 
 __all__ = ["Case", "CaseError", "SimulationError", "get_model", "load_case", "model_names", "prepare",
-           "simulate", "__version__", *_LAZY]
+           "simulate", "sweep", "__version__", *_LAZY]

@@ -52,7 +52,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "surface_to_volume": _q("surface_to_volume", positive=True, meaning="membrane area per volume chi (tissue form) [1/cm]"),
         "capacitance": _q("capacitance", 1.0, positive=True, meaning="membrane capacitance C_m [uF/cm^2]"),
         "cell_length": _q("length", positive=True, meaning="cell length for discrete cell-by-cell coupling [cm]"),
-        "gap_junction_conductance": _q("conductance", positive=True, meaning="junctional conductance per membrane area of a cell's end [mS/cm^2]... see DEVELOPERS.md"),
+        "gap_junction_conductance": _q("conductance", positive=True, meaning="gap-junction conductance per unit cross-section of the fibre (axon form) or tissue (tissue form) [mS/cm^2]; a junction resistance R_j [ohm*cm^2] is \"1/(R_j ohm*cm^2)\"; G [uS] per junction is G/(pi a^2); see cable/fiber.py"),
     },
     "stimulus": {
         "x": _q("length", 0.0, minimum=0.0, meaning="left edge of the stimulated zone [cm]"),
@@ -69,6 +69,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "diffusion": Key("choice", default="crank-nicolson", choices=("crank-nicolson", "backward-euler", "forward-euler"), meaning="diffusion step"),
         "gating": Key("choice", default="rush-larsen", choices=("rush-larsen", "forward-euler"), meaning="gate update of the reaction step"),
         "merge_half_steps": Key("bool", default=True, meaning="Strang: join the two diffusion half steps between outputs into one (same order, half the solves)"),
+        "rates": Key("choice", default="tabulated", choices=("tabulated", "exact", "reference"), meaning="reaction kernel: gate rates tabulated in V (fast; CV and APD90 within 0.1% of exact), evaluated exactly (vectorised), or the model's reference kernel; see cable/kernels/tables.py"),
     },
     "run": {
         "duration": _q("time", required=True, positive=True, meaning="simulated time [ms]"),
@@ -76,11 +77,14 @@ SECTIONS: dict[str, dict[str, Key]] = {
     "output": {
         "every": _q("time", 0.1, positive=True, meaning="sampling interval of stored fields [ms]"),
         "states": Key("list_str", default=(), meaning="extra state variables to store, e.g. [\"h\"]"),
+        "keep_fields": Key("bool", default=False, meaning="sweeps: keep each point's space-time fields in OUT.nc.points/ (a plain run ignores it)"),
     },
     "measure": {
         "threshold": _q("potential", meaning="activation level [mV]; default: the model's"),
         "cv_window": Key("list_quantity", quantity="length", meaning="two positions [cm]; default: the middle half of the fibre"),
         "apd_levels": Key("list_quantity", quantity="dimensionless", default=(90.0,), meaning="repolarisation levels [%] for APD"),
+        "safety_factor": Key("bool", default=False, meaning="compute the safety factor of conduction per beat and node (Shaw & Rudy 1997); needs a fine output.every, see cable/measure/safety.py"),
+        "safety_factor_length": _q("length", positive=True, meaning="length of the control volume of the safety factor [cm]; default: fiber.cell_length, else 0.01 cm"),
     },
 }
 

@@ -1,0 +1,96 @@
+"""``cable sweep CASE -o OUT.nc``: run every point of a case's ``[sweep]`` on Dask."""
+
+import numpy as np
+
+from cable.cli import add_set_option, say
+
+NAME = "sweep"
+HELP = "run a parameter sweep (the case's [sweep] section) on a local Dask cluster or a scheduler"
+ORDER = 5
+
+#: points listed one per line in the summary; more are counted only
+LIST_MAX = 40
+
+
+def add_arguments(p):
+    p.add_argument("case", help="case file (TOML) with a [sweep] section")
+    p.add_argument("-o", "--output", help="result file (.nc); points are stored in OUT.nc.points/ as they finish, "
+                                          "and running again with the same output computes only what is missing")
+    p.add_argument("--workers", type=int, metavar="N",
+                   help="worker processes of the local cluster (default: one per core); with --scheduler, "
+                        "wait for N workers")
+    p.add_argument("--scheduler", metavar="ADDRESS", help="address of a running Dask scheduler, e.g. tcp://host:8786 "
+                                                           "(default: start a local cluster)")
+    p.add_argument("--vary", dest="vary", action="append", default=[], metavar="KEY=VALUES",
+                   help="sweep a case key: a list, e.g. --vary membrane.scale.g_Na=[1,0.5,0.25], or a range, "
+                        "e.g. --vary 'fiber.radius={start=\"100 um\", stop=\"300 um\", num=3}' (repeatable; "
+                        "adds to or replaces the case's [sweep])")
+    p.add_argument("--overwrite", action="store_true", help="discard an existing result of a different sweep")
+    add_set_option(p)
+    p.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors (no progress bar)")
+
+
+def run(args):
+    from cable import load_case
+    from cable.case import parse_assignment
+    from cable.sweep.run import sweep
+
+    case = load_case(args.case, args.overrides)
+    if args.vary:
+        raw = case.raw
+        table = dict(raw.get("sweep", {}))
+        for text in args.vary:
+            key, value = parse_assignment(text)
+            _drop_nested(table, key)
+            table[key] = value
+        raw = dict(raw, sweep=table)
+        case = load_case(raw)
+    ds = sweep(case, output=args.output, workers=args.workers, scheduler=args.scheduler,
+               progress=not args.quiet, overwrite=args.overwrite, info=lambda m: say(args, m))
+    if not args.quiet:
+        print(summarise(ds))
+    return 0
+
+
+def _drop_nested(table: dict, key: str) -> None:
+    """Remove ``key`` spelt as nested tables (``{"membrane": {"scale": {"g_Na": ...}}}``)."""
+    parts = key.split(".")
+    node = table
+    for part in parts[:-1]:
+        node = node.get(part) if isinstance(node, dict) else None
+        if not isinstance(node, dict):
+            return
+    if isinstance(node, dict):
+        node.pop(parts[-1], None)
+
+
+def summarise(ds) -> str:
+    """Counts of the sweep's outcomes and, for small sweeps, one line per point."""
+    from cable.sweep.store import STATUS
+
+    names = {v: k for k, v in STATUS.items()}
+    status = ds["status"].values.ravel()
+    n = status.size
+    counts = {names[c]: int(np.sum(status == c)) for c in np.unique(status)}
+    lines = [f"{n} points: " + ", ".join(f"{v} {k}" for k, v in counts.items())]
+    if n > LIST_MAX:
+        return "\n".join(lines)
+    dims = list(ds["status"].dims)
+    coords = [c for c in ds.coords if "case_key" in ds[c].attrs]
+    header = "  ".join(f"{c:>12}" for c in coords) + "  " + f"{'CV_m/s':>9}  status"
+    lines.append(header)
+    for i in range(n):
+        sel = {d: int(j) for d, j in zip(dims, np.unravel_index(i, ds["status"].shape))}
+        point = ds.isel(sel)
+        vals = "  ".join(f"{_fmt(point[c].values):>12}" for c in coords)
+        cv = float(point["conduction_velocity"].isel(beat=0)) if "conduction_velocity" in ds and "beat" in ds.dims \
+            else np.nan
+        code = int(point["status"])
+        text = names[code] + ("" if code == STATUS["ok"] else f": {point['failure_reason'].values}")
+        lines.append(f"{vals}  {cv:9.4g}  {text}")
+    return "\n".join(lines)
+
+
+def _fmt(value) -> str:
+    value = value.item() if hasattr(value, "item") else value
+    return f"{value:.6g}" if isinstance(value, float) else str(value)

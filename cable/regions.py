@@ -1,0 +1,225 @@
+"""Regions of the fibre whose membrane or coupling differ: the ``[[region]]`` case section.
+
+A region is a stretch ``[start, end]`` of the fibre with any of:
+
+* ``scale``: factors on the model's scalable conductances (``g_Na = 0.2``), relative to
+  the strand's value set by ``[membrane]`` (its ``parameters`` and ``scale``);
+* ``parameters``: model parameters (``K_o = 12``), replacing the ``[membrane]`` value;
+  a region giving both for one name applies the value, then the factor;
+* ``coupling``: a factor on the conductivity inside the region (for a fibre of
+  discrete cells, on the gap-junction conductance only: uncoupling); an edge between
+  nodes of different coupling takes the harmonic mean of the two (series
+  resistances), so the current is conserved across a border;
+* ``border``: a width outside ``[start, end]`` over which the change ramps linearly
+  back to the surrounding values, as the border zone of an ischaemic region does;
+  ``border = 0`` (the default) is an abrupt change.
+
+The weight of a region at position x is 1 inside ``[start, end]`` and falls linearly to
+0 at a distance ``border`` outside it. Regions are applied in the order given and each
+blends the values left by the earlier ones toward its own: **where regions overlap,
+the later entry wins** (its weight-1 core takes its values exactly, its border blends
+with whatever lies beneath). A labelled parameter (a cell type) cannot be blended: it
+takes the region's label where the weight is at least one half.
+
+Example::
+
+    [[region]]                 # an ischaemic zone with a 1 mm border
+    start = "8 mm"
+    end = "12 mm"
+    border = "1 mm"
+    parameters = {K_o = 12}
+    scale = {G_Na = 0.6}
+"""
+
+from __future__ import annotations
+
+import difflib
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from cable.case.load import CaseError, Key, _param_value, _read_section, convert, register_section
+
+#: the keys of one [[region]] entry
+REGION_KEYS = {
+    "start": Key("quantity", "length", required=True, minimum=0.0, meaning="left end of the region [cm]"),
+    "end": Key("quantity", "length", required=True, minimum=0.0, meaning="right end of the region [cm]"),
+    "scale": Key("table", meaning="factor per scalable conductance inside the region, e.g. g_Na = 0.2"),
+    "parameters": Key("table", meaning="value per model parameter inside the region, e.g. K_o = 12"),
+    "coupling": Key("quantity", minimum=0.0, exclusive_minimum=True,
+                    meaning="factor (> 0) on the conductivity inside the region (discrete cells: on the gap junctions)"),
+    "border": Key("quantity", "length", default=0.0, minimum=0.0,
+                  meaning="width of the linear ramp outside [start, end] [cm]; 0 = abrupt"),
+}
+
+#: positions within this fraction of dx of a region end count as inside (rounding)
+EDGE_TOLERANCE = 1e-9
+
+
+@dataclass(frozen=True)
+class Region:
+    """One validated region (canonical units; parameter values already encoded)."""
+
+    start: float
+    end: float
+    border: float = 0.0
+    scale: dict = field(default_factory=dict)
+    parameters: dict = field(default_factory=dict)
+    coupling: float | None = None
+
+    def weight(self, x: np.ndarray) -> np.ndarray:
+        """Weight of the region at positions ``x`` [cm]: 1 inside, linear ramp over the border, else 0."""
+        x = np.asarray(x, dtype=float)
+        tol = EDGE_TOLERANCE * max(1.0, float(np.max(np.abs(x))) if x.size else 1.0)
+        dist = np.maximum(self.start - x, 0.0) + np.maximum(x - self.end, 0.0)
+        dist = np.where(dist <= tol, 0.0, dist)
+        if self.border > 0.0:
+            return np.clip(1.0 - dist / self.border, 0.0, 1.0)
+        return (dist == 0.0).astype(float)
+
+
+def _nearest(name, candidates) -> str:
+    near = difflib.get_close_matches(str(name), list(candidates), n=1, cutoff=0.4)
+    return f" Did you mean '{near[0]}'?" if near else ""
+
+
+def validate(raw, case) -> tuple[Region, ...]:
+    """Validate the ``[[region]]`` entries of a case (registered with the case loader).
+
+    Parameters
+    ----------
+    raw : list of dict or dict
+        The section as read from TOML.
+    case : Case
+        The case validated so far (its fibre and membrane model).
+
+    Returns
+    -------
+    tuple of Region
+
+    Raises
+    ------
+    CaseError
+        Naming the entry and key, the value, what is allowed and the nearest valid name.
+    """
+    from cable.fiber import node_positions
+    from cable.membrane import get_model
+
+    if isinstance(raw, dict):
+        raw = [raw]
+    if not isinstance(raw, list) or not all(isinstance(r, dict) for r in raw):
+        raise CaseError("[[region]] must be a list of tables (write each entry as [[region]]).")
+    if raw and case.fiber is None:
+        raise CaseError("[[region]] needs a [fiber]: a single cell has no regions (use [membrane] scale/parameters).")
+    model = get_model(case.membrane.model)
+    length = case.fiber.length if case.fiber is not None else 0.0
+    x = node_positions(case.fiber) if case.fiber is not None else np.zeros(0)
+    out = []
+    for k, table in enumerate(raw):
+        where = f"region.{k}"
+        r = _read_section(where, table, REGION_KEYS)
+        tol = EDGE_TOLERANCE * max(1.0, length)
+        if r["end"] > length + tol:
+            raise CaseError(f"{where}.end = {table['end']!r}: lies outside the fibre (0 to {length:g} cm).")
+        if not r["start"] < r["end"]:
+            raise CaseError(f"{where}: start = {table['start']!r} must be less than end = {table['end']!r}.")
+        scale = {}
+        for name, value in (r["scale"] or {}).items():
+            if name not in model.conductances:
+                raise CaseError(f"{where}.scale.{name}: '{name}' is not a scalable conductance of '{model.name}'."
+                                f"{_nearest(name, model.conductances)} Scalable: {', '.join(model.conductances)}.")
+            scale[name] = convert(f"{where}.scale.{name}", value, Key("quantity", minimum=0.0))
+        params = {}
+        for name, value in (r["parameters"] or {}).items():
+            if name not in model.parameter_names:
+                raise CaseError(f"{where}.parameters.{name}: '{name}' is not a parameter of '{model.name}'."
+                                f"{_nearest(name, model.parameter_names)} Parameters: "
+                                f"{', '.join(model.parameter_names)}.")
+            par = model.parameter(name)
+            params[name] = par.encode(_param_value(f"{where}.parameters.{name}", value, par))
+        if not scale and not params and r["coupling"] is None:
+            raise CaseError(f"{where} changes nothing: give scale (e.g. {{{model.conductances[0]} = 0.5}}), "
+                            f"parameters or coupling.")
+        region = Region(start=r["start"], end=r["end"], border=r["border"], scale=scale, parameters=params,
+                        coupling=r["coupling"])
+        if x.size and not np.any(region.weight(x) > 0.0):
+            raise CaseError(f"{where}: {r['start']:g} to {r['end']:g} cm holds no node at fiber.dx = "
+                            f"{case.fiber.dx:g} cm; widen the region, give it a border, or refine dx.")
+        out.append(region)
+    return tuple(out)
+
+
+def regions_of(case) -> tuple[Region, ...]:
+    """The validated regions of a case (empty when it has none)."""
+    return tuple(case.extra.get("region", ()))
+
+
+def apply_regions(p: np.ndarray, x: np.ndarray, regions, model) -> np.ndarray:
+    """Per-node parameters with the regions applied (later regions win where they overlap).
+
+    Parameters
+    ----------
+    p : ndarray, shape (n, nparam)
+        Parameters of every node as set by ``[membrane]`` (not modified).
+    x : ndarray, shape (n,)
+        Node positions [cm].
+    regions : sequence of Region
+    model : MembraneModel
+
+    Returns
+    -------
+    ndarray, shape (n, nparam)
+    """
+    out = np.array(p, dtype=np.float64, copy=True)
+    base = np.array(p, dtype=np.float64)
+    names = model.parameter_names
+    for region in regions:
+        w = region.weight(x)
+        touched = set(region.parameters) | set(region.scale)
+        for name in touched:
+            j = names.index(name)
+            target = np.full(x.size, region.parameters[name]) if name in region.parameters else base[:, j].copy()
+            target = target * region.scale.get(name, 1.0)
+            if model.parameter(name).choices is not None:
+                out[:, j] = np.where(w >= 0.5, target, out[:, j])
+            else:
+                out[:, j] = out[:, j] + w * (target - out[:, j])
+    return out
+
+
+def coupling_factors(x: np.ndarray, regions) -> np.ndarray | None:
+    """Per-node factor on the conductivity, or None when no region changes the coupling."""
+    if not any(r.coupling is not None for r in regions):
+        return None
+    f = np.ones(x.size)
+    for region in regions:
+        if region.coupling is not None:
+            f = f + region.weight(x) * (region.coupling - f)
+    return f
+
+
+def node_fields(case, model, x: np.ndarray, p: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+    """Parameters per node and coupling factor per node of a case's strand.
+
+    Parameters
+    ----------
+    case : Case
+    model : MembraneModel
+    x : ndarray
+        Node positions [cm].
+    p : ndarray, shape (n, nparam)
+        Parameters as set by ``[membrane]``.
+
+    Returns
+    -------
+    p : ndarray, shape (n, nparam)
+    coupling : ndarray, shape (n,), or None
+        Factor on the conductivity at each node (None: uniform).
+    """
+    regions = regions_of(case)
+    if not regions:
+        return p, None
+    return apply_regions(p, x, regions, model), coupling_factors(x, regions)
+
+
+register_section("region", is_list=True, validate=validate)
