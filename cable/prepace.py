@@ -85,6 +85,8 @@ def prepace_nodes(case, model, p, v0, s0):
 SETTLE_CHUNK = 50.0
 SETTLE_RATE = 1e-4      # [mV/ms]
 SETTLE_MAX = 5000.0
+#: a settled rest this far from the default [mV] is worth a note to the user
+NOTE_SHIFT = 0.01
 
 
 def settle_nodes(case, model, p, v0, s0):
@@ -140,6 +142,10 @@ def settle_nodes(case, model, p, v0, s0):
         longest = max(longest, t)
         v_out[inverse == r] = v[0]
         s_out[inverse == r] = s[0]
-    note = (f"started {len(changed)} changed parameter set(s) at their own rest (settled for up to "
+    moved = float(np.max(np.abs(v_out - v0)))
+    if moved < NOTE_SHIFT:
+        return v_out, s_out, None  # the changes (a temperature, say) do not move the rest
+    note = (f"started {len(changed)} changed parameter set(s) at their own rest, up to {moved:.3g} mV from "
+            f"the model's default rest (settled for up to "
             f"{longest:g} ms; final |dV/dt| {worst:.1e} mV/ms)")
     return v_out, s_out, note

@@ -1,4 +1,8 @@
-"""A short human summary of a result (used by ``cable run`` and ``cable info``)."""
+"""``cable info OUT.nc``: a short human summary of a result (also printed by ``cable run``).
+
+Model, status, fibre, run settings, then one line per beat: onset, capture, conduction
+velocity, APD90 and where it blocked.
+"""
 
 import numpy as np
 
@@ -7,34 +11,116 @@ HELP = "print a short summary of a result file (model, fibre, beats, CV, block)"
 ORDER = 20
 
 
-def summarise(ds) -> str:
-    lines = [f"model: {ds.attrs.get('model', '?')}   status: {ds.attrs.get('status', '?')}"]
+def _num(value, fmt=".4g", missing="-") -> str:
+    try:
+        value = float(value)
+    except (TypeError, ValueError):
+        return missing
+    return format(value, fmt) if np.isfinite(value) else missing
+
+
+def _apd90(ds, b):
+    if "apd" not in ds or "level" not in ds.coords or 90.0 not in list(ds["level"].values):
+        return np.nan
+    a = ds["apd"].sel(level=90.0).isel(beat=b)
+    if "x" in a.dims:
+        window = ds.attrs.get("cv_window_cm")
+        centre = float(np.mean(window)) if window is not None and np.size(window) == 2 else float(ds["x"].mean())
+        a = a.sel(x=centre, method="nearest")
+    return float(a)
+
+
+def summarise(ds, path=None) -> str:
+    """A few lines describing a result: model, fibre, run, and per beat CV, APD90, block.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A result (in memory or opened from a file).
+    path : str, optional
+        The file it came from, named on the first line.
+    """
+    attrs = ds.attrs
+    lines = []
+    if path is not None:
+        made = f" by cable {attrs['cable_version']}" if attrs.get("cable_version") else ""
+        lines.append(f"result: {path} (written{made})")
+    swept = _swept_dims(ds)
+    if swept:
+        return "\n".join(lines + _sweep_lines(ds, swept))
+    model = attrs.get("model", "?")
+    cite = attrs.get("model_citation")
+    lines.append(f"model: {model}" + (f" ({cite})" if cite else ""))
+    status = attrs.get("status", "?")
+    lines.append(f"status: {status}" + (f", completed until {_num(attrs.get('completed_until_ms'))} ms"
+                                        if status == "partial" else ""))
+    if attrs.get("partial_reason"):
+        lines.append(f"PARTIAL: {attrs['partial_reason']}")
+    t_end = float(ds["t"][-1]) if ds.sizes.get("t", 0) else float("nan")
     if "x" in ds.dims:
         x = ds["x"].values
-        lines.append(f"fibre: {x[-1]:.4g} cm, {x.size} nodes, dx {x[1] - x[0]:.4g} cm; "
-                     f"run {float(ds['t'][-1]):.6g} ms")
+        dx = attrs.get("dx_cm", x[1] - x[0] if x.size > 1 else np.nan)
+        fibre = f"fibre: {_num(x[-1] - x[0])} cm, {x.size} nodes, dx {_num(dx)} cm"
+        if attrs.get("diffusivity_cm2_per_ms") is not None:
+            fibre += f", D {_num(attrs['diffusivity_cm2_per_ms'])} cm^2/ms"
+        lines.append(fibre)
     else:
-        lines.append(f"single cell; run {float(ds['t'][-1]):.6g} ms")
-    if ds.attrs.get("partial_reason"):
-        lines.append(f"PARTIAL: {ds.attrs['partial_reason']}")
+        lines.append("single cell (no fibre)")
+    every = float(ds["t"][1] - ds["t"][0]) if ds.sizes.get("t", 0) > 1 else np.nan
+    run = f"run: {_num(t_end, '.6g')} ms, dt {_num(attrs.get('dt_ms'))} ms, sampled every {_num(every)} ms"
+    if attrs.get("wall_time_s") is not None:
+        run += f"; took {_num(attrs['wall_time_s'], '.3g')} s"
+    lines.append(run)
     nb = ds.sizes.get("beat", 0)
-    if nb:
-        lines.append("beat  onset_ms  captured  blocked  block_x_cm  CV_m/s   APD90_ms")
+    if not nb:
+        lines.append("beats: none (no stimulus)")
+        return "\n".join(lines)
+    captured = np.asarray(ds["captured"].values).astype(bool)
+    blocked = np.asarray(ds["blocked"].values).astype(bool)
+    lines.append(f"beats: {nb} ({int(captured.sum())} captured, {int(blocked.sum())} blocked)")
+    lines.append("beat  onset_ms  captured   CV_m/s  APD90_ms  block")
+    cv = ds["conduction_velocity"].values if "conduction_velocity" in ds else np.full(nb, np.nan)
+    bx = ds["block_x"].values if "block_x" in ds else np.full(nb, np.nan)
     for b in range(nb):
-        onset = float(ds["beat_onset"][b])
-        cap = bool(ds["captured"][b])
-        blk = bool(ds["blocked"][b])
-        bx = float(ds["block_x"][b])
-        cv = float(ds["conduction_velocity"][b]) if "conduction_velocity" in ds else np.nan
-        apd = np.nan
-        if "apd" in ds and 90.0 in list(ds["level"].values):
-            a = ds["apd"].sel(level=90.0).isel(beat=b)
-            if "x" in a.dims:
-                a = a.isel(x=a.sizes["x"] // 2)
-            apd = float(a)
-        lines.append(f"{b:4d}  {onset:8.2f}  {'yes' if cap else 'no':>8}  {'yes' if blk else 'no':>7}  "
-                     f"{bx:10.4g}  {cv:7.4g}  {apd:8.4g}")
+        block = f"at x = {_num(bx[b])} cm" if blocked[b] else ("-" if captured[b] else "(not captured)")
+        lines.append(f"{b:4d}  {_num(ds['beat_onset'][b], '8.2f'):>8}  {'yes' if captured[b] else 'no':>8}  "
+                     f"{_num(cv[b]):>7}  {_num(_apd90(ds, b)):>8}  {block}")
     return "\n".join(lines)
+
+
+def _swept_dims(ds) -> list:
+    """Dimensions of a sweep result (those of ``captured`` other than ``beat``)."""
+    if "captured" not in ds:
+        return []
+    return [d for d in ds["captured"].dims if d != "beat"]
+
+
+def _sweep_lines(ds, swept) -> list:
+    attrs = ds.attrs
+    lines = [f"sweep of model {attrs.get('model', '?')}: {int(np.prod([ds.sizes[d] for d in swept]))} points "
+             f"({attrs.get('sweep_mode', 'grid')})"]
+    for d in swept:
+        values = ds[d].values if d in ds.coords else np.arange(ds.sizes[d])
+        key = ds[d].attrs.get("case_key", d) if d in ds.coords else d
+        units = ds[d].attrs.get("units", "") if d in ds.coords else ""
+        shown = ", ".join(str(v) if not isinstance(v, float) else f"{v:g}" for v in values.tolist()[:8])
+        more = ", ..." if values.size > 8 else ""
+        lines.append(f"  {key}: {shown}{more}" + (f" [{units}]" if units not in ("", "1") else ""))
+    if "status" in ds and "flag_meanings" in ds["status"].attrs:
+        names = str(ds["status"].attrs["flag_meanings"]).split()
+        codes = list(np.asarray(ds["status"].attrs["flag_values"]).ravel())
+        counts = {names[codes.index(c)] if c in codes else str(c): int(n)
+                  for c, n in zip(*np.unique(ds["status"].values, return_counts=True))}
+        lines.append("points: " + ", ".join(f"{n} {name}" for name, n in counts.items()))
+    blocked = int(np.asarray(ds["blocked"].values).astype(bool).sum()) if "blocked" in ds else 0
+    captured = np.asarray(ds["captured"].values).astype(bool)
+    lines.append(f"beats: {int(captured.sum())} of {captured.size} captured, {blocked} blocked")
+    if "conduction_velocity" in ds:
+        cv = np.asarray(ds["conduction_velocity"].values, dtype=float)
+        if np.isfinite(cv).any():
+            lines.append(f"CV: {np.nanmin(cv):.4g} to {np.nanmax(cv):.4g} m/s "
+                         f"(plot with: cable plot-sweep FILE --y conduction_velocity --x {swept[0]})")
+    return lines
 
 
 def add_arguments(p):
@@ -45,5 +131,5 @@ def run(args):
     from cable.io.netcdf import open_result
 
     with open_result(args.result) as ds:
-        print(summarise(ds))
+        print(summarise(ds, path=args.result))
     return 0

@@ -1,16 +1,29 @@
-"""netCDF output: streamed fields, CF attributes, atomic completion.
+"""netCDF output: streamed fields, CF attributes, atomic completion, rerun.
 
 Fields (``vm`` and stored states) are written as float32, zlib-compressed, in chunks
-of ``(T_CHUNK, X_CHUNK)``: reading one position's trace or one time's profile touches
-few chunks. They are written while the run goes, in blocks of ``BLOCK`` samples, so
-memory does not grow with the simulated duration. The file is built under a temporary
-name in the target's folder and renamed when complete (or when a partial result is
-kept, marked ``status = "partial"``), so a reader never sees a half-written file.
+of :func:`chunk_shape`: about 256 KiB each, their time extent grown with the number of
+samples so that reading one position's trace or one time's profile touches few chunks
+(measured in ``tools/bench_chunks.py``). They are written while the run goes, one row
+of chunks at a time, so memory does not grow with the simulated duration
+(``tools/bench_memory.py``). The file is built under a temporary name in the target's
+folder and renamed when complete (or when a partial result is kept, marked
+``status = "partial"``), so a reader never sees a half-written file.
+
+CF conventions (CF-1.10): every variable has ``long_name`` and a ``units`` string that
+udunits reads (see :func:`cable.io.schema.cf_units`), ``standard_name`` only where CF
+defines one, flags carry ``flag_values``/``flag_meanings`` of the variable's type, and
+the global attributes carry ``Conventions``, ``history`` and the provenance (case text,
+versions, command line) from which :func:`rerun` repeats the run.
 """
 
 from __future__ import annotations
 
+import math
 import os
+import sys
+import warnings
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
 from pathlib import Path
 
 import netCDF4
@@ -20,15 +33,52 @@ import xarray as xr
 from cable.case import CaseError
 from cable.io import schema
 
-#: samples buffered in memory before a write
-BLOCK = 256
-T_CHUNK = 256
-X_CHUNK = 256
+#: elements per chunk (256 KiB of float32): big enough for zlib to work well, small
+#: enough that one trace or one profile does not decompress much more than it needs
+CHUNK_ELEMENTS = 2 ** 16
+#: longest chunk along time [samples]
+MAX_T_CHUNK = 1024
+#: most bytes the writer buffers per field before writing a row of chunks
+BUFFER_BYTES = 8 * 2 ** 20
+#: HDF5 chunk cache of each field while it is written [bytes] and its hash slots:
+#: nothing needs to stay cached, since the writer sends whole rows of chunks
+WRITE_CACHE_BYTES = 0
+WRITE_CACHE_SLOTS = 1
+#: the variables a rerun compares with the original, ``activation_time`` first
+COMPARED = ("activation_time", "conduction_velocity", "captured", "blocked", "block_x", "vm")
+
+
+def chunk_shape(n_t: int, n_x: int | None) -> tuple[int, ...]:
+    """Chunk shape of a field ``(t, x)`` (or ``(t,)`` for a single cell).
+
+    A trace (one position, all times) reads ``n_t / c_t`` chunks and a profile (one
+    time, all positions) ``n_x / c_x``; with ``c_t * c_x`` fixed, both cost the same
+    when ``c_t / c_x = n_t / n_x``. ``c_t`` is that balance rounded to a power of two,
+    at most :data:`MAX_T_CHUNK` and at most what :data:`BUFFER_BYTES` holds.
+
+    Parameters
+    ----------
+    n_t : int
+        Number of samples.
+    n_x : int or None
+        Number of nodes (None for a single cell).
+    """
+    n_t = max(1, int(n_t))
+    if n_x is None:
+        return (min(n_t, CHUNK_ELEMENTS),)
+    n_x = max(1, int(n_x))
+    ideal = math.sqrt(CHUNK_ELEMENTS * n_t / n_x)
+    c_t = 2 ** int(round(math.log2(max(ideal, 1.0))))
+    c_t = max(1, min(c_t, MAX_T_CHUNK, n_t, BUFFER_BYTES // (4 * n_x)))
+    c_x = max(1, min(n_x, CHUNK_ELEMENTS // c_t))
+    return (c_t, c_x)
 
 
 def check_target(path, overwrite: bool) -> None:
     """Refuse to overwrite an existing result without ``overwrite``; check the folder."""
     path = Path(path)
+    if path.is_dir():
+        raise CaseError(f"output '{path}' is a folder; give a file name such as '{path / 'result.nc'}'.")
     if path.exists() and not overwrite:
         raise CaseError(f"output '{path}' exists; pass --overwrite (overwrite=True) to replace it.")
     folder = path.parent if str(path.parent) else Path(".")
@@ -38,48 +88,91 @@ def check_target(path, overwrite: bool) -> None:
         raise CaseError(f"output folder '{folder}' is not writable.")
 
 
+# ----------------------------------------------------------------------------- attributes
 def _encode_attr(value):
-    if isinstance(value, bool):
+    """A netCDF attribute value: bools as int8, sequences as arrays, dicts as text."""
+    if isinstance(value, (bool, np.bool_)):
         return np.int8(value)
     if isinstance(value, (list, tuple)):
-        return np.array(value)
+        arr = np.asarray(value)
+        return arr if arr.dtype.kind in "iuf" else ", ".join(str(v) for v in value)
+    if isinstance(value, dict):
+        return "; ".join(f"{k} = {v}" for k, v in value.items())
     return value
 
 
+def _global_attrs(attrs: dict) -> dict:
+    """The run's attributes plus the writer's own provenance (CF ``history``, library versions)."""
+    out = {k: _encode_attr(v) for k, v in attrs.items() if v is not None}
+    stamp = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+    command = attrs.get("command") or ("python " + " ".join(sys.argv)).strip() + " (cable Python API)"
+    out.setdefault("history", f"{stamp} {command}")
+    out.setdefault("date_created", stamp)
+    out.setdefault("netcdf4_python_version", netCDF4.__version__)
+    out.setdefault("netcdf_library_version", netCDF4.getlibversion().split()[0])
+    out.setdefault("hdf5_version", netCDF4.__hdf5libversion__)
+    out.setdefault("xarray_version", xr.__version__)
+    out.setdefault("python_version", sys.version.split()[0])
+    return out
+
+
+def variable_attrs(attrs: dict, dtype) -> dict:
+    """CF attributes of one variable: udunits spelling, flag values of the variable's type."""
+    out = dict(attrs)
+    if "units" in out:
+        out["units"] = schema.cf_units(str(out["units"]))
+    if "flag_values" in out:
+        out["flag_values"] = np.asarray(out["flag_values"], dtype=dtype)
+    return out
+
+
+# ----------------------------------------------------------------------------- writing
 class StreamWriter:
     """Write a run's fields as they are computed, then its measurements."""
 
     def __init__(self, path, setup, field_names, model, attrs):
+        from cable.simulate import _field_attrs
+
         self.path = Path(path)
         self.tmp = self.path.with_name(f".{self.path.name}.{os.getpid()}.tmp")
         self.setup = setup
         self.names = list(field_names)
-        self.model = model
         self.single = setup.x is None
+        self.chunks = chunk_shape(setup.n_samples, None if self.single else setup.n)
         nc = netCDF4.Dataset(self.tmp, "w", format="NETCDF4")
         self.nc = nc
-        nc.createDimension("t", setup.n_samples)
-        tv = nc.createVariable("t", "f8", ("t",))
-        tv.setncatts(schema.attrs("t"))
-        tv[:] = setup.t
-        fdims = ("t",) if self.single else ("t", "x")
-        if not self.single:
-            nc.createDimension("x", setup.n)
-            xv = nc.createVariable("x", "f8", ("x",))
-            xv.setncatts(schema.attrs("x"))
-            xv[:] = setup.x
-        chunks = (min(T_CHUNK, setup.n_samples),) if self.single else \
-            (min(T_CHUNK, setup.n_samples), min(X_CHUNK, setup.n))
-        from cable.simulate import _field_attrs
-
-        for name in self.names:
-            var = nc.createVariable(name, "f4", fdims, zlib=True, complevel=4, chunksizes=chunks,
-                                    fill_value=np.float32(np.nan))
-            var.setncatts(_field_attrs(name, model))
-        nc.setncatts({k: _encode_attr(v) for k, v in attrs.items()})
-        nc.setncattr("status", "running")
-        nc.sync()
-        self.buffer = {name: np.empty((BLOCK, setup.n), dtype=np.float32) for name in self.names}
+        try:
+            nc.createDimension("t", setup.n_samples)
+            tv = nc.createVariable("t", "f8", ("t",))
+            tv.setncatts(variable_attrs(schema.attrs("t"), "f8"))
+            # the times are written with the samples (flush, finish): no n_samples array up front
+            fdims = ("t",) if self.single else ("t", "x")
+            if not self.single:
+                nc.createDimension("x", setup.n)
+                xv = nc.createVariable("x", "f8", ("x",))
+                xv.setncatts(variable_attrs(schema.attrs("x"), "f8"))
+                xv[:] = setup.x
+            for name in self.names:
+                var = nc.createVariable(name, "f4", fdims, zlib=True, complevel=4, shuffle=True,
+                                        chunksizes=self.chunks, fill_value=np.float32(np.nan))
+                var.setncatts(variable_attrs(_field_attrs(name, model), "f4"))
+            nc.setncatts(_global_attrs(attrs))
+            nc.setncattr("status", "running")
+            nc.sync()
+            for name in self.names:
+                # whole chunks are written once: caching them (64 MiB per variable by default)
+                # would only make memory grow with the duration, up to that size. Set after
+                # leaving define mode (sync), where the HDF5 dataset's cache is created.
+                nc.variables[name].set_var_chunk_cache(size=WRITE_CACHE_BYTES, nelems=WRITE_CACHE_SLOTS,
+                                                       preemption=1.0)
+        except BaseException:
+            self.abort()
+            raise
+        #: samples held before a write: one row of chunks, or a multiple of it
+        rows = self.chunks[0]
+        self.block = max(rows, (min(BUFFER_BYTES // (4 * setup.n), MAX_T_CHUNK) // rows) * rows)
+        self.block = min(self.block, setup.n_samples)
+        self.buffer = {name: np.empty((self.block, setup.n), dtype=np.float32) for name in self.names}
         self.buffered = 0
         self.start = 0
         self.filled = 0
@@ -89,13 +182,18 @@ class StreamWriter:
             self.buffer[name][self.buffered] = arr
         self.buffered += 1
         self.filled = k + 1
-        if self.buffered == BLOCK:
+        if self.buffered == self.block:
             self.flush()
+
+    def _times(self, a: int, b: int) -> np.ndarray:
+        """Sample times [ms] of samples a..b-1, computed as :attr:`cable.simulate.Setup.t` does."""
+        return np.arange(a, b) * self.setup.steps_per_sample * self.setup.case.numerics.dt
 
     def flush(self):
         if self.buffered == 0:
             return
         sl = slice(self.start, self.start + self.buffered)
+        self.nc.variables["t"][sl] = self._times(sl.start, sl.stop)
         for name in self.names:
             block = self.buffer[name][: self.buffered]
             self.nc.variables[name][sl] = block[:, 0] if self.single else block
@@ -104,71 +202,266 @@ class StreamWriter:
 
     def finish(self, meas: dict, attrs: dict, n_done: int) -> xr.Dataset:
         """Write the measurements and attributes, close, rename; return the opened file."""
-        self.flush()
-        nc = self.nc
-        nb = len(meas["beat_onset"][1])
-        nc.createDimension("beat", nb)
-        bv = nc.createVariable("beat", "i4", ("beat",))
-        bv.setncatts(schema.attrs("beat"))
-        bv[:] = np.arange(nb)
-        nc.createDimension("level", len(self.setup.case.apd_levels))
-        lv = nc.createVariable("level", "f8", ("level",))
-        lv.setncatts(schema.attrs("level"))
-        lv[:] = np.array(self.setup.case.apd_levels)
-        for name, (dims, arr) in meas.items():
-            arr = np.asarray(arr)
-            if self.single and "x" in dims:
-                axis = dims.index("x")
-                arr = np.take(arr, 0, axis=axis)
-                dims = tuple(d for d in dims if d != "x")
-            if arr.dtype == np.int8:
-                var = nc.createVariable(name, "i1", dims)
-            else:
-                var = nc.createVariable(name, "f8", dims, zlib=True, fill_value=np.nan)
-            var.setncatts(schema.attrs(name))
-            var[:] = arr
-        nc.setncatts({k: _encode_attr(v) for k, v in attrs.items()})
-        nc.close()
+        try:
+            self.flush()
+            nc = self.nc
+            step = max(1, BUFFER_BYTES // 8)
+            for a in range(self.start, self.setup.n_samples, step):   # times of samples not run (partial)
+                b = min(a + step, self.setup.n_samples)
+                nc.variables["t"][a:b] = self._times(a, b)
+            nb = len(meas["beat_onset"][1])
+            nc.createDimension("beat", nb)
+            bv = nc.createVariable("beat", "i4", ("beat",))
+            bv.setncatts(variable_attrs(schema.attrs("beat"), "i4"))
+            bv[:] = np.arange(nb)
+            nc.createDimension("level", len(self.setup.case.apd_levels))
+            lv = nc.createVariable("level", "f8", ("level",))
+            lv.setncatts(variable_attrs(schema.attrs("level"), "f8"))
+            lv[:] = np.array(self.setup.case.apd_levels)
+            for name, (dims, arr) in meas.items():
+                arr = np.asarray(arr)
+                if self.single and "x" in dims:
+                    arr = np.take(arr, 0, axis=dims.index("x"))
+                    dims = tuple(d for d in dims if d != "x")
+                if arr.dtype == np.int8:
+                    var = nc.createVariable(name, "i1", dims)
+                    dtype = "i1"
+                else:
+                    var = nc.createVariable(name, "f8", dims, zlib=True, fill_value=np.nan)
+                    dtype = "f8"
+                var.setncatts(variable_attrs(schema.attrs(name), dtype))
+                var[:] = arr
+            nc.setncatts(_global_attrs(attrs))
+            nc.close()
+        except BaseException:
+            self.abort()
+            raise
         os.replace(self.tmp, self.path)
-        return xr.open_dataset(self.path)
+        return open_result(self.path)
 
     def abort(self):
+        """Close and remove the temporary file (after an error)."""
         try:
-            self.nc.close()
+            if self.nc.isopen():
+                self.nc.close()
         finally:
             self.tmp.unlink(missing_ok=True)
 
 
-def open_result(path) -> xr.Dataset:
-    """Open a result file written by cable (lazily)."""
-    path = Path(path)
-    if not path.is_file():
-        raise CaseError(f"result file '{path}' not found.")
-    try:
-        return xr.open_dataset(path)
-    except Exception as exc:  # netCDF4/HDF5 raise OSError, ValueError... for foreign files
-        raise CaseError(f"'{path}' is not a readable netCDF file ({exc.__class__.__name__}: {exc}).") from None
-
-
 def write_dataset(ds: xr.Dataset, path, overwrite: bool = False) -> None:
-    """Write an in-memory result with the package's encoding, atomically."""
+    """Write an in-memory result with the package's encoding, atomically.
+
+    Float fields with a ``t`` dimension become float32 chunked as :func:`chunk_shape`;
+    every float is zlib-compressed; coordinates get no fill value (CF).
+    """
     check_target(path, overwrite)
     path = Path(path)
     tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
     encoding = {}
+    out = ds.copy()
     for name, var in ds.data_vars.items():
+        enc = {}
         if var.dtype.kind == "f":
             enc = {"zlib": True, "complevel": 4, "_FillValue": np.nan}
-            if "t" in var.dims:
+            if var.dims and var.dims[0] == "t" and len(var.dims) <= 2:
                 enc["dtype"] = "f4"
-                enc["chunksizes"] = tuple(min(T_CHUNK if d == "t" else X_CHUNK, ds.sizes[d]) for d in var.dims)
-            encoding[name] = enc
-    attrs = {k: _encode_attr(v) for k, v in ds.attrs.items()}
-    out = ds.copy()
-    out.attrs = attrs
+                n_x = ds.sizes[var.dims[1]] if len(var.dims) == 2 else None
+                enc["chunksizes"] = chunk_shape(ds.sizes["t"], n_x)
+        encoding[name] = enc
+        out[name].attrs = variable_attrs(var.attrs, np.dtype(enc.get("dtype", var.dtype)))
+    for name, coord in ds.coords.items():
+        encoding[name] = {"_FillValue": None}
+        out[name].attrs = variable_attrs(coord.attrs, coord.dtype)
+    out.attrs = _global_attrs(ds.attrs)
     try:
         out.to_netcdf(tmp, engine="netcdf4", encoding=encoding)
         os.replace(tmp, path)
     finally:
         if tmp.exists():
             tmp.unlink()
+
+
+# ----------------------------------------------------------------------------- reading
+def open_result(path, *, chunks=None) -> xr.Dataset:
+    """Open a netCDF file written by cable (lazily; nothing but coordinates is read).
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        The file.
+    chunks : dict, optional
+        Passed to :func:`xarray.open_dataset` to get dask arrays.
+
+    Returns
+    -------
+    xarray.Dataset
+        Times stay plain numbers [ms] (no calendar or timedelta decoding).
+
+    Raises
+    ------
+    CaseError
+        The path is missing, a folder, or not a readable netCDF file.
+    """
+    path = Path(path)
+    if path.is_dir():
+        raise CaseError(f"result file '{path}' is a folder; give the .nc file inside it.")
+    if not path.is_file():
+        near = sorted(p.name for p in path.parent.glob("*.nc")) if path.parent.is_dir() else []
+        hint = f" netCDF files there: {', '.join(near[:5])}." if near else ""
+        raise CaseError(f"result file '{path}' not found.{hint}")
+    try:
+        ds = xr.open_dataset(path, engine="netcdf4", decode_times=False, decode_timedelta=False, chunks=chunks)
+    except Exception as exc:  # netCDF4/HDF5 raise OSError, ValueError... for foreign files
+        raise CaseError(f"'{path}' is not a readable netCDF file ({exc.__class__.__name__}: {exc}).") from None
+    if ds.attrs.get("status") == "running":
+        warnings.warn(f"'{path}' is marked status = 'running': its run had not finished or was killed; "
+                      "fields past the last write are missing (NaN).", stacklevel=2)
+    return ds
+
+
+def require(ds: xr.Dataset, names, path, purpose: str) -> None:
+    """Raise :class:`CaseError` naming what ``purpose`` needs and ``ds`` lacks."""
+    missing = [n for n in names if n not in ds.variables]
+    if missing:
+        have = ", ".join(sorted(str(v) for v in ds.data_vars)) or "(none)"
+        raise CaseError(f"'{path}' has no {', '.join(repr(m) for m in missing)}, needed to {purpose}. "
+                        f"Its variables: {have}.")
+
+
+# ----------------------------------------------------------------------------- rerun
+@dataclass
+class RerunReport:
+    """The outcome of :func:`rerun`.
+
+    Attributes
+    ----------
+    source : pathlib.Path
+        The original result file.
+    result : xarray.Dataset
+        The new result (partial if the run failed again where the original did).
+    compared : dict
+        ``{name: (identical, largest absolute difference)}`` for each variable of
+        :data:`COMPARED` present in both; ``identical`` counts NaN = NaN.
+    versions : dict
+        ``{attribute: (recorded, now)}`` for versions that differ from the original's.
+    """
+
+    source: Path
+    result: xr.Dataset
+    compared: dict = field(default_factory=dict)
+    versions: dict = field(default_factory=dict)
+
+    @property
+    def identical(self) -> bool:
+        """Whether ``activation_time`` (and every other compared variable) is bit-for-bit the same."""
+        return bool(self.compared) and all(same for same, _ in self.compared.values())
+
+
+def _difference(a: np.ndarray, b: np.ndarray) -> tuple[bool, float]:
+    if a.shape != b.shape:
+        return False, math.inf
+    if a.dtype.kind in "iub" and b.dtype.kind in "iub":
+        same = bool(np.array_equal(a, b))
+        return same, float(np.max(np.abs(a.astype(np.int64) - b.astype(np.int64)), initial=0))
+    a, b = a.astype(np.float64), b.astype(np.float64)
+    nan_a, nan_b = np.isnan(a), np.isnan(b)
+    if not np.array_equal(nan_a, nan_b):
+        return False, math.inf
+    ok = ~nan_a
+    diff = float(np.max(np.abs(a[ok] - b[ok]), initial=0.0))
+    return bool(np.array_equal(a[ok], b[ok])), diff
+
+
+def compare(original: xr.Dataset, new: xr.Dataset, names=COMPARED) -> dict:
+    """``{name: (identical, largest absolute difference)}`` over the variables both hold.
+
+    Fields with a ``t`` dimension are compared as float32 (as stored) in blocks of
+    samples, so a long result is not loaded whole.
+    """
+    out = {}
+    for name in names:
+        if name not in original.variables or name not in new.variables:
+            continue
+        a, b = original[name], new[name]
+        if "t" in a.dims:
+            if a.sizes != b.sizes:
+                out[name] = (False, math.inf)
+                continue
+            step = max(1, BUFFER_BYTES // (4 * max(1, a.size // a.sizes["t"])))
+            same, diff = True, 0.0
+            for k in range(0, a.sizes["t"], step):
+                sl = {"t": slice(k, k + step)}
+                s, d = _difference(a.isel(sl).values.astype(np.float32), b.isel(sl).values.astype(np.float32))
+                same, diff = same and s, max(diff, d)
+            out[name] = (same, diff)
+        else:
+            out[name] = _difference(a.values, b.values)
+    return out
+
+
+def rerun(path, output=None, *, overwrite: bool = False, command: str | None = None, info=None) -> RerunReport:
+    """Repeat a run from its result file alone and compare the new result with it.
+
+    The case is read from the file's ``case`` attribute (the TOML text of the case as
+    run, after any ``--set`` overrides); nothing else is needed.
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        A result file written by ``cable run`` or :func:`cable.simulate`.
+    output : str or pathlib.Path, optional
+        Where to write the new result (not the original's path); kept in memory if omitted.
+    overwrite : bool
+        Replace an existing ``output``.
+    command : str, optional
+        The command line, recorded in the new file.
+    info : callable, optional
+        Receives one-line notes, as in :func:`cable.simulate`.
+
+    Returns
+    -------
+    RerunReport
+        ``report.identical`` tells whether ``activation_time`` and the other compared
+        variables match the original exactly.
+
+    Raises
+    ------
+    CaseError
+        The file is not readable, holds no case, or its case no longer loads.
+    """
+    from cable.case import load_case
+    from cable.simulate import SimulationError, simulate
+
+    path = Path(path)
+    if output is not None and Path(output).resolve() == path.resolve():
+        raise CaseError(f"rerun output '{output}' is the original file; give another name, e.g. "
+                        f"'{path.with_name(path.stem + '.rerun' + path.suffix)}'.")
+    with open_result(path) as original:
+        text = original.attrs.get("case")
+        if not text:
+            raise CaseError(f"'{path}' has no 'case' attribute, so the run cannot be repeated from it; "
+                            "only files written by `cable run` or cable.simulate(output=...) can.")
+        try:
+            case = load_case(str(text))
+        except CaseError as exc:
+            raise CaseError(f"the case stored in '{path}' no longer loads: {exc}") from None
+        import numba
+
+        now = {"cable_version": _package_version(), "numpy_version": np.__version__,
+               "numba_version": numba.__version__}
+        versions = {k: (str(original.attrs[k]), v) for k, v in now.items()
+                    if k in original.attrs and str(original.attrs[k]) != v}
+        try:
+            new = simulate(case, output=output, overwrite=overwrite, command=command, info=info)
+        except SimulationError as exc:
+            if exc.partial is None:
+                raise
+            new = exc.partial
+        compared = compare(original, new)
+    return RerunReport(source=path, result=new, compared=compared, versions=versions)
+
+
+def _package_version() -> str:
+    from cable import __version__
+
+    return __version__

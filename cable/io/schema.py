@@ -10,7 +10,8 @@ CONVENTIONS = "CF-1.10"
 
 #: name -> (dims, units, long_name, standard_name or None)
 COORDS = {
-    "t": (("t",), "ms", "time", "time"),
+    # no standard_name "time": CF requires "units since reference" for it; t is elapsed time
+    "t": (("t",), "ms", "time", None),
     "x": (("x",), "cm", "position along the fibre", None),
     "beat": (("beat",), "1", "beat number (stimulus onsets in order)", None),
     "level": (("level",), "percent", "repolarisation level of the action-potential duration", None),
@@ -29,13 +30,18 @@ VARIABLES = {
     "peak_potential": (("beat", "x"), "mV", "peak potential of the action potential", None),
     "upstroke_velocity": (("beat", "x"), "V/s", "maximal rate of rise of the upstroke", None),
     "wavelength": (("beat",), "cm", "wavelength: CV times APD90 at the centre of the CV window", None),
+    "conducted": (("beat",), "1", "the stimulus captured and the wave reached both ends of the fibre", None),
+    "reached_left": (("beat",), "1", "the beat's wave reached the left end (x = 0)", None),
+    "reached_right": (("beat",), "1", "the beat's wave reached the right end (x = L)", None),
+    "block_side": (("beat",), "1", "direction of block: 1 stopped going right, -1 going left, 2 both, 0 none", None),
+    "safety_factor": (("beat", "x"), "1", "safety factor of conduction (Shaw & Rudy 1997), charge-based", None),
 }
 
 #: long names of state variables come from the model; units from the model too
 STATE_PREFIX = "state_"
 
 #: boolean variables are stored as int8 0/1 with flag attributes
-FLAGS = {"captured", "blocked"}
+FLAGS = {"captured", "blocked", "conducted", "reached_left", "reached_right"}
 
 
 def attrs(name: str) -> dict:
@@ -52,3 +58,12 @@ def attrs(name: str) -> dict:
 
 def dims(name: str) -> tuple[str, ...]:
     return {**COORDS, **VARIABLES}[name][0]
+
+
+#: unit spellings models use that udunits (CF) does not read -> the spelling written to files
+UDUNITS_SPELLING = {"mM": "mmol/L", "uM": "umol/L", "nM": "nmol/L", "M": "mol/L", "": "1", "dimensionless": "1"}
+
+
+def cf_units(units: str) -> str:
+    """The udunits spelling of a unit string (``"mM"`` -> ``"mmol/L"``); others unchanged."""
+    return UDUNITS_SPELLING.get(units.strip(), units.strip())

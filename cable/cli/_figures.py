@@ -1,0 +1,97 @@
+"""Options and saving shared by the figure commands (map, traces, plot-sweep)."""
+
+from __future__ import annotations
+
+import contextlib
+from pathlib import Path
+
+from cable.case import CaseError
+
+#: default figure size [cm]: wide enough for a two-column journal figure
+DEFAULT_SIZE_CM = (16.0, 10.0)
+#: default resolution of PNG output [dots per inch]; the usual minimum for line art in print
+DEFAULT_DPI = 300
+
+
+def add_figure_options(p, default_suffix: str) -> None:
+    p.add_argument("-o", "--output", metavar="FIGURE",
+                   help=f"figure file: .png, .pdf or .svg (default: the input's name + '{default_suffix}')")
+    p.add_argument("--size", nargs=2, metavar=("W", "H"),
+                   help=f"figure width and height; bare numbers in cm, or with a unit (85mm, 3.5in); "
+                        f"default {DEFAULT_SIZE_CM[0]:g} x {DEFAULT_SIZE_CM[1]:g} cm")
+    p.add_argument("--dpi", type=int, default=DEFAULT_DPI, help=f"resolution of PNG output (default {DEFAULT_DPI})")
+    p.add_argument("--title", help="a title above the figure (none by default)")
+
+
+def quantity(text: str, kind: str, option: str) -> float:
+    """A command-line value in the canonical unit of ``kind`` (bare numbers already are)."""
+    from cable import units
+
+    try:
+        return units.to_canonical(float(text) if _is_number(text) else text, kind)
+    except units.UnitError as exc:
+        raise CaseError(f"{option} {text!r}: {exc}; give a number in {units.CANONICAL[kind]} or a value "
+                        f"with a unit.") from None
+
+
+def pair(values, kind: str, option: str):
+    if values is None:
+        return None
+    return tuple(quantity(v, kind, option) for v in values)
+
+
+def _is_number(text: str) -> bool:
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
+
+
+#: font size [pt] per cm of figure width, and its bounds: a single journal column
+#: (8.5 cm) gets 6 pt, the smallest size journals print; 14 cm and wider get 10 pt
+FONT_PT_PER_CM = 0.7
+FONT_PT_RANGE = (6.0, 10.0)
+
+
+def size_cm(args) -> tuple[float, float]:
+    size = pair(args.size, "length", "--size") if args.size else DEFAULT_SIZE_CM
+    if min(size) <= 0:
+        raise CaseError(f"--size {' '.join(args.size)}: width and height must be above 0.")
+    return size
+
+
+@contextlib.contextmanager
+def drawing(args):
+    """A pyplot-free figure of the requested size [cm] and dpi, fonts scaled to its width.
+
+    The font size is in force while the figure is drawn and saved (use :func:`finish`
+    inside the ``with``).
+    """
+    import matplotlib
+
+    from cable.plot import _common
+
+    if args.dpi <= 0:
+        raise CaseError(f"--dpi {args.dpi}: must be a positive whole number, e.g. {DEFAULT_DPI}.")
+    width, height = size_cm(args)
+    font = min(max(FONT_PT_PER_CM * width, FONT_PT_RANGE[0]), FONT_PT_RANGE[1])
+    with matplotlib.rc_context({"font.size": font}):
+        yield _common.new_figure(size=(width / 2.54, height / 2.54), dpi=args.dpi)
+
+
+def output_path(args, default_suffix: str) -> Path:
+    from cable.plot import _common
+
+    out = Path(args.output) if args.output else Path(args.result).with_suffix(default_suffix)
+    _common.check_suffix(out)
+    return out
+
+
+def finish(fig, args, out: Path) -> None:
+    from cable.plot import _common
+
+    if args.title:
+        fig.suptitle(args.title)
+    _common.save(fig, out, dpi=args.dpi)
+    print(f"wrote {out}")

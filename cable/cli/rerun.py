@@ -1,0 +1,44 @@
+"""``cable rerun OUT.nc -o NEW.nc``: repeat a run from its result file alone and compare.
+
+Exit status 0 when ``activation_time`` (and the other compared variables) match the
+original exactly, 1 when they differ, 2 for a file that cannot be rerun.
+"""
+
+import shlex
+import sys
+
+from cable.cli import say
+
+NAME = "rerun"
+HELP = "repeat a run from the case stored in its result file and report whether the result is identical"
+ORDER = 21
+
+#: exit status when the rerun's result differs from the original's
+EXIT_DIFFERENT = 1
+
+
+def add_arguments(p):
+    p.add_argument("result", help="result file (.nc) written by `cable run`")
+    p.add_argument("-o", "--output", help="write the new result here (.nc); kept in memory without it")
+    p.add_argument("--overwrite", action="store_true", help="replace an existing output file")
+    p.add_argument("-q", "--quiet", action="store_true", help="print only the verdict")
+
+
+def run(args):
+    from cable.cli.summary import summarise
+    from cable.io.netcdf import rerun
+
+    command = "cable " + " ".join(shlex.quote(a) for a in sys.argv[1:])
+    report = rerun(args.result, args.output, overwrite=args.overwrite, command=command,
+                   info=lambda m: say(args, m))
+    if not args.quiet:
+        print(summarise(report.result))
+        for key, (then, now) in report.versions.items():
+            print(f"note: {key} was {then} for the original run and is {now} now")
+    for name, (same, diff) in report.compared.items():
+        verdict = "identical" if same else f"DIFFERS (largest difference {diff:.3g})"
+        print(f"{name}: {verdict}")
+    if args.output and not args.quiet:
+        print(f"wrote {args.output}")
+    print(f"rerun of {args.result}: {'identical' if report.identical else 'NOT identical'}")
+    return 0 if report.identical else EXIT_DIFFERENT

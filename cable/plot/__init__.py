@@ -1,0 +1,16 @@
+"""Figures from results; each function takes a Dataset and a matplotlib Axes.
+
+* :func:`space_time` — the space-time map of vm with activation fronts, block and regions;
+* :func:`traces` — vm (and stored states) against time at chosen positions;
+* :func:`sweep` — a measurement against a swept key, one curve per value of another.
+
+They draw into the Axes given (or pyplot's current one) and leave the figure to the
+caller, so they compose into figures of one's own. The colour map and line looks are
+chosen to stay readable in greyscale print (see :mod:`cable.plot._common`).
+"""
+
+from cable.plot.space_time import space_time
+from cable.plot.sweeps import sweep
+from cable.plot.traces import traces
+
+__all__ = ["space_time", "sweep", "traces"]

@@ -1,0 +1,175 @@
+"""What the figure functions share: labels from attributes, regions, a greyscale-safe cycle, saving."""
+
+from __future__ import annotations
+
+import difflib
+import textwrap
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from cable.case import CaseError
+
+#: output formats by suffix
+FORMATS = {".png": "png", ".pdf": "pdf", ".svg": "svg"}
+
+#: default colour map of fields: cividis rises monotonically in lightness, so it prints
+#: as an ordered grey ramp and reads for the common colour-vision deficiencies
+FIELD_CMAP = "cividis"
+
+#: line looks for traces and sweep curves: dark-to-light colours (distinct in grey),
+#: each with its own dash pattern and marker so that greyscale print keeps them apart
+LINE_LOOKS = (
+    {"color": "#1b1b3a", "linestyle": "-", "marker": "o"},
+    {"color": "#b8860b", "linestyle": "--", "marker": "s"},
+    {"color": "#4a7fb0", "linestyle": "-.", "marker": "^"},
+    {"color": "#7a7a7a", "linestyle": ":", "marker": "D"},
+    {"color": "#8b2f4b", "linestyle": (0, (5, 1, 1, 1, 1, 1)), "marker": "v"},
+    {"color": "#3d7d4f", "linestyle": (0, (1, 1)), "marker": "P"},
+)
+
+#: mark of a conduction block: a white cross edged in black reads on light and dark
+BLOCK_MARK = {"marker": "X", "markersize": 9, "markerfacecolor": "white", "markeredgecolor": "black",
+              "markeredgewidth": 1.2, "linestyle": "none"}
+
+
+def look(k: int) -> dict:
+    """The k-th line look of :data:`LINE_LOOKS` (cycling)."""
+    return dict(LINE_LOOKS[k % len(LINE_LOOKS)])
+
+
+#: axis labels longer than this wrap onto a second line [characters]
+LABEL_WIDTH = 36
+
+
+def label(obj, fallback: str) -> str:
+    """``"long name [units]"`` from a DataArray's attributes (``fallback`` for the name), wrapped."""
+    attrs = getattr(obj, "attrs", {}) or {}
+    name = str(attrs.get("long_name") or fallback)
+    units = attrs.get("units")
+    text = name if units in (None, "", "1") else f"{name} [{units}]"
+    return textwrap.fill(text, LABEL_WIDTH, break_long_words=False)
+
+
+def axes_or_current(ax):
+    """``ax``, or the current pyplot Axes when None (pyplot only then)."""
+    if ax is not None:
+        return ax
+    import matplotlib.pyplot as plt
+
+    return plt.gca()
+
+
+def nearest_name(name, candidates) -> str:
+    near = difflib.get_close_matches(str(name), [str(c) for c in candidates], n=1, cutoff=0.5)
+    return f" Did you mean '{near[0]}'?" if near else ""
+
+
+def window(values: np.ndarray, win, what: str, unit: str):
+    """Validate a ``(lo, hi)`` window against the data's range; None means all."""
+    if win is None:
+        return None
+    try:
+        lo, hi = (float(v) for v in win)
+    except (TypeError, ValueError):
+        raise CaseError(f"{what} = {win!r}: give two numbers [{unit}], low then high.") from None
+    if not lo < hi:
+        raise CaseError(f"{what} = {win!r}: the low end must be below the high end.")
+    vmin, vmax = float(np.nanmin(values)), float(np.nanmax(values))
+    if hi < vmin or lo > vmax:
+        raise CaseError(f"{what} = [{lo:g}, {hi:g}] {unit} lies outside the data ({vmin:g} to {vmax:g} {unit}).")
+    return lo, hi
+
+
+@dataclass(frozen=True)
+class Zone:
+    """A region of the fibre as drawn: core ``[start, end]`` and ``border`` ramp [cm], and a label."""
+
+    start: float
+    end: float
+    label: str
+    border: float = 0.0
+
+
+def _describe(item: dict, k: int) -> str:
+    """``"region 0: K_o = 12, G_Na x 0.3"`` from a [[region]] table (its own name if it has one)."""
+    name = item.get("name") or item.get("label")
+    if name:
+        return str(name)
+    parts = [f"{key} = {value}" for key, value in (item.get("parameters") or {}).items()]
+    parts += [f"{key} x {value}" for key, value in (item.get("scale") or {}).items()]
+    if item.get("coupling") is not None:
+        parts.append(f"coupling x {item['coupling']}")
+    return f"region {k}" + (": " + ", ".join(parts) if parts else "")
+
+
+def regions(ds) -> list[Zone]:
+    """Regions of the fibre from the ``[[region]]`` tables of the case text, in order.
+
+    The case text travels in the result's ``case`` attribute; a result without one,
+    or without regions, has none. Positions may carry units (``"1 cm"``).
+    """
+    from cable import units
+
+    text = getattr(ds, "attrs", {}).get("case")
+    if not text:
+        return []
+    try:
+        raw = tomllib.loads(str(text))
+    except tomllib.TOMLDecodeError:
+        return []
+    items = raw.get("region", [])
+    if isinstance(items, dict):
+        items = [items]
+    out = []
+    for k, item in enumerate(items if isinstance(items, list) else []):
+        if not isinstance(item, dict) or "start" not in item or "end" not in item:
+            continue
+        try:
+            a = units.to_canonical(item["start"], "length")
+            b = units.to_canonical(item["end"], "length")
+            border = units.to_canonical(item.get("border", 0.0), "length")
+        except units.UnitError:
+            continue
+        out.append(Zone(min(a, b), max(a, b), _describe(item, k), max(border, 0.0)))
+    return out
+
+
+def check_suffix(path) -> str:
+    """The matplotlib format of an output path (PNG, PDF or SVG by suffix)."""
+    suffix = Path(path).suffix.lower()
+    if suffix not in FORMATS:
+        raise CaseError(f"figure '{path}': suffix '{suffix or '(none)'}' is not supported; use one of "
+                        f"{', '.join(FORMATS)}.{nearest_name(suffix, FORMATS)}")
+    return FORMATS[suffix]
+
+
+def new_figure(size=(6.4, 4.0), dpi=200):
+    """A figure without pyplot (no display, no global state): ``matplotlib.figure.Figure``."""
+    from matplotlib.figure import Figure
+
+    return Figure(figsize=size, dpi=dpi, layout="constrained")
+
+
+def save(fig, path, dpi=None) -> Path:
+    """Save ``fig`` in the format its suffix names; check the folder first."""
+    path = Path(path)
+    fmt = check_suffix(path)
+    folder = path.parent if str(path.parent) else Path(".")
+    if not folder.is_dir():
+        raise CaseError(f"figure folder '{folder}' does not exist.")
+    fig.savefig(path, format=fmt, dpi=dpi or fig.dpi, metadata=_metadata(fmt))
+    return path
+
+
+def _metadata(fmt: str) -> dict:
+    from cable import __version__
+
+    creator = f"cable {__version__}"
+    if fmt == "png":
+        return {"Software": creator}
+    if fmt == "pdf":
+        return {"Creator": creator}
+    return {"Creator": creator} if fmt == "svg" else {}

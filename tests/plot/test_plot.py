@@ -1,0 +1,250 @@
+"""Figures: they render without a display, carry their labels and colour bar, and follow the data.
+
+Figures are made with ``matplotlib.figure.Figure`` (no pyplot, no display); pixel
+statistics of the rendered canvas are compared, never a stored image.
+"""
+
+import matplotlib
+import numpy as np
+import pytest
+import xarray as xr
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+import cable
+from cable.plot import _common
+from conftest import hh_axon_case
+
+#: fraction of pixels that must change between maps of different results: the block
+#: case loses the whole distal front, far more than antialiasing noise (common practice)
+MIN_CHANGED_FRACTION = 0.02
+#: colour-bar lightness may dip this much between neighbouring entries [0-1 luminance]
+LIGHTNESS_SLACK = 1e-3
+
+
+def axon(g_na=1.0):
+    """A 2 cm Hodgkin & Huxley (1952) axon; g_Na scaled by 0.3 the wave dies out (checked in the test)."""
+    case = hh_axon_case(length=2.0, dx=0.02, dt=0.01, duration=8.0)
+    case["output"] = {"every": 0.05, "states": ["h"]}
+    case["membrane"]["scale"] = {"g_Na": g_na}
+    return cable.simulate(case)
+
+
+@pytest.fixture(scope="module")
+def normal():
+    return axon()
+
+
+@pytest.fixture(scope="module")
+def blocked():
+    ds = axon(0.3)
+    # a weakened membrane fails to propagate (Hodgkin & Huxley 1952 needs enough g_Na; from memory)
+    assert bool(ds["blocked"][0])
+    return ds
+
+
+def render(draw, size=(4, 3), dpi=80):
+    fig = Figure(figsize=size, dpi=dpi, layout="constrained")
+    FigureCanvasAgg(fig)
+    ax = fig.add_subplot()
+    out = draw(ax)
+    fig.canvas.draw()
+    return fig, ax, out, np.asarray(fig.canvas.buffer_rgba())[..., :3].astype(float)
+
+
+def test_space_time_labels_and_colour_bar(normal):
+    # common practice: axes labelled "quantity [unit]" from the file's long_name and units
+    fig, ax, image, _ = render(lambda ax: cable.plot.space_time(normal, ax))
+    assert ax.get_xlabel() == "time [ms]"
+    assert ax.get_ylabel().startswith("position along the fibre") and ax.get_ylabel().endswith("[cm]")
+    assert image.colorbar is not None
+    assert image.colorbar.ax.get_ylabel() == "membrane potential [mV]"
+    assert image.get_cmap().name == _common.FIELD_CMAP
+
+
+def test_time_axis_y_swaps_the_axes(normal):
+    # common practice: the option does what its name says
+    _, ax, _, _ = render(lambda ax: cable.plot.space_time(normal, ax, time_axis="y", colorbar=False))
+    assert ax.get_ylabel() == "time [ms]"
+    assert "position" in ax.get_xlabel()
+
+
+def test_maps_differ_when_the_data_differ(normal, blocked):
+    *_, a = render(lambda ax: cable.plot.space_time(normal, ax, vmin=-80, vmax=40))
+    *_, a2 = render(lambda ax: cable.plot.space_time(normal, ax, vmin=-80, vmax=40))
+    *_, b = render(lambda ax: cable.plot.space_time(blocked, ax, vmin=-80, vmax=40))
+    assert np.array_equal(a, a2), "the same data draws the same pixels"
+    changed = np.mean(np.any(np.abs(a - b) > 8, axis=-1))
+    assert changed > MIN_CHANGED_FRACTION
+    # the propagating wave puts depolarised (bright) pixels over the distal fibre; the blocked one does not
+    assert a.mean() != b.mean()
+
+
+def test_front_follows_activation_time(normal):
+    # the front drawn is the measured activation time itself, not a smoothed copy (common practice)
+    _, ax, _, _ = render(lambda ax: cable.plot.space_time(normal, ax, colorbar=False))
+    act = normal["activation_time"].isel(beat=0).values
+    fronts = [ln for ln in ax.get_lines() if ln.get_color() == "white" and ln.get_xdata().size == act.size]
+    assert len(fronts) == 1
+    assert np.array_equal(fronts[0].get_xdata(), act, equal_nan=True)
+    assert np.array_equal(fronts[0].get_ydata(), normal["x"].values)
+
+
+def test_isochrone_marks_lie_on_the_front(normal):
+    # common practice: isochrones at equal steps of activation time, linear interpolation between nodes
+    step = 0.5
+    _, ax, _, _ = render(lambda ax: cable.plot.space_time(normal, ax, isochrones=step, colorbar=False))
+    marks = [ln for ln in ax.get_lines() if ln.get_marker() == "o"]
+    act = normal["activation_time"].isel(beat=0).values
+    x = normal["x"].values
+    onset = float(normal["beat_onset"][0])
+    expected = int(np.floor((np.nanmax(act) - onset) / step))
+    times = sorted(float(t) for ln in marks for t in ln.get_xdata())
+    assert len(times) == expected
+    assert np.allclose(np.diff(times), step)
+    for ln in marks:     # each mark sits where the front passes its time (linear between nodes)
+        for t, pos in zip(ln.get_xdata(), ln.get_ydata()):
+            assert np.interp(pos, x, act) == pytest.approx(t, abs=1e-9)
+
+
+def test_block_site_is_marked(blocked):
+    # block_x is the last activated position of the blocked wave (cable.measure.activation)
+    _, ax, _, _ = render(lambda ax: cable.plot.space_time(blocked, ax, colorbar=False))
+    crosses = [ln for ln in ax.get_lines() if ln.get_marker() == "X"]
+    assert len(crosses) == 1
+    assert crosses[0].get_ydata()[0] == pytest.approx(float(blocked["block_x"][0]))
+    assert any(t.get_text() == "block" for t in ax.texts)
+
+
+def test_regions_from_the_case_text_are_shaded(normal):
+    # regions come from [[region]] tables of the case text; positions may carry units (pint; common practice)
+    ds = normal.copy()
+    ds.attrs = dict(normal.attrs, case=normal.attrs["case"] + '\n[[region]]\nstart = "0.5 cm"\nend = "10 mm"\n'
+                                                              'border = "1 mm"\nscale = {g_Na = 0.5}\n')
+    assert _common.regions(ds) == [_common.Zone(0.5, 1.0, "region 0: g_Na x 0.5", 0.1)]
+    _, ax, _, _ = render(lambda ax: cable.plot.space_time(ds, ax, colorbar=False))
+    hatched = [p for p in ax.patches if p.get_hatch()]
+    assert len(hatched) == 1
+    assert any(t.get_text() == "region 0: g_Na x 0.5" for t in ax.texts)
+    dotted = sorted(ln.get_ydata()[0] for ln in ax.get_lines() if ln.get_linestyle() == ":")
+    assert dotted == pytest.approx([0.4, 1.1])      # the border ramp ends 1 mm outside the core
+    _, ax, _, _ = render(lambda ax: cable.plot.space_time(normal, ax, colorbar=False))
+    assert not [p for p in ax.patches if p.get_hatch()]
+
+
+def test_windows_and_colour_limits(normal):
+    # common practice: the axes show the window asked for (plus half a sample at the edges)
+    _, ax, image, _ = render(lambda ax: cable.plot.space_time(normal, ax, t_window=(1, 4), x_window=(0.5, 1.5),
+                                                             vmin=-70, vmax=20))
+    lo, hi = ax.get_xlim()
+    assert 0.9 <= lo <= 1.0 and 4.0 <= hi <= 4.1
+    lo, hi = ax.get_ylim()
+    assert 0.45 <= lo <= 0.5 and 1.5 <= hi <= 1.55
+    assert image.get_clim() == (-70, 20)
+    with pytest.raises(cable.CaseError, match="t_window"):
+        cable.plot.space_time(normal, ax, t_window=(100, 200))
+    with pytest.raises(cable.CaseError, match="vmin must be below vmax"):
+        cable.plot.space_time(normal, ax, vmin=10, vmax=-10)
+
+
+def test_default_colour_map_prints_as_an_ordered_grey_ramp():
+    # cividis was built to have monotonically increasing lightness (Nunez, Anderton & Renslow 2018,
+    # PLoS ONE 13:e0199239); luminance by ITU-R BT.601 weights (common practice)
+    rgb = matplotlib.colormaps[_common.FIELD_CMAP](np.linspace(0, 1, 256))[:, :3]
+    grey = rgb @ np.array([0.299, 0.587, 0.114])
+    assert np.all(np.diff(grey) > -LIGHTNESS_SLACK)
+    assert grey[-1] - grey[0] > 0.7
+
+
+def test_line_looks_differ_without_colour():
+    # common practice for greyscale print: curves told apart by dash pattern and marker, not colour alone
+    looks = _common.LINE_LOOKS
+    assert len({str(lk["linestyle"]) for lk in looks}) == len(looks)
+    assert len({lk["marker"] for lk in looks}) == len(looks)
+
+
+def test_traces_at_positions(normal):
+    # each trace is the nearest node's stored samples (common practice); errors suggest a fix (house style)
+    fig = Figure(figsize=(4, 4))
+    axes = fig.subplots(2, 1, sharex=True)
+    out = cable.plot.traces(normal, [0.5, 1.5], list(axes), states=["h"])
+    assert out[-1].get_xlabel() == "time [ms]"
+    assert out[0].get_ylabel() == "vm [mV]"
+    lines = out[0].get_lines()
+    assert [ln.get_label() for ln in lines] == ["x = 0.5 cm", "x = 1.5 cm"]
+    assert np.array_equal(lines[1].get_ydata(), normal["vm"].sel(x=1.5, method="nearest").values)
+    assert np.array_equal(out[1].get_lines()[0].get_ydata(), normal["state_h"].sel(x=0.5, method="nearest").values)
+    with pytest.raises(cable.CaseError, match="Did you mean 'h'"):
+        cable.plot.traces(normal, [0.5], list(axes), states=["hh"])
+    with pytest.raises(cable.CaseError, match="outside the fibre"):
+        cable.plot.traces(normal, [5.0], list(axes))
+
+
+def test_traces_differ_when_the_data_differ(normal, blocked):
+    # at 1.5 cm the normal wave passes and the blocked one never arrives (see the block fixture)
+    *_, a = render(lambda ax: cable.plot.traces(normal, [1.5], ax))
+    *_, b = render(lambda ax: cable.plot.traces(blocked, [1.5], ax))
+    assert np.mean(np.any(np.abs(a - b) > 8, axis=-1)) > 0.005
+
+
+def sweep_dataset():
+    """Hand-built in the shape of a sweep result: conduction_velocity(g_Na, temperature, beat)."""
+    g = np.array([0.2, 0.4, 0.6, 0.8, 1.0])
+    temp = np.array([6.3, 18.5])
+    cv = np.sqrt(g)[:, None, None] * np.array([12.0, 19.0])[None, :, None] * np.ones((1, 1, 2))
+    blocked = np.zeros(cv.shape, dtype=np.int8)
+    captured = np.ones(cv.shape, dtype=np.int8)
+    blocked[0, 1] = 1        # g_Na 0.2 at 18.5 degC: excited, then blocked
+    captured[0, 0] = 0       # g_Na 0.2 at 6.3 degC: not excited at all
+    cv[0] = np.nan
+    dims = ("g_Na", "temperature", "beat")
+    return xr.Dataset({"conduction_velocity": (dims, cv, cable.io.schema.attrs("conduction_velocity")),
+                       "blocked": (dims, blocked), "captured": (dims, captured)},
+                      coords={"g_Na": g, "temperature": ("temperature", temp, {"units": "degC"}), "beat": [0, 1]})
+
+
+def test_sweep_plot_curves_and_block():
+    # the curves are the data as given; block and no-capture marks sit at the points flagged (common practice)
+    ds = sweep_dataset()
+    fig = Figure()
+    ax = fig.add_subplot()
+    cable.plot.sweep(ds, "conduction_velocity", "g_Na", ax, hue="temperature", select={"beat": 0})
+    curves = [ln for ln in ax.get_lines() if ln.get_linestyle() != "None"]
+    assert len(curves) == 2
+    assert np.array_equal(curves[1].get_ydata(), ds["conduction_velocity"].isel(temperature=1, beat=0).values,
+                          equal_nan=True)
+    crosses = [ln for ln in ax.get_lines() if ln.get_marker() == "x"]
+    assert [list(ln.get_xdata()) for ln in crosses] == [[0.2]]
+    assert crosses[0].get_color() == curves[1].get_color()           # in the colour of its curve
+    circles = [ln for ln in ax.get_lines() if ln.get_marker() == "o" and ln.get_linestyle() == "None"]
+    assert [list(ln.get_xdata()) for ln in circles] == [[0.2]]
+    assert circles[0].get_markeredgecolor() == curves[0].get_color()
+    labels = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert labels == ["6.3", "18.5", "conduction block", "no capture"]
+    assert ax.get_xlabel() == "g_Na"
+    assert ax.get_ylabel().endswith("[m/s]")
+    assert ax.get_legend().get_title().get_text() == "temperature [degC]"
+
+
+def test_sweep_plot_errors_name_the_fix():
+    # house style (STYLE.md, point 9): name the value, list what is allowed, suggest the nearest
+    ds = sweep_dataset()
+    ax = Figure().add_subplot()
+    with pytest.raises(cable.CaseError, match="Did you mean 'conduction_velocity'"):
+        cable.plot.sweep(ds, "conduction_velocty", "g_Na", ax)
+    with pytest.raises(cable.CaseError, match="--sel temperature=6.3 --sel beat=0"):
+        cable.plot.sweep(ds, "conduction_velocity", "g_Na", ax)
+    with pytest.raises(cable.CaseError, match="not a dimension"):
+        cable.plot.sweep(ds, "conduction_velocity", "g_K", ax)
+
+
+def test_sweep_plots_differ_when_the_data_differ():
+    # common practice: halving every CV must move the drawn curves
+    ds = sweep_dataset()
+    other = ds.copy(deep=True)
+    other["conduction_velocity"] = other["conduction_velocity"] * 0.5
+    draw = lambda d: lambda ax: cable.plot.sweep(d, "conduction_velocity", "g_Na", ax, hue="temperature",  # noqa: E731
+                                                 select={"beat": 1})
+    *_, a = render(draw(ds))
+    *_, b = render(draw(other))
+    assert np.mean(np.any(np.abs(a - b) > 8, axis=-1)) > 0.005
