@@ -16,6 +16,8 @@ def add_arguments(p):
     p.add_argument("--overwrite", action="store_true", help="replace an existing result file")
     add_set_option(p)
     p.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+    p.add_argument("--certify", action="store_true",
+                   help="then rerun at dx/2 and dx/4 and print a convergence certificate (see `cable converge`)")
 
 
 def run(args):
@@ -30,4 +32,8 @@ def run(args):
         print(summarise(ds))
         if args.output:
             print(f"wrote {args.output}")
+    if args.certify:
+        from cable.cli.converge import certify
+
+        certify(args, case, ds)
     return 0

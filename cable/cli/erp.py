@@ -1,0 +1,32 @@
+"""``cable erp CASE``: effective and local refractory periods by S1-S2 bisection."""
+
+from cable.cli import say
+from cable.cli._protocol_io import add_common, finish, prepare
+
+NAME = "erp"
+HELP = "refractory periods: S1 train, then the shortest S1-S2 interval that captures and that propagates"
+ORDER = 8
+
+
+def add_arguments(p):
+    from cable.protocols.refractory import DEFAULT_TOLERANCE
+
+    add_common(p)
+    p.add_argument("--cycle-length", type=float, metavar="MS",
+                   help="S1 interval [ms] (default: stimulus.0.cycle_length)")
+    p.add_argument("--s1-count", type=int, metavar="N", help="number of S1 pulses (default: stimulus.0.count)")
+    p.add_argument("--s2-amplitude", type=float, metavar="UA_CM2", help="S2 amplitude [uA/cm^2] (default: the S1's)")
+    p.add_argument("--s2-duration", type=float, metavar="MS", help="S2 duration [ms] (default: the S1's)")
+    p.add_argument("--tolerance", type=float, default=DEFAULT_TOLERANCE, metavar="MS",
+                   help=f"width of the final bracket on each interval [ms] (default {DEFAULT_TOLERANCE:g})")
+    p.add_argument("--observe", type=float, metavar="MS", help="how long each S2 is watched [ms]")
+
+
+def run(args):
+    from cable.protocols.refractory import refractory_period, summary
+
+    case = prepare(args)
+    ds = refractory_period(case, cycle_length=args.cycle_length, s1_count=args.s1_count,
+                           s2_amplitude=args.s2_amplitude, s2_duration=args.s2_duration, tolerance=args.tolerance,
+                           observe=args.observe, info=lambda m: say(args, m))
+    return finish(args, ds, summary(ds))

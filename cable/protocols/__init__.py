@@ -1,0 +1,1 @@
+"""Protocols: the standard experiments on a strand, each a function returning an xarray.Dataset."""

@@ -1,0 +1,285 @@
+"""Refractoriness: an S1 train, then an S2 whose coupling interval is found by bisection.
+
+Two intervals are searched at once:
+
+* the effective refractory period (ERP): the shortest S1-S2 coupling interval whose S2
+  starts a wave that reaches the far end of the strand;
+* the local refractory period: the shortest interval at which S2 starts a regenerative
+  response at the stimulus site, whether or not the wave then propagates. Regenerative
+  means that the site crosses the activation threshold *and* that its net ionic current
+  turns inward (it drives the potential upward at more than ``INWARD_RATE``) at some
+  sample between the S2 onset and the capture deadline. The threshold crossing alone is
+  not enough: late in repolarisation a stimulus near the diastolic threshold pushes
+  still-depolarised tissue over the activation level while the membrane's own current
+  stays outward (a stimulus-driven bump, not a response). The ionic current is computed
+  from the stored states with the model's reference currents, at the output interval;
+  a fast upstroke can fall between samples, but such a response propagates and is
+  counted by the ERP test, which implies local capture.
+
+Between the two lies the vulnerable window, where S2 gives a local response that fails
+to conduct. The coupling interval is measured from the onset of the last S1 pulse to
+the onset of S2, both at the case's stimulus site (common practice). Each trial reruns
+the whole S1 train from the case's initial state, so the result does not depend on the
+order of the trials.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+from cable import __version__
+from cable.case import CaseError
+from cable.io.schema import CONVENTIONS, STATE_PREFIX
+from cable.measure.activation import CAPTURE_LATENCY
+from cable.membrane import get_model
+from cable.protocols import _pacing
+from cable.simulate import simulate
+
+#: default absolute tolerance of the coupling-interval search [ms]
+DEFAULT_TOLERANCE = 1.0
+#: an S2 wave is watched for this many times the S1 wave's transit time, plus the capture latency
+TRANSIT_FACTOR = 4.0
+#: first trials at these multiples of the S1 APD90 (refractoriness usually ends near it)
+GUESS_ABOVE, GUESS_BELOW = 1.15, 0.75
+#: net inward ionic current counted as regenerative: its upward drive on V [mV/ms = V/s]; far
+#: above round-off at rest (~1e-3) and far below an upstroke (tens to hundreds of V/s)
+INWARD_RATE = 0.1
+
+
+def refractory_period(case, *, cycle_length: float | None = None, s1_count: int | None = None,
+                      s2_amplitude: float | None = None, s2_duration: float | None = None,
+                      tolerance: float = DEFAULT_TOLERANCE, observe: float | None = None,
+                      info=None) -> xr.Dataset:
+    """Effective and local refractory periods after an S1 train.
+
+    Parameters
+    ----------
+    case : str, pathlib.Path, dict or Case
+        A strand case; its first ``[[stimulus]]`` gives the site, the S1 amplitude and
+        duration, and (when ``count > 1``) the defaults of ``cycle_length`` and ``s1_count``.
+    cycle_length : float, optional
+        S1 interval [ms]; needed when ``s1_count > 1`` and the case gives none.
+    s1_count : int, optional
+        Number of S1 pulses (default: the stimulus's count).
+    s2_amplitude, s2_duration : float, optional
+        S2 pulse [uA/cm^2], [ms]; default the S1's. (Clinical practice often uses twice
+        the diastolic threshold, see :func:`cable.strength_duration`.)
+    tolerance : float
+        Width of the final bracket on each interval [ms].
+    observe : float, optional
+        How long each S2 is watched after its onset [ms]; default
+        ``TRANSIT_FACTOR`` x the S1 wave's transit time plus the capture latency.
+    info : callable, optional
+        Receives one line per trial.
+
+    Returns
+    -------
+    xarray.Dataset
+        Scalars ``erp``, ``local_refractory_period``, ``vulnerable_window``,
+        ``apd90_s1`` (last S1 at the site), ``apd90_s1_centre`` (at the CV-window
+        centre), ``erp_minus_apd90`` [ms]; per trial ``coupling_interval``,
+        ``s2_captured``, ``s2_propagated``.
+
+    Raises
+    ------
+    CaseError
+        No fibre, no stimulus, invalid options, or an S2 that never propagates.
+    """
+    who = "refractory_period"
+    case = _pacing.as_case(case)
+    if case.fiber is None:
+        raise CaseError(f"{who}: the ERP is about propagation and needs a [fiber]; for a single cell use "
+                        f"strength_duration(mode='cell') at chosen intervals.")
+    site = _pacing.stimulus_site(case, who)
+    n1, cl = s1_train(case, site, who, s1_count, cycle_length)
+    amp2 = site.amplitude if s2_amplitude is None else _pacing.positive(who, "s2_amplitude", s2_amplitude)
+    dur2 = site.duration if s2_duration is None else _pacing.positive(who, "s2_duration", s2_duration)
+    tol = _pacing.positive(who, "tolerance", tolerance)
+    say = info or (lambda msg: None)
+    last = (n1 - 1) * cl
+    s1 = _pacing.pulse(site, amplitude=site.amplitude, duration=site.duration, count=n1, cycle_length=cl)
+
+    # the S1 train alone: APD90 of its last beat, and how long its wave takes to cross
+    ref = simulate(_pacing.variant(case, stimuli=[s1], duration=last + max(cl, case.duration)))
+    site_node = _pacing.node_index(ref, site.centre)
+    centre_node = _pacing.node_index(ref, _pacing.cv_centre(case))
+    if not _pacing.propagated(ref, n1 - 1, site):
+        raise CaseError(f"{who}: the last S1 beat does not propagate along the strand (stimulus.0.amplitude = "
+                        f"{site.amplitude:g} uA/cm^2, cycle_length = {cl:g} ms); raise the amplitude or lengthen "
+                        f"the cycle.")
+    apd_site = _pacing.apd90(ref, n1 - 1, site_node)
+    apd_centre = _pacing.apd90(ref, n1 - 1, centre_node)
+    act = ref["activation_time"].values[n1 - 1]
+    transit = float(np.nanmax(act) - np.nanmin(act))
+    watch = (TRANSIT_FACTOR * transit + CAPTURE_LATENCY + dur2) if observe is None else \
+        _pacing.positive(who, "observe", observe)
+
+    tried = {}
+    inward = _InwardProbe(case, site_node)
+
+    def trial(ci):
+        ci = round(float(ci), 9)
+        if ci not in tried:
+            s2 = _pacing.pulse(site, amplitude=amp2, duration=dur2, start=last + ci)
+            ds = simulate(_pacing.variant(case, stimuli=[s1, s2], duration=last + ci + watch,
+                                          overrides=inward.overrides))
+            prop = _pacing.propagated(ds, n1, site)
+            local = prop or (_pacing.captured(ds, n1) and
+                             inward.regenerative(ds, last + ci, last + ci + dur2 + CAPTURE_LATENCY))
+            tried[ci] = (local, prop)
+            say(f"S1-S2 {ci:g} ms: {'captured' if tried[ci][0] else 'no capture'}, "
+                f"{'propagated' if tried[ci][1] else 'no propagation'}")
+        return tried[ci]
+
+    erp, local = search(trial, site.duration, cl if n1 > 1 else max(2.0 * apd_site, cl or 0.0), tol,
+                        who=who, limit=4.0 * max(cl or 0.0, apd_site, 1.0), guess=apd_site)
+    cis = np.array(sorted(tried))
+    data = {
+        "erp": ((), erp, {"units": "ms", "long_name": "effective refractory period: shortest S1-S2 interval "
+                                                      "whose S2 propagates along the strand"}),
+        "local_refractory_period": ((), local, {"units": "ms", "long_name": "shortest S1-S2 interval whose S2 "
+                                                                            "starts a regenerative response at the "
+                                                                            "stimulus site"}),
+        "vulnerable_window": ((), erp - local, {"units": "ms", "long_name": "intervals with a local response "
+                                                                            "that fails to propagate"}),
+        "apd90_s1": ((), apd_site, {"units": "ms", "long_name": "APD90 of the last S1 beat at the stimulus site"}),
+        "apd90_s1_centre": ((), apd_centre, {"units": "ms", "long_name": "APD90 of the last S1 beat at the "
+                                                                        "centre of the CV window"}),
+        "erp_minus_apd90": ((), erp - apd_site, {"units": "ms", "long_name": "post-repolarisation refractoriness "
+                                                                            "(ERP - APD90 at the site)"}),
+        "s2_captured": ("trial", np.array([tried[c][0] for c in cis], dtype=np.int8),
+                        {"long_name": "S2 started a regenerative response at the site", "flag_values": [0, 1],
+                         "flag_meanings": "false true"}),
+        "s2_propagated": ("trial", np.array([tried[c][1] for c in cis], dtype=np.int8),
+                          {"long_name": "S2 wave reached the far end", "flag_values": [0, 1],
+                           "flag_meanings": "false true"}),
+    }
+    coords = {"coupling_interval": ("trial", cis, {"units": "ms", "long_name": "S1-S2 coupling interval"})}
+    attrs = {
+        "Conventions": CONVENTIONS,
+        "title": f"refractory periods: {case.membrane.model}",
+        "protocol": "S1-S2 refractory period",
+        "source": f"cable {__version__}",
+        "model": case.membrane.model,
+        "s1_count": n1,
+        "s1_cycle_length_ms": cl if n1 > 1 else np.nan,
+        "s1_amplitude": site.amplitude,
+        "s2_amplitude": amp2,
+        "s2_duration_ms": dur2,
+        "tolerance_ms": tol,
+        "observe_ms": watch,
+        "case": case.text,
+        "comment": "Research tool; not for clinical decisions.",
+    }
+    return xr.Dataset(data, coords=coords, attrs=attrs)
+
+
+class _InwardProbe:
+    """Whether the net ionic current at one node turned inward between two times."""
+
+    def __init__(self, case, node):
+        from cable.simulate import prepare
+
+        self.model = get_model(case.membrane.model)
+        self.node = node
+        self.p = np.ascontiguousarray(prepare(case).p[node:node + 1])
+        self.scale = self.model.ion_scale(case.fiber.capacitance)
+        self.overrides = {"output.states": list(self.model.state_names)}
+
+    def regenerative(self, ds, t0, t1) -> bool:
+        t = ds["t"].values
+        sel = (t >= t0) & (t <= t1)
+        if not sel.any():
+            return False
+        v = ds["vm"].values[sel, self.node]
+        s = np.stack([ds[STATE_PREFIX + name].values[sel, self.node] for name in self.model.state_names], axis=1)
+        _, _, ion = self.model.reference(v, s, np.repeat(self.p, v.size, axis=0))
+        return bool(np.nanmax(-self.scale * np.asarray(ion, dtype=float)) > INWARD_RATE)
+
+
+def s1_train(case, site, who, s1_count, cycle_length):
+    """(count, cycle length [ms]) of the S1 train from the options or the case's stimulus."""
+    n1 = site.count if s1_count is None else s1_count
+    if isinstance(n1, bool) or not isinstance(n1, (int, np.integer)) or n1 < 1:
+        raise CaseError(f"{who}: s1_count = {s1_count!r} must be a whole number of at least 1.")
+    cl = cycle_length if cycle_length is not None else site.cycle_length
+    if cl is None:
+        if n1 > 1:
+            raise CaseError(f"{who}: s1_count = {n1} needs cycle_length (stimulus.0.cycle_length is not set); "
+                            f"pass cycle_length= (--cycle-length).")
+        cl = 0.0
+    else:
+        cl = _pacing.positive(who, "cycle_length", cl)
+        if n1 > 1 and cl <= site.duration:
+            raise CaseError(f"{who}: cycle_length = {cl:g} ms must exceed the S1 duration {site.duration:g} ms.")
+    return int(n1), float(cl)
+
+
+def search(trial, lo, hi, tol, *, who, limit, guess=None):
+    """Joint bisection of (ERP, local refractory period).
+
+    ``trial(ci) -> (captured, propagated)``. ``lo`` is the shortest interval tried
+    (checked), ``hi`` a first interval expected to propagate (doubled up to ``limit``
+    until it does). With ``guess`` (the S1 APD90), intervals at ``GUESS_ABOVE`` and
+    ``GUESS_BELOW`` times it are tried first, to start from narrow brackets. Each trial
+    narrows both brackets; the midpoint of the wider one is tried next. Returns the
+    upper ends: intervals known to propagate and to capture.
+    """
+    b = {"cap_lo": None, "cap_hi": None, "prop_lo": None, "prop_hi": None}
+
+    def run(ci):
+        ci = round(float(ci), 9)  # the key trial() stores its result under
+        c, p = trial(ci)
+        if p:
+            b["prop_hi"] = ci if b["prop_hi"] is None else min(b["prop_hi"], ci)
+        else:
+            b["prop_lo"] = ci if b["prop_lo"] is None else max(b["prop_lo"], ci)
+        if c or p:
+            b["cap_hi"] = ci if b["cap_hi"] is None else min(b["cap_hi"], ci)
+        else:
+            b["cap_lo"] = ci if b["cap_lo"] is None else max(b["cap_lo"], ci)
+
+    if guess is not None and np.isfinite(guess):
+        for ci in (GUESS_ABOVE * guess, GUESS_BELOW * guess):
+            if lo < ci < hi:
+                run(ci)
+    while b["prop_hi"] is None:
+        run(hi)
+        if b["prop_hi"] is not None:
+            break
+        if hi >= limit:
+            raise CaseError(f"{who}: S2 did not propagate at coupling intervals up to {hi:g} ms; raise "
+                            f"s2_amplitude or check that the S1 beats propagate.")
+        hi = min(2.0 * hi, limit)
+    if b["cap_lo"] is None:
+        run(lo)
+        if b["prop_hi"] <= lo:
+            return lo, lo
+        if b["cap_lo"] is None:  # S2 captures even at the shortest interval
+            b["cap_lo"] = b["cap_hi"] = lo
+    while True:
+        w_prop = b["prop_hi"] - b["prop_lo"]
+        w_cap = b["cap_hi"] - b["cap_lo"]
+        if max(w_prop, w_cap) <= tol:
+            return b["prop_hi"], b["cap_hi"]
+        run(0.5 * (b["prop_lo"] + b["prop_hi"]) if w_prop >= w_cap else 0.5 * (b["cap_lo"] + b["cap_hi"]))
+        # capture never comes later than propagation: keep the brackets consistent
+        b["cap_hi"] = min(b["cap_hi"], b["prop_hi"])
+        b["cap_lo"] = min(b["cap_lo"], b["cap_hi"])
+
+
+def summary(ds: xr.Dataset) -> str:
+    """A few lines: the periods, APD90 and the trials."""
+    f = lambda name: float(ds[name])  # noqa: E731
+    lines = [f"refractory periods: {ds.attrs['model']} (S1 x {ds.attrs['s1_count']} at "
+             f"{ds.attrs['s1_cycle_length_ms']:g} ms, S2 {ds.attrs['s2_amplitude']:g} uA/cm^2 for "
+             f"{ds.attrs['s2_duration_ms']:g} ms; tolerance {ds.attrs['tolerance_ms']:g} ms)",
+             f"ERP {f('erp'):.4g} ms   local refractory period {f('local_refractory_period'):.4g} ms   "
+             f"vulnerable window {f('vulnerable_window'):.4g} ms",
+             f"APD90 of the last S1: {f('apd90_s1'):.4g} ms at the site, {f('apd90_s1_centre'):.4g} ms mid-strand; "
+             f"ERP - APD90 = {f('erp_minus_apd90'):.4g} ms",
+             "S1-S2_ms  captured  propagated"]
+    for ci, c, p in zip(ds["coupling_interval"].values, ds["s2_captured"].values, ds["s2_propagated"].values):
+        lines.append(f"{ci:8.5g}  {'yes' if c else 'no':>8}  {'yes' if p else 'no':>10}")
+    return "\n".join(lines)
