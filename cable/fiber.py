@@ -9,6 +9,38 @@ operator (the mirror-node form). The diffusion operator is written per edge,
 with lo_0 = up_{n-1} = 0. On an edge between nodes of different coupling the
 conductance is the harmonic mean of the two sides (series resistances), so current
 is conserved across a border.
+
+Discrete cells
+--------------
+With ``[fiber] cell_length`` and ``gap_junction_conductance`` the strand is a chain of
+cells of ``cell_length`` (a whole number m >= 1 of dx), each resolved by m nodes joined
+by cytoplasm; cell k holds nodes k m .. k m + m - 1 (the end node of a fibre a whole
+number of cells long joins the last cell), and the edge between the last node of a cell
+and the first of the next holds a gap junction in series with the dx of cytoplasm
+between the two nodes. Per unit cross-section the edge's resistance is then
+``dx / sigma + 1 / g_j``, against ``dx / sigma`` for a cytoplasmic edge, so the junction
+multiplies the edge's conductance by
+
+    f_j = 1 / (1 + sigma / (g_j dx))
+
+where sigma is the axial conductivity (tissue form: ``conductivity``; axon form:
+1000 / ``axial_resistivity`` mS/cm) and g_j [mS/cm^2] the junction's conductance per
+unit cross-sectional area (of the fibre in the axon form, of tissue in the tissue form).
+A specific junction resistance R_j [ohm*cm^2] is g_j = 1/R_j (write
+``gap_junction_conductance = "1/(1.5 ohm*cm^2)"``); an absolute junction conductance G
+[uS] of a fibre of radius a is g_j = G / (pi a^2) (e.g. 2.5 uS at a = 11 um is
+658 mS/cm^2 = 1/(1.52 ohm*cm^2)).
+
+For cells much shorter than the space constant the chain behaves as a continuous
+cable of effective resistivity ``1/sigma + 1/(g_j cell_length)`` (homogenisation;
+the tests check this, and that strong junctions give back the continuous strand);
+poorly coupled cells conduct step-wise, the delay concentrated at the junctions, which
+continuous coupling cannot show.
+
+A region's ``coupling`` factor multiplies the conductivity of a continuous fibre; in a
+fibre of discrete cells it multiplies the gap-junction conductance only (uncoupling, as
+in Shaw & Rudy 1997), the cytoplasm being left as it is. Either way an edge between
+nodes of different factors takes their harmonic mean.
 """
 
 from __future__ import annotations
@@ -17,7 +49,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from cable.case.load import Fiber, Numerics
+from cable.case.load import CaseError, Fiber, Numerics
+
+#: cell_length may differ from a whole number of dx by this relative amount (rounding)
+CELL_TOLERANCE = 1e-6
 
 
 @dataclass(frozen=True)
@@ -30,11 +65,21 @@ class Grid:
         Node positions [cm].
     lo, up : ndarray
         Coefficients of the operator to the left and right neighbour [1/ms].
+    edge : ndarray or None
+        Conductance of each edge (i, i+1) divided by the membrane capacitance of one dx
+        of fibre [1/ms], length n-1 (so that lo_i = edge_{i-1} / volume_i).
+    volume : ndarray or None
+        Share of dx each node owns (1, or 1/2 at the sealed ends).
+    cell : ndarray or None
+        Cell index of each node for discrete cell coupling, else None.
     """
 
     x: np.ndarray
     lo: np.ndarray
     up: np.ndarray
+    edge: np.ndarray | None = None
+    volume: np.ndarray | None = None
+    cell: np.ndarray | None = None
 
     @property
     def n(self) -> int:
@@ -67,6 +112,92 @@ def edge_conductance(node_factor: np.ndarray) -> np.ndarray:
     return out
 
 
+def axial_conductivity(fiber: Fiber) -> float:
+    """Axial conductivity sigma [mS/cm]: the tissue form's, or 1000 / R_i for the axon form."""
+    if fiber.radius is not None:
+        return 1000.0 / fiber.axial_resistivity
+    return fiber.conductivity
+
+
+def nodes_per_cell(fiber: Fiber) -> int | None:
+    """Nodes per cell for discrete cell coupling (None for a continuous fibre).
+
+    Raises
+    ------
+    CaseError
+        When ``cell_length`` is not a whole number (>= 1) of ``dx``.
+    """
+    if fiber.cell_length is None:
+        return None
+    ratio = fiber.cell_length / fiber.dx
+    m = int(round(ratio))
+    if m < 1 or abs(ratio - m) > CELL_TOLERANCE * max(1.0, ratio):
+        good = fiber.cell_length / max(1, m)
+        raise CaseError(f"fiber.cell_length = {fiber.cell_length:g} cm must be a whole number (at least 1) of "
+                        f"fiber.dx = {fiber.dx:g} cm, so that junctions fall between nodes; e.g. dx = {good:.6g} cm "
+                        f"({max(1, m)} node(s) per cell).")
+    return m
+
+
+def junction_edges(fiber: Fiber) -> np.ndarray:
+    """Indices e of the edges (e, e+1) that hold a gap junction (empty when continuous).
+
+    Cell k holds nodes k m .. k m + m - 1; the end node of a fibre that is a whole
+    number of cells long joins the last cell (no one-node cell at the sealed end).
+    """
+    m = nodes_per_cell(fiber)
+    if m is None:
+        return np.zeros(0, dtype=np.int64)
+    edges = np.arange(m - 1, fiber.n_nodes - 1, m, dtype=np.int64)
+    if edges.size and edges[-1] == fiber.n_nodes - 2 and m > 1:
+        edges = edges[:-1]
+    return edges
+
+
+def junction_factor(fiber: Fiber, coupling: np.ndarray | None = None) -> np.ndarray | None:
+    """Per-edge factor f_j of the junctions (1 on cytoplasmic edges); None when continuous.
+
+    Parameters
+    ----------
+    fiber : Fiber
+    coupling : ndarray, optional
+        Per-edge factor on the junction conductance g_j (length n-1; regions).
+    """
+    edges = junction_edges(fiber)
+    if fiber.cell_length is None:
+        return None
+    f = np.ones(fiber.n_nodes - 1)
+    g = np.full(edges.size, fiber.gap_junction_conductance)
+    if coupling is not None:
+        g = g * np.asarray(coupling, dtype=float)[edges]
+    sigma = axial_conductivity(fiber)
+    with np.errstate(divide="ignore"):
+        f[edges] = np.where(g > 0, 1.0 / (1.0 + sigma / (np.where(g > 0, g, 1.0) * fiber.dx)), 0.0)
+    return f
+
+
+def cell_index(fiber: Fiber) -> np.ndarray | None:
+    """Cell number of each node (None when continuous)."""
+    if fiber.cell_length is None:
+        return None
+    cell = np.zeros(fiber.n_nodes, dtype=np.int64)
+    cell[junction_edges(fiber) + 1] = 1
+    return np.cumsum(cell)
+
+
+def effective_resistivity(fiber: Fiber) -> float:
+    """Resistivity [ohm*cm] of the continuous cable equivalent to the fibre's cells.
+
+    1/sigma + 1/(g_j cell_length) per unit cross-section (in ohm*cm: 1000 times the
+    value in cm/mS); the plain axial resistivity when continuous.
+    """
+    sigma = axial_conductivity(fiber)
+    r = 1.0 / sigma
+    if fiber.cell_length is not None:
+        r += 1.0 / (fiber.gap_junction_conductance * fiber.cell_length)
+    return 1000.0 * r
+
+
 def build_grid(fiber: Fiber, coupling_factor: np.ndarray | None = None,
                edge_factor: np.ndarray | None = None) -> Grid:
     """Build the grid of ``fiber``.
@@ -74,16 +205,22 @@ def build_grid(fiber: Fiber, coupling_factor: np.ndarray | None = None,
     Parameters
     ----------
     fiber : Fiber
+        With ``cell_length`` and ``gap_junction_conductance`` the junction edges are
+        built in (see the module docstring).
     coupling_factor : ndarray, optional
-        Factor on the conductivity at each node (regions); edges take the harmonic mean.
+        Factor on the conductivity at each node (regions), on the junction conductance
+        for discrete cells; edges take the harmonic mean.
     edge_factor : ndarray, optional
-        Factor per edge applied after that (discrete junctions), length n-1.
+        A further factor per edge, length n-1.
     """
     x = node_positions(fiber)
     n = x.size
     d_edge = np.full(n - 1, fiber.diffusivity / fiber.dx**2)
-    if coupling_factor is not None:
-        d_edge = d_edge * edge_conductance(np.asarray(coupling_factor, dtype=float))
+    per_edge = None if coupling_factor is None else edge_conductance(np.asarray(coupling_factor, dtype=float))
+    if fiber.cell_length is not None:
+        d_edge = d_edge * junction_factor(fiber, per_edge)
+    elif per_edge is not None:
+        d_edge = d_edge * per_edge
     if edge_factor is not None:
         d_edge = d_edge * edge_factor
     volume = np.ones(n)
@@ -92,7 +229,7 @@ def build_grid(fiber: Fiber, coupling_factor: np.ndarray | None = None,
     up = np.zeros(n)
     lo[1:] = d_edge / volume[1:]
     up[:-1] = d_edge / volume[:-1]
-    return Grid(x=x, lo=lo, up=up)
+    return Grid(x=x, lo=lo, up=up, edge=d_edge, volume=volume, cell=cell_index(fiber))
 
 
 def forward_euler_limit(fiber: Fiber, numerics: Numerics) -> float:

@@ -47,7 +47,8 @@ REGION_KEYS = {
     "scale": Key("table", meaning="factor per scalable conductance inside the region, e.g. g_Na = 0.2"),
     "parameters": Key("table", meaning="value per model parameter inside the region, e.g. K_o = 12"),
     "coupling": Key("quantity", minimum=0.0, exclusive_minimum=True,
-                    meaning="factor (> 0) on the conductivity inside the region (discrete cells: on the gap junctions)"),
+                    meaning="factor (> 0) on the conductivity inside the region (discrete cells: on the "
+                            "gap junctions)"),
     "border": Key("quantity", "length", default=0.0, minimum=0.0,
                   meaning="width of the linear ramp outside [start, end] [cm]; 0 = abrupt"),
 }

@@ -21,7 +21,7 @@ from cable import __version__
 from cable.case import Case, CaseError, load_case
 from cable.fiber import Grid, build_grid, node_positions
 from cable.io import schema
-from cable.kernels import diffusion, integrate
+from cable.kernels import diffusion, fused, integrate, tables
 from cable.kernels.jit import specialise
 from cable.measure.activation import assign_beats, per_beat
 from cable.measure.apd import ApdTracker
@@ -30,6 +30,8 @@ from cable.membrane import MembraneModel, get_model
 
 #: how often the loop checks for NaN / runaway potential [steps]
 CHECK_EVERY = 200
+#: most threshold crossings stored per node
+MAX_CROSSINGS = 4096
 
 
 class SimulationError(RuntimeError):
@@ -56,9 +58,32 @@ def _integrator(model_name: str):
     return specialise(integrate.advance, model.name, reaction=model.reaction)
 
 
-def is_compiled(model_name: str) -> bool:
-    """Whether the time loop of ``model_name`` is in numba's on-disk cache already."""
-    fn = _integrator(model_name)
+@functools.lru_cache(maxsize=None)
+def _fast_integrator(model_name: str):
+    model = get_model(model_name)
+    return specialise(fused.advance_fast, model.name, vector=True, fast_reaction=model.fast.kernel)
+
+
+def time_loop(model_name: str, rates: str = "tabulated"):
+    """The compiled time loop (numba dispatcher) that a run of ``model_name`` uses.
+
+    ``rates`` is ``numerics.rates``: models with a fast path
+    (:class:`cable.membrane.base.FastPath`) use ``cable.kernels.fused.advance_fast``
+    unless it is ``"reference"``; the others use ``cable.kernels.integrate.advance``.
+    Its ``signatures`` are non-empty once it is loaded in this process.
+    """
+    model = get_model(model_name)
+    if rates == "reference" or model.fast is None:
+        return _integrator(model_name)
+    return _fast_integrator(model_name)
+
+
+def is_compiled(model_name: str, rates: str = "tabulated") -> bool:
+    """Whether the time loop a run of ``model_name`` uses is in numba's on-disk cache already."""
+    return _in_cache(time_loop(model_name, rates))
+
+
+def _in_cache(fn) -> bool:
     if fn.signatures:
         return True
     try:
@@ -86,6 +111,7 @@ class Setup:
     cv_window: tuple[float, float] | None
     notes: list[str] = field(default_factory=list)
     prepace: dict | None = None
+    safety: object | None = None  # cable.measure.safety.SafetyTracker when measure.safety_factor
 
     @property
     def n(self) -> int:
@@ -140,15 +166,18 @@ def prepare(case) -> Setup:
     notes = list(case.notes)
     num = case.numerics
     if case.fiber is not None:
+        from cable.regions import node_fields
+
         x = node_positions(case.fiber)
-        grid = build_grid(case.fiber)
+        p, coupling = node_fields(case, model, x, node_parameters(case, model, x.size))
+        grid = build_grid(case.fiber, coupling_factor=coupling)
         cm = case.fiber.capacitance
     else:
         x = None
         grid = Grid(x=np.zeros(1), lo=np.zeros(1), up=np.zeros(1))
         cm = 1.0
+        p = node_parameters(case, model, 1)
     n = grid.n
-    p = node_parameters(case, model, n)
     s0 = np.tile(model.initial_states(), (n, 1)).reshape(n, len(model.states))
     v0 = np.full(n, model.resting_potential)
     pre = None
@@ -185,7 +214,13 @@ def prepare(case) -> Setup:
                   threshold=case.threshold if case.threshold is not None else model.threshold,
                   ion_scale=model.ion_scale(cm), steps_per_sample=spb, n_samples=intervals + 1,
                   cv_window=cv_window, notes=notes, prepace=pre)
-    _check_size(setup)
+    if case.raw.get("measure", {}).get("safety_factor", False):
+        if x is None:
+            notes.append("measure.safety_factor needs a [fiber] (axial currents); ignored for a single cell.")
+        else:
+            from cable.measure.safety import tracker_for
+
+            setup.safety = tracker_for(case, grid, v0, pulses, notes)
     return setup
 
 
@@ -194,16 +229,28 @@ def stored_bytes(setup: Setup) -> int:
     return setup.n_samples * setup.n * (1 + len(setup.case.output_states)) * 8
 
 
-def _check_size(setup: Setup, output=None) -> None:
+def check_size(setup: Setup, output=None) -> None:
+    """Refuse a run whose stored fields would not fit in memory (or, streamed, on disk)."""
+    import shutil
+
     need = stored_bytes(setup)
+    hint = (f"increase output.every (now {setup.case.output_every:g} ms), store fewer output.states, "
+            f"or shorten run.duration")
+    if output is not None:
+        need //= 2  # float32 on file, before compression
+        folder = os.path.dirname(os.path.abspath(output))
+        free = shutil.disk_usage(folder).free
+        if need > free:
+            raise CaseError(f"the stored fields need up to {need / 2**30:.1f} GiB (before compression) but "
+                            f"{free / 2**30:.1f} GiB is free on disk at '{folder}': {hint}.")
+        return
     try:
         avail = os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
     except (ValueError, OSError, AttributeError):
         return
     if need > 0.8 * avail:
         raise CaseError(f"the stored fields need {need / 2**30:.1f} GiB but {avail / 2**30:.1f} GiB of memory is "
-                        f"free: increase output.every (now {setup.case.output_every:g} ms), store fewer "
-                        f"output.states, or shorten run.duration.")
+                        f"free: {hint}; or give an output file, to which the fields are streamed.")
 
 
 class _MemorySink:
@@ -259,32 +306,42 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     case = setup.case
     if output is not None:
         netcdf.check_target(output, overwrite)
+    check_size(setup, output)
     say = info or (lambda msg: None)
     for note in setup.notes:
         say(note)
     if setup.prepace is not None:
         say(setup.prepace["summary"])
     model = setup.model
-    if not is_compiled(model.name):
-        say(f"compiling the '{model.name}' kernels (first run only; later runs use the cache)...")
-    advance = _integrator(model.name)
-
     num = case.numerics
     dt = num.dt
+    gating = 0 if num.gating == "rush-larsen" else 1
+    rates = tables.plan(model, setup.p, dt, gating, num.rates)
+    if rates.note:
+        say(rates.note)
+    fast = rates.mode != "reference"
+    advance = _fast_integrator(model.name) if fast else _integrator(model.name)
+    if not _in_cache(advance):
+        say(f"compiling the '{model.name}' kernels (first run only; later runs use the cache)...")
+
     n = setup.n
     state_names = list(case.output_states)
     state_idx = [model.state_names.index(s) for s in state_names]
     field_names = ["vm"] + [schema.STATE_PREFIX + s for s in state_names]
     v = setup.v0.copy()
-    s = np.ascontiguousarray(setup.s0.copy())
-    p = np.ascontiguousarray(setup.p)
+    if fast:  # stored by state and by parameter (see cable.kernels.fused)
+        s = np.ascontiguousarray(setup.s0.T)
+        p = tables.by_parameter(setup.p)
+    else:
+        s = np.ascontiguousarray(setup.s0.copy())
+        p = np.ascontiguousarray(setup.p)
     grid = setup.grid
     theta = diffusion.THETA[num.diffusion]
     half = diffusion.factor(grid.lo, grid.up, 0.5 * dt, theta)
     full = diffusion.factor(grid.lo, grid.up, dt, theta)
     splitting = integrate.STRANG if num.splitting == "strang" else integrate.GODUNOV
-    gating = 0 if num.gating == "rush-larsen" else 1
-    cap = max(16, 2 * setup.pulses.shape[0] + 8)
+    # crossings stored per node (more are counted, not stored): two per pulse, bounded
+    cap = max(16, min(2 * setup.pulses.shape[0] + 8, MAX_CROSSINGS))
     act = np.full((n, cap), np.nan)
     nact = np.zeros(n, dtype=np.int64)
     upstroke = np.full((n, cap), np.nan)
@@ -296,15 +353,17 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     tracker = ApdTracker(v, act, case.apd_levels)
 
     attrs = provenance(setup, command)
+    attrs["rates"] = rates.mode
     sink = netcdf.StreamWriter(output, setup, field_names, model, attrs) if output is not None else \
         _MemorySink(setup, field_names)
 
     def sample(k):
         vals = {"vm": v}
         for name, j in zip(state_names, state_idx):
-            vals[schema.STATE_PREFIX + name] = s[:, j]
+            vals[schema.STATE_PREFIX + name] = s[j] if fast else s[:, j]
         sink.write(k, vals)
 
+    table_args = (rates.table, rates.v_lo, rates.inv_dv) if fast else ()
     sample(0)
     failure = None
     interrupted = False
@@ -316,12 +375,14 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
             t0 = (k - 1) * spb * dt
             status, step, node = advance(v, s, p, t0, spb, dt, setup.pulses, grid.lo, grid.up, theta, half, full,
                                          splitting, num.merge_half_steps, gating, setup.ion_scale, setup.threshold,
-                                         vprev, act, nact, pre_rate, open_up, upstroke, i_stim, work, CHECK_EVERY)
+                                         vprev, act, nact, pre_rate, open_up, upstroke, i_stim, work, CHECK_EVERY,
+                                         *table_args)
             if status != integrate.OK:
                 failure = (status, t0 + (step + 1) * dt, node)
                 break
             t_k = k * spb * dt
             tracker.update(v, t_k, act, nact)
+            if setup.safety is not None: setup.safety.update(v, t_k, nact)  # noqa: E701
             sample(k)
             if progress is not None:
                 progress(t_k, t_total)
@@ -330,7 +391,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     wall = _time.perf_counter() - wall0
     n_done = sink.filled
     attrs["wall_time_s"] = round(wall, 4)
-    meas = measurements(setup, act, nact, upstroke, tracker)
+    meas = measurements(setup, act, nact, upstroke, tracker, t_end=(n_done - 1) * spb * dt)
     if failure is not None or interrupted:
         reason = "interrupted" if interrupted else _failure_message(setup, failure)
         attrs.update(status="partial", partial_reason=reason, completed_until_ms=(n_done - 1) * spb * dt)
@@ -367,10 +428,14 @@ def _failure_message(setup: Setup, failure) -> str:
     return f"{what}{where} near t = {t_fail:.4g} ms. Likely cause: " + "; or ".join(causes) + "."
 
 
-def measurements(setup: Setup, act, nact, upstroke, tracker: ApdTracker) -> dict:
-    """Per-beat measurements as ``{name: (dims, array)}`` (with the x dimension)."""
+def measurements(setup: Setup, act, nact, upstroke, tracker: ApdTracker, t_end=None) -> dict:
+    """Per-beat measurements as ``{name: (dims, array)}`` (with the x dimension).
+
+    ``t_end`` [ms]: the time computed (a partial run counts only the beats begun by then).
+    """
     x = setup.x if setup.x is not None else np.zeros(1)
-    beats = assign_beats(act, nact, x, setup.pulses)
+    pulses = setup.pulses if t_end is None else setup.pulses[setup.pulses[:, 0] < t_end]
+    beats = assign_beats(act, nact, x, pulses)
     out = {
         "beat_onset": (("beat",), beats.onset),
         "activation_time": (("beat", "x"), beats.activation),
@@ -392,6 +457,11 @@ def measurements(setup: Setup, act, nact, upstroke, tracker: ApdTracker) -> dict
         if 90.0 in levels:
             apd90 = apd[levels.index(90.0), :, centre]
             out["wavelength"] = (("beat",), cv / 10.0 * apd90)  # m/s -> cm/ms, times ms
+        from cable.measure import block
+
+        out.update(block.outputs(beats))
+        if setup.safety is not None:
+            out["safety_factor"] = (("beat", "x"), setup.safety.per_beat(beats))
     return out
 
 

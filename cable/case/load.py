@@ -91,6 +91,7 @@ class Numerics:
     diffusion: str = "crank-nicolson"
     gating: str = "rush-larsen"
     merge_half_steps: bool = True
+    rates: str = "tabulated"
 
 
 @dataclass(frozen=True)

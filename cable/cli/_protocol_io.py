@@ -7,12 +7,71 @@ from cable.cli import add_set_option
 
 
 def add_common(p) -> None:
-    """CASE, -o/--overwrite, --set and -q."""
+    """CASE, -o/--overwrite, --set, -q and --figure."""
     p.add_argument("case", help="case file (TOML)")
     p.add_argument("-o", "--output", help="netCDF file for the protocol's result")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output file")
     add_set_option(p)
     p.add_argument("-q", "--quiet", action="store_true", help="print only the result (no line per run)")
+    add_figure_option(p)
+
+
+def add_figure_option(p) -> None:
+    """--figure PATH (and its size and resolution): draw the result with :func:`cable.plot.protocol_figure`."""
+    from cable.cli._figures import DEFAULT_DPI, DEFAULT_SIZE_CM
+
+    p.add_argument("--figure", metavar="PATH", help="also draw the result: a .png, .pdf or .svg file")
+    p.add_argument("--figure-size", nargs=2, metavar=("W", "H"),
+                   help=f"figure width and height; bare numbers in cm, or with a unit (85mm, 3.5in); "
+                        f"default {DEFAULT_SIZE_CM[0]:g} x {DEFAULT_SIZE_CM[1]:g} cm")
+    p.add_argument("--figure-dpi", type=int, default=DEFAULT_DPI, metavar="DPI",
+                   help=f"resolution of PNG output (default {DEFAULT_DPI})")
+
+
+def _figure_options(args):
+    """The figure options in the form :mod:`cable.cli._figures` reads (size, dpi, title)."""
+    from types import SimpleNamespace
+
+    return SimpleNamespace(size=args.figure_size, dpi=args.figure_dpi, title=None)
+
+
+def check_figure(args) -> None:
+    """Check --figure's suffix and folder, --figure-size and --figure-dpi before any run."""
+    from pathlib import Path
+
+    from cable.case import CaseError
+    from cable.cli import _figures
+    from cable.plot import _common
+
+    if not getattr(args, "figure", None):
+        return
+    try:
+        _common.check_suffix(args.figure)
+    except CaseError as exc:
+        raise CaseError(f"--figure: {exc}") from None
+    folder = Path(args.figure).parent
+    if not folder.is_dir():
+        raise CaseError(f"--figure {args.figure}: the folder '{folder}' does not exist.")
+    if args.figure_dpi <= 0:
+        raise CaseError(f"--figure-dpi {args.figure_dpi}: must be a positive whole number, e.g. "
+                        f"{_figures.DEFAULT_DPI}.")
+    if args.figure_size and min(_figures.pair(args.figure_size, "length", "--figure-size")) <= 0:
+        raise CaseError(f"--figure-size {' '.join(args.figure_size)}: width and height must be above 0.")
+
+
+def write_figure(args, ds) -> None:
+    """Draw ``ds`` into the file of --figure (nothing without it)."""
+    from pathlib import Path
+
+    from cable.cli import _figures
+    from cable.plot import protocol_figure
+
+    if not getattr(args, "figure", None):
+        return
+    opts = _figure_options(args)
+    with _figures.drawing(opts) as fig:
+        protocol_figure(ds, fig)
+        _figures.finish(fig, opts, Path(args.figure))
 
 
 def prepare(args):
@@ -23,6 +82,7 @@ def prepare(args):
     case = load_case(args.case, args.overrides)
     if args.output:
         check_target(args.output, args.overwrite)
+    check_figure(args)
     return case
 
 
@@ -35,4 +95,5 @@ def finish(args, ds, text: str) -> int:
     if args.output:
         write_dataset(ds, args.output, overwrite=args.overwrite)
         print(f"wrote {args.output}")
+    write_figure(args, ds)
     return 0

@@ -57,10 +57,10 @@ def stimulus_current(t, dt, pulses, i_stim):
 
 
 @jit
-def probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke):
-    n = v.shape[0]
+def probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, i0, i1):
+    """Probe nodes i0..i1-1 after a step ending at t + dt (crossings, upstroke rates)."""
     cap = act.shape[1]
-    for i in range(n):
+    for i in range(i0, i1):
         vi = v[i]
         vp = vprev[i]
         rate = (vi - vp) / dt
@@ -84,6 +84,11 @@ def probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke):
             pre_rate[i] = 0.0
             open_up[i] = 0
         vprev[i] = vi
+
+
+@jit
+def probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke):
+    probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, 0, v.shape[0])
 
 
 def advance(v, s, p, t0, nsteps, dt, pulses, lo, up, theta, half, full, splitting, merge,

@@ -2,12 +2,25 @@
 
 ``jit`` compiles with ``cache=True`` (compiled code is stored next to the sources, or
 under ``NUMBA_CACHE_DIR``) and without fastmath: the results must not depend on the
-reordering of floating-point sums.
+reordering of floating-point sums. All kernels use numpy's error model: a division by
+zero in a diverging run gives inf or NaN, which the time loop's runaway check reports
+with its time and place, instead of a bare ZeroDivisionError from deep in a kernel.
+
+``jit_vector`` is the same with numpy's error model: a division by zero gives inf or
+NaN (as in numpy) instead of a per-division test that raises, so LLVM can turn the
+loop into SIMD code. Still ``cache=True`` and no fastmath. Used for the fast paths of
+the membrane models (see :class:`cable.membrane.base.FastPath`).
+
+``jit_inline`` marks the small functions a vectorised loop calls per node: they are
+inlined into the caller's numba IR (``inline="always"``), so the loop body is one
+piece of code for the vectoriser. (A compiled callee loaded from numba's cache comes
+as object code, which LLVM cannot inline: a loop calling it would not vectorise.)
 
 ``specialise`` makes a copy of a template kernel whose global names (the membrane
 model's reaction kernel, for instance) are bound to given functions, under a name that
-includes a hash of the bound modules' sources. Numba can then cache the generic time
-loop once per model, and an edited model never picks up a stale cache entry.
+includes a hash of the sources involved. Numba can then cache the generic time loop
+once per model, and an edited model or kernel never picks up a stale cache entry
+(numba itself checks only the time stamp of the file holding the cached function).
 """
 
 from __future__ import annotations
@@ -19,22 +32,46 @@ import types
 
 import numba
 
-jit = numba.njit(cache=True, nogil=True)
+jit = numba.njit(cache=True, nogil=True, error_model="numpy")
+
+jit_vector = numba.njit(cache=True, nogil=True, error_model="numpy")
+
+jit_inline = numba.njit(cache=True, nogil=True, error_model="numpy", inline="always")
+
+
+def _modules(objects) -> list:
+    """The modules defining ``objects`` and the compiled kernels their modules import."""
+    seen = {}
+    todo = [sys.modules.get(getattr(obj, "__module__", ""), None) for obj in objects]
+    depth = {id(m): 0 for m in todo if m is not None}
+    while todo:
+        mod = todo.pop(0)
+        if mod is None or mod.__name__ in seen:
+            continue
+        seen[mod.__name__] = mod
+        if depth.get(id(mod), 0) >= 2:
+            continue
+        for value in vars(mod).values():
+            if isinstance(value, numba.core.registry.CPUDispatcher):
+                dep = sys.modules.get(value.py_func.__module__)
+                if dep is not None and dep.__name__.startswith("cable.") and dep.__name__ not in seen:
+                    depth[id(dep)] = depth.get(id(mod), 0) + 1
+                    todo.append(dep)
+    return [seen[k] for k in sorted(seen)]
 
 
 def _source_hash(*objects) -> str:
     h = hashlib.sha256()
-    for obj in objects:
-        mod = sys.modules.get(getattr(obj, "__module__", ""), None)
+    for mod in _modules(objects):
         try:
-            src = inspect.getsource(mod) if mod is not None else repr(obj)
+            src = inspect.getsource(mod)
         except (OSError, TypeError):
-            src = repr(obj)
+            src = mod.__name__
         h.update(src.encode())
     return h.hexdigest()[:12]
 
 
-def specialise(template, tag: str, **bindings):
+def specialise(template, tag: str, *, vector: bool = False, **bindings):
     """Compile ``template`` with its globals ``bindings`` replaced.
 
     Parameters
@@ -43,6 +80,8 @@ def specialise(template, tag: str, **bindings):
         A plain Python function written for numba.
     tag : str
         A readable name for the specialisation (the model name).
+    vector : bool
+        Compile with numpy's error model, as :data:`jit_vector`.
     **bindings
         Global names of the template to bind (numba dispatchers).
     """
@@ -55,4 +94,4 @@ def specialise(template, tag: str, **bindings):
     fn.__qualname__ = f"{template.__qualname__}__{safe}_{digest}"
     fn.__module__ = template.__module__
     fn.__doc__ = template.__doc__
-    return numba.njit(cache=True, nogil=True)(fn)
+    return numba.njit(cache=True, nogil=True, error_model="numpy")(fn)

@@ -80,6 +80,55 @@ class Parameter:
 
 
 @dataclass(frozen=True)
+class FastPath:
+    """Optional fast kernels of a model (used by ``numerics.rates``; see cable/kernels/tables.py).
+
+    Kernel contract (``kernel``)::
+
+        kernel(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
+
+        sT      float64[nstate, n]  states stored by state (each row contiguous, so
+                                    that the node loop vectorises), updated in place
+        pT      float64[nparam, n] or float64[nparam, 1] parameters stored by
+                                    parameter (one column: the same parameters at
+                                    every node)
+        table   float64[nrow, ncol] gate coefficients on a voltage grid; nrow = 0
+                                    means none: the rates are evaluated exactly
+        v_lo    float               potential of the table's first row [mV]
+        inv_dv  float               1 / row spacing [1/mV]
+        the other arguments as for ``reaction``.
+
+    With no table the kernel gives the result of ``reaction`` to rounding (it may
+    use :func:`cable.kernels.elementary.exp`, accurate to 1 ulp, and algebraically
+    equal forms of the rates). With a table, the voltage-dependent coefficients of
+    each gate update y <- A(V) + B(V) y are interpolated linearly between rows
+    (tabulated rate functions, common practice in cardiac simulation); a node whose
+    potential lies outside the table uses the exact rates.
+
+    Attributes
+    ----------
+    kernel : numba dispatcher
+        See above.
+    build_table : callable
+        ``build_table(p_row, dt, gating, v_lo, v_hi, dv) -> float64[nrow, ncol]``,
+        the table for one parameter row [model units], reaction step dt [ms] and
+        gating scheme (0 Rush-Larsen, 1 forward Euler).
+    table_parameters : tuple of str
+        Parameters the table depends on; it is used only when each of them is the
+        same at every node (otherwise the exact rates are used, with a note).
+    v_lo, v_hi, dv : float
+        Default range and spacing of the table [mV].
+    """
+
+    kernel: Callable
+    build_table: Callable | None = None
+    table_parameters: tuple[str, ...] = ()
+    v_lo: float = -150.0
+    v_hi: float = 100.0
+    dv: float = 0.05
+
+
+@dataclass(frozen=True)
 class MembraneModel:
     """A published membrane model, ready for the solver.
 
@@ -111,6 +160,9 @@ class MembraneModel:
     current_names : tuple of str
     temperature_parameter : str or None
         Name of the parameter that ``[membrane] temperature`` sets.
+    fast : FastPath or None
+        Optional vectorisable and tabulated kernels (see :class:`FastPath`); models
+        without one always run ``reaction``.
     """
 
     name: str
@@ -127,6 +179,7 @@ class MembraneModel:
     currents: Callable | None = None
     current_names: tuple[str, ...] = ()
     temperature_parameter: str | None = None
+    fast: FastPath | None = None
 
     def __post_init__(self):
         if self.current_basis not in ("area", "capacitance"):
@@ -137,6 +190,10 @@ class MembraneModel:
                 raise ValueError(f"model {self.name}: conductance {c!r} is not a parameter")
         if self.temperature_parameter and self.temperature_parameter not in pnames:
             raise ValueError(f"model {self.name}: temperature parameter missing")
+        if self.fast is not None:
+            for name in self.fast.table_parameters:
+                if name not in pnames:
+                    raise ValueError(f"model {self.name}: table parameter {name!r} is not a parameter")
 
     @property
     def state_names(self) -> tuple[str, ...]:

@@ -1,0 +1,69 @@
+"""``cable critical CASE --vary KEY --between LOW HIGH``: the value at which conduction turns into block."""
+
+import sys
+
+from cable.cli import EXIT_INPUT, add_set_option, say
+
+NAME = "critical"
+HELP = "bisect a case key for the value at which conduction through the strand turns into block"
+ORDER = 6
+
+
+def add_arguments(p):
+    p.add_argument("case", help="case file (TOML)")
+    p.add_argument("--vary", required=True, metavar="KEY",
+                   help="the case key to bisect, list entries by index, e.g. region.0.scale.g_Na, "
+                        "region.0.parameters.K_o, region.0.coupling, region.0.end, stimulus.1.start")
+    p.add_argument("--between", required=True, nargs=2, type=float, metavar=("LOW", "HIGH"),
+                   help="the interval, in the key's canonical unit (see `cable keys`); one end must conduct "
+                        "and the other block")
+    p.add_argument("--tolerance", type=float, metavar="T",
+                   help="width of the final bracket, same unit (default: 1%% of HIGH - LOW)")
+    p.add_argument("--log", action="store_true",
+                   help="bisect the logarithm of the value (keys spanning decades, e.g. a coupling factor); "
+                        "the tolerance is then relative (default 0.01)")
+    p.add_argument("--beat", type=int, metavar="B", help="judge this beat only (default: every beat must conduct)")
+    p.add_argument("-o", "--output", help="netCDF file for the runs made")
+    p.add_argument("--overwrite", action="store_true", help="replace an existing output file")
+    add_set_option(p)
+    p.add_argument("-q", "--quiet", action="store_true", help="print only the result (no line per run)")
+
+
+def summarise(ds) -> str:
+    """The search's result as a few lines: bracket, runs, CV on the passing side."""
+    a = ds.attrs
+    unit = a.get("units", "")
+    unit = f" {unit}" if unit and unit != "1" else ""
+    lines = [f"{a['key']}: critical value between {a['passing_value']:.6g}{unit} (conducts) and "
+             f"{a['failing_value']:.6g}{unit} (blocks); midpoint {a['critical_value']:.6g}{unit}",
+             f"runs: {a['runs']}   final bracket: {_width(a)} (tolerance {a['tolerance']:.3g})",
+             f"CV just on the passing side: {a['cv_passing_m_per_s']:.4g} m/s"]
+    return "\n".join(lines)
+
+
+def _width(a) -> str:
+    p, f = a["passing_value"], a["failing_value"]
+    if a.get("scale") == "log":
+        return f"ratio {max(p, f) / min(p, f):.4g}"
+    unit = a.get("units", "")
+    return f"width {abs(p - f):.3g}{' ' + unit if unit and unit != '1' else ''}"
+
+
+def run(args):
+    from cable import load_case
+    from cable.protocols.critical import NoBracketError, find_critical
+
+    case = load_case(args.case, args.overrides)
+    low, high = sorted(args.between)
+    try:
+        ds = find_critical(case, args.vary, low, high, tolerance=args.tolerance, beat=args.beat, log=args.log,
+                           output=args.output, overwrite=args.overwrite, info=lambda m: say(args, m))
+    except NoBracketError as exc:
+        print(f"cable: error: {exc}", file=sys.stderr)
+        if args.output:
+            print(f"wrote the {exc.runs.attrs['runs']} runs to {args.output}", file=sys.stderr)
+        return EXIT_INPUT
+    print(summarise(ds))
+    if args.output:
+        print(f"wrote {args.output}")
+    return 0

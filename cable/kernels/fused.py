@@ -1,0 +1,118 @@
+"""The fast time loop, for models with a :class:`cable.membrane.base.FastPath`.
+
+``advance_fast`` is a template like :func:`cable.kernels.integrate.advance` (same
+splitting, stimuli, probes and status codes; see that module for the scheme), with
+
+* the model's fast kernel bound to ``fast_reaction`` by
+  :func:`cable.kernels.jit.specialise`: states stored by state (``sT``, shape
+  (nstate, n)) and parameters by parameter (``pT``), so the node loops vectorise; the
+  rates exact (``table`` with no rows) or tabulated;
+* the probe block by block: a vectorised pass over a block of nodes of which none
+  crosses the threshold or is in an upstroke (almost every block, almost always),
+  the full per-node pass (the same as ``integrate.probe``) over the others;
+* the potential checked for NaN or runaway only every ``check_every`` steps (as in
+  ``advance``).
+"""
+
+import numpy as np
+
+from cable.kernels.diffusion import diffuse
+from cable.kernels.integrate import (GODUNOV, NONFINITE, OK, RUNAWAY, RUNAWAY_MV, STRANG, probe_nodes,
+                                     stimulus_current)
+from cable.kernels.jit import jit_inline, jit_vector
+
+
+def fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):  # replaced by specialise()
+    raise NotImplementedError
+
+
+#: nodes per block of the probe: a block with no node crossing the threshold and none
+#: in an upstroke (almost all blocks, almost always) takes the vectorised pass
+PROBE_BLOCK = 64
+
+
+@jit_inline
+def quiet(v, vprev, threshold, open_up):
+    """True when no node crosses ``threshold`` upwards and none is in an upstroke."""
+    busy = False
+    for i in range(v.shape[0]):
+        busy = busy | (open_up[i] != 0) | ((vprev[i] < threshold) & (v[i] >= threshold))
+    return not busy
+
+
+@jit_inline
+def quiet_probe(v, vprev, dt, pre_rate):
+    """The probe of quiet nodes: the rise rate kept for the next upstroke, vprev = v."""
+    for i in range(v.shape[0]):
+        vi = v[i]
+        rate = (vi - vprev[i]) / dt
+        pr = pre_rate[i]
+        pre_rate[i] = (rate if rate > pr else pr) if rate > 0.0 else 0.0
+        vprev[i] = vi
+
+
+@jit_vector
+def block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke):
+    """The probe of :func:`cable.kernels.integrate.probe`, block by block."""
+    n = v.shape[0]
+    for i0 in range(0, n, PROBE_BLOCK):
+        i1 = min(i0 + PROBE_BLOCK, n)
+        vb = v[i0:i1]
+        pb = vprev[i0:i1]
+        if quiet(vb, pb, threshold, open_up[i0:i1]):
+            quiet_probe(vb, pb, dt, pre_rate[i0:i1])
+        else:
+            probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, i0, i1)
+
+
+@jit_vector
+def check(v):
+    """(status, node) of the first non-finite or runaway potential; (OK, -1) if none."""
+    bad = False
+    for i in range(v.shape[0]):
+        a = abs(v[i])
+        bad = bad | (a != a) | (a > RUNAWAY_MV)
+    if bad:
+        for i in range(v.shape[0]):
+            vi = v[i]
+            if not np.isfinite(vi):
+                return NONFINITE, i
+            if abs(vi) > RUNAWAY_MV:
+                return RUNAWAY, i
+    return OK, -1
+
+
+def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, splitting, merge,
+                 gating, ion_scale, threshold, vprev, act, nact, pre_rate, open_up, upstroke,
+                 i_stim, work, check_every, table, v_lo, inv_dv):
+    """Advance the strand by ``nsteps`` steps of ``dt`` from time ``t0``.
+
+    Arguments as for :func:`cable.kernels.integrate.advance`, with ``sT`` and ``pT``
+    stored by state and parameter, and the rate table (``table``, ``v_lo`` [mV],
+    ``inv_dv`` [1/mV]; a table with no rows: exact rates). Returns (status, step, node).
+    """
+    stim_on = True
+    pv_h, el_h, bk_h = half
+    pv_f, el_f, bk_f = full
+    for k in range(nsteps):
+        t = t0 + k * dt
+        if splitting == STRANG:
+            if merge and k > 0:
+                diffuse(v, lo, up, dt, theta, pv_f, el_f, bk_f, work)
+            else:
+                diffuse(v, lo, up, 0.5 * dt, theta, pv_h, el_h, bk_h, work)
+        any_on = stimulus_current(t, dt, pulses, i_stim)
+        if stim_on and not any_on:
+            i_stim[:] = 0.0
+        stim_on = any_on
+        fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
+        if splitting == GODUNOV:
+            diffuse(v, lo, up, dt, theta, pv_f, el_f, bk_f, work)
+        elif not merge or k == nsteps - 1:
+            diffuse(v, lo, up, 0.5 * dt, theta, pv_h, el_h, bk_h, work)
+        block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke)
+        if (k + 1) % check_every == 0 or k == nsteps - 1:
+            status, node = check(v)
+            if status != OK:
+                return status, k, node
+    return OK, nsteps, -1

@@ -1,0 +1,84 @@
+"""Conduction block per beat: which way the wave passed, and the pattern over a train.
+
+From the beats of :func:`cable.measure.activation.assign_beats` (each beat's wave
+followed node by node outward from the stimulated nodes that captured):
+
+* ``reached_left`` / ``reached_right``: the beat's wave reached the left (x = 0) or right
+  (x = L) end of the fibre. A stimulus placed inside or beside an injured region shows
+  unidirectional block as one of them false: the direction that passes is the one
+  whose end was reached.
+* ``block_side``: +1 the wave stopped while travelling right (toward x = L), -1 while
+  travelling left, 2 both ways, 0 no block (or no capture).
+* ``conducted``: the stimulus captured and the wave reached both ends.
+
+:func:`conduction_pattern` turns the ``conducted`` flags of a pacing train into the
+usual ratio of stimuli to conducted beats: "1:1", "2:1", "3:2" ... (the smallest period
+the sequence repeats with, after a leading transient of at most half the train).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+#: codes of block_side
+NONE, RIGHT, LEFT, BOTH = 0, 1, -1, 2
+
+
+def directions(beats) -> dict[str, np.ndarray]:
+    """Per-beat direction flags (bool arrays) and ``block_side`` (int) of ``beats``."""
+    index = beats.index
+    n = index.shape[1]
+    captured = np.asarray(beats.captured, dtype=bool)
+    right = captured & (index[:, n - 1] >= 0)
+    left = captured & (index[:, 0] >= 0)
+    side = np.full(index.shape[0], NONE, dtype=np.int8)
+    side[captured & left & ~right] = RIGHT
+    side[captured & right & ~left] = LEFT
+    side[captured & ~left & ~right] = BOTH
+    return {"reached_left": left, "reached_right": right, "block_side": side,
+            "conducted": captured & left & right}
+
+
+def outputs(beats) -> dict:
+    """The block outputs of a strand as ``{name: (dims, array)}``."""
+    d = directions(beats)
+    return {
+        "conducted": (("beat",), d["conducted"].astype(np.int8)),
+        "reached_left": (("beat",), d["reached_left"].astype(np.int8)),
+        "reached_right": (("beat",), d["reached_right"].astype(np.int8)),
+        "block_side": (("beat",), d["block_side"]),
+    }
+
+
+def conduction_pattern(conducted) -> str:
+    """The conduction ratio of a train: "1:1", "2:1", "3:2", "no conduction", or "irregular ...".
+
+    Parameters
+    ----------
+    conducted : array of bool, or an xarray.Dataset with a ``conducted`` variable
+        One flag per beat, in order.
+
+    Returns
+    -------
+    str
+        "N:M" (N stimuli per M conducted beats) for the smallest period N the flags
+        repeat with; a leading transient of at most half the beats is allowed and named
+        ("2:1 from beat 1"). "irregular (k of n conducted)" when no period fits.
+    """
+    if hasattr(conducted, "data_vars"):
+        conducted = conducted["conducted"].values
+    c = np.asarray(conducted, dtype=bool)
+    total = c.size
+    if total == 0:
+        return "no beats"
+    if not c.any():
+        return "no conduction"
+    for skip in range(0, total // 2 + 1):
+        rest = c[skip:]
+        m = rest.size
+        for period in range(1, max(1, m // 2) + 1):
+            if np.array_equal(rest[period:], rest[:-period]):
+                passed = int(rest[:period].sum())
+                text = "no conduction" if passed == 0 else ("1:1" if passed == period else f"{period}:{passed}")
+                return text if skip == 0 else f"{text} from beat {skip}"
+    return f"irregular ({int(c.sum())} of {total} conducted)"

@@ -1,0 +1,558 @@
+"""Figures of the protocol results: strength-duration, refractoriness, restitution, convergence.
+
+Each function takes the Dataset its protocol returns (:func:`cable.strength_duration`,
+:func:`cable.refractory_period`, :func:`cable.restitution`, :func:`cable.convergence`),
+read back from netCDF or fresh, and draws into the Axes given (pyplot's current one if
+omitted). Nothing is recomputed except the curves of the fitted laws, drawn from the
+fitted parameters the result carries. :func:`protocol_figure` lays out the panels a
+command's ``--figure`` writes.
+
+Looks follow :mod:`cable.plot._common`: curves told apart by dash pattern and marker as
+well as colour, so that they stay apart in greyscale print.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from cable.case import CaseError
+from cable.plot import _common
+
+#: points on each drawn fitted curve (a smooth line on a log axis)
+CURVE_POINTS = 200
+#: fitted curves run this factor beyond the shortest and longest duration computed
+CURVE_MARGIN = 1.5
+#: on a log axis spanning at most this many decades, the minor ticks at 2 and 5 are labelled too
+MINOR_LABEL_DECADES = 2.0
+#: rows of the refractory-period strip, bottom to top
+OUTCOMES = ("no capture", "local response only", "propagated")
+#: the tangent drawn at the maximal restitution slope reaches this fraction of its
+#: segment beyond each end, so that it shows beside the curve rather than on it
+TANGENT_OVERHANG = 0.35
+
+#: looks of the marked intervals and of the failures (dark, mid and light greys with
+#: distinct dash patterns: they read in greyscale print)
+_ERP = {"color": "#1b1b3a", "linestyle": "-", "linewidth": 1.4}
+_LOCAL = {"color": "#b8860b", "linestyle": "--", "linewidth": 1.4}
+_APD = {"color": "#4a7fb0", "linestyle": ":", "linewidth": 1.6}
+_FAIL = {"marker": "x", "markersize": 7, "markeredgewidth": 1.6, "color": "0.25", "linestyle": "none"}
+_RING = {"marker": "o", "markersize": 10, "markerfacecolor": "none", "markeredgecolor": "0.2",
+         "markeredgewidth": 1.1, "linestyle": "none"}
+#: the marks of each fit's chronaxie (and charge intercept): one shape, in the fit's colour, on its curve
+_FIT_MARK = "D"
+#: the case's own grid in a convergence figure: a large open star
+_CASE_GRID = {"marker": "*", "markersize": 15, "markerfacecolor": "none", "markeredgecolor": "#8b2f4b",
+              "markeredgewidth": 1.3, "linestyle": "none", "clip_on": False}
+
+
+def _require(ds, names, who, maker):
+    missing = [n for n in names if n not in ds.variables]
+    if missing:
+        have = [str(v) for v in ds.variables]
+        raise CaseError(f"{who}: the result has no {', '.join(map(repr, missing))}; it needs the Dataset of "
+                        f"{maker}.{_common.nearest_name(missing[0], have)} Variables: {', '.join(have) or '(none)'}.")
+
+
+def _units(ds, name, default):
+    return str(ds[name].attrs.get("units") or default)
+
+
+def _scalar(ds, name) -> float:
+    return float(ds[name]) if name in ds.variables else np.nan
+
+
+def _legend(ax, legend, **kw):
+    if legend:
+        ax.legend(fontsize="small", frameon=False, **kw)
+
+
+def _plain_log(axis) -> None:
+    """Tick labels of a log axis as plain numbers (0.5, 2, 10), not powers of ten."""
+    from matplotlib.ticker import FuncFormatter
+
+    def minor(v, _pos):
+        lo, hi = sorted(axis.get_view_interval())
+        if v <= 0 or lo <= 0 or np.log10(hi / lo) > MINOR_LABEL_DECADES:
+            return ""
+        mantissa = round(v / 10.0 ** np.floor(np.log10(v)), 6)
+        return f"{v:g}" if mantissa in (2.0, 5.0) else ""
+
+    axis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+    axis.set_minor_formatter(FuncFormatter(minor))
+
+
+def _at_foot(ax, xs, style, label):
+    """Marks at the foot of the axis (x in data, y in axes fraction) for points with no value."""
+    xs = np.asarray(xs, dtype=float)
+    xs = xs[np.isfinite(xs)]
+    if xs.size:
+        ax.plot(xs, np.full(xs.size, 0.04), transform=ax.get_xaxis_transform(), clip_on=False, label=label,
+                **style)
+
+
+# --------------------------------------------------------------------------- strength-duration
+
+def strength_duration(ds, ax=None, *, logx: bool = True, logy: bool = True, fits: bool = True,
+                      legend: bool = True):
+    """Threshold amplitude against pulse duration, with Lapicque's and Weiss's fits.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        The result of :func:`cable.strength_duration`.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw (the current pyplot Axes if omitted).
+    logx, logy : bool
+        Logarithmic duration and amplitude axes (default both).
+    fits : bool
+        Draw both fitted laws, I = I_rh (1 + c/d) with each fit's rheobase I_rh
+        [uA/cm^2] and chronaxie c [ms]; each rheobase as a dotted horizontal line and
+        each chronaxie as an open mark at (c, 2 I_rh), where the threshold is twice the
+        rheobase (Lapicque's definition).
+    legend : bool
+        Name the curves (each fit with its rheobase, chronaxie and rms relative residual).
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    Raises
+    ------
+    CaseError
+        ``ds`` is not a strength-duration result.
+    """
+    _require(ds, ("threshold", "rheobase_lapicque", "chronaxie_lapicque", "rheobase_weiss", "chronaxie_weiss"),
+             "strength_duration figure", "cable.strength_duration")
+    ax = _common.axes_or_current(ax)
+    d = np.asarray(ds["duration"].values, dtype=float)
+    amp = np.asarray(ds["threshold"].values, dtype=float)
+    unit = _units(ds, "threshold", "uA/cm^2")
+    ok = np.isfinite(amp)
+    ax.plot(d[ok], amp[ok], markersize=5, linewidth=1.2, label="computed threshold", zorder=3, **_common.look(0))
+    _at_foot(ax, d[~ok], _RING | {"markersize": 7}, "no threshold found (search limit)")
+    if fits and d.size:
+        dd = np.geomspace(d.min() / CURVE_MARGIN, d.max() * CURVE_MARGIN, CURVE_POINTS) if logx else \
+            np.linspace(d.min() / CURVE_MARGIN, d.max() * CURVE_MARGIN, CURVE_POINTS)
+        for k, (key, law) in enumerate((("lapicque", "Lapicque"), ("weiss", "Weiss")), start=1):
+            rh, c = _scalar(ds, f"rheobase_{key}"), _scalar(ds, f"chronaxie_{key}")
+            if not (np.isfinite(rh) and np.isfinite(c)):
+                continue
+            style = _common.look(k)
+            rms = _scalar(ds, f"{key}_rms_relative_residual")
+            text = f"{law} fit: I_rh {rh:.3g} {unit}, c {c:.3g} ms"
+            if np.isfinite(rms):
+                text += f" (rms {100 * rms:.2g} %)"
+            ax.plot(dd, rh * (1.0 + c / dd), color=style["color"], linestyle=style["linestyle"], linewidth=1.3,
+                    label=text)
+            ax.axhline(rh, color=style["color"], linestyle=":", linewidth=0.9)
+            ax.plot([c], [2.0 * rh], marker=_FIT_MARK, markersize=6, markerfacecolor="white",
+                    markeredgecolor=style["color"], markeredgewidth=1.3, linestyle="none", zorder=4)
+        # one legend entry each for the marks the two fits share
+        ax.plot([], [], color="0.35", linestyle=":", linewidth=0.9, label="rheobase I_rh of each fit")
+        ax.plot([], [], marker=_FIT_MARK, markersize=6, markerfacecolor="white", markeredgecolor="0.35",
+                linestyle="none",
+                label="chronaxie c: threshold 2 I_rh")
+    ax.set_xlabel(f"stimulus duration [{_units(ds, 'duration', 'ms')}]")
+    ax.set_ylabel(f"threshold amplitude [{unit}]")
+    if logx:
+        ax.set_xscale("log")
+        _plain_log(ax.xaxis)
+    if logy:
+        ax.set_yscale("log")
+        _plain_log(ax.yaxis)
+    _legend(ax, legend)
+    return ax
+
+
+def charge_duration(ds, ax=None, *, fits: bool = True, legend: bool = True):
+    """Threshold charge against pulse duration: Weiss's straight line Q = I_rh (d + c).
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        The result of :func:`cable.strength_duration`.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw (the current pyplot Axes if omitted).
+    fits : bool
+        Draw both fits as charge lines from zero duration: slope the rheobase
+        [uA/cm^2], intercept I_rh c [nC/cm^2] at d = 0 (marked).
+    legend : bool
+        Name the curves.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    Raises
+    ------
+    CaseError
+        ``ds`` is not a strength-duration result.
+    """
+    _require(ds, ("charge", "rheobase_lapicque", "chronaxie_lapicque", "rheobase_weiss", "chronaxie_weiss"),
+             "charge_duration figure", "cable.strength_duration")
+    ax = _common.axes_or_current(ax)
+    d = np.asarray(ds["duration"].values, dtype=float)
+    q = np.asarray(ds["charge"].values, dtype=float)
+    unit = _units(ds, "charge", "nC/cm^2")
+    ok = np.isfinite(q)
+    ax.plot(d[ok], q[ok], markersize=5, linewidth=1.2, label="computed threshold charge", zorder=3,
+            **_common.look(0))
+    if fits and d.size:
+        dd = np.linspace(0.0, d.max() * 1.05, 2)
+        for k, (key, law) in enumerate((("lapicque", "Lapicque"), ("weiss", "Weiss")), start=1):
+            rh, c = _scalar(ds, f"rheobase_{key}"), _scalar(ds, f"chronaxie_{key}")
+            if not (np.isfinite(rh) and np.isfinite(c)):
+                continue
+            style = _common.look(k)
+            ax.plot(dd, rh * (dd + c), color=style["color"], linestyle=style["linestyle"], linewidth=1.3,
+                    label=f"{law} fit: Q = {rh:.3g} x (d + {c:.3g} ms)")
+            ax.plot([0.0], [rh * c], marker=_FIT_MARK, markersize=6, markerfacecolor="white",
+                    markeredgecolor=style["color"], markeredgewidth=1.3, linestyle="none", zorder=4)
+    ax.set_xlim(left=0.0)
+    ax.set_ylim(bottom=0.0)
+    ax.set_xlabel(f"stimulus duration [{_units(ds, 'duration', 'ms')}]")
+    ax.set_ylabel(f"threshold charge [{unit}]")
+    _legend(ax, legend, loc="upper left")
+    return ax
+
+
+# --------------------------------------------------------------------------- refractoriness
+
+def refractory(ds, ax=None, *, legend: bool = True):
+    """The S2 coupling intervals tried, by outcome, with ERP, local refractory period and APD90.
+
+    Each trial is a mark on one of three rows (:data:`OUTCOMES`): the S2 wave
+    propagated, gave a local response only, or did not capture. The effective
+    refractory period (solid), the local refractory period (dashed) and the APD90 of
+    the last S1 beat at the site (dotted) are vertical lines; the vulnerable window
+    between the two periods is hatched.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        The result of :func:`cable.refractory_period`.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw (the current pyplot Axes if omitted).
+    legend : bool
+        Name the lines with their values [ms], beside the Axes.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    Raises
+    ------
+    CaseError
+        ``ds`` is not a refractory-period result.
+    """
+    _require(ds, ("coupling_interval", "s2_captured", "s2_propagated", "erp", "local_refractory_period"),
+             "refractory figure", "cable.refractory_period")
+    ax = _common.axes_or_current(ax)
+    ci = np.asarray(ds["coupling_interval"].values, dtype=float)
+    prop = np.asarray(ds["s2_propagated"].values).astype(bool)
+    cap = np.asarray(ds["s2_captured"].values).astype(bool) | prop
+    unit = _units(ds, "coupling_interval", "ms")
+    looks = ({"marker": "x", "markersize": 8, "markeredgewidth": 1.6, "color": "0.45"},
+             {"marker": "s", "markersize": 7, "markerfacecolor": "white", "markeredgewidth": 1.4,
+              "color": "#b8860b"},
+             {"marker": "o", "markersize": 7, "color": "#1b1b3a"})
+    for row, (name, mask, style) in enumerate(zip(OUTCOMES, (~cap, cap & ~prop, prop), looks)):
+        if mask.any():
+            ax.plot(ci[mask], np.full(mask.sum(), row), linestyle="none", label=f"S2 {name}", zorder=3, **style)
+    erp, local = _scalar(ds, "erp"), _scalar(ds, "local_refractory_period")
+    apd = _scalar(ds, "apd90_s1")
+    if np.isfinite(erp) and np.isfinite(local) and erp > local:
+        ax.axvspan(local, erp, facecolor="0.9", edgecolor="0.55", hatch="///", linewidth=0,
+                   label=f"vulnerable window {erp - local:.3g} {unit}")
+    if np.isfinite(erp):
+        ax.axvline(erp, label=f"ERP {erp:.4g} {unit}", **_ERP)
+    if np.isfinite(local):
+        ax.axvline(local, label=f"local refractory period {local:.4g} {unit}", **_LOCAL)
+    if np.isfinite(apd):
+        ax.axvline(apd, label=f"APD90 of the last S1 {apd:.4g} {unit}", **_APD)
+    ax.set_yticks(range(len(OUTCOMES)), OUTCOMES)
+    ax.set_ylim(-0.6, len(OUTCOMES) - 0.4)
+    ax.set_xlabel(f"S1-S2 coupling interval [{unit}]")
+    ax.set_ylabel("S2 outcome")
+    _legend(ax, legend, loc="center left", bbox_to_anchor=(1.02, 0.5))
+    return ax
+
+
+# --------------------------------------------------------------------------- restitution
+
+def _restitution_points(ds, y):
+    di = np.asarray(ds["diastolic_interval"].values, dtype=float)
+    val = np.asarray(ds[y].values, dtype=float)
+    prop = np.asarray(ds["propagated"].values).astype(bool)
+    # a point that failed has no DI of its own when its site never activated: place it at
+    # the coupling interval (cycle length) minus the basic APD90, the DI it was aiming at
+    aim = np.asarray(ds["interval"].values, dtype=float) - _scalar(ds, "apd90_s1")
+    where_failed = np.where(np.isfinite(di), di, aim)[~prop]
+    ok = prop & np.isfinite(di) & np.isfinite(val)
+    order = np.argsort(di[ok])
+    one = np.asarray(ds["one_to_one"].values).astype(bool)[ok][order] if "one_to_one" in ds.variables else None
+    return di[ok][order], val[ok][order], where_failed, one
+
+
+def _failures(ds, ax, failed, one, x, y):
+    strand = np.isfinite(float(ds.attrs.get("measurement_x_cm", 0.0)))
+    _at_foot(ax, failed, _FAIL, "no propagation" if strand else "no capture")
+    if one is not None and (~one).any():
+        ax.plot(x[~one], y[~one], label="last beat of a train that was not 1:1", **_RING)
+
+
+def restitution(ds, ax=None, *, slope: bool = True, legend: bool = True):
+    """APD90 against the diastolic interval, with the maximal slope drawn and named.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        The result of :func:`cable.restitution` (S1-S2 or dynamic).
+    ax : matplotlib.axes.Axes, optional
+        Where to draw (the current pyplot Axes if omitted).
+    slope : bool
+        Draw the chord of maximal slope (between the two neighbouring points the
+        protocol found it) extended beyond both ends, and name its slope and DI; also
+        the APD90 at the basic cycle length as a dotted line.
+    legend : bool
+        Name the curves and marks.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    Notes
+    -----
+    Beats that did not propagate are crosses at the foot of the axis, at their DI or,
+    when the site never activated, at the DI aimed at (coupling interval or cycle
+    length minus the basic APD90); in the dynamic protocol, the last beat of a cycle
+    length at which some beat failed is ringed.
+
+    Raises
+    ------
+    CaseError
+        ``ds`` is not a restitution result.
+    """
+    _require(ds, ("diastolic_interval", "apd90", "propagated", "interval", "max_slope", "max_slope_di"),
+             "restitution figure", "cable.restitution")
+    ax = _common.axes_or_current(ax)
+    di, apd, failed, one = _restitution_points(ds, "apd90")
+    unit = _units(ds, "apd90", "ms")
+    kind = "S1-S2" if ds.attrs.get("protocol") == "s1s2" else ds.attrs.get("protocol") or "computed"
+    ax.plot(di, apd, markersize=5, linewidth=1.3, label=f"APD90 ({kind})", zorder=3, **_common.look(0))
+    _failures(ds, ax, failed, one, di, apd)
+    s, s_di = _scalar(ds, "max_slope"), _scalar(ds, "max_slope_di")
+    if slope and np.isfinite(s) and di.size >= 2:
+        mids = 0.5 * (di[1:] + di[:-1])
+        k = int(np.argmin(np.abs(mids - s_di)))
+        x0, x1 = di[k], di[k + 1]
+        over = TANGENT_OVERHANG * (x1 - x0)
+        xs = np.array([x0 - over, x1 + over])
+        style = _common.look(1)
+        ax.plot(xs, apd[k] + s * (xs - x0), color=style["color"], linestyle=style["linestyle"], linewidth=1.6,
+                label=f"maximal slope {s:.3g} at DI {s_di:.3g} {unit}", zorder=4)
+        ax.annotate(f"slope {s:.3g}", (0.5 * (x0 + x1), apd[k] + s * 0.5 * (x1 - x0)), xytext=(8, -14),
+                    textcoords="offset points", fontsize="small", color=style["color"])
+        base = _scalar(ds, "apd90_s1")
+        if np.isfinite(base):
+            ax.axhline(base, label=f"APD90 at the basic cycle length {base:.4g} {unit}", **_APD)
+    ax.set_xlabel(f"diastolic interval [{_units(ds, 'diastolic_interval', 'ms')}]")
+    ax.set_ylabel(f"APD90 [{unit}]")
+    _legend(ax, legend, loc="lower right")
+    return ax
+
+
+def cv_restitution(ds, ax=None, *, legend: bool = True):
+    """Conduction velocity against the diastolic interval.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        The result of :func:`cable.restitution` on a strand.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw (the current pyplot Axes if omitted).
+    legend : bool
+        Name the curve and marks.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    Raises
+    ------
+    CaseError
+        ``ds`` is not a restitution result, or has no conduction velocity (a single cell).
+    """
+    _require(ds, ("diastolic_interval", "conduction_velocity", "propagated", "interval"),
+             "cv_restitution figure", "cable.restitution")
+    if not np.isfinite(np.asarray(ds["conduction_velocity"].values, dtype=float)).any():
+        raise CaseError("cv_restitution figure: the result has no finite conduction_velocity (a single cell, "
+                        "or no beat propagated); draw restitution() alone.")
+    ax = _common.axes_or_current(ax)
+    di, cv, failed, one = _restitution_points(ds, "conduction_velocity")
+    ax.plot(di, cv, markersize=5, linewidth=1.3, label="conduction velocity", zorder=3, **_common.look(2))
+    _failures(ds, ax, failed, one, di, cv)
+    ax.set_xlabel(f"diastolic interval [{_units(ds, 'diastolic_interval', 'ms')}]")
+    ax.set_ylabel(f"conduction velocity [{_units(ds, 'conduction_velocity', 'm/s')}]")
+    _legend(ax, legend, loc="lower right")
+    return ax
+
+
+# --------------------------------------------------------------------------- convergence
+
+#: quantities of a convergence result: variable per level, prefix of its scalars, name
+_CONVERGED = {"cv": ("conduction_velocity", "CV"), "apd90": ("apd90", "APD90")}
+
+
+def convergence(ds, ax=None, *, quantity: str = "cv", error: bool = False, legend: bool = True):
+    """CV (or APD90) against grid spacing on a log axis, with the extrapolated value.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        The result of :func:`cable.convergence`.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw (the current pyplot Axes if omitted).
+    quantity : {"cv", "apd90"}
+        What to draw.
+    error : bool
+        Draw instead the estimated relative error 100 |f - f*| / |f*| [%] of each grid on
+        log-log axes, with a reference line of the formal order through the finest grid.
+    legend : bool
+        Name the curves: the computed values with their observed order (and the formal
+        one), the Richardson-extrapolated value, the case's own grid with its error.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    Raises
+    ------
+    CaseError
+        ``ds`` is not a convergence result, or ``quantity`` is unknown.
+    """
+    if quantity not in _CONVERGED:
+        raise CaseError(f"convergence figure: quantity = {quantity!r}; allowed values are "
+                        f"{', '.join(map(repr, _CONVERGED))}.{_common.nearest_name(quantity, _CONVERGED)}")
+    from matplotlib.ticker import NullFormatter
+
+    var, name = _CONVERGED[quantity]
+    _require(ds, (var, "dx", f"{quantity}_extrapolated", f"{quantity}_observed_order", "propagated"),
+             "convergence figure", "cable.convergence")
+    ax = _common.axes_or_current(ax)
+    dx = np.asarray(ds["dx"].values, dtype=float)
+    f = np.asarray(ds[var].values, dtype=float)
+    prop = np.asarray(ds["propagated"].values).astype(bool)
+    unit, dx_unit = _units(ds, var, "m/s" if quantity == "cv" else "ms"), _units(ds, "dx", "cm")
+    ext = _scalar(ds, f"{quantity}_extrapolated")
+    p, used = _scalar(ds, f"{quantity}_observed_order"), _scalar(ds, f"{quantity}_order_used")
+    formal = ds.attrs.get("formal_order")
+    order = f"observed order {p:.2f}" if np.isfinite(p) else "observed order undetermined"
+    if formal is not None:
+        order += f" (formal {float(formal):g})"
+    ok = np.isfinite(f)
+    rel_err = _scalar(ds, f"{quantity}_relative_error")
+    case_text = f"the case's grid, dx = {dx[0]:.3g} {dx_unit}" if dx.size else "the case's grid"
+    if np.isfinite(rel_err):
+        case_text += f": error {100 * rel_err:.2g} %"
+    if error:
+        err = 100.0 * np.abs(f - ext) / abs(ext) if np.isfinite(ext) and ext != 0 else np.full(f.size, np.nan)
+        good = np.isfinite(err) & (err > 0)
+        ax.plot(dx[good], err[good], markersize=5, linewidth=1.3, label=f"{name}: {order}", zorder=3,
+                **_common.look(0))
+        if good.any() and formal is not None:
+            fine = int(np.flatnonzero(good)[np.argmin(dx[good])])
+            ref = err[fine] * (dx / dx[fine]) ** float(formal)
+            ax.plot(dx, ref, color="0.45", linestyle="--", linewidth=1.0, label=f"slope {float(formal):g}")
+        if good.size and good[0]:
+            ax.plot(dx[:1], err[:1], label=case_text, zorder=4, **_CASE_GRID)
+        ax.set_yscale("log")
+        _plain_log(ax.yaxis)
+        ax.set_ylabel(f"relative error of the {name} [%]")
+    else:
+        ax.plot(dx[ok], f[ok], markersize=5, linewidth=1.3, label=f"{name}: {order}", zorder=3, **_common.look(0))
+        if np.isfinite(ext):
+            text = f"Richardson extrapolation {ext:.4g} {unit}"
+            if np.isfinite(used) and np.isfinite(p) and used != p:
+                text += f" (with order {used:g})"
+            ax.axhline(ext, color=_common.look(1)["color"], linestyle="--", linewidth=1.3, label=text)
+        if ok.size and ok[0]:
+            ax.plot(dx[:1], f[:1], label=case_text, zorder=4, **_CASE_GRID)
+        ax.set_ylabel(f"{'conduction velocity' if quantity == 'cv' else 'APD90'} [{unit}]")
+    block = " (numerical block)" if int(ds.attrs.get("numerical_block", 0) or 0) else ""
+    _at_foot(ax, dx[~prop], _FAIL, f"no propagation{block}")
+    ax.set_xscale("log")
+    ax.set_xticks(dx, [f"{v:.3g}" for v in dx])      # one tick per grid
+    ax.xaxis.set_minor_formatter(NullFormatter())
+    ax.set_xlabel(f"grid spacing dx [{dx_unit}]")
+    _legend(ax, legend)
+    return ax
+
+
+# --------------------------------------------------------------------------- whole figures
+
+#: height of the legend row under the panels of :func:`protocol_figure`, relative to the panels
+LEGEND_ROW = 0.55
+
+
+def _side_by_side(fig, draws):
+    """Panels side by side, each with its legend in a row of its own below it (no overlap)."""
+    grid = fig.add_gridspec(2, len(draws), height_ratios=[1.0, LEGEND_ROW])
+    axes = []
+    for k, draw in enumerate(draws):
+        ax = fig.add_subplot(grid[0, k])
+        draw(ax)
+        key = fig.add_subplot(grid[1, k])
+        key.set_axis_off()
+        handles, labels = ax.get_legend_handles_labels()
+        if handles:
+            key.legend(handles, labels, loc="upper center", fontsize="small", frameon=False)
+        axes.append(ax)
+    return axes
+
+
+def protocol_figure(ds, fig=None):
+    """The figure a protocol command's ``--figure`` writes: its panels side by side.
+
+    Strength-duration: amplitude and charge; refractoriness: the trials; restitution:
+    APD90 and (on a strand) CV; convergence: CV and its estimated error. The kind is
+    recognised from the variables of ``ds``; the legends sit below the panels.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A protocol result.
+    fig : matplotlib.figure.Figure, optional
+        Where to draw; default a new pyplot-free Figure (:func:`cable.plot._common.new_figure`).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Raises
+    ------
+    CaseError
+        ``ds`` is no protocol result.
+    """
+    fig = fig if fig is not None else _common.new_figure(size=(10.0, 5.0))
+    quiet = {"legend": False}
+    if "rheobase_weiss" in ds.variables:
+        _side_by_side(fig, [lambda ax: strength_duration(ds, ax, **quiet), lambda ax: charge_duration(ds, ax, **quiet)])
+    elif "erp" in ds.variables:
+        refractory(ds, fig.add_subplot())
+    elif "max_slope" in ds.variables:
+        draws = [lambda ax: restitution(ds, ax, **quiet)]
+        if "conduction_velocity" in ds.variables and \
+                np.isfinite(np.asarray(ds["conduction_velocity"].values, dtype=float)).any():
+            draws.append(lambda ax: cv_restitution(ds, ax, **quiet))
+        _side_by_side(fig, draws)
+    elif "cv_extrapolated" in ds.variables:
+        _side_by_side(fig, [lambda ax: convergence(ds, ax, **quiet),
+                            lambda ax: convergence(ds, ax, error=True, **quiet)])
+    else:
+        raise CaseError("figure: the result is none of strength-duration, refractory period, restitution or "
+                        f"convergence (its variables: {', '.join(map(str, ds.data_vars)) or '(none)'}).")
+    title = ds.attrs.get("title")
+    if title:
+        fig.suptitle(str(title), fontsize="medium")
+    return fig

@@ -1,0 +1,301 @@
+"""The critical value of a case key at which conduction through the strand turns into block.
+
+:func:`find_critical` bisects any numeric case key (a region's conductance factor, its
+K_o, its coupling, its length, a stimulus time ...) between two values, one at which
+the wave conducts through the whole strand and one at which it does not. Keys are
+dotted, list entries by index: ``region.0.scale.g_Na``, ``region.0.end``,
+``stimulus.1.start``; values are in the key's canonical unit (see ``cable keys``).
+
+"Conducts" means: every judged beat (all beats, or the one given) captured and its
+wave reached both ends of the fibre (``conducted`` in the result of
+:func:`cable.simulate`). The two ends of the interval are run first and must straddle
+block; when they do not, :class:`NoBracketError` says which way both fell. Bisection
+assumes one transition inside the interval: where conduction is not monotonic in the
+key (raised K_o is supernormal before it depresses) it finds one of the transitions.
+
+The CV reported on the passing side is that run's CV in the case's ``cv_window`` (put
+the window inside the injured region to read the region's CV). Within a few % of the
+critical value a passing wave in depressed tissue may linger near failure before it
+recovers or reaches the end, so that CV can be a transient far below the slowest
+steady CV; read the steady CV a little further on the passing side.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import xarray as xr
+
+from cable import __version__, units
+from cable.case import Case, CaseError, load_case
+from cable.simulate import SimulationError, simulate
+
+#: default final bracket width, as a fraction of |high - low| (7 bisections)
+DEFAULT_RELATIVE_TOLERANCE = 0.01
+#: most runs a search may make (a tolerance far below the interval's scale)
+MAX_RUNS = 60
+
+
+class NoBracketError(CaseError):
+    """The two ends of the interval do not straddle block (both conduct, or both do not).
+
+    Attributes
+    ----------
+    runs : xarray.Dataset
+        The two runs made (same layout as :func:`find_critical`'s result).
+    """
+
+    def __init__(self, message, runs=None):
+        super().__init__(message)
+        self.runs = runs
+
+
+def key_units(case: Case, key: str) -> str:
+    """The canonical unit of a dotted case key ("" when it cannot be told)."""
+    from cable.case.schema import SECTIONS
+    from cable.membrane import get_model
+
+    parts = key.split(".")
+    if parts and parts[0] in ("stimulus", "region") and len(parts) > 1 and parts[1].isdigit():
+        parts = [parts[0]] + parts[2:]
+    if len(parts) == 3 and parts[1] == "scale":
+        return "1"
+    if len(parts) == 3 and parts[1] == "parameters":
+        try:
+            return get_model(case.membrane.model).parameter(parts[2]).units
+        except KeyError:
+            return ""
+    if len(parts) == 2 and parts[0] == "region":
+        from cable.regions import REGION_KEYS
+
+        spec = REGION_KEYS.get(parts[1])
+    elif len(parts) == 2 and parts[0] in SECTIONS:
+        spec = SECTIONS[parts[0]].get(parts[1])
+    else:
+        spec = None
+    if spec is None or spec.kind not in ("quantity", "int"):
+        return ""
+    return units.CANONICAL.get(spec.quantity, "")
+
+
+def _number(who, name, value) -> float:
+    try:
+        out = float(value)
+    except (TypeError, ValueError):
+        raise CaseError(f"{who}: {name} = {value!r} must be a number in the key's canonical unit.") from None
+    if not math.isfinite(out):
+        raise CaseError(f"{who}: {name} = {value!r} must be finite.")
+    return out
+
+
+def _judge(ds: xr.Dataset, beat: int | None) -> dict:
+    """The outcome of one run: conducted, and what the judged beats did."""
+    nb = ds.sizes.get("beat", 0)
+    beats = list(range(nb)) if beat is None else [beat]
+    conducted = ds["conducted"].values.astype(bool)
+    ok = bool(all(conducted[b] for b in beats))
+    failed = [b for b in beats if not conducted[b]]
+    last = failed[0] if failed else beats[-1]
+    return {
+        "conducted": ok,
+        "captured": bool(ds["captured"].values[last]),
+        "blocked": bool(ds["blocked"].values[last]),
+        "block_x": float(ds["block_x"].values[last]),
+        "cv": float(ds["conduction_velocity"].values[last]),
+        "beats_conducted": int(sum(conducted[b] for b in beats)),
+        "activation": ds["activation_time"].values[beats[0]],
+        "x": ds["x"].values,
+    }
+
+
+def describe(outcome: dict) -> str:
+    """One line on a run's outcome: conducts with its CV, blocked where, or no capture."""
+    if outcome["conducted"]:
+        cv = outcome["cv"]
+        return f"conducts (CV {cv:.4g} m/s)" if np.isfinite(cv) else "conducts"
+    if not outcome["captured"]:
+        return "no capture (the stimulus did not excite)"
+    if outcome["blocked"]:
+        return f"blocked at x = {outcome['block_x']:.4g} cm"
+    return "does not conduct"
+
+
+def find_critical(case, key: str, low, high, *, tolerance: float | None = None, beat: int | None = None,
+                  log: bool = False, output=None, overwrite: bool = False, info=None) -> xr.Dataset:
+    """Bisect ``key`` between ``low`` and ``high`` for the value where conduction turns into block.
+
+    Parameters
+    ----------
+    case : str, pathlib.Path, dict or Case
+        The case; it needs a ``[fiber]`` and a ``[[stimulus]]``.
+    key : str
+        Dotted case key, list entries by index (``region.0.scale.g_Na``).
+    low, high : float
+        Ends of the interval, in the key's canonical unit; low < high.
+    tolerance : float, optional
+        Width of the final bracket, same unit; default 1 % of ``high - low``. With
+        ``log``, the bracket's relative width (its ratio minus 1); default 0.01.
+    beat : int, optional
+        Judge this beat only; default every beat must conduct.
+    log : bool
+        Bisect the logarithm of the value (geometric midpoints), for keys that span
+        decades such as a coupling factor; needs 0 < low.
+    output : str or pathlib.Path, optional
+        netCDF file for the runs made (also written when the ends do not straddle).
+    overwrite : bool
+        Replace an existing ``output``.
+    info : callable, optional
+        Receives one line per run.
+
+    Returns
+    -------
+    xarray.Dataset
+        Per run (dimension ``run``, in the order made): ``value``, ``conducted``,
+        ``captured``, ``blocked``, ``block_x`` [cm], ``conduction_velocity`` [m/s],
+        ``beats_conducted``, and ``activation_time(run, x)`` of the first judged beat
+        (when every run has the same grid). Attributes: ``key``, ``units``, ``low``,
+        ``high``, ``tolerance``, ``passing_value``, ``failing_value``,
+        ``critical_value`` (their midpoint, geometric with ``log``), ``runs``, ``cv_passing_m_per_s`` (the CV
+        at the passing end of the bracket), ``case``.
+
+    Raises
+    ------
+    CaseError
+        Invalid key, values or options.
+    NoBracketError
+        The two ends do not straddle block (the message says how each end fell).
+    SimulationError
+        A run failed numerically (the message names the value).
+    """
+    who = "find_critical"
+    case = case if isinstance(case, Case) else load_case(case)
+    if case.fiber is None:
+        raise CaseError(f"{who}: the case has no [fiber]; conduction block needs a strand.")
+    if not case.stimuli:
+        raise CaseError(f"{who}: the case has no [[stimulus]]; add one to start the wave.")
+    lo = _number(who, "low", low)
+    hi = _number(who, "high", high)
+    if not lo < hi:
+        raise CaseError(f"{who}: low = {lo:g} must be less than high = {hi:g}.")
+    if log and not lo > 0:
+        raise CaseError(f"{who}: log = true needs low > 0 (got low = {lo:g}).")
+    if tolerance is None:
+        tol = DEFAULT_RELATIVE_TOLERANCE if log else DEFAULT_RELATIVE_TOLERANCE * (hi - lo)
+    else:
+        tol = _number(who, "tolerance", tolerance)
+    if not tol > 0:
+        raise CaseError(f"{who}: tolerance = {tol:g} must be positive.")
+
+    def width(a, b):
+        return max(a, b) / min(a, b) - 1.0 if log else abs(a - b)
+
+    def middle(a, b):
+        return math.sqrt(a * b) if log else 0.5 * (a + b)
+
+    if math.log2(width(lo, hi) / tol) + 2 > MAX_RUNS:
+        raise CaseError(f"{who}: tolerance = {tol:g} would need more than {MAX_RUNS} runs over [{lo:g}, {hi:g}]; "
+                        f"give a larger tolerance.")
+    if output is not None:
+        from cable.io.netcdf import check_target
+
+        check_target(output, overwrite)
+    variants = {}
+    for value in (lo, hi):  # invalid keys and values fail here, before anything runs
+        variants[value] = case.with_overrides({key: value})
+    nbeat = len({round(t, 9) for s in variants[lo].stimuli for t in s.onsets()})
+    if beat is not None and not 0 <= int(beat) < nbeat:
+        raise CaseError(f"{who}: beat = {beat} is out of range; the case has {nbeat} beat(s) (0 to {nbeat - 1}).")
+    say = info or (lambda msg: None)
+    unit = key_units(case, key)
+    runs: list[tuple[float, dict]] = []
+
+    def trial(value):
+        variant = variants.get(value) or case.with_overrides({key: value})
+        try:
+            ds = simulate(variant)
+        except SimulationError as exc:
+            raise SimulationError(f"{who}: the run at {key} = {value:g} failed: {exc}", time=exc.time,
+                                  position=exc.position, partial=exc.partial) from None
+        outcome = _judge(ds, beat)
+        runs.append((value, outcome))
+        say(f"{key} = {value:.6g}{' ' + unit if unit and unit != '1' else ''}: {describe(outcome)}")
+        return outcome["conducted"]
+
+    c_lo, c_hi = trial(lo), trial(hi)
+    if c_lo == c_hi:
+        ds = _result(case, key, unit, lo, hi, tol, runs, None, None, log)
+        if output is not None:
+            _write(ds, output, overwrite)
+        both = "conduct" if c_lo else "fail to conduct"
+        hint = ("move the interval toward more severe values" if c_lo else
+                "move the interval toward milder values (or check that the stimulus captures)")
+        raise NoBracketError(f"{who}: {key} between {lo:g} and {hi:g} does not straddle block: both ends {both} "
+                             f"(at {lo:g}: {describe(runs[0][1])}; at {hi:g}: {describe(runs[1][1])}); {hint}.",
+                             runs=ds)
+    passing, failing = (lo, hi) if c_lo else (hi, lo)
+    while width(passing, failing) > tol:
+        mid = middle(passing, failing)
+        if trial(mid):
+            passing = mid
+        else:
+            failing = mid
+    ds = _result(case, key, unit, lo, hi, tol, runs, passing, failing, log)
+    if output is not None:
+        _write(ds, output, overwrite)
+    return ds
+
+
+def _result(case, key, unit, lo, hi, tol, runs, passing, failing, log=False) -> xr.Dataset:
+    values = np.array([v for v, _ in runs])
+    out = [o for _, o in runs]
+    data = {
+        "value": (("run",), values, {"units": unit or "1", "long_name": f"value of {key}"}),
+        "conducted": (("run",), np.array([o["conducted"] for o in out], dtype=np.int8),
+                      {"long_name": "every judged beat conducted through the strand", "flag_values": [0, 1],
+                       "flag_meanings": "false true"}),
+        "captured": (("run",), np.array([o["captured"] for o in out], dtype=np.int8),
+                     {"long_name": "the stimulus excited (first failing beat, else last judged)",
+                      "flag_values": [0, 1], "flag_meanings": "false true"}),
+        "blocked": (("run",), np.array([o["blocked"] for o in out], dtype=np.int8),
+                    {"long_name": "the wave started but did not reach an end", "flag_values": [0, 1],
+                     "flag_meanings": "false true"}),
+        "block_x": (("run",), np.array([o["block_x"] for o in out]),
+                    {"units": "cm", "long_name": "last activated position of the blocked wave"}),
+        "conduction_velocity": (("run",), np.array([o["cv"] for o in out]),
+                                {"units": "m/s", "long_name": "conduction velocity in the measurement window"}),
+        "beats_conducted": (("run",), np.array([o["beats_conducted"] for o in out], dtype=np.int32),
+                            {"units": "1", "long_name": "judged beats that conducted"}),
+    }
+    coords = {"run": ("run", np.arange(len(runs)), {"long_name": "run number, in the order made"})}
+    grids = [o["x"] for o in out]
+    if grids and all(g.shape == grids[0].shape and np.allclose(g, grids[0]) for g in grids):
+        coords["x"] = ("x", grids[0], {"units": "cm", "long_name": "position along the fibre"})
+        data["activation_time"] = (("run", "x"), np.array([o["activation"] for o in out]),
+                                   {"units": "ms", "long_name": "activation time of the first judged beat"})
+    attrs = {
+        "title": f"cable critical-value search: {key}",
+        "source": f"cable {__version__}",
+        "key": key,
+        "units": unit,
+        "low": lo,
+        "high": hi,
+        "tolerance": tol,
+        "scale": "log" if log else "linear",
+        "runs": len(runs),
+        "straddles": int(passing is not None),
+        "case": case.text,
+        "comment": "Research tool; not for clinical decisions.",
+    }
+    if passing is not None:
+        k_pass = int(np.flatnonzero(values == passing)[-1])
+        mid = math.sqrt(passing * failing) if log else 0.5 * (passing + failing)
+        attrs.update(passing_value=passing, failing_value=failing, critical_value=mid,
+                     cv_passing_m_per_s=float(out[k_pass]["cv"]))
+    return xr.Dataset(data, coords=coords, attrs=attrs)
+
+
+def _write(ds: xr.Dataset, output, overwrite: bool) -> None:
+    from cable.io.netcdf import write_dataset
+
+    write_dataset(ds, output, overwrite=overwrite)
