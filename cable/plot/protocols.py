@@ -150,8 +150,7 @@ def strength_duration(ds, ax=None, *, logx: bool = True, logy: bool = True, fits
         # one legend entry each for the marks the two fits share
         ax.plot([], [], color="0.35", linestyle=":", linewidth=0.9, label="rheobase I_rh of each fit")
         ax.plot([], [], marker=_FIT_MARK, markersize=6, markerfacecolor="white", markeredgecolor="0.35",
-                linestyle="none",
-                label="chronaxie c: threshold 2 I_rh")
+                linestyle="none", label="chronaxie c: threshold 2 I_rh")
     ax.set_xlabel(f"stimulus duration [{_units(ds, 'duration', 'ms')}]")
     ax.set_ylabel(f"threshold amplitude [{unit}]")
     if logx:
