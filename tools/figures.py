@@ -4,12 +4,9 @@
   ventricular strand whose ischaemic zone (hatched, border dotted) blocks every other
   beat (crosses), with each beat's activation front (the same as
   ``cable run cases/ischaemic_zone.toml -o zone.nc`` then ``cable map zone.nc``);
-* ``cv_sweep.png`` — conduction velocity of the squid axon of ``cases/squid_axon.toml``
-  against a scale factor on g_Na at two temperatures, block marked where the wave failed.
-
-The sweep is computed here as a loop of :func:`cable.simulate` runs assembled into a
-Dataset shaped like a sweep result (dimensions named after the swept keys), so the
-figure does not depend on the Dask sweep engine.
+* ``cv_sweep.png`` — conduction velocity of the squid axon of
+  ``cases/axon_sodium_sweep.toml`` against a scale factor on g_Na at two temperatures,
+  block marked where the wave failed (the same as ``cable sweep`` then ``cable plot-sweep``).
 
 Run::
 
@@ -22,7 +19,6 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-import numpy as np
 import xarray as xr
 
 import cable
@@ -30,11 +26,9 @@ from cable.plot import _common
 
 ROOT = Path(__file__).resolve().parents[1]
 MAP_CASE = ROOT / "cases" / "ischaemic_zone.toml"
-CASE = ROOT / "cases" / "squid_axon.toml"
-#: scale factors on g_Na: from failure of propagation to the published conductance
-G_NA_SCALES = np.round(np.arange(0.2, 1.01, 0.05), 3)
-#: temperatures [degC]: Hodgkin & Huxley's reference temperature and their propagated-AP run
-TEMPERATURES = (6.3, 18.5)
+SWEEP_CASE = ROOT / "cases" / "axon_sodium_sweep.toml"
+#: Dask workers of the local cluster of the sweep
+WORKERS = 2
 #: figure size [inch] (about 16 x 10 cm) and resolution
 SIZE = (6.3, 3.9)
 DPI = 200
@@ -50,26 +44,8 @@ def space_time_figure(out: Path) -> Path:
 
 
 def cv_sweep_dataset() -> xr.Dataset:
-    """CV and block over (g_Na scale, temperature), one run per point."""
-    base = cable.load_case(CASE)
-    shape = (G_NA_SCALES.size, len(TEMPERATURES))
-    cv = np.full(shape, np.nan)
-    blocked = np.zeros(shape, dtype=np.int8)
-    for i, g in enumerate(G_NA_SCALES):
-        for j, temp in enumerate(TEMPERATURES):
-            case = base.with_overrides({"membrane.scale.g_Na": float(g), "membrane.temperature": f"{temp} degC",
-                                        "run.duration": "8 ms"})
-            ds = cable.simulate(case)
-            cv[i, j] = float(ds["conduction_velocity"][0])
-            blocked[i, j] = int(ds["blocked"][0]) or int(not ds["captured"][0])
-    return xr.Dataset(
-        {"conduction_velocity": (("g_Na", "temperature"), cv, cable.io.schema.attrs("conduction_velocity")),
-         "blocked": (("g_Na", "temperature"), blocked, cable.io.schema.attrs("blocked"))},
-        coords={"g_Na": ("g_Na", G_NA_SCALES, {"long_name": "scale factor on g_Na (membrane.scale.g_Na)",
-                                               "units": "1"}),
-                "temperature": ("temperature", np.array(TEMPERATURES), {"long_name": "temperature",
-                                                                        "units": "degC"})},
-        attrs={"source": f"cable {cable.__version__}", "case": base.text})
+    """CV and block over (g_Na scale, temperature): the sweep of SWEEP_CASE on Dask."""
+    return cable.sweep(SWEEP_CASE, workers=WORKERS, progress=False)
 
 
 def sweep_figure(out: Path) -> Path:
@@ -92,4 +68,4 @@ def main(argv=None) -> int:
 
 
 if __name__ == "__main__":
-    raise SystemExit(main())
+    raise SystemExit(main())  # (the guard also keeps Dask's worker processes from re-running it)
