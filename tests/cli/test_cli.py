@@ -62,3 +62,13 @@ def test_models_lists_and_shows():
     assert res.returncode == 0 and "g_L" in res.stdout
     res = cable_cli("models", "pasive")
     assert res.returncode == 2 and "Did you mean 'passive'" in res.stderr
+
+
+def test_keys_lists_every_section():
+    res = cable_cli("keys")
+    assert res.returncode == 0
+    for header in ("[membrane]", "[fiber]", "[[stimulus]]", "[numerics]", "[[region]]", "[measure]"):
+        assert header in res.stdout
+    assert "ohm*cm" in res.stdout
+    res = cable_cli("keys", "fibre")
+    assert res.returncode == 2 and "Did you mean 'fiber'" in res.stderr
