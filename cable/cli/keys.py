@@ -24,7 +24,7 @@ def run(args):
         raise CaseError(f"unknown section '{args.section}'.{_nearest(args.section, [*sections, 'sweep'])} "
                         f"Sections: {', '.join(sections)}, sweep.")
     if args.section == "sweep":
-        import cable.sweep.spec as spec
+        from cable.sweep import spec
 
         print(spec.__doc__)
         return 0
