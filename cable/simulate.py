@@ -302,12 +302,19 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     """
     from cable.io import netcdf
 
-    setup = prepare(case)
-    case = setup.case
+    say = info or (lambda msg: None)
+    case = case if isinstance(case, Case) else load_case(case)
     if output is not None:
         netcdf.check_target(output, overwrite)
+    # prepare() may already run the reference loop (settling, pre-pacing): say so before it
+    name = case.membrane.model
+    mem = case.membrane
+    settles = mem.prepace is not None or bool(mem.parameters or mem.scale or case.raw.get("region")) \
+        or mem.temperature is not None
+    if not is_compiled(name, case.numerics.rates) or (settles and not _in_cache(_integrator(name))):
+        say(f"compiling the '{name}' kernels (first run only; later runs use the cache)...")
+    setup = prepare(case)
     check_size(setup, output)
-    say = info or (lambda msg: None)
     for note in setup.notes:
         say(note)
     if setup.prepace is not None:
@@ -321,20 +328,19 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
         say(rates.note)
     fast = rates.mode != "reference"
     advance = _fast_integrator(model.name) if fast else _integrator(model.name)
-    if not _in_cache(advance):
-        say(f"compiling the '{model.name}' kernels (first run only; later runs use the cache)...")
 
     n = setup.n
     state_names = list(case.output_states)
     state_idx = [model.state_names.index(s) for s in state_names]
     field_names = ["vm"] + [schema.STATE_PREFIX + s for s in state_names]
     v = setup.v0.copy()
-    if fast:  # stored by state and by parameter (see cable.kernels.fused)
+    by_state = fast and model.fast.by_state
+    if by_state:  # stored by state and by parameter (see cable.kernels.fused)
         s = np.ascontiguousarray(setup.s0.T)
         p = tables.by_parameter(setup.p)
     else:
         s = np.ascontiguousarray(setup.s0.copy())
-        p = np.ascontiguousarray(setup.p)
+        p = np.ascontiguousarray(np.broadcast_to(setup.p, (n, setup.p.shape[1])))
     grid = setup.grid
     theta = diffusion.THETA[num.diffusion]
     half = diffusion.factor(grid.lo, grid.up, 0.5 * dt, theta)
@@ -360,10 +366,10 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     def sample(k):
         vals = {"vm": v}
         for name, j in zip(state_names, state_idx):
-            vals[schema.STATE_PREFIX + name] = s[j] if fast else s[:, j]
+            vals[schema.STATE_PREFIX + name] = s[j] if by_state else s[:, j]
         sink.write(k, vals)
 
-    table_args = (rates.table, rates.v_lo, rates.inv_dv) if fast else ()
+    table_args = (rates.table, rates.v_lo, rates.inv_dv, 1) if fast else ()
     sample(0)
     failure = None
     interrupted = False

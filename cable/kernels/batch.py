@@ -105,6 +105,46 @@ def _tracker_slice(tracker, sl, n_total):
     return part
 
 
+def _layout(setups, fast: bool):
+    """(interleaved, slices): where each strand's nodes lie in the batch arrays.
+
+    Strands of one length on the fast path are interleaved (node i of strand j at
+    i*S + j: the diffusion sweeps then run over the strands side by side, vectorised);
+    otherwise they are laid end to end.
+    """
+    sizes = [s.n for s in setups]
+    count = len(setups)
+    if fast and len(set(sizes)) == 1 and sizes[0] > 1:
+        return True, [slice(j, None, count) for j in range(count)]
+    offsets = np.concatenate([[0], np.cumsum(sizes)]).astype(int)
+    return False, [slice(int(offsets[j]), int(offsets[j + 1])) for j in range(count)]
+
+
+def _place(parts, slices, n):
+    """One batch array from per-strand arrays (first axis: nodes)."""
+    first = np.asarray(parts[0])
+    out = np.empty((n,) + first.shape[1:], dtype=first.dtype)
+    for part, sl in zip(parts, slices):
+        out[sl] = part
+    return out
+
+
+def _pulses(setups, slices, n):
+    """The batch's pulse table: each strand's pulses on its own nodes."""
+    rows = []
+    index = np.arange(n)
+    for setup, sl in zip(setups, slices):
+        nodes = index[sl]
+        for on, off, i0, i1, amp in setup.pulses:
+            i0, i1 = int(i0), int(i1)
+            if sl.step is None:
+                rows.append((on, off, nodes[i0], nodes[i1 - 1] + 1, amp))
+            else:        # interleaved: one row per node of the zone
+                rows.extend((on, off, g, g + 1, amp) for g in nodes[i0:i1])
+    pulses = np.array(rows, dtype=np.float64).reshape(-1, 5)
+    return np.ascontiguousarray(pulses[np.argsort(pulses[:, 0], kind="stable")])
+
+
 def _run_batch(setups):
     """The strands of ``setups`` in one time loop; None if any strand failed."""
     from cable.io import schema
@@ -118,36 +158,38 @@ def _run_batch(setups):
     case0 = first.case
     num = case0.numerics
     dt = num.dt
-    sizes = np.array([s.n for s in setups])
-    offsets = np.concatenate([[0], np.cumsum(sizes)])
-    n = int(offsets[-1])
-    lo = np.concatenate([s.grid.lo for s in setups])
-    up = np.concatenate([s.grid.up for s in setups])
-    p_nodes = np.concatenate([np.broadcast_to(s.p, (s.n, s.p.shape[1])) for s in setups])
-    pulses = []
-    for s, o in zip(setups, offsets[:-1]):
-        rows = s.pulses.copy()
-        rows[:, 2:4] += o
-        pulses.append(rows)
-    pulses = np.concatenate(pulses).reshape(-1, 5)
-    pulses = np.ascontiguousarray(pulses[np.argsort(pulses[:, 0], kind="stable")])
+    n = sum(s.n for s in setups)
     gating = 0 if num.gating == "rush-larsen" else 1
-    rates = tables.plan(model, p_nodes, dt, gating, num.rates)
+    p_parts = [np.broadcast_to(s.p, (s.n, s.p.shape[1])) for s in setups]
+    rates = tables.plan(model, np.concatenate(p_parts), dt, gating, num.rates)
     fast = rates.mode != "reference"
+    interleaved, slices = _layout(setups, fast)
     advance = _fast_integrator(model.name) if fast else _integrator(model.name)
-    v = np.concatenate([s.v0 for s in setups])
-    s0 = np.concatenate([s.s0 for s in setups])
-    if fast:
+    lo = _place([s.grid.lo for s in setups], slices, n)
+    up = _place([s.grid.up for s in setups], slices, n)
+    p_nodes = _place(p_parts, slices, n)
+    pulses = _pulses(setups, slices, n)
+    v = _place([s.v0 for s in setups], slices, n)
+    s0 = _place([s.s0 for s in setups], slices, n)
+    theta = diffusion.THETA[num.diffusion]
+    if interleaved:
+        def factors(h):
+            parts = [diffusion.factor_thomas(s.grid.lo, s.grid.up, h, theta) for s in setups]
+            return tuple(diffusion.interleave([f[k] for f in parts]) for k in range(3))
+        strands = len(setups)
+    else:
+        def factors(h):
+            return diffusion.factor(lo, up, h, theta)
+        strands = 1
+    half, full = factors(0.5 * dt), factors(dt)
+    by_state = fast and model.fast.by_state
+    if by_state:
         st = np.ascontiguousarray(s0.T)
         p = tables.by_parameter(p_nodes)
-        extra = (rates.table, rates.v_lo, rates.inv_dv)
     else:
         st = np.ascontiguousarray(s0)
         p = np.ascontiguousarray(p_nodes)
-        extra = ()
-    theta = diffusion.THETA[num.diffusion]
-    half = diffusion.factor(lo, up, 0.5 * dt, theta)
-    full = diffusion.factor(lo, up, dt, theta)
+    extra = (rates.table, rates.v_lo, rates.inv_dv, strands) if fast else ()
     splitting = integrate.STRANG if num.splitting == "strang" else integrate.GODUNOV
     cap = max(max(16, min(2 * s.pulses.shape[0] + 8, MAX_CROSSINGS)) for s in setups)
     act = np.full((n, cap), np.nan)
@@ -167,7 +209,7 @@ def _run_batch(setups):
     def sample(k):
         fields["vm"][k] = v
         for name, j in zip(field_names[1:], state_idx):
-            fields[name][k] = st[j] if fast else st[:, j]
+            fields[name][k] = st[j] if by_state else st[:, j]
 
     sample(0)
     wall0 = _time.perf_counter()
@@ -183,8 +225,7 @@ def _run_batch(setups):
     wall = _time.perf_counter() - wall0
     t_end = (first.n_samples - 1) * spb * dt
     results = []
-    for j, setup in enumerate(setups):
-        sl = slice(int(offsets[j]), int(offsets[j + 1]))
+    for setup, sl in zip(setups, slices):
         meas = measurements(setup, act[sl], nact[sl], upstroke[sl], _tracker_slice(tracker, sl, n), t_end=t_end)
         attrs = provenance(setup, None)
         attrs.update(rates=rates.mode, status="complete", batch_size=len(setups),

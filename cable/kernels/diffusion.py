@@ -17,7 +17,7 @@ and the two forms agree to rounding.
 
 import numpy as np
 
-from cable.kernels.jit import jit, jit_vector
+from cable.kernels.jit import jit, jit_inline, jit_vector
 
 THETA = {"crank-nicolson": 0.5, "backward-euler": 1.0, "forward-euler": 0.0}
 
@@ -189,3 +189,101 @@ def diffuse(v, lo, up, h, theta, pivot, elim, back, work):
     else:
         scaled_copy(v, pivot, work)
     solve(v, pivot, elim, back, work)
+
+
+# ----------------------------------------------------------------------------- batches
+# Strands of equal length stored interleaved, node i of strand j at i * S + j (S
+# strands): the eliminations of the S strands are independent, so each sweep runs
+# over i with the S strands side by side, a loop that vectorises.
+
+def factor_thomas(lo, up, h, theta):
+    """Factors of I - theta h L by the Thomas algorithm (downwards elimination only).
+
+    Returns (pivot, elim, back): x_i = w_i - back_i x_{i+1} with
+    w_i = r_i pivot_i - elim_i w_{i-1}.
+    """
+    lo = np.asarray(lo, dtype=np.float64)
+    up = np.asarray(up, dtype=np.float64)
+    n = lo.size
+    a = -theta * h * lo
+    c = -theta * h * up
+    b = 1.0 + theta * h * (lo + up)
+    pivot = np.zeros(n)
+    elim = np.zeros(n)
+    back = np.zeros(n)
+    prev = 0.0
+    for i in range(n):
+        piv = 1.0 / (b[i] - (a[i] * prev if i > 0 else 0.0))
+        pivot[i] = piv
+        elim[i] = a[i] * piv if i > 0 else 0.0
+        back[i] = c[i] * piv
+        prev = back[i]
+    return pivot, elim, back
+
+
+def interleave(arrays) -> np.ndarray:
+    """Per-strand arrays of one length, as one array with node i of strand j at i*S + j."""
+    return np.ascontiguousarray(np.stack([np.asarray(a) for a in arrays], axis=1)).reshape(
+        (-1,) + np.asarray(arrays[0]).shape[1:])
+
+
+@jit_inline
+def _row_update(w, el, w_prev):
+    # w -= el * w_prev over one row of strands
+    for j in range(w.shape[0]):
+        w[j] -= el[j] * w_prev[j]
+
+
+@jit_inline
+def _row_substitute(x, w, bk, x_next):
+    # x = w - bk * x_next over one row of strands
+    for j in range(x.shape[0]):
+        x[j] = w[j] - bk[j] * x_next[j]
+
+
+@jit_inline
+def _row_explicit(out, v, lo, up, v_prev, v_next, e, pivot):
+    for j in range(out.shape[0]):
+        vj = v[j]
+        out[j] = (vj + e * (lo[j] * (v_prev[j] - vj) + up[j] * (v_next[j] - vj))) * pivot[j]
+
+
+@jit_vector
+def diffuse_interleaved(v, lo, up, h, theta, pivot, elim, back, work, strands):
+    """One theta-scheme sub-step of ``strands`` interleaved strands (factors interleaved
+    from :func:`factor_thomas` of each strand). Row by row, each row a vectorised loop
+    over the strands."""
+    n = v.shape[0]
+    length = n // strands
+    if length == 1:
+        return
+    e = (1.0 - theta) * h
+    S = strands
+    last = (length - 1) * S
+    if theta == 0.0:
+        ones = np.ones(S)
+        zero = np.zeros(S)
+        _row_explicit(work[0:S], v[0:S], zero, up[0:S], v[0:S], v[S:2 * S], e, ones)
+        for i in range(1, length - 1):
+            r = i * S
+            _row_explicit(work[r:r + S], v[r:r + S], lo[r:r + S], up[r:r + S], v[r - S:r], v[r + S:r + 2 * S],
+                          e, ones)
+        _row_explicit(work[last:n], v[last:n], lo[last:n], zero, v[last - S:last], v[last:n], e, ones)
+        for g in range(n):
+            v[g] = work[g]
+        return
+    zero = np.zeros(S)
+    _row_explicit(work[0:S], v[0:S], zero, up[0:S], v[0:S], v[S:2 * S], e, pivot[0:S])
+    for i in range(1, length - 1):
+        r = i * S
+        _row_explicit(work[r:r + S], v[r:r + S], lo[r:r + S], up[r:r + S], v[r - S:r], v[r + S:r + 2 * S],
+                      e, pivot[r:r + S])
+    _row_explicit(work[last:n], v[last:n], lo[last:n], zero, v[last - S:last], v[last:n], e, pivot[last:n])
+    for i in range(1, length):
+        r = i * S
+        _row_update(work[r:r + S], elim[r:r + S], work[r - S:r])
+    for j in range(S):
+        v[last + j] = work[last + j]
+    for i in range(length - 2, -1, -1):
+        r = i * S
+        _row_substitute(v[r:r + S], work[r:r + S], back[r:r + S], v[r + S:r + 2 * S])

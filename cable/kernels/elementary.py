@@ -23,7 +23,6 @@ faster in the kernels, which are bound by the number of operations, and 2 ulp. T
 Taylor polynomial needs degree 13 for the same accuracy: two more operations.)
 """
 
-
 import numpy as np
 from llvmlite import ir
 from numba import types

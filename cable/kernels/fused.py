@@ -4,25 +4,32 @@
 splitting, stimuli, probes and status codes; see that module for the scheme), with
 
 * the model's fast kernel bound to ``fast_reaction`` by
-  :func:`cable.kernels.jit.specialise`: states stored by state (``sT``, shape
-  (nstate, n)) and parameters by parameter (``pT``), so the node loops vectorise; the
-  rates exact (``table`` with no rows) or tabulated;
+  :func:`cable.kernels.jit.specialise` (and inlined into the loop): states and
+  parameters stored by state and by parameter (``sT`` (nstate, n), ``pT``) so that the
+  node loops vectorise, or by node for models that say so (``FastPath.by_state``);
+  the rates exact (``table`` with no rows) or tabulated;
 * the probe block by block: a vectorised pass over a block of nodes of which none
   crosses the threshold or is in an upstroke (almost every block, almost always),
   the full per-node pass (the same as ``integrate.probe``) over the others;
-* the potential checked for NaN or runaway only every ``check_every`` steps (as in
-  ``advance``).
+* for batches of strands of one length (:mod:`cable.kernels.batch`), the strands
+  stored interleaved and their diffusion solves run side by side (``strands`` > 1);
+* the potential checked for NaN or runaway every ``check_every`` steps, in a
+  vectorised pass.
+
+Every helper it calls per step is either in the same module as its own callees or
+inlined (``jit_inline``): numba checks a cached function against its own file only,
+so a cached helper calling into another file could go stale.
 """
 
 import numpy as np
 
-from cable.kernels.diffusion import diffuse
+from cable.kernels.diffusion import diffuse, diffuse_interleaved
 from cable.kernels.integrate import (GODUNOV, NONFINITE, OK, RUNAWAY, RUNAWAY_MV, STRANG, probe_nodes,
                                      stimulus_current)
 from cable.kernels.jit import jit_inline, jit_vector
 
 
-def fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):  # replaced by specialise()
+def fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):  # bound by specialise()
     raise NotImplementedError
 
 
@@ -51,7 +58,7 @@ def quiet_probe(v, vprev, dt, pre_rate):
         vprev[i] = vi
 
 
-@jit_vector
+@jit_inline
 def block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke):
     """The probe of :func:`cable.kernels.integrate.probe`, block by block."""
     n = v.shape[0]
@@ -82,14 +89,26 @@ def check(v):
     return OK, -1
 
 
+@jit_inline
+def _diffuse(v, lo, up, h, theta, pivot, elim, back, work, strands):
+    if strands == 1:
+        diffuse(v, lo, up, h, theta, pivot, elim, back, work)
+    else:
+        diffuse_interleaved(v, lo, up, h, theta, pivot, elim, back, work, strands)
+
+
 def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, splitting, merge,
                  gating, ion_scale, threshold, vprev, act, nact, pre_rate, open_up, upstroke,
-                 i_stim, work, check_every, table, v_lo, inv_dv):
+                 i_stim, work, check_every, table, v_lo, inv_dv, strands):
     """Advance the strand by ``nsteps`` steps of ``dt`` from time ``t0``.
 
     Arguments as for :func:`cable.kernels.integrate.advance`, with ``sT`` and ``pT``
-    stored by state and parameter, and the rate table (``table``, ``v_lo`` [mV],
-    ``inv_dv`` [1/mV]; a table with no rows: exact rates). Returns (status, step, node).
+    stored by state and parameter, the rate table (``table``, ``v_lo`` [mV],
+    ``inv_dv`` [1/mV]; a table with no rows: exact rates), and ``strands``: 1 for one
+    strand (or strands laid end to end, factors from ``diffusion.factor``), S for S
+    strands of one length stored interleaved (factors from
+    ``diffusion.factor_thomas``, see ``diffusion.diffuse_interleaved``). Returns
+    (status, step, node).
     """
     stim_on = True
     pv_h, el_h, bk_h = half
@@ -98,18 +117,18 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
         t = t0 + k * dt
         if splitting == STRANG:
             if merge and k > 0:
-                diffuse(v, lo, up, dt, theta, pv_f, el_f, bk_f, work)
+                _diffuse(v, lo, up, dt, theta, pv_f, el_f, bk_f, work, strands)
             else:
-                diffuse(v, lo, up, 0.5 * dt, theta, pv_h, el_h, bk_h, work)
+                _diffuse(v, lo, up, 0.5 * dt, theta, pv_h, el_h, bk_h, work, strands)
         any_on = stimulus_current(t, dt, pulses, i_stim)
         if stim_on and not any_on:
             i_stim[:] = 0.0
         stim_on = any_on
         fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
         if splitting == GODUNOV:
-            diffuse(v, lo, up, dt, theta, pv_f, el_f, bk_f, work)
+            _diffuse(v, lo, up, dt, theta, pv_f, el_f, bk_f, work, strands)
         elif not merge or k == nsteps - 1:
-            diffuse(v, lo, up, 0.5 * dt, theta, pv_h, el_h, bk_h, work)
+            _diffuse(v, lo, up, 0.5 * dt, theta, pv_h, el_h, bk_h, work, strands)
         block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke)
         if (k + 1) % check_every == 0 or k == nsteps - 1:
             status, node = check(v)

@@ -1,15 +1,13 @@
 """The one numba wrapper of the package, and kernel specialisation.
 
 ``jit`` compiles with ``cache=True`` (compiled code is stored next to the sources, or
-under ``NUMBA_CACHE_DIR``) and without fastmath: the results must not depend on the
-reordering of floating-point sums. All kernels use numpy's error model: a division by
-zero in a diverging run gives inf or NaN, which the time loop's runaway check reports
-with its time and place, instead of a bare ZeroDivisionError from deep in a kernel.
+under ``NUMBA_CACHE_DIR``), without fastmath (the results must not depend on the
+reordering of floating-point sums) and with numpy's error model: a division by zero
+gives inf or NaN (as in numpy) instead of a per-division test that raises, which also
+lets LLVM turn a loop into SIMD code.
 
-``jit_vector`` is the same with numpy's error model: a division by zero gives inf or
-NaN (as in numpy) instead of a per-division test that raises, so LLVM can turn the
-loop into SIMD code. Still ``cache=True`` and no fastmath. Used for the fast paths of
-the membrane models (see :class:`cable.membrane.base.FastPath`).
+``jit_vector`` (the same options) marks the loops written to be vectorised, the fast
+paths of the membrane models (see :class:`cable.membrane.base.FastPath`).
 
 ``jit_inline`` marks the small functions a vectorised loop calls per node: they are
 inlined into the caller's numba IR (``inline="always"``), so the loop body is one

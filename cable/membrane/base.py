@@ -118,6 +118,10 @@ class FastPath:
         same at every node (otherwise the exact rates are used, with a note).
     v_lo, v_hi, dv : float
         Default range and spacing of the table [mV].
+    by_state : bool
+        True: ``sT`` and ``pT`` as above. False: the kernel takes the states and
+        parameters stored by node, ``s`` float64[n, nstate] and ``p`` float64[n, nparam],
+        as ``reaction`` does (for large models whose node loop is scalar anyway).
     """
 
     kernel: Callable
@@ -126,6 +130,7 @@ class FastPath:
     v_lo: float = -150.0
     v_hi: float = 100.0
     dv: float = 0.05
+    by_state: bool = True
 
 
 @dataclass(frozen=True)

@@ -13,7 +13,7 @@ import numpy as np
 
 from cable.kernels.elementary import exp as vexp
 from cable.kernels.elementary import exp_nonpositive, fma
-from cable.kernels.jit import jit, jit_inline, jit_vector
+from cable.kernels.jit import jit, jit_inline
 from cable.membrane.base import FastPath, MembraneModel, Parameter, State
 
 # parameter indices (order of PARAMETERS)
@@ -197,9 +197,13 @@ def _tabulated_gates(table, j, f, m, h, n):
     return m, h, n
 
 
-@jit_vector
+@jit_inline
 def reaction_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):
-    """Fast reaction step (contract: cable.membrane.base.FastPath)."""
+    """Fast reaction step (contract: cable.membrane.base.FastPath).
+
+    Inlined into the time loop that calls it (``jit_inline``), so that the loop's cache
+    entry, keyed by the sources of this module and of cable.kernels, is never stale.
+    """
     nn = v.shape[0]
     ms = sT[0]
     hs = sT[1]

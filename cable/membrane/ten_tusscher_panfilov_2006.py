@@ -52,7 +52,7 @@ import math
 import numpy as np
 
 from cable.kernels.jit import jit
-from cable.membrane.base import MembraneModel, Parameter, State
+from cable.membrane.base import FastPath, MembraneModel, Parameter, State
 
 # physical constants and cell geometry (ten Tusscher & Panfilov 2006, Table 1)
 R_GAS = 8314.472  # [J/(K kmol)] = [mJ/(K mol)], so RT/F is in mV
@@ -419,6 +419,163 @@ def reference(v, s, p):
     return None, ds, ion
 
 
+# ----------------------------------------------------------------------------- fast path
+# Tabulated rates (cable.membrane.base.FastPath; common practice in cardiac simulation):
+# the update y <- A(V) + B(V) y of the 11 gates that depend on V alone (s in its epi and
+# endo forms), and six factors of the currents that depend on V alone (the exponentials
+# of I_NaCa, the voltage factors of I_NaK and I_pK, the GHK factors of I_CaL), on a grid
+# of V, interpolated linearly. fCass (Ca_ss), R-bar, I_K1 (V - E_K) and everything else
+# are computed as in ``reaction``. With no table, the kernel is ``reaction`` itself: the
+# exact path is the reference. The table depends on ``gamma`` only (I_NaCa).
+_TAB_GATES = (M, H, J, XR1, XR2, XS, R, S, D, F, F2)   # gate states taken from the table
+_N_TAB = 12                                             # 11 gates + the endo form of s
+S_ENDO_COL = 11                                         # table gate index of endo s
+(C_NACA_1, C_NACA_2, C_NAK, C_PK, C_CAL_SS, C_CAL_O) = range(6)
+_GATE_COLS = 4 * _N_TAB          # A, dA, B, dB per tabulated gate
+_TABLE_COLS = _GATE_COLS + 2 * 6  # then value, difference per current factor
+
+
+@jit
+def _fill_gate_table(V, dt, gating, out):
+    for row in range(V.shape[0]):
+        for endo in (False, True):
+            x_inf, tau = _kinetics(V[row], 0.0, endo)
+            for g in range(_N_TAB):
+                if endo and g != S_ENDO_COL:
+                    continue
+                k = S if g == S_ENDO_COL else _TAB_GATES[g]
+                if gating == 0:
+                    decay = math.exp(-dt / tau[k])
+                    a, b = x_inf[k] * (1.0 - decay), decay
+                else:
+                    a, b = dt * x_inf[k] / tau[k], 1.0 - dt / tau[k]
+                out[row, 4 * g] = a
+                out[row, 4 * g + 2] = b
+
+
+def build_table(p_row, dt, gating, v_lo, v_hi, dv):
+    """Tabulated gate updates and current factors (contract: cable.membrane.base.FastPath)."""
+    rows = int(round((v_hi - v_lo) / dv)) + 1
+    V = v_lo + dv * np.arange(rows)
+    table = np.zeros((rows, _TABLE_COLS))
+    _fill_gate_table(V, float(dt), int(gating), table)
+    g = p_row[GAMMA]
+    u = V / RTF
+    x = 2.0 * (V - 15.0) / RTF
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ghk = np.where(np.abs(x) < 1e-6, 1.0 - 0.5 * x, x / np.expm1(x))
+    factors = (np.exp(g * u), np.exp((g - 1.0) * u),
+               1.0 / (1.0 + 0.1245 * np.exp(-0.1 * u) + 0.0353 * np.exp(-u)),
+               1.0 / (1.0 + np.exp((25.0 - V) / 5.98)),
+               2.0 * FARADAY * ghk * 0.25 * np.exp(x), 2.0 * FARADAY * ghk)
+    for c, col in enumerate(factors):
+        table[:, _GATE_COLS + 2 * c] = col
+    table[:-1, 1::2] = np.diff(table[:, 0::2], axis=0)
+    return table
+
+
+@jit
+def _tab(table, j, f, col):
+    return table[j, col] + f * table[j, col + 1]
+
+
+@jit
+def _tabulated_currents(V, s, p, i, table, j, f):
+    """As :func:`_membrane_currents`, with the V-only factors from the table."""
+    K_i, Na_i, Ca_i, Ca_ss = s[i, K_I], s[i, NA_I], s[i, CA_I], s[i, CA_SS]
+    K_o, Na_o, Ca_o = p[i, K_O], p[i, NA_O], p[i, CA_O]
+    E_K = RTF * math.log(K_o / K_i)
+    E_Na = RTF * math.log(Na_o / Na_i)
+    E_Ca = 0.5 * RTF * math.log(Ca_o / Ca_i)
+    E_Ks = RTF * math.log((K_o + p[i, P_KNA] * Na_o) / (K_i + p[i, P_KNA] * Na_i))
+    cell = int(p[i, CELL_TYPE])
+    g_to = p[i, G_TO] * (ENDO_G_TO_RATIO if cell == ENDO else 1.0)
+    g_ks = p[i, G_KS] * (MID_G_KS_RATIO if cell == MID else 1.0)
+    root_ko = math.sqrt(K_o / 5.4)
+    m = s[i, M]
+    I_Na = p[i, G_NA] * m * m * m * s[i, H] * s[i, J] * (V - E_Na)
+    I_to = g_to * s[i, R] * s[i, S] * (V - E_K)
+    I_Kr = p[i, G_KR] * root_ko * s[i, XR1] * s[i, XR2] * (V - E_K)
+    I_Ks = g_ks * s[i, XS] * s[i, XS] * (V - E_Ks)
+    a_k1 = 0.1 / (1.0 + math.exp(0.06 * (V - E_K - 200.0)))
+    b_k1 = ((3.0 * math.exp(0.0002 * (V - E_K + 100.0)) + math.exp(0.1 * (V - E_K - 10.0)))
+            / (1.0 + math.exp(-0.5 * (V - E_K))))
+    I_K1 = p[i, G_K1] * root_ko * a_k1 / (a_k1 + b_k1) * (V - E_K)
+    e1 = _tab(table, j, f, _GATE_COLS + 2 * C_NACA_1)
+    e2 = _tab(table, j, f, _GATE_COLS + 2 * C_NACA_2)
+    I_NaCa = (p[i, K_NACA] * (e1 * Na_i ** 3 * Ca_o - e2 * Na_o ** 3 * Ca_i * p[i, ALPHA])
+              / ((p[i, K_MNAI] ** 3 + Na_o ** 3) * (p[i, K_MCA] + Ca_o) * (1.0 + p[i, K_SAT] * e2)))
+    I_NaK = (p[i, P_NAK] * K_o * Na_i / ((K_o + p[i, K_MK]) * (Na_i + p[i, K_MNA]))
+             * _tab(table, j, f, _GATE_COLS + 2 * C_NAK))
+    I_pCa = p[i, G_PCA] * Ca_i / (p[i, K_PCA] + Ca_i)
+    I_pK = p[i, G_PK] * (V - E_K) * _tab(table, j, f, _GATE_COLS + 2 * C_PK)
+    I_bNa = p[i, G_BNA] * (V - E_Na)
+    I_bCa = p[i, G_BCA] * (V - E_Ca)
+    I_CaL = (p[i, G_CAL] * s[i, D] * s[i, F] * s[i, F2] * s[i, FCASS]
+             * (_tab(table, j, f, _GATE_COLS + 2 * C_CAL_SS) * Ca_ss
+                - _tab(table, j, f, _GATE_COLS + 2 * C_CAL_O) * Ca_o))
+    return I_Na, I_to, I_Kr, I_Ks, I_K1, I_NaCa, I_NaK, I_pCa, I_pK, I_bNa, I_bCa, I_CaL
+
+
+@jit
+def reaction_fast(v, s, p, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):
+    """Reaction step with tabulated rates (contract: cable.membrane.base.FastPath, by node).
+
+    No table: ``reaction``. A node outside the table: ``reaction`` for that node.
+    """
+    if table.shape[0] < 2:
+        reaction(v, s, p, i_stim, dt, ion_scale, gating)
+        return
+    top = table.shape[0] - 1.0
+    for i in range(v.shape[0]):
+        V = v[i]
+        x = (V - v_lo) * inv_dv
+        if not (x >= 0.0 and x < top):
+            reaction(v[i:i + 1], s[i:i + 1], p[i:i + 1], i_stim[i:i + 1], dt, ion_scale, gating)
+            continue
+        j = np.uint64(x)
+        f = x - np.float64(j)
+        Ca_i, Ca_SR, Ca_ss = s[i, CA_I], s[i, CA_SR], s[i, CA_SS]
+        endo = int(p[i, CELL_TYPE]) == ENDO
+        for g in range(11):
+            k = _TAB_GATES[g]
+            col = 4 * (S_ENDO_COL if (endo and k == S) else g)
+            s[i, k] = (table[j, col] + f * table[j, col + 1]) + (table[j, col + 2] + f * table[j, col + 3]) * s[i, k]
+        # fCass depends on Ca_ss: computed as in _kinetics
+        c2 = (Ca_ss / 0.05) ** 2
+        fcass_inf = 0.6 / (1.0 + c2) + 0.4
+        tau_fcass = 80.0 / (1.0 + c2) + 2.0
+        if gating == 0:
+            s[i, FCASS] = fcass_inf - (fcass_inf - s[i, FCASS]) * math.exp(-dt / tau_fcass)
+        else:
+            s[i, FCASS] = s[i, FCASS] + dt * (fcass_inf - s[i, FCASS]) / tau_fcass
+        # the rest as in reaction
+        k1, k2 = _ryr(Ca_SR, Ca_ss, p, i)
+        rate = k2 * Ca_ss + p[i, K4]
+        r_inf = p[i, K4] / rate
+        if gating == 0:
+            s[i, R_PRIME] = r_inf - (r_inf - s[i, R_PRIME]) * math.exp(-dt * rate)
+        else:
+            s[i, R_PRIME] = s[i, R_PRIME] + dt * (p[i, K4] - rate * s[i, R_PRIME])
+        (I_Na, I_to, I_Kr, I_Ks, I_K1, I_NaCa, I_NaK, I_pCa, I_pK, I_bNa, I_bCa,
+         I_CaL) = _tabulated_currents(V, s, p, i, table, j, f)
+        ion = I_Na + I_to + I_Kr + I_Ks + I_K1 + I_NaCa + I_NaK + I_pCa + I_pK + I_bNa + I_bCa + I_CaL
+        O = k1 * Ca_ss * Ca_ss * s[i, R_PRIME] / (p[i, K3] + k1 * Ca_ss * Ca_ss)
+        I_rel = p[i, V_REL] * O * (Ca_SR - Ca_ss)
+        I_up = p[i, V_MAXUP] / (1.0 + (p[i, K_UP] / Ca_i) ** 2)
+        I_leak = p[i, V_LEAK] * (Ca_SR - Ca_i)
+        I_xfer = p[i, V_XFER] * (Ca_ss - Ca_i)
+        d_ca_i = -(I_bCa + I_pCa - 2.0 * I_NaCa) * CA_FLUX + V_SR / V_C * (I_leak - I_up) + I_xfer
+        d_ca_sr = I_up - I_leak - I_rel
+        d_ca_ss = -I_CaL * CA_SS_FLUX + V_SR / V_SS * I_rel - V_C / V_SS * I_xfer
+        s[i, CA_I] = _buffered(Ca_i, dt * d_ca_i, p[i, BUF_C], p[i, K_BUFC])
+        s[i, CA_SR] = _buffered(Ca_SR, dt * d_ca_sr, p[i, BUF_SR], p[i, K_BUFSR])
+        s[i, CA_SS] = _buffered(Ca_ss, dt * d_ca_ss, p[i, BUF_SS], p[i, K_BUFSS])
+        s[i, NA_I] -= dt * (I_Na + I_bNa + 3.0 * I_NaK + 3.0 * I_NaCa) * NA_FLUX
+        s[i, K_I] -= dt * (I_K1 + I_to + I_Kr + I_Ks - 2.0 * I_NaK + I_pK) * NA_FLUX
+        v[i] = V + dt * (i_stim[i] - ion_scale * ion)
+
+
 CURRENT_NAMES = ("I_Na", "I_to", "I_Kr", "I_Ks", "I_K1", "I_NaCa", "I_NaK", "I_pCa", "I_pK",
                  "I_bNa", "I_bCa", "I_CaL")
 
@@ -461,4 +618,6 @@ MODEL = MembraneModel(
     reference=reference,
     currents=currents,
     current_names=CURRENT_NAMES,
+    fast=FastPath(kernel=reaction_fast, build_table=build_table, table_parameters=("gamma",),
+                  v_lo=-150.0, v_hi=100.0, dv=0.05, by_state=False),
 )

@@ -5,8 +5,6 @@ must evolve as it does alone: the same fields and measurements as ``cable.simula
 to rounding (common practice for a reordering of the same arithmetic).
 """
 
-import copy
-
 import numpy as np
 import pytest
 
