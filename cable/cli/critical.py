@@ -34,10 +34,16 @@ def summarise(ds) -> str:
     a = ds.attrs
     unit = a.get("units", "")
     unit = f" {unit}" if unit and unit != "1" else ""
+    if "passing_value" not in a:
+        return (f"{a['key']}: {a['low']:.6g}{unit} and {a['high']:.6g}{unit} do not straddle block "
+                f"(both ends {'conduct' if int(ds['conducted'].values.all()) else 'fail to conduct'}); "
+                f"runs: {a['runs']}")
     lines = [f"{a['key']}: critical value between {a['passing_value']:.6g}{unit} (conducts) and "
              f"{a['failing_value']:.6g}{unit} (blocks); midpoint {a['critical_value']:.6g}{unit}",
              f"runs: {a['runs']}   final bracket: {_width(a)} (tolerance {a['tolerance']:.3g})",
              f"CV just on the passing side: {a['cv_passing_m_per_s']:.4g} m/s"]
+    if a.get("note"):
+        lines.append(f"note: {a['note']}")
     return "\n".join(lines)
 
 

@@ -1,7 +1,9 @@
 """``cable info OUT.nc``: a short human summary of a result (also printed by ``cable run``).
 
 Model, status, fibre, run settings, then one line per beat: onset, capture, conduction
-velocity, APD90 and where it blocked.
+velocity, APD90 and where it blocked. A sweep result gets its swept keys and point
+counts; a protocol result (threshold, erp, restitution, converge, critical) the table its
+command printed.
 """
 
 import numpy as np
@@ -43,8 +45,13 @@ def summarise(ds, path=None) -> str:
     attrs = ds.attrs
     lines = []
     if path is not None:
-        made = f" by cable {attrs['cable_version']}" if attrs.get("cable_version") else ""
+        source = str(attrs.get("source", ""))
+        version = attrs.get("cable_version") or (source[len("cable "):] if source.startswith("cable ") else "")
+        made = f" by cable {version}" if version else ""
         lines.append(f"result: {path} (written{made})")
+    protocol = _protocol_summary(ds)
+    if protocol is not None:
+        return "\n".join(lines + [protocol])
     swept = _swept_dims(ds)
     if swept:
         return "\n".join(lines + _sweep_lines(ds, swept))
@@ -78,6 +85,11 @@ def summarise(ds, path=None) -> str:
     captured = np.asarray(ds["captured"].values).astype(bool)
     blocked = np.asarray(ds["blocked"].values).astype(bool)
     lines.append(f"beats: {nb} ({int(captured.sum())} captured, {int(blocked.sum())} blocked)")
+    if nb > 1 and "conducted" in ds:
+        from cable.measure.block import conduction_pattern
+
+        lines.append(f"conduction pattern (stimuli : beats through the whole fibre): "
+                     f"{conduction_pattern(np.asarray(ds['conducted'].values) == 1)}")
     lines.append("beat  onset_ms  captured   CV_m/s  APD90_ms  block")
     cv = ds["conduction_velocity"].values if "conduction_velocity" in ds else np.full(nb, np.nan)
     bx = ds["block_x"].values if "block_x" in ds else np.full(nb, np.nan)
@@ -86,6 +98,25 @@ def summarise(ds, path=None) -> str:
         lines.append(f"{b:4d}  {_num(ds['beat_onset'][b], '8.2f'):>8}  {'yes' if captured[b] else 'no':>8}  "
                      f"{_num(cv[b]):>7}  {_num(_apd90(ds, b)):>8}  {block}")
     return "\n".join(lines)
+
+
+def _protocol_summary(ds):
+    """The summary a protocol result prints (threshold, erp, restitution, converge, critical), or None."""
+    attrs = ds.attrs
+    kind = attrs.get("protocol")
+    if kind == "strength-duration":
+        from cable.protocols.threshold import summary
+    elif kind == "S1-S2 refractory period":
+        from cable.protocols.refractory import summary
+    elif kind in ("s1s2", "dynamic") and "max_slope" in ds:
+        from cable.protocols.restitution import summary
+    elif kind == "grid convergence":
+        from cable.protocols.converge import summary
+    elif kind == "critical-value search" or str(attrs.get("title", "")).startswith("cable critical-value search"):
+        from cable.cli.critical import summarise as summary
+    else:
+        return None
+    return summary(ds)
 
 
 def _swept_dims(ds) -> list:
@@ -112,9 +143,12 @@ def _sweep_lines(ds, swept) -> list:
         counts = {names[codes.index(c)] if c in codes else str(c): int(n)
                   for c, n in zip(*np.unique(ds["status"].values, return_counts=True))}
         lines.append("points: " + ", ".join(f"{n} {name}" for name, n in counts.items()))
-    blocked = int(np.asarray(ds["blocked"].values).astype(bool).sum()) if "blocked" in ds else 0
-    captured = np.asarray(ds["captured"].values).astype(bool)
-    lines.append(f"beats: {int(captured.sum())} of {captured.size} captured, {blocked} blocked")
+    # flags are 1/0, and -1 where a point has no result (failed, not computed): count only 1
+    blocked = int(np.sum(np.asarray(ds["blocked"].values) == 1)) if "blocked" in ds else 0
+    flags = np.asarray(ds["captured"].values)
+    with_result = int(np.sum(flags >= 0))
+    lines.append(f"beats: {int(np.sum(flags == 1))} of {with_result} captured, {blocked} blocked"
+                 + (f" ({flags.size - with_result} without a result)" if with_result < flags.size else ""))
     if "conduction_velocity" in ds:
         cv = np.asarray(ds["conduction_velocity"].values, dtype=float)
         if np.isfinite(cv).any():

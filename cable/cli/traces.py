@@ -1,9 +1,9 @@
-"""``cable traces OUT.nc --at 1cm 2cm 3cm``: vm (and stored states) against time at positions."""
+"""``cable traces OUT.nc --at 1cm 2cm 3cm``: vm (stored states, ionic currents) against time at positions."""
 
 from cable.cli import _figures
 
 NAME = "traces"
-HELP = "draw vm (and stored states) against time at chosen positions of a result file"
+HELP = "draw vm (and stored states or ionic currents) against time at chosen positions of a result file"
 ORDER = 31
 
 
@@ -13,6 +13,9 @@ def add_arguments(p):
                    "default: a quarter, half and three quarters of the fibre")
     p.add_argument("--states", nargs="+", default=[], metavar="NAME",
                    help="stored states to draw below vm (the case's output.states), e.g. h m")
+    p.add_argument("--currents", nargs="+", default=[], metavar="NAME",
+                   help="ionic currents to draw below the states, e.g. I_Na I_K (`cable models MODEL` lists them); "
+                        "recomputed from the stored states, so the run must store all of them (output.states)")
     p.add_argument("--t-window", nargs=2, metavar=("A", "B"), help="time range; bare numbers in ms")
     _figures.add_figure_options(p, ".traces.png")
 
@@ -34,8 +37,8 @@ def run(args):
         else:
             at = []
         with _figures.drawing(args) as fig:
-            axes = fig.subplots(1 + len(args.states), 1, sharex=True, squeeze=False)[:, 0]
-            traces(ds, at, list(axes), states=args.states,
+            axes = fig.subplots(1 + len(args.states) + len(args.currents), 1, sharex=True, squeeze=False)[:, 0]
+            traces(ds, at, list(axes), states=args.states, currents=args.currents,
                    t_window=_figures.pair(args.t_window, "time", "--t-window"))
             _figures.finish(fig, args, out)
     return 0

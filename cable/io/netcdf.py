@@ -438,6 +438,11 @@ def rerun(path, output=None, *, overwrite: bool = False, command: str | None = N
                         f"'{path.with_name(path.stem + '.rerun' + path.suffix)}'.")
     with open_result(path) as original:
         text = original.attrs.get("case")
+        what = _not_a_run(original)
+        if what:
+            raise CaseError(f"'{path}' is {what}, not the result of one run; `cable rerun` repeats runs made by "
+                            f"`cable run` or cable.simulate(output=...). Repeat it with the command that made it "
+                            f"(its case is in the file's 'case' attribute).")
         if not text:
             raise CaseError(f"'{path}' has no 'case' attribute, so the run cannot be repeated from it; "
                             "only files written by `cable run` or cable.simulate(output=...) can.")
@@ -459,6 +464,18 @@ def rerun(path, output=None, *, overwrite: bool = False, command: str | None = N
             new = exc.partial
         compared = compare(original, new)
     return RerunReport(source=path, result=new, compared=compared, versions=versions)
+
+
+def _not_a_run(ds: xr.Dataset) -> str:
+    """What a result file is when it is not one run's result ("" when it is one)."""
+    attrs = ds.attrs
+    if "sweep_id" in attrs:
+        return "a sweep result (or one of its point files)"
+    if attrs.get("protocol"):
+        return f"a {attrs['protocol']} protocol result"
+    if "t" not in ds.dims or "beat_onset" not in ds.variables:
+        return "a file without the 't' dimension and 'beat_onset' of a run"
+    return ""
 
 
 def _package_version() -> str:

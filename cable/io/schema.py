@@ -43,6 +43,10 @@ STATE_PREFIX = "state_"
 #: boolean variables are stored as int8 0/1 with flag attributes
 FLAGS = {"captured", "blocked", "conducted", "reached_left", "reached_right"}
 
+#: coded (enumerated) int8 variables: name -> (flag_values, flag_meanings); CF 1.10 section 3.5.
+#: The codes of block_side are those of cable.measure.block (LEFT, NONE, RIGHT, BOTH).
+CODES = {"block_side": ([-1, 0, 1, 2], "blocked_leftward none blocked_rightward blocked_both_ways")}
+
 
 def attrs(name: str) -> dict:
     """CF attributes of a coordinate or variable."""
@@ -52,6 +56,10 @@ def attrs(name: str) -> dict:
         out["standard_name"] = standard
     if name in FLAGS:
         out.update(flag_values=[0, 1], flag_meanings="false true")
+        out.pop("units")
+    elif name in CODES:
+        values, meanings = CODES[name]
+        out.update(flag_values=list(values), flag_meanings=meanings)
         out.pop("units")
     return out
 

@@ -316,4 +316,10 @@ def tracker_for(case, grid, v0, pulses, notes: list) -> SafetyTracker:
     note = sampling_note(case.output_every)
     if note:
         notes.append(note)
+    if grid.cell is None and grid.n > 1 and length < 2.0 * float(grid.x[1] - grid.x[0]) - 1e-12:
+        # one node alone: SF - 1 is about W's own capacitive charge over the charge through it
+        notes.append(f"measure.safety_factor: the control volume ({length:g} cm) holds one node at fiber.dx = "
+                     f"{float(grid.x[1] - grid.x[0]):g} cm, where the safety factor tends to 1 whatever the "
+                     f"tissue; refine dx to {0.5 * length:g} cm or less, or lengthen "
+                     f"measure.safety_factor_length.")
     return SafetyTracker(grid, v0, pulses[:, 0], stimulated, length, capacity=max(32, 4 * pulses.shape[0] + 8))

@@ -137,6 +137,42 @@ def regions(ds) -> list[Zone]:
     return out
 
 
+def legend_above(ax, handles, *, max_cols: int = 3, share: float = 1.0, **kw):
+    """A legend in a row above the axes, with as many columns (up to ``max_cols``) as fit its width.
+
+    ``share`` is the part of the axes' present width the legend may take (less than 1
+    when a colour bar will still take room from it). A legend wider than its axes would
+    push the layout apart (constrained layout makes room for it beside the axes), so the
+    columns are reduced until it fits; without a renderer to measure with, ``max_cols``
+    columns are used.
+    """
+    opts = dict(loc="lower left", bbox_to_anchor=(0.0, 1.01), fontsize="small", frameon=False,
+                borderaxespad=0.0, handlelength=1.8, **kw)
+    ncols = max(1, min(len(handles), max_cols))
+    leg = ax.legend(handles=handles, ncols=ncols, **opts)
+    renderer = _renderer(ax.figure)
+    if renderer is None:
+        return leg
+    room = share * ax.get_window_extent(renderer).width
+    while ncols > 1 and leg.get_window_extent(renderer).width > room:
+        ncols -= 1
+        leg.remove()
+        leg = ax.legend(handles=handles, ncols=ncols, **opts)
+    return leg
+
+
+def _renderer(fig):
+    """A renderer to measure text with, or None (a figure canvas without one)."""
+    for get in (getattr(fig.canvas, "get_renderer", None), getattr(fig, "_get_renderer", None)):
+        if get is None:
+            continue
+        try:
+            return get()
+        except Exception:  # backends differ in what they can measure before drawing
+            continue
+    return None
+
+
 def check_suffix(path) -> str:
     """The matplotlib format of an output path (PNG, PDF or SVG by suffix)."""
     suffix = Path(path).suffix.lower()

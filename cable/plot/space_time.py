@@ -141,9 +141,9 @@ def space_time(ds, ax=None, *, t_window=None, x_window=None, vmin=None, vmax=Non
     ax.set_xlim(*limits[0])
     ax.set_ylim(*limits[1])
     if legend and handles:
-        # above the map, so that it hides no data
-        ax.legend(handles=handles, loc="lower left", bbox_to_anchor=(0.0, 1.01), ncols=min(len(handles), 3),
-                  fontsize="small", frameon=False, borderaxespad=0.0, handlelength=1.8)
+        # above the map, so that it hides no data; no wider than the map (the colour bar
+        # will take about a sixth of the axes' present width)
+        _common.legend_above(ax, handles, max_cols=3, share=0.85 if colorbar else 1.0)
     if colorbar:
         extend = {(False, False): "neither", (True, False): "min", (False, True): "max", (True, True): "both"}[
             (bool(finite.size) and finite.min() < lo, bool(finite.size) and finite.max() > hi)]

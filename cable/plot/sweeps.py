@@ -125,7 +125,7 @@ def sweep(ds, y: str, x: str, ax=None, *, hue: str | None = None, select=None, b
             if hit.any():
                 shown.add((mark, text))
                 # at the foot of the axis, one row per curve so that marks do not hide each other
-                ax.plot(xs[hit], np.full(hit.sum(), 0.04 + 0.045 * k), transform=foot, clip_on=False,
+                ax.plot(xs[hit], np.full(hit.sum(), FOOT_GAP + FOOT_ROW * k), transform=foot, clip_on=False,
                         linestyle="none", **_foot_style(mark, style["color"]))
     ax.set_xlabel(_common.label(ds[x] if x in ds.coords else None, x))
     ax.set_ylabel(_common.label(ds[y], y))
@@ -133,12 +133,42 @@ def sweep(ds, y: str, x: str, ax=None, *, hue: str | None = None, select=None, b
         ax.set_xscale("log")
     if logy:
         ax.set_yscale("log")
+    if shown and not logy:
+        _clear_the_foot(ax, da.values, len(groups))
     for mark, text in sorted(shown, key=lambda m: m[1]):
         handles.append(Line2D([], [], linestyle="none", label=text, **_foot_style(mark, "0.2")))
     if legend and handles:
         title = _common.label(ds[hue], hue) if hue and hue in ds.coords else hue
         ax.legend(handles=handles, title=title, fontsize="small", title_fontsize="small", frameon=False)
     return ax
+
+
+#: height of the rows of block / no-capture marks at the foot of the axis, and the gap
+#: kept above them [axes fraction]
+FOOT_ROW, FOOT_GAP = 0.045, 0.04
+
+
+def _clear_the_foot(ax, values, rows: int) -> None:
+    """Lower the y limit so that no curve runs through the rows of marks at the foot.
+
+    The marks say "no value here" (block, no capture); drawn among the data they would
+    read as values.
+    """
+    finite = np.asarray(values, dtype=float)
+    finite = finite[np.isfinite(finite)]
+    if finite.size == 0:
+        return
+    lo, hi = ax.get_ylim()
+    frac = FOOT_GAP + FOOT_ROW * rows          # the data must start above this fraction
+    low = float(finite.min())
+    if frac >= 1.0:
+        return
+    if (low - lo) < frac * (hi - lo):
+        ax.set_ylim((low - frac * hi) / (1.0 - frac), hi)
+    # a faint rule sets the strip of marks apart from the values
+    edge = frac - 0.5 * FOOT_GAP
+    ax.hlines(edge, 0.0, 1.0, transform=ax.transAxes, colors="0.75", linewidths=0.6, linestyles=(0, (1, 2)),
+              zorder=0.5)
 
 
 def _foot_style(mark: str, color) -> dict:
@@ -149,11 +179,13 @@ def _foot_style(mark: str, color) -> dict:
 
 
 def _flag(ds, name, x, keep, select, da, invert):
-    """A boolean mask over ``keep`` from a 0/1 variable (any over the dimensions left)."""
+    """A boolean mask over ``keep`` from a 0/1 variable (any over the dimensions left).
+
+    Only the values 1 (or 0 with ``invert``) count: a sweep marks a point without a
+    result (failed, not computed, a beat it did not have) with -1, which is neither.
+    """
     if name not in ds.data_vars or x not in ds[name].dims:
         return None
-    flag = _select(ds[name], select).astype(bool)
-    if invert:
-        flag = ~flag
+    flag = _select(ds[name], select) == (0 if invert else 1)
     others = [d for d in flag.dims if d not in keep]
     return (flag.any(others) if others else flag).broadcast_like(da).transpose(*keep)

@@ -1,4 +1,4 @@
-"""Traces: membrane potential (and stored states) against time at chosen positions."""
+"""Traces: membrane potential (and stored states, ionic currents) against time at chosen positions."""
 
 from __future__ import annotations
 
@@ -43,8 +43,82 @@ def state_variable(ds, state: str) -> str:
                     f"{', '.join(stored) or '(none)'}; store more with output.states = [...] in the case.")
 
 
-def traces(ds, at, ax=None, *, states=(), t_window=None, legend: bool = True):
-    """Draw vm, and optionally stored states, against time at chosen positions.
+#: longest axis label of a stacked panel kept on one line [characters]
+STACKED_LABEL_WIDTH = 10
+#: units of the ionic currents by the model's current basis (cable.membrane.base)
+CURRENT_UNITS = {"area": "uA/cm^2", "capacitance": "uA/uF"}
+
+
+def ionic_current(ds, name: str, node: float | None):
+    """One ionic current of the model against time at a node, from the stored states.
+
+    The currents are not stored; they are recomputed with the model's ``currents``
+    kernel from ``vm`` and the stored states (all of them must be stored: the case's
+    ``output.states``), with the node's parameters as the case (its ``[membrane]`` and
+    ``[[region]]`` tables, read from the result's ``case`` attribute) sets them. The
+    stored samples are float32, so the currents carry that rounding.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A result of :func:`cable.simulate` or :func:`cable.open_result`.
+    name : str
+        A current of the model (``cable models NAME`` lists them), e.g. ``"I_Na"``.
+    node : float or None
+        Position of the node [cm] (None for a single cell).
+
+    Returns
+    -------
+    (numpy.ndarray, str, str)
+        The current at each sample [its unit], the unit, and a long name.
+
+    Raises
+    ------
+    CaseError
+        The result holds no case, the model has no such current, or a state is not stored.
+    """
+    from cable.case import load_case
+    from cable.membrane import get_model
+    from cable.simulate import node_parameters
+
+    text = ds.attrs.get("case")
+    if not text:
+        raise CaseError(f"current {name!r}: the result has no 'case' attribute, so the model and its parameters "
+                        "are unknown; draw currents from files written by cable.")
+    case = load_case(str(text))
+    model = get_model(case.membrane.model)
+    if model.currents is None or name not in model.current_names:
+        have = ", ".join(model.current_names) or "(none)"
+        raise CaseError(f"current {name!r} is not a current of '{model.name}'."
+                        f"{_common.nearest_name(name, model.current_names)} Its currents: {have}.")
+    missing = [s for s in model.state_names if schema.STATE_PREFIX + s not in ds.variables]
+    if missing:
+        raise CaseError(f"current {name!r} is computed from every state of '{model.name}', but the result does not "
+                        f"store {', '.join(missing)}; run the case with output.states = "
+                        f"{list(model.state_names)!r}.")
+    fibre = "x" in ds["vm"].dims
+    pick = (lambda da: da.sel(x=node)) if fibre else (lambda da: da)
+    v = np.ascontiguousarray(pick(ds["vm"]).values, dtype=np.float64)
+    columns = [pick(ds[schema.STATE_PREFIX + st]).values for st in model.state_names]
+    s = np.ascontiguousarray(np.stack(columns, axis=-1) if columns else np.zeros((v.size, 0)), dtype=np.float64)
+    if fibre:
+        from cable.fiber import node_positions
+        from cable.regions import node_fields
+
+        x = node_positions(case.fiber)
+        p_all, _ = node_fields(case, model, x, node_parameters(case, model, x.size))
+        row = p_all[int(np.argmin(np.abs(x - node)))]
+    else:
+        row = node_parameters(case, model, 1)[0]
+    p = np.ascontiguousarray(np.tile(row, (v.size, 1)))
+    out = np.zeros((v.size, len(model.current_names)))
+    model.currents(v, s, p, out)
+    units = CURRENT_UNITS[model.current_basis]
+    return out[:, model.current_names.index(name)], units, f"{name} (inward negative)"
+
+
+def traces(ds, at, ax=None, *, states=(), currents=(), t_window=None, legend: bool = True):
+    """Draw vm, and optionally stored states and ionic currents, against time at chosen positions.
 
     Parameters
     ----------
@@ -57,6 +131,9 @@ def traces(ds, at, ax=None, *, states=(), t_window=None, legend: bool = True):
         figure with the panels stacked, sharing the time axis.
     states : sequence of str
         Stored states to draw below vm (``"h"`` or ``"state_h"``).
+    currents : sequence of str
+        Ionic currents of the model to draw below the states (``"I_Na"``), recomputed
+        from the stored states (see :func:`ionic_current`; needs every state stored).
     t_window : (float, float), optional
         Time range [ms].
     legend : bool
@@ -70,40 +147,58 @@ def traces(ds, at, ax=None, *, states=(), t_window=None, legend: bool = True):
     Raises
     ------
     CaseError
-        A position outside the fibre, a state not stored, or too few Axes given.
+        A position outside the fibre, a state not stored, an unknown current, or too
+        few Axes given.
     """
     states = [states] if isinstance(states, str) else list(states)
-    names = ["vm"] + [state_variable(ds, s) for s in states]
+    currents = [currents] if isinstance(currents, str) else list(currents)
     if "vm" not in ds.variables:
         raise CaseError("the result has no 'vm' to draw.")
+    names = ["vm"] + [state_variable(ds, s) for s in states]
+    n_fields = len(names)
+    names += list(currents)
     if ax is None:
         import matplotlib.pyplot as plt
 
-        fig = plt.figure(figsize=(6.4, 3.2 + 1.6 * len(states)), layout="constrained")
+        fig = plt.figure(figsize=(6.4, 3.2 + 1.6 * (len(names) - 1)), layout="constrained")
         axes = list(np.atleast_1d(fig.subplots(len(names), 1, sharex=True, squeeze=False)[:, 0]))
     else:
         axes = list(np.atleast_1d(ax))
         if len(axes) < len(names):
-            raise CaseError(f"traces of vm and {len(states)} state(s) need {len(names)} Axes; {len(axes)} given.")
+            raise CaseError(f"traces of vm, {len(states)} state(s) and {len(currents)} current(s) need "
+                            f"{len(names)} Axes; {len(axes)} given.")
     tw = _common.window(ds["t"].values, t_window, "t_window", "ms")
     fibre = "x" in ds["vm"].dims
     points = nodes_at(ds, at) if fibre else [(None, None)]
-    for name, axis in zip(names, axes):
+    t_all = ds["t"].values
+    keep = np.ones(t_all.size, dtype=bool) if tw is None else (t_all >= tw[0]) & (t_all <= tw[1])
+    # computed before anything is drawn, so that an unknown current fails cleanly
+    computed = {(name, node): ionic_current(ds, name, node) for name in currents for _, node in points}
+    for j, (name, axis) in enumerate(zip(names, axes)):
+        is_current = j >= n_fields
         for k, (_, node) in enumerate(points):
-            da = ds[name].sel(x=node) if fibre else ds[name]
-            if tw is not None:
-                da = da.sel(t=slice(*tw))
+            if is_current:
+                values, units, long_name = computed[(name, node)]
+                t, y = t_all[keep], values[keep]
+            else:
+                da = ds[name].sel(x=node) if fibre else ds[name]
+                if tw is not None:
+                    da = da.sel(t=slice(*tw))
+                t, y = da["t"].values, da.values
             style = _common.look(k)
             style.pop("marker")
-            axis.plot(da["t"].values, da.values, linewidth=1.4, label=f"x = {node:.3g} cm" if fibre else None,
-                      **style)
+            axis.plot(t, y, linewidth=1.4, label=f"x = {node:.3g} cm" if fibre else None, **style)
+        if not is_current:
+            units, long_name = ds[name].attrs.get("units"), None
         if len(names) == 1:
             axis.set_ylabel(_common.label(ds[name], name))
         else:   # stacked panels: a short axis label, the long name inside the panel
-            short = name[len(schema.STATE_PREFIX):] if name != "vm" else name
-            units = ds[name].attrs.get("units")
-            axis.set_ylabel(short if units in (None, "", "1") else f"{short} [{units}]")
-            axis.text(0.01, 0.96, ds[name].attrs.get("long_name", short), transform=axis.transAxes,
+            short = name[len(schema.STATE_PREFIX):] if name.startswith(schema.STATE_PREFIX) else name
+            text_label = short if units in (None, "", "1") else f"{short} [{units}]"
+            # a stacked panel is short: a long label goes on two lines rather than into its neighbours'
+            axis.set_ylabel(text_label if len(text_label) <= STACKED_LABEL_WIDTH else f"{short}\n[{units}]")
+            text = long_name or ds[name].attrs.get("long_name", short)
+            axis.text(0.01, 0.96, text, transform=axis.transAxes,
                       va="top", ha="left", fontsize="small",
                       bbox={"boxstyle": "round,pad=0.15", "facecolor": "white", "edgecolor": "none", "alpha": 0.8})
     for axis in axes[: len(names) - 1]:

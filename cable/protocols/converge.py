@@ -23,7 +23,8 @@ scaled like dt so that the APD (interpolated between samples) refines too.
 
 A grid too coarse for the model can block a wave that the continuum carries (discrete
 propagation failure; Keener 1987, SIAM J Appl Math 47:556; from memory): when the
-user's grid blocks and the finer grids conduct, the result says so.
+user's grid blocks and the finer grids conduct (every grid from some level on, the finest
+included), the result says so and names the coarsest grid that conducts.
 """
 
 from __future__ import annotations
@@ -173,11 +174,17 @@ def _result(case, rows, ratio, beat, site) -> xr.Dataset:
                             f"{rows[0]['dx']:g} cm, dt = {rows[0]['dt']:g} ms) is off by an estimated "
                             f"{100 * err:.1f}% (> {100 * WARN_RELATIVE_ERROR:g}%): {f[0]:.5g} against "
                             f"{ext:.5g} {unit} extrapolated; refine dx and dt.")
-    block = bool(not prop[0] and prop[1:].all())
+    # numerical block: the case's grid fails and the finest grid conducts (the finer grids
+    # from the first conducting one on all conduct, so the outcome has settled with dx)
+    first = int(np.argmax(prop)) if prop.any() else len(prop)
+    block = bool(not prop[0] and prop.any() and prop[first:].all())
     if block:
-        warnings.append(f"conduction fails at the case's dx = {rows[0]['dx']:g} cm but succeeds on all finer "
-                        f"grids: the block is numerical (a coarse grid can stop a wave the continuum carries; "
-                        f"Keener 1987, SIAM J Appl Math 47:556); refine dx.")
+        coarse = ", ".join(format(r["dx"], "g") for r in rows[1:first])
+        also = "" if first == 1 else f" (and at dx = {coarse} cm)"
+        warnings.append(f"conduction fails at the case's dx = {rows[0]['dx']:g} cm{also} but succeeds on every "
+                        f"grid from dx = {rows[first]['dx']:g} cm down: the block is numerical (a coarse grid can "
+                        f"stop a wave the continuum carries; Keener 1987, SIAM J Appl Math 47:556); refine dx "
+                        f"to {rows[first]['dx']:g} cm or less.")
     elif not prop.any():
         notes.append("no level propagates: the block persists on every grid tried, so it is not a grid artefact "
                      "at these resolutions.")

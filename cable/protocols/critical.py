@@ -13,6 +13,9 @@ block; when they do not, :class:`NoBracketError` says which way both fell. Bisec
 assumes one transition inside the interval: where conduction is not monotonic in the
 key (raised K_o is supernormal before it depresses) it finds one of the transitions.
 
+When the failing end's stimulus did not excite at all, the transition found is loss of
+capture rather than block; the result's ``note`` attribute says so.
+
 The CV reported on the passing side is that run's CV in the case's ``cv_window`` (put
 the window inside the injured region to read the region's CV). Within a few % of the
 critical value a passing wave in depressed tissue may linger near failure before it
@@ -29,6 +32,7 @@ import xarray as xr
 
 from cable import __version__, units
 from cable.case import Case, CaseError, load_case
+from cable.io.schema import CONVENTIONS
 from cable.simulate import SimulationError, simulate
 
 #: default final bracket width, as a fraction of |high - low| (7 bisections)
@@ -157,7 +161,8 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         (when every run has the same grid). Attributes: ``key``, ``units``, ``low``,
         ``high``, ``tolerance``, ``passing_value``, ``failing_value``,
         ``critical_value`` (their midpoint, geometric with ``log``), ``runs``, ``cv_passing_m_per_s`` (the CV
-        at the passing end of the bracket), ``case``.
+        at the passing end of the bracket), ``case``, and ``note`` when the failing end's
+        stimulus did not excite (the transition found is then loss of capture).
 
     Raises
     ------
@@ -241,6 +246,13 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         else:
             failing = mid
     ds = _result(case, key, unit, lo, hi, tol, runs, passing, failing, log)
+    fail_outcome = [o for v, o in runs if v == failing][-1]
+    if not fail_outcome["captured"]:
+        # the search found where the stimulus stops exciting, not where a started wave blocks
+        ds.attrs["note"] = (f"at the failing end ({key} = {failing:g}) the stimulus did not excite at all: the "
+                            f"transition found is loss of capture, not conduction block; keep the stimulated "
+                            f"tissue out of the change, or raise the stimulus.")
+        say(f"note: {ds.attrs['note']}")
     if output is not None:
         _write(ds, output, overwrite)
     return ds
@@ -274,7 +286,9 @@ def _result(case, key, unit, lo, hi, tol, runs, passing, failing, log=False) -> 
         data["activation_time"] = (("run", "x"), np.array([o["activation"] for o in out]),
                                    {"units": "ms", "long_name": "activation time of the first judged beat"})
     attrs = {
+        "Conventions": CONVENTIONS,
         "title": f"cable critical-value search: {key}",
+        "protocol": "critical-value search",
         "source": f"cable {__version__}",
         "key": key,
         "units": unit,

@@ -229,8 +229,10 @@ def _result(case, durs, thr, trials, tolerance, mode, watch, site, notes) -> xr.
         "chronaxie_weiss": ((), cw, {"units": "ms", "long_name": "chronaxie, Weiss fit"}),
         "chronaxie_direct": ((), direct, {"units": "ms", "long_name": "duration at which the computed threshold "
                                                                        "is twice the Weiss rheobase"}),
-        "lapicque_rms_relative_residual": ((), _rms_relative(res_l, thr), {"units": "1"}),
-        "weiss_rms_relative_residual": ((), _rms_relative(res_w, charge), {"units": "1"}),
+        "lapicque_rms_relative_residual": ((), _rms_relative(res_l, thr), {
+            "units": "1", "long_name": "root-mean-square of the Lapicque residuals relative to the thresholds"}),
+        "weiss_rms_relative_residual": ((), _rms_relative(res_w, charge), {
+            "units": "1", "long_name": "root-mean-square of the Weiss residuals relative to the threshold charges"}),
     }
     coords = {"duration": ("duration", durs, {"units": "ms", "long_name": "stimulus pulse duration"})}
     if mode == "cell" and case.fiber is not None and case.fiber.capacitance != 1.0:

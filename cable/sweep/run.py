@@ -55,13 +55,14 @@ def run_point(raw: dict, keep_fields: bool) -> tuple[xr.Dataset, dict]:
         (the model's time loop was not loaded in this process before this point).
         Invalid cases and numerical failures are returned as failed points.
     """
-    from cable.simulate import SimulationError, _integrator, simulate
+    from cable.simulate import SimulationError, simulate, time_loop
 
     wall0 = time.perf_counter()
     meta = {"worker": f"{socket.gethostname()}:{os.getpid()}", "first_on_worker": False}
     try:
         case = load_case(raw)
-        meta["first_on_worker"] = not _integrator(case.membrane.model).signatures
+        # the loop this point's run uses (a model's fast path, or the reference loop)
+        meta["first_on_worker"] = not time_loop(case.membrane.model, case.numerics.rates).signatures
         data = _store.point_dataset(simulate(case), keep_fields)
     except CaseError as exc:
         data = _store.failed_dataset("invalid_case", str(exc))

@@ -246,6 +246,16 @@ def _quantity_of(key: str, case) -> str | None:
     """The quantity kind of a case key where the schema or the model knows it."""
     parts = key.split(".")
     section = parts[0]
+    if section == "region" and len(parts) > 2 and parts[1].isdigit():
+        if parts[2] in ("scale", "parameters"):  # region.N.scale.X, region.N.parameters.X: as [membrane]'s
+            parts, section = ["membrane"] + parts[2:], "membrane"
+        else:  # region.N.start, end, border, coupling
+            from cable.regions import REGION_KEYS
+
+            spec = REGION_KEYS.get(parts[2]) if len(parts) == 3 else None
+            if spec is None or spec.kind != "quantity":
+                return None
+            return spec.quantity or "dimensionless"
     if section == "membrane" and len(parts) == 3 and parts[1] == "scale":
         return "dimensionless"
     if section == "membrane" and len(parts) == 3 and parts[1] == "parameters":
@@ -373,7 +383,10 @@ def _check_values(base: dict, keys: list, lists: list) -> None:
             from_dict(raw)
         except CaseError as exc:
             shown = ", ".join(f"{k} = {v!r}" for k, v in over.items())
-            raise CaseError(f"[sweep] {shown}: {exc} (each swept value must give a valid case on its own)") from None
+            text = str(exc)
+            # the loader's message usually names the key and value already: do not say them twice
+            head = "" if text.startswith(shown) else f"{shown}: "
+            raise CaseError(f"[sweep] {head}{text} (each swept value must give a valid case on its own)") from None
 
 
 def _validate(table, case):

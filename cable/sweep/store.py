@@ -318,7 +318,9 @@ def assemble(spec: SweepSpec, points: list, attrs: dict) -> xr.Dataset:
     -------
     xarray.Dataset
         Dimensions: the swept dimensions, then ``beat`` and ``level`` where used.
-        Missing values: NaN (floats), -1 (flags such as ``captured``).
+        Missing values: NaN (floats), -1 (flags such as ``captured``), -2 for
+        ``block_side`` (whose -1 means blocked leftward); each named ``no_result`` in
+        the variable's ``flag_meanings`` (see :func:`no_result_code`).
     """
     pts = [None if p is None else _strip(p, spec) for p in points]
     names, template = [], {}
@@ -339,11 +341,13 @@ def assemble(spec: SweepSpec, points: list, attrs: dict) -> xr.Dataset:
     reason = np.full(shape, "not computed yet", dtype=object)
     sample_x = np.full(shape, np.nan)
     arrays = {}
+    fills = {}
     for name in names:
         var = template[name]
         full = shape + tuple(sizes[d] for d in var.dims)
         if var.dtype == np.int8:
-            arrays[name] = np.full(full, NO_RESULT, dtype=np.int8)
+            fills[name] = no_result_code(var.attrs.get("flag_values"))
+            arrays[name] = np.full(full, fills[name], dtype=np.int8)
         else:
             arrays[name] = np.full(full, np.nan, dtype=np.float64)
     for k, p in enumerate(pts):
@@ -379,7 +383,10 @@ def assemble(spec: SweepSpec, points: list, attrs: dict) -> xr.Dataset:
         var = template[name]
         a = dict(var.attrs)
         if var.dtype == np.int8 and "flag_values" in a:
-            a.update(flag_values=np.array([NO_RESULT, 0, 1], dtype=np.int8), flag_meanings="no_result false true")
+            values = [int(v) for v in np.ravel(a["flag_values"])]
+            meanings = str(a.get("flag_meanings", "")).split()
+            a.update(flag_values=np.array([int(fills[name])] + values, dtype=np.int8),
+                     flag_meanings=" ".join(["no_result"] + meanings))
         data[name] = (dims + var.dims, arrays[name], a)
     coords = {}
     if spec.mode == "zip":
@@ -397,6 +404,18 @@ def assemble(spec: SweepSpec, points: list, attrs: dict) -> xr.Dataset:
     out.attrs["n_failed"] = int(np.sum((status != STATUS["ok"]) & (status != STATUS["not_computed"])))
     out.attrs["n_not_computed"] = int(np.sum(status == STATUS["not_computed"]))
     return out
+
+
+def no_result_code(flag_values=None) -> np.int8:
+    """The int8 value that marks "no result" in a variable with these ``flag_values``.
+
+    :data:`NO_RESULT` (-1) for the 0/1 flags; for a coded variable that uses -1 itself
+    (``block_side``: -1 = blocked leftward) the first value below its codes.
+    """
+    values = [int(v) for v in np.ravel(flag_values)] if flag_values is not None else []
+    if int(NO_RESULT) not in values:
+        return NO_RESULT
+    return np.int8(min(values) - 1)
 
 
 def _strip(p: xr.Dataset, spec: SweepSpec) -> xr.Dataset:

@@ -136,3 +136,72 @@ def test_info_of_a_missing_file(tmp_path, capsys):
     # exit 2 with the reason, no traceback (cable.cli docstring)
     assert main(["info", str(tmp_path / "nothing.nc")]) == EXIT_INPUT
     assert "not found" in capsys.readouterr().err
+
+
+def test_traces_cli_draws_ionic_currents(tmp_path, capsys):
+    # --currents recomputes the model's currents from the stored states (all of them needed)
+    path = tmp_path / "all.nc"
+    case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=3.0)
+    case["output"] = {"every": 0.05, "states": ["m", "h", "n"]}
+    cable.simulate(case, output=path).close()
+    out = tmp_path / "currents.png"
+    assert main(["traces", str(path), "--at", "0.5cm", "--currents", "I_Na", "I_K", "-o", str(out)]) == EXIT_OK
+    assert out.read_bytes()[:8] == SIGNATURES[".png"]
+    assert main(["traces", str(path), "--currents", "I_Nx", "-o", str(out)]) == EXIT_INPUT
+    assert "Did you mean 'I_Na'" in capsys.readouterr().err
+
+
+@pytest.fixture(scope="module")
+def threshold_result(tmp_path_factory):
+    # single-cell strength-duration of the HH membrane: cheap, and a protocol result, not a run
+    case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=5.0)
+    ds = cable.strength_duration(case, [0.5, 2.0], mode="cell", tolerance=0.05)
+    path = tmp_path_factory.mktemp("proto") / "sd.nc"
+    cable.io.netcdf.write_dataset(ds, path)
+    return path
+
+
+def test_info_summarises_a_protocol_result(threshold_result, capsys):
+    # the summary of a protocol file is its command's table, not a run summary of nothing
+    assert main(["info", str(threshold_result)]) == EXIT_OK
+    out = capsys.readouterr().out
+    assert "strength-duration (cell)" in out and "Lapicque" in out and "Weiss" in out
+    assert "single cell (no fibre)" not in out and "beats: none" not in out
+
+
+def test_rerun_refuses_what_is_not_a_run(threshold_result, capsys):
+    # a protocol result holds a case but not one run: rerunning it as a run could only "differ"
+    assert main(["rerun", str(threshold_result)]) == EXIT_INPUT
+    err = capsys.readouterr().err
+    assert "strength-duration protocol result, not the result of one run" in err
+
+
+def test_info_of_a_sweep_counts_only_real_flags(tmp_path, capsys):
+    # cable.sweep.store: -1 marks a point without a result; it is neither captured nor blocked
+    from cable.sweep import store
+
+    case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=4.0)
+    case["sweep"] = {"membrane.scale.g_Na": [1.0, 0.5]}
+    spec = cable.load_case(case).extra["sweep"]
+    ok = cable.simulate(cable.load_case({k: v for k, v in case.items() if k != "sweep"}))
+    points = [store.label(store.point_dataset(ok, False), spec, 0),
+              store.label(store.failed_dataset("numerical_failure", "NaN at t = 1 ms"), spec, 1)]
+    path = tmp_path / "sweep.nc"
+    cable.io.netcdf.write_dataset(store.assemble(spec, points, {"model": "hodgkin-huxley-1952"}), path)
+    assert main(["info", str(path)]) == EXIT_OK
+    out = capsys.readouterr().out
+    assert "beats: 1 of 1 captured, 0 blocked (1 without a result)" in out
+    assert "1 ok, 1 numerical_failure" in out
+
+
+def test_info_names_the_conduction_pattern_of_a_train(tmp_path, capsys):
+    # cases/ischaemic_zone.toml (our scenario, tests/test_regions.py): every other beat blocks in
+    # the zone; the summary names the ratio as "2:1" (common practice)
+    from pathlib import Path
+
+    case_path = Path(__file__).resolve().parents[2] / "cases" / "ischaemic_zone.toml"
+    path = tmp_path / "zone.nc"
+    assert main(["run", str(case_path), "-o", str(path), "-q", "--set", "stimulus.0.count=4",
+                 "--set", "run.duration=2000"]) == EXIT_OK
+    assert main(["info", str(path)]) == EXIT_OK
+    assert "conduction pattern (stimuli : beats through the whole fibre): 2:1" in capsys.readouterr().out

@@ -181,3 +181,17 @@ def test_charge_balance_tracker_and_the_ionic_reading():
     for q in runs.values():
         assert q["tracker"] == pytest.approx((q["c"] + q["out"]) / q["in"], rel=TRACKER_TOLERANCE)
         assert (q["c"] + q["out"]) / q["in"] > 1.3
+
+
+def test_a_one_node_control_volume_is_warned_about():
+    # module doc: SF - 1 is roughly the control volume's own capacitive charge over the charge
+    # through it, so a control volume of one node gives ~1 whatever the tissue (derived)
+    case = fibre(length=0.3, duration=5.0, dx=0.02)
+    del case["fiber"]["cell_length"], case["fiber"]["gap_junction_conductance"]
+    notes = []
+    cable.simulate(case, info=notes.append)
+    assert any("control volume (0.01 cm) holds one node" in n for n in notes), notes
+    case["fiber"]["dx"] = 0.005
+    notes = []
+    cable.simulate(case, info=notes.append)
+    assert not any("holds one node" in n for n in notes)

@@ -248,3 +248,77 @@ def test_sweep_plots_differ_when_the_data_differ():
     *_, a = render(draw(ds))
     *_, b = render(draw(other))
     assert np.mean(np.any(np.abs(a - b) > 8, axis=-1)) > 0.005
+
+
+def test_sweep_plot_does_not_mark_points_without_a_result():
+    # cable.sweep.store: a failed or not computed point has blocked = captured = -1 ("no_result");
+    # it is neither a block nor a failed capture and gets no mark
+    ds = sweep_dataset()
+    ds["blocked"][2, 0, :] = -1
+    ds["captured"][2, 0, :] = -1
+    ax = Figure().add_subplot()
+    cable.plot.sweep(ds, "conduction_velocity", "g_Na", ax, hue="temperature", select={"beat": 0})
+    marked = sorted(float(v) for ln in ax.get_lines() if ln.get_linestyle() == "None" for v in ln.get_xdata())
+    assert marked == [0.2, 0.2]   # the block (18.5 degC) and the no-capture (6.3 degC) of g_Na 0.2 only
+
+
+def test_map_legend_stays_within_a_narrow_map(normal):
+    # common practice: a legend wider than its axes would squeeze the map (constrained layout
+    # makes room beside it); on a single-column figure the legend takes fewer columns instead
+    region = '\n[[region]]\nstart = 0.5\nend = 1.0\nborder = 0.1\nscale = {g_Na = 0.5}\n'
+    ds = normal.copy()
+    ds.attrs = dict(normal.attrs, case=normal.attrs["case"] + region)
+    fig = Figure(figsize=(8.5 / 2.54, 6.5 / 2.54), dpi=100, layout="constrained")
+    FigureCanvasAgg(fig)
+    ax = fig.add_subplot()
+    cable.plot.space_time(ds, ax, isochrones=1.0, time_axis="y")
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    legend = ax.get_legend().get_window_extent(renderer)
+    assert legend.width <= ax.get_window_extent(renderer).width + 1.0   # [pixels], rounding
+    assert ax.get_window_extent(renderer).width > 0.4 * fig.bbox.width  # the map keeps its room
+
+
+def test_traces_of_ionic_currents_follow_the_model(tmp_path):
+    # Hodgkin & Huxley 1952 (J Physiol 117:500, eq. 3): I_Na = g_Na m^3 h (V - E_Na), recomputed
+    # here from the stored states with the model's default parameters (float32 samples, hence rtol)
+    case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=3.0)
+    case["output"] = {"every": 0.05, "states": ["m", "h", "n"]}
+    path = tmp_path / "axon.nc"
+    cable.simulate(case, output=path).close()
+    model = cable.get_model("hodgkin-huxley-1952")
+    g_na, e_na = model.parameter("g_Na").default, model.parameter("E_Na").default
+    with cable.open_result(path) as ds:
+        fig = Figure(figsize=(4, 6))
+        axes = fig.subplots(3, 1, sharex=True)
+        out = cable.plot.traces(ds, [0.5], list(axes), states=["h"], currents=["I_Na"])
+        drawn = out[2].get_lines()[0].get_ydata()
+        at = ds.sel(x=0.5)
+        v, m, h = (at[k].values.astype(float) for k in ("vm", "state_m", "state_h"))
+        np.testing.assert_allclose(drawn, g_na * m**3 * h * (v - e_na), rtol=1e-9, atol=1e-9)
+        assert out[2].get_ylabel().startswith("I_Na") and "uA/cm^2" in out[2].get_ylabel()
+        assert drawn.min() < -100.0   # the upstroke's inward sodium current (HH 1952, Fig. 17; from memory)
+        with pytest.raises(cable.CaseError, match="Did you mean 'I_Na'"):
+            cable.plot.traces(ds, [0.5], list(axes), currents=["I_Nx"])
+    short = tmp_path / "short.nc"
+    case["output"]["states"] = ["h"]
+    cable.simulate(case, output=short).close()
+    with cable.open_result(short) as ds, pytest.raises(cable.CaseError, match=r"does not store m, n"):
+        cable.plot.traces(ds, [0.5], list(axes), currents=["I_Na"])
+
+
+def test_sweep_marks_sit_below_every_value():
+    # the block / no-capture marks say "no value"; drawn among the values they would read as
+    # values (common practice), so the curves must all lie above the rows of marks
+    from cable.plot.sweeps import FOOT_GAP, FOOT_ROW
+
+    ds = sweep_dataset()
+    ax = Figure().add_subplot()
+    cable.plot.sweep(ds, "conduction_velocity", "g_Na", ax, hue="temperature", select={"beat": 0})
+    lo, hi = ax.get_ylim()
+    low = float(np.nanmin(ds["conduction_velocity"].isel(beat=0).values))
+    rows = ds.sizes["temperature"]
+    marks = [ln for ln in ax.get_lines() if ln.get_linestyle() == "None"]
+    top_mark = max(float(np.max(ln.get_ydata())) for ln in marks)      # axes fraction
+    assert (low - lo) / (hi - lo) > top_mark
+    assert (low - lo) / (hi - lo) >= FOOT_GAP + FOOT_ROW * rows - 1e-9

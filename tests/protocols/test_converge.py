@@ -137,3 +137,26 @@ def test_cli_converge_and_run_certify(tmp_path):
     run = cable_cli("run", str(case), "--certify", "-q")
     assert run.returncode == 0, run.stderr
     assert "convergence certificate" in run.stdout and "WARNING" in run.stdout
+
+
+def test_numerical_block_on_the_two_coarsest_grids_is_reported():
+    # Keener 1987 (from memory): the outcome settles once the grid is fine enough. When the
+    # case's grid and the next block but the finest conducts, the block is still numerical,
+    # and the certificate names the coarsest grid that conducts. (Rows as _measure makes them.)
+    from cable.protocols import _pacing
+    from cable.protocols.converge import _result
+
+    case = cable.load_case(hh_axon())
+    site = _pacing.stimulus_site(case, "test")
+    rows = [{"dx": 0.04 / 2 ** k, "dt": 0.01 / 4 ** k, "cv": cv, "apd": apd, "propagated": prop}
+            for k, (cv, apd, prop) in enumerate([(float("nan"), float("nan"), False),
+                                                 (float("nan"), float("nan"), False), (18.8, 0.74, True)])]
+    ds = _result(case, rows, "dt/dx^2", -1, site)
+    assert ds.attrs["numerical_block"] == 1
+    assert "succeeds on every grid from dx = 0.01 cm down" in ds.attrs["warning"]
+    assert "(and at dx = 0.02 cm)" in ds.attrs["warning"]
+    # the finest grid blocking again: not settled, so not called numerical
+    rows[2]["propagated"] = False
+    rows[1].update(cv=18.9, apd=0.74, propagated=True)
+    ds = _result(case, rows, "dt/dx^2", -1, site)
+    assert ds.attrs["numerical_block"] == 0 and "propagation differs" in ds.attrs["notes"]

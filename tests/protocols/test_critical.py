@@ -153,3 +153,21 @@ def test_cli_prints_bracket_runs_and_cv(tmp_path, capsys):
     rc = main(["critical", str(path), "--vary", "region.0.scale.G_Na", "--between", "0.5", "1", "-q"])
     err = capsys.readouterr().err
     assert rc == 2 and "does not straddle block" in err
+
+
+def test_loss_of_capture_is_not_called_block():
+    # Varying the stimulus itself: below threshold the stimulus does not excite (captured = 0);
+    # the transition found is excitation, which the result must say is not conduction block.
+    case = {"membrane": {"model": "hodgkin-huxley-1952", "temperature": 18.5},
+            "fiber": {"length": 1.0, "dx": 0.02, "radius": "238 um", "axial_resistivity": "35.4 ohm*cm"},
+            "stimulus": [{"amplitude": 1000.0, "duration": 0.2, "width": 0.1}],
+            "numerics": {"dt": 0.01}, "run": {"duration": 4.0}, "output": {"every": 0.5}}
+    res = find_critical(case, "stimulus.0.amplitude", 10.0, 1000.0, tolerance=50.0)
+    assert res.attrs["Conventions"].startswith("CF-") and res.attrs["protocol"] == "critical-value search"
+    assert "loss of capture, not conduction block" in res.attrs["note"]
+    from cable.cli.critical import summarise
+
+    assert "note: at the failing end" in summarise(res)
+    # a block inside a region is not loss of capture: no note
+    assert "note" not in find_critical(lr1_region(dx=0.01), "region.0.scale.G_Na", 0.0, 1.0,
+                                       tolerance=0.1).attrs

@@ -160,3 +160,20 @@ def test_cli_threshold_writes_result(tmp_path):
     assert "rheobase" in res.stdout and out.exists()
     bad = cable_cli("threshold", str(case), "--durations", "0.2", "--tolerance", "0.7")
     assert bad.returncode == 2 and "tolerance" in bad.stderr
+
+
+def test_result_file_is_cf_clean(strand, tmp_path):
+    # CF 1.10 (Eaton et al. 2022), 2.6.1 Conventions, 3.1 units udunits reads, 3.2 long_name
+    import netCDF4
+
+    from cable.io.netcdf import write_dataset
+
+    path = tmp_path / "sd.nc"
+    write_dataset(strand, path)
+    cf_units = pytest.importorskip("cf_units")
+    with netCDF4.Dataset(path) as nc:
+        assert nc.getncattr("Conventions").startswith("CF-")
+        for name, var in nc.variables.items():
+            assert "long_name" in var.ncattrs(), name
+            if "units" in var.ncattrs():
+                cf_units.Unit(var.getncattr("units"))

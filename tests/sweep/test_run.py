@@ -235,3 +235,25 @@ def test_cv_falls_with_g_na_in_a_cardiac_strand(client):
     }
     ok, cv = cv_falls(cable.sweep(case, client=client, progress=False), "G_Na")
     assert ok, cv
+
+
+def test_first_on_worker_tracks_the_loop_the_run_uses():
+    # At the model's own 6.3 degC nothing is settled before the run, so only the loop the run
+    # uses gets loaded (the HH model's fast path); in a fresh process the first point reports
+    # the load and the second does not (common practice: compile once per process).
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    script = (
+        "import json, sys\n"
+        "sys.path.insert(0, sys.argv[1])\n"
+        "from conftest import hh_axon_case\n"
+        "from cable.sweep.run import run_point\n"
+        "case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=3.0)\n"
+        "case['membrane']['temperature'] = 6.3\n"
+        "print(json.dumps([run_point(case, False)[1]['first_on_worker'] for _ in range(2)]))\n")
+    tests = Path(__file__).resolve().parents[1]
+    out = subprocess.run([sys.executable, "-c", script, str(tests)], capture_output=True, text=True, timeout=300)
+    assert out.returncode == 0, out.stderr
+    assert out.stdout.strip().splitlines()[-1] == "[true, false]"

@@ -123,3 +123,30 @@ def test_registration_needs_no_sweep_import_and_no_dask():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert out.returncode == 0, out.stderr
     assert out.stdout.split() == ["2", "False"]
+
+
+def test_region_keys_get_canonical_coordinates():
+    # region.N.start/end/border are lengths (cable.regions.REGION_KEYS), region.N.scale.X a factor,
+    # region.N.parameters.X in the model parameter's unit: 1 mm = 0.1 cm (SI prefixes)
+    case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=4.0)
+    case["region"] = [{"start": 0.2, "end": 0.4, "scale": {"g_Na": 0.5}}]
+    case["sweep"] = {"region.0.end": ["4 mm", "5 mm"], "region.0.scale.g_Na": [0.5, 0.25],
+                     "region.0.parameters.E_K": ["-80 mV", "-70 mV"]}
+    axes = {a.key: a for a in load_case(case).extra["sweep"].axes}
+    end = axes["region.0.end"]
+    np.testing.assert_allclose(end.coord, [0.4, 0.5], rtol=1e-12)
+    assert end.units == "cm" and end.coord.dtype.kind == "f"
+    assert axes["region.0.scale.g_Na"].units == "1"
+    np.testing.assert_allclose(axes["region.0.parameters.E_K"].coord, [-80.0, -70.0])
+    assert axes["region.0.parameters.E_K"].units == "mV"
+
+
+def test_a_bad_swept_value_is_named_once():
+    # house style: the message names the key and the value (once), and what is allowed
+    case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=4.0)
+    case["region"] = [{"start": 0.2, "end": 0.4, "scale": {"g_Na": 0.5}}]
+    case["sweep"] = {"region.0.end": ["4 mm", "20 mm"]}
+    with pytest.raises(CaseError) as info:
+        load_case(case)
+    text = str(info.value)
+    assert "outside the fibre" in text and text.count("region.0.end") == 1, text
