@@ -1,24 +1,41 @@
 """Many independent strands in one kernel call: :func:`simulate_batch`.
 
-The strands of a batch are laid end to end as one long strand. Every strand has
-sealed ends (no coupling out of its first and last node), so the diffusion matrix of
-the whole is block diagonal and each strand evolves as it would alone: the batch
-gives each case the result of ``cable.simulate(case)`` to rounding (checked in
-``tests/kernels/test_batch.py``). What is shared is the per-call and per-step work:
-one time loop, one table, one APD tracker, one set of Python calls per output
-interval, instead of one each per strand.
+Each strand of a batch has sealed ends (no coupling out of its first and last node),
+so it evolves as it would alone. The batch makes that exact, not just true to
+rounding: every strand is computed with the same floating-point operations, in the
+same order, as ``cable.simulate(case)`` performs for it, so its fields and
+measurements are bitwise those of the separate run (checked with ``np.array_equal``
+in ``tests/kernels/test_batch.py``). What is shared is the per-call and per-step
+work: one time loop, one table, one APD tracker, one set of Python calls per output
+interval, instead of one each per strand. How:
 
-Cases are batched together when their time loop is the same: model, ``numerics``
-(dt, splitting, diffusion, gating, merged half steps, rates), run duration, output
-interval, activation threshold, APD levels and capacitance; the grids, parameters,
-stimuli and initial states may all differ. Other cases form other batches. A case
+* diffusion: each strand with the factors it has alone (``diffusion.factor``) and the
+  operations of ``diffusion.diffuse``; strands of one length on the fast path are
+  stored interleaved and solved side by side (``diffusion.diffuse_interleaved``, in
+  the single-strand loop ``fused.advance_fast`` with ``strands`` > 1), others laid end
+  to end, each solved on its own slice (``fused.advance_fast_segments``, and
+  ``fused.advance_segments`` on the reference path);
+* reaction, stimulus, probes and the APD tracker act node by node, with the same
+  arithmetic whatever the node's place in the batch (the pulse table keeps each
+  strand's pulses in its own order);
+* each case is prepared (grid, parameters, settling or pre-pacing, pulses) by
+  ``cable.simulate.prepare``, as alone.
+
+Cases are batched together when everything their time loop depends on is the same
+(:func:`group_key`): model, ``numerics`` (dt, splitting, diffusion, gating, merged
+half steps, rates), output interval and count, activation threshold, APD levels,
+stored states, ion scale (capacitance), crossings stored per node, and the rate table
+(tabulated rates: the values of the table's parameters, ``FastPath.table_parameters``,
+so that the batch's one table is the table each case builds alone). Grids,
+conductances, region parameters, stimuli and initial states may all differ. A case
 that asks for what the batch does not do (``measure.safety_factor``) runs alone.
 """
 
 from __future__ import annotations
 
-import copy
+import functools
 import time as _time
+from types import SimpleNamespace
 
 import numpy as np
 
@@ -27,12 +44,67 @@ import numpy as np
 MAX_BATCH_NODES = 2_000_000
 
 
-def _key(setup) -> tuple:
+def crossing_cap(setup) -> int:
+    """Threshold crossings stored per node, as ``cable.simulate`` sizes them for this case."""
+    from cable.simulate import MAX_CROSSINGS
+
+    return max(16, min(2 * setup.pulses.shape[0] + 8, MAX_CROSSINGS))
+
+
+def _rates_key(setup) -> tuple:
+    """What decides the reaction path and table of a case (as ``tables.plan`` decides)."""
+    from cable.kernels import tables
+
+    model = setup.model
+    fast = model.fast
+    rates = setup.case.numerics.rates
+    if rates == "reference" or fast is None:
+        return ("reference",)
+    if rates == "exact" or fast.build_table is None:
+        return ("exact",)
+    columns = [model.parameter_names.index(name) for name in fast.table_parameters]
+    if not tables.uniform_columns(setup.p, columns):
+        return ("exact", "table parameters differ between nodes")
+    # the bits of the values the table is built from (FastPath.table_parameters)
+    return ("tabulated", np.asarray(setup.p[0, columns], dtype=np.float64).tobytes())
+
+
+def group_key(setup) -> tuple | None:
+    """The key under which a prepared case shares a time loop; None: it runs alone.
+
+    Parameters
+    ----------
+    setup : cable.simulate.Setup
+        From :func:`cable.simulate.prepare`.
+    """
+    if getattr(setup, "safety", None) is not None:
+        return None
     case = setup.case
     num = case.numerics
     return (setup.model.name, num.dt, num.splitting, num.diffusion, num.gating, num.merge_half_steps,
             num.rates, setup.steps_per_sample, setup.n_samples, setup.threshold, tuple(case.apd_levels),
-            setup.ion_scale, tuple(case.output_states))
+            setup.ion_scale, tuple(case.output_states), crossing_cap(setup), _rates_key(setup))
+
+
+def loop_key(case) -> tuple:
+    """A coarse :func:`group_key` computed from a loaded case alone (no preparation).
+
+    Cases that share a time loop have equal loop keys (except where two different
+    ``output.every`` or ``run.duration`` values round to the same step counts, or a
+    threshold given equals the model's default), so a caller can split its cases by
+    this key before sending each part to :func:`simulate_batch` (which still groups
+    them by :func:`group_key`) and lose no batching in practice.
+
+    Parameters
+    ----------
+    case : cable.case.Case
+    """
+    num = case.numerics
+    cm = case.fiber.capacitance if case.fiber is not None else 1.0
+    alone = bool(case.raw.get("measure", {}).get("safety_factor", False)) and case.fiber is not None
+    return (case.membrane.model, num.dt, num.splitting, num.diffusion, num.gating, num.merge_half_steps,
+            num.rates, case.output_every, case.duration, case.threshold, tuple(case.apd_levels),
+            tuple(case.output_states), cm, alone)
 
 
 def simulate_batch(cases, *, errors: str = "raise") -> list:
@@ -43,45 +115,53 @@ def simulate_batch(cases, *, errors: str = "raise") -> list:
     cases : sequence of (str, pathlib.Path, dict or Case)
         The cases, as :func:`cable.simulate` takes them.
     errors : {"raise", "return"}
-        On a numerical failure: raise the first :class:`cable.SimulationError`, or
-        return it in the failed case's place.
+        On an invalid case or a numerical failure: raise the first
+        :class:`cable.CaseError` (before anything runs) or
+        :class:`cable.SimulationError`, or return the exception in that case's place
+        (the other cases run).
 
     Returns
     -------
-    list of xarray.Dataset
-        One result per case, in order, as :func:`cable.simulate` gives it (the
-        ``wall_time_s`` attribute is the batch's wall time divided among its strands
-        by node count, and ``batch_size`` says how many strands shared the loop).
+    list of xarray.Dataset (or exceptions, with ``errors="return"``)
+        One result per case, in order: the Dataset :func:`cable.simulate` gives for it,
+        with the same values bit for bit and the same attributes, except
+        ``wall_time_s`` (the batch's loop time shared among its strands by node count)
+        and ``batch_size`` (how many strands shared the loop).
 
     Raises
     ------
     CaseError
-        An invalid case (nothing is run).
+        With ``errors="raise"``, an invalid case (nothing is run).
     SimulationError
         With ``errors="raise"``, the first failure. A batch in which any strand fails
-        is rerun strand by strand, so that each failure is that case's own.
+        is rerun strand by strand, so that each failure (and its partial result) is
+        that case's own.
     """
+    from cable.case import CaseError
     from cable.simulate import SimulationError, prepare, simulate
 
     if errors not in ("raise", "return"):
         raise ValueError(f"errors = {errors!r}: allowed values are 'raise' and 'return'.")
-    setups = [prepare(c) for c in cases]
-    out: list = [None] * len(setups)
+    out: list = [None] * len(cases)
+    setups: dict = {}
+    for i, case in enumerate(cases):
+        try:
+            setups[i] = prepare(case)
+        except CaseError as exc:
+            if errors == "raise":
+                raise
+            out[i] = exc
     groups: dict = {}
-    for i, setup in enumerate(setups):
-        if getattr(setup, "safety", None) is not None:
-            groups.setdefault(("alone", i), []).append(i)
-            continue
-        key = _key(setup)
+    for i, setup in setups.items():
+        key = group_key(setup)
+        key = ("alone", i) if key is None else key
         members = groups.setdefault(key, [])
         if members and sum(setups[j].n for j in members) + setup.n > MAX_BATCH_NODES:
             key = key + (i,)
             members = groups.setdefault(key, [])
         members.append(i)
-    for key, members in groups.items():
-        results = None
-        if len(members) > 1:
-            results = _run_batch([setups[i] for i in members])
+    for members in groups.values():
+        results = _run_batch([setups[i] for i in members]) if len(members) > 1 else None
         if results is None:       # a single case, or a batch with a failure: one by one
             results = []
             for i in members:
@@ -96,15 +176,6 @@ def simulate_batch(cases, *, errors: str = "raise") -> list:
     return out
 
 
-def _tracker_slice(tracker, sl, n_total):
-    """A view of an ApdTracker restricted to the nodes ``sl``."""
-    part = copy.copy(tracker)
-    for name, value in vars(tracker).items():
-        if isinstance(value, np.ndarray) and value.ndim >= 1 and value.shape[0] == n_total:
-            setattr(part, name, value[sl])
-    return part
-
-
 def _layout(setups, fast: bool):
     """(interleaved, slices): where each strand's nodes lie in the batch arrays.
 
@@ -114,7 +185,7 @@ def _layout(setups, fast: bool):
     """
     sizes = [s.n for s in setups]
     count = len(setups)
-    if fast and len(set(sizes)) == 1 and sizes[0] > 1:
+    if fast and len(set(sizes)) == 1:
         return True, [slice(j, None, count) for j in range(count)]
     offsets = np.concatenate([[0], np.cumsum(sizes)]).astype(int)
     return False, [slice(int(offsets[j]), int(offsets[j + 1])) for j in range(count)]
@@ -130,7 +201,8 @@ def _place(parts, slices, n):
 
 
 def _pulses(setups, slices, n):
-    """The batch's pulse table: each strand's pulses on its own nodes."""
+    """The batch's pulse table: each strand's pulses on its own nodes, in its own order
+    (the sort by onset is stable and each strand's table is sorted already)."""
     rows = []
     index = np.arange(n)
     for setup, sl in zip(setups, slices):
@@ -145,13 +217,32 @@ def _pulses(setups, slices, n):
     return np.ascontiguousarray(pulses[np.argsort(pulses[:, 0], kind="stable")])
 
 
+@functools.lru_cache(maxsize=None)
+def _segments_integrator(model_name: str, fast: bool):
+    """The time loop of strands laid end to end (fast or reference path), per model."""
+    from cable.kernels import fused
+    from cable.kernels.jit import specialise
+    from cable.membrane import get_model
+
+    model = get_model(model_name)
+    if fast:
+        return specialise(fused.advance_fast_segments, model.name, vector=True, fast_reaction=model.fast.kernel)
+    return specialise(fused.advance_segments, model.name, reaction=model.reaction)
+
+
+def _tracker_part(tracker, sl):
+    """The per-node arrays of an ApdTracker restricted to the nodes ``sl`` (contiguous)."""
+    return SimpleNamespace(levels=tracker.levels, tprev=tracker.tprev,
+                           **{name: np.ascontiguousarray(getattr(tracker, name)[sl])
+                              for name in ("seen", "phase", "vmin", "rest", "peak", "repol", "vprev")})
+
+
 def _run_batch(setups):
-    """The strands of ``setups`` in one time loop; None if any strand failed."""
+    """The strands of ``setups`` (one group key) in one time loop; None if any failed."""
     from cable.io import schema
     from cable.kernels import diffusion, integrate, tables
     from cable.measure.apd import ApdTracker
-    from cable.simulate import (CHECK_EVERY, MAX_CROSSINGS, _fast_integrator, _integrator, assemble,
-                                measurements, provenance)
+    from cable.simulate import CHECK_EVERY, _fast_integrator, measurements, provenance
 
     first = setups[0]
     model = first.model
@@ -160,28 +251,26 @@ def _run_batch(setups):
     dt = num.dt
     n = sum(s.n for s in setups)
     gating = 0 if num.gating == "rush-larsen" else 1
-    p_parts = [np.broadcast_to(s.p, (s.n, s.p.shape[1])) for s in setups]
-    rates = tables.plan(model, np.concatenate(p_parts), dt, gating, num.rates)
+    # one table for the group: its table parameters are those of every member (group_key)
+    rates = tables.plan(model, first.p, dt, gating, num.rates)
     fast = rates.mode != "reference"
     interleaved, slices = _layout(setups, fast)
-    advance = _fast_integrator(model.name) if fast else _integrator(model.name)
+    grids = [(s.grid.lo, s.grid.up) for s in setups]
+    theta = diffusion.THETA[num.diffusion]
+    if interleaved:
+        advance = _fast_integrator(model.name)
+        factor, last = diffusion.factor_interleaved, (len(setups),)
+    else:
+        advance = _segments_integrator(model.name, fast)
+        factor = diffusion.factor_segments
+        last = (np.concatenate([[0], np.cumsum([s.n for s in setups])]).astype(np.int64),)
+    half, full = factor(grids, 0.5 * dt, theta), factor(grids, dt, theta)
     lo = _place([s.grid.lo for s in setups], slices, n)
     up = _place([s.grid.up for s in setups], slices, n)
-    p_nodes = _place(p_parts, slices, n)
+    p_nodes = _place([np.broadcast_to(s.p, (s.n, s.p.shape[1])) for s in setups], slices, n)
     pulses = _pulses(setups, slices, n)
     v = _place([s.v0 for s in setups], slices, n)
     s0 = _place([s.s0 for s in setups], slices, n)
-    theta = diffusion.THETA[num.diffusion]
-    if interleaved:
-        def factors(h):
-            parts = [diffusion.factor_thomas(s.grid.lo, s.grid.up, h, theta) for s in setups]
-            return tuple(diffusion.interleave([f[k] for f in parts]) for k in range(3))
-        strands = len(setups)
-    else:
-        def factors(h):
-            return diffusion.factor(lo, up, h, theta)
-        strands = 1
-    half, full = factors(0.5 * dt), factors(dt)
     by_state = fast and model.fast.by_state
     if by_state:
         st = np.ascontiguousarray(s0.T)
@@ -189,9 +278,9 @@ def _run_batch(setups):
     else:
         st = np.ascontiguousarray(s0)
         p = np.ascontiguousarray(p_nodes)
-    extra = (rates.table, rates.v_lo, rates.inv_dv, strands) if fast else ()
+    extra = ((rates.table, rates.v_lo, rates.inv_dv) if fast else ()) + last
     splitting = integrate.STRANG if num.splitting == "strang" else integrate.GODUNOV
-    cap = max(max(16, min(2 * s.pulses.shape[0] + 8, MAX_CROSSINGS)) for s in setups)
+    cap = crossing_cap(first)           # the same for every member (group_key)
     act = np.full((n, cap), np.nan)
     nact = np.zeros(n, dtype=np.int64)
     upstroke = np.full((n, cap), np.nan)
@@ -204,12 +293,23 @@ def _run_batch(setups):
     state_idx = [model.state_names.index(name) for name in case0.output_states]
     field_names = ["vm"] + [schema.STATE_PREFIX + name for name in case0.output_states]
     spb = first.steps_per_sample
-    fields = {name: np.empty((first.n_samples, n)) for name in field_names}
+    count = len(setups)
+    if interleaved:   # stored per strand (strand, t, node), each strand's field contiguous
+        length = n // count
+        fields = {name: np.empty((count, first.n_samples, length)) for name in field_names}
+
+        def put(name, k, values):
+            fields[name][:, k, :] = values.reshape(length, count).T
+    else:
+        fields = {name: np.empty((first.n_samples, n)) for name in field_names}
+
+        def put(name, k, values):
+            fields[name][k] = values
 
     def sample(k):
-        fields["vm"][k] = v
+        put("vm", k, v)
         for name, j in zip(field_names[1:], state_idx):
-            fields[name][k] = st[j] if by_state else st[:, j]
+            put(name, k, st[j] if by_state else st[:, j])
 
     sample(0)
     wall0 = _time.perf_counter()
@@ -225,13 +325,44 @@ def _run_batch(setups):
     wall = _time.perf_counter() - wall0
     t_end = (first.n_samples - 1) * spb * dt
     results = []
-    for setup, sl in zip(setups, slices):
-        meas = measurements(setup, act[sl], nact[sl], upstroke[sl], _tracker_slice(tracker, sl, n), t_end=t_end)
+    template = None
+    for j, (setup, sl) in enumerate(zip(setups, slices)):
+        meas = measurements(setup, np.ascontiguousarray(act[sl]), nact[sl].copy(),
+                            np.ascontiguousarray(upstroke[sl]), _tracker_part(tracker, sl), t_end=t_end)
         attrs = provenance(setup, None)
-        attrs.update(rates=rates.mode, status="complete", batch_size=len(setups),
-                     wall_time_s=round(wall * setup.n / n, 6))
-        if rates.note:
-            attrs["notes"] = "\n".join(filter(None, [attrs.get("notes", ""), rates.note]))
-        ds = assemble(setup, {name: arr[:, sl] for name, arr in fields.items()}, meas, attrs, model)
+        attrs.update(rates=rates.mode, wall_time_s=round(wall * setup.n / n, 6), status="complete",
+                     batch_size=len(setups))
+        own = {name: (arr[j] if interleaved else arr[:, sl]).copy() for name, arr in fields.items()}
+        ds = _like(template, setup, own, meas, attrs)
+        if ds is None:
+            from cable.simulate import assemble
+
+            ds = assemble(setup, own, meas, attrs, model)
+            template = (setup, ds, meas)
         results.append(ds)
     return results
+
+
+def _like(template, setup, fields, meas, attrs):
+    """The result Dataset as a copy of an earlier one of the batch with the data replaced
+    (what ``cable.simulate.assemble`` builds, without building it again: its variables,
+    coordinates and attributes are the same); None when the coordinates or shapes differ."""
+    if template is None:
+        return None
+    setup0, ds0, meas0 = template
+    if (setup.x is None) != (setup0.x is None) or (setup.x is not None and not np.array_equal(setup.x, setup0.x)):
+        return None
+    if meas.keys() != meas0.keys() or any(meas[k][0] != meas0[k][0] or np.shape(meas[k][1]) != np.shape(meas0[k][1])
+                                          for k in meas):
+        return None
+    data = {}
+    for name, arr in fields.items():
+        data[name] = arr if setup.x is not None else arr[:, 0]
+    for name, (dims, arr) in meas.items():
+        arr = np.asarray(arr)
+        data[name] = arr if setup.x is not None or "x" not in dims else np.take(arr, 0, axis=dims.index("x"))
+    if data.keys() != set(ds0.data_vars):
+        return None
+    ds = ds0.copy(deep=False, data=data)
+    ds.attrs = attrs
+    return ds

@@ -192,34 +192,16 @@ def diffuse(v, lo, up, h, theta, pivot, elim, back, work):
 
 
 # ----------------------------------------------------------------------------- batches
-# Strands of equal length stored interleaved, node i of strand j at i * S + j (S
-# strands): the eliminations of the S strands are independent, so each sweep runs
-# over i with the S strands side by side, a loop that vectorises.
-
-def factor_thomas(lo, up, h, theta):
-    """Factors of I - theta h L by the Thomas algorithm (downwards elimination only).
-
-    Returns (pivot, elim, back): x_i = w_i - back_i x_{i+1} with
-    w_i = r_i pivot_i - elim_i w_{i-1}.
-    """
-    lo = np.asarray(lo, dtype=np.float64)
-    up = np.asarray(up, dtype=np.float64)
-    n = lo.size
-    a = -theta * h * lo
-    c = -theta * h * up
-    b = 1.0 + theta * h * (lo + up)
-    pivot = np.zeros(n)
-    elim = np.zeros(n)
-    back = np.zeros(n)
-    prev = 0.0
-    for i in range(n):
-        piv = 1.0 / (b[i] - (a[i] * prev if i > 0 else 0.0))
-        pivot[i] = piv
-        elim[i] = a[i] * piv if i > 0 else 0.0
-        back[i] = c[i] * piv
-        prev = back[i]
-    return pivot, elim, back
-
+# Many independent strands in one call (cable.kernels.batch). Each strand is solved
+# with the factors that :func:`factor` gives it alone and with the floating-point
+# operations of :func:`diffuse`, in the same order per node (the strands' chains are
+# independent, so running them side by side changes no rounding): a batched strand
+# is bitwise the strand run alone. Two layouts:
+#
+# * interleaved (strands of one length): node i of strand j at i * S + j (S strands).
+#   Each row of the sweeps is a loop over the S strands, which vectorises.
+# * segments (any lengths): strand j on nodes offsets[j]..offsets[j+1]-1, each solved
+#   by :func:`diffuse` on its own slice.
 
 def interleave(arrays) -> np.ndarray:
     """Per-strand arrays of one length, as one array with node i of strand j at i*S + j."""
@@ -227,63 +209,134 @@ def interleave(arrays) -> np.ndarray:
         (-1,) + np.asarray(arrays[0]).shape[1:])
 
 
-@jit_inline
-def _row_update(w, el, w_prev):
-    # w -= el * w_prev over one row of strands
-    for j in range(w.shape[0]):
-        w[j] -= el[j] * w_prev[j]
+def factor_interleaved(grids, h, theta):
+    """The factors of each strand (:func:`factor`, as it has alone), interleaved.
+
+    Parameters
+    ----------
+    grids : sequence of (lo, up)
+        Operator coefficients of each strand [1/ms], all of one length.
+    h, theta : float
+        As for :func:`factor`.
+    """
+    parts = [factor(lo, up, h, theta) for lo, up in grids]
+    return tuple(interleave([f[k] for f in parts]) for k in range(3))
 
 
 @jit_inline
-def _row_substitute(x, w, bk, x_next):
-    # x = w - bk * x_next over one row of strands
-    for j in range(x.shape[0]):
-        x[j] = w[j] - bk[j] * x_next[j]
+def _row_first(out, v, up, v_next, e, pivot):
+    # the first row of explicit_part (and of the forward-Euler step, pivot 1)
+    for j in range(out.shape[0]):
+        out[j] = (v[j] + e * (up[j] * (v_next[j] - v[j]))) * pivot[j]
 
 
 @jit_inline
 def _row_explicit(out, v, lo, up, v_prev, v_next, e, pivot):
+    # an inner row of explicit_part
     for j in range(out.shape[0]):
         vj = v[j]
         out[j] = (vj + e * (lo[j] * (v_prev[j] - vj) + up[j] * (v_next[j] - vj))) * pivot[j]
 
 
+@jit_inline
+def _row_last(out, v, lo, v_prev, e, pivot):
+    # the last row of explicit_part
+    for j in range(out.shape[0]):
+        out[j] = (v[j] + e * (lo[j] * (v_prev[j] - v[j]))) * pivot[j]
+
+
+@jit_inline
+def _row_update(w, el, w_prev):
+    # w = w - el * w_prev over one row of strands (one elimination step)
+    for j in range(w.shape[0]):
+        w[j] = w[j] - el[j] * w_prev[j]
+
+
+@jit_inline
+def _row_substitute(x, w, bk, x_next):
+    # x = w - bk * x_next over one row of strands (one substitution step)
+    for j in range(x.shape[0]):
+        x[j] = w[j] - bk[j] * x_next[j]
+
+
 @jit_vector
 def diffuse_interleaved(v, lo, up, h, theta, pivot, elim, back, work, strands):
-    """One theta-scheme sub-step of ``strands`` interleaved strands (factors interleaved
-    from :func:`factor_thomas` of each strand). Row by row, each row a vectorised loop
-    over the strands."""
+    """One theta-scheme sub-step of ``strands`` interleaved strands of one length, in place.
+
+    Factors from :func:`factor_interleaved`. Per strand, the operations of
+    :func:`diffuse` (explicit part, elimination downwards to the middle row and
+    upwards to it, the middle row, substitution outwards) in the same order, so each
+    strand's result is bitwise its result alone; each row is a loop over the strands.
+    (Multiplying by a pivot of 1 in the forward-Euler step is exact.)
+    """
     n = v.shape[0]
-    length = n // strands
+    S = strands
+    length = n // S
     if length == 1:
         return
     e = (1.0 - theta) * h
-    S = strands
     last = (length - 1) * S
     if theta == 0.0:
         ones = np.ones(S)
-        zero = np.zeros(S)
-        _row_explicit(work[0:S], v[0:S], zero, up[0:S], v[0:S], v[S:2 * S], e, ones)
+        _row_first(work[0:S], v[0:S], up[0:S], v[S:2 * S], e, ones)
         for i in range(1, length - 1):
             r = i * S
             _row_explicit(work[r:r + S], v[r:r + S], lo[r:r + S], up[r:r + S], v[r - S:r], v[r + S:r + 2 * S],
                           e, ones)
-        _row_explicit(work[last:n], v[last:n], lo[last:n], zero, v[last - S:last], v[last:n], e, ones)
+        _row_last(work[last:n], v[last:n], lo[last:n], v[last - S:last], e, ones)
         for g in range(n):
             v[g] = work[g]
         return
-    zero = np.zeros(S)
-    _row_explicit(work[0:S], v[0:S], zero, up[0:S], v[0:S], v[S:2 * S], e, pivot[0:S])
-    for i in range(1, length - 1):
-        r = i * S
-        _row_explicit(work[r:r + S], v[r:r + S], lo[r:r + S], up[r:r + S], v[r - S:r], v[r + S:r + 2 * S],
-                      e, pivot[r:r + S])
-    _row_explicit(work[last:n], v[last:n], lo[last:n], zero, v[last - S:last], v[last:n], e, pivot[last:n])
-    for i in range(1, length):
+    if e != 0.0:
+        _row_first(work[0:S], v[0:S], up[0:S], v[S:2 * S], e, pivot[0:S])
+        for i in range(1, length - 1):
+            r = i * S
+            _row_explicit(work[r:r + S], v[r:r + S], lo[r:r + S], up[r:r + S], v[r - S:r], v[r + S:r + 2 * S],
+                          e, pivot[r:r + S])
+        _row_last(work[last:n], v[last:n], lo[last:n], v[last - S:last], e, pivot[last:n])
+    else:
+        for g in range(n):
+            work[g] = v[g] * pivot[g]
+    m = (length - 1) // 2
+    # downwards over rows 1..m-1, upwards over rows length-2..m+1 (solve's two chains)
+    for i in range(1, m):
         r = i * S
         _row_update(work[r:r + S], elim[r:r + S], work[r - S:r])
+    for i in range(length - 2, m, -1):
+        r = i * S
+        _row_update(work[r:r + S], elim[r:r + S], work[r + S:r + 2 * S])
+    # the middle row, with both neighbours substituted (in solve's order)
+    r = m * S
     for j in range(S):
-        v[last + j] = work[last + j]
-    for i in range(length - 2, -1, -1):
+        xm = work[r + j]
+        if m > 0:
+            xm -= elim[r + j] * work[r - S + j]
+        if m < length - 1:
+            xm -= back[r + j] * work[r + S + j]
+        v[r + j] = xm
+    # outwards: rows m-1..0 and m+1..length-1
+    for i in range(m - 1, -1, -1):
         r = i * S
         _row_substitute(v[r:r + S], work[r:r + S], back[r:r + S], v[r + S:r + 2 * S])
+    for i in range(m + 1, length):
+        r = i * S
+        _row_substitute(v[r:r + S], work[r:r + S], back[r:r + S], v[r - S:r])
+
+
+def factor_segments(grids, h, theta):
+    """The factors of each strand (:func:`factor`, as it has alone), laid end to end."""
+    parts = [factor(lo, up, h, theta) for lo, up in grids]
+    return tuple(np.concatenate([f[k] for f in parts]) for k in range(3))
+
+
+@jit
+def diffuse_segments(v, lo, up, h, theta, pivot, elim, back, work, offsets):
+    """One theta-scheme sub-step of strands laid end to end, each by :func:`diffuse` alone.
+
+    Strand j holds nodes ``offsets[j]`` to ``offsets[j + 1] - 1``; factors from
+    :func:`factor_segments`.
+    """
+    for j in range(offsets.shape[0] - 1):
+        a = offsets[j]
+        b = offsets[j + 1]
+        diffuse(v[a:b], lo[a:b], up[a:b], h, theta, pivot[a:b], elim[a:b], back[a:b], work[a:b])

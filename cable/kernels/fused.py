@@ -12,9 +12,15 @@ splitting, stimuli, probes and status codes; see that module for the scheme), wi
   crosses the threshold or is in an upstroke (almost every block, almost always),
   the full per-node pass (the same as ``integrate.probe``) over the others;
 * for batches of strands of one length (:mod:`cable.kernels.batch`), the strands
-  stored interleaved and their diffusion solves run side by side (``strands`` > 1);
+  stored interleaved and their diffusion solves run side by side (``strands`` > 1),
+  each strand with its own factors and its own operations: bitwise its run alone;
 * the potential checked for NaN or runaway every ``check_every`` steps, in a
   vectorised pass.
+
+Batches of strands of different lengths (and single cells) use
+``advance_fast_segments`` (each strand's diffusion solved on its own slice), and
+batches on the reference path ``advance_segments`` (``integrate.advance`` with the
+same change); both give each strand its result alone, bit for bit.
 
 Every helper it calls per step is either in the same module as its own callees or
 inlined (``jit_inline``): numba checks a cached function against its own file only,
@@ -23,13 +29,17 @@ so a cached helper calling into another file could go stale.
 
 import numpy as np
 
-from cable.kernels.diffusion import diffuse, diffuse_interleaved
-from cable.kernels.integrate import (GODUNOV, NONFINITE, OK, RUNAWAY, RUNAWAY_MV, STRANG, probe_nodes,
+from cable.kernels.diffusion import diffuse, diffuse_interleaved, diffuse_segments
+from cable.kernels.integrate import (GODUNOV, NONFINITE, OK, RUNAWAY, RUNAWAY_MV, STRANG, probe, probe_nodes,
                                      stimulus_current)
 from cable.kernels.jit import jit_inline, jit_vector
 
 
 def fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):  # bound by specialise()
+    raise NotImplementedError
+
+
+def reaction(v, s, p, i_stim, dt, ion_scale, gating):  # bound by specialise() (advance_segments)
     raise NotImplementedError
 
 
@@ -105,10 +115,9 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
     Arguments as for :func:`cable.kernels.integrate.advance`, with ``sT`` and ``pT``
     stored by state and parameter, the rate table (``table``, ``v_lo`` [mV],
     ``inv_dv`` [1/mV]; a table with no rows: exact rates), and ``strands``: 1 for one
-    strand (or strands laid end to end, factors from ``diffusion.factor``), S for S
-    strands of one length stored interleaved (factors from
-    ``diffusion.factor_thomas``, see ``diffusion.diffuse_interleaved``). Returns
-    (status, step, node).
+    strand (factors from ``diffusion.factor``), S for S strands of one length stored
+    interleaved (factors from ``diffusion.factor_interleaved``, see
+    ``diffusion.diffuse_interleaved``). Returns (status, step, node).
     """
     stim_on = True
     pv_h, el_h, bk_h = half
@@ -134,4 +143,74 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
             status, node = check(v)
             if status != OK:
                 return status, k, node
+    return OK, nsteps, -1
+
+
+def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, splitting, merge,
+                          gating, ion_scale, threshold, vprev, act, nact, pre_rate, open_up, upstroke,
+                          i_stim, work, check_every, table, v_lo, inv_dv, offsets):
+    """:func:`advance_fast` for strands laid end to end (strand j on nodes
+    ``offsets[j]`` to ``offsets[j + 1] - 1``, factors from
+    ``diffusion.factor_segments``): each strand's diffusion solved alone
+    (``diffusion.diffuse_segments``), everything else as in :func:`advance_fast`."""
+    stim_on = True
+    pv_h, el_h, bk_h = half
+    pv_f, el_f, bk_f = full
+    for k in range(nsteps):
+        t = t0 + k * dt
+        if splitting == STRANG:
+            if merge and k > 0:
+                diffuse_segments(v, lo, up, dt, theta, pv_f, el_f, bk_f, work, offsets)
+            else:
+                diffuse_segments(v, lo, up, 0.5 * dt, theta, pv_h, el_h, bk_h, work, offsets)
+        any_on = stimulus_current(t, dt, pulses, i_stim)
+        if stim_on and not any_on:
+            i_stim[:] = 0.0
+        stim_on = any_on
+        fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
+        if splitting == GODUNOV:
+            diffuse_segments(v, lo, up, dt, theta, pv_f, el_f, bk_f, work, offsets)
+        elif not merge or k == nsteps - 1:
+            diffuse_segments(v, lo, up, 0.5 * dt, theta, pv_h, el_h, bk_h, work, offsets)
+        block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke)
+        if (k + 1) % check_every == 0 or k == nsteps - 1:
+            status, node = check(v)
+            if status != OK:
+                return status, k, node
+    return OK, nsteps, -1
+
+
+def advance_segments(v, s, p, t0, nsteps, dt, pulses, lo, up, theta, half, full, splitting, merge,
+                     gating, ion_scale, threshold, vprev, act, nact, pre_rate, open_up, upstroke,
+                     i_stim, work, check_every, offsets):
+    """:func:`cable.kernels.integrate.advance` (the reference loop: the model's
+    ``reaction`` bound by specialise, states by node) for strands laid end to end,
+    each strand's diffusion solved alone as in :func:`advance_fast_segments`."""
+    stim_on = True
+    sub_h, cp_h, inv_h = half
+    sub_f, cp_f, inv_f = full
+    for k in range(nsteps):
+        t = t0 + k * dt
+        if splitting == STRANG:
+            if merge and k > 0:
+                diffuse_segments(v, lo, up, dt, theta, sub_f, cp_f, inv_f, work, offsets)
+            else:
+                diffuse_segments(v, lo, up, 0.5 * dt, theta, sub_h, cp_h, inv_h, work, offsets)
+        any_on = stimulus_current(t, dt, pulses, i_stim)
+        if stim_on and not any_on:
+            i_stim[:] = 0.0
+        stim_on = any_on
+        reaction(v, s, p, i_stim, dt, ion_scale, gating)
+        if splitting == GODUNOV:
+            diffuse_segments(v, lo, up, dt, theta, sub_f, cp_f, inv_f, work, offsets)
+        elif not merge or k == nsteps - 1:
+            diffuse_segments(v, lo, up, 0.5 * dt, theta, sub_h, cp_h, inv_h, work, offsets)
+        probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke)
+        if (k + 1) % check_every == 0 or k == nsteps - 1:
+            for i in range(v.shape[0]):
+                vi = v[i]
+                if not np.isfinite(vi):
+                    return NONFINITE, k, i
+                if abs(vi) > RUNAWAY_MV:
+                    return RUNAWAY, k, i
     return OK, nsteps, -1

@@ -4,13 +4,18 @@
 The strands are Hodgkin & Huxley (1952) axons of 101 nodes (1 cm, dx 100 um), dt 10 us,
 20 ms, output every 0.1 ms, the points of a sweep: over the stimulus amplitude (the
 membrane at its defaults) and over the sodium conductance (every point's membrane
-differs from the defaults, so ``prepare`` first settles each at its own rest). Three
-costs per strand, best of ``--repeat``:
+differs from the defaults, so ``prepare`` first settles each at its own rest), and
+over the length (0.5 to 1.5 cm, 51 to 151 nodes: strands laid end to end instead of
+interleaved, each solved on its own nodes). Three costs per strand, best of
+``--repeat``:
 
 * end to end: the wall time of all 64 results, divided by 64;
 * time loop: the loop wall time of each result (``wall_time_s``: kernel calls and the
   per-output work), summed, divided by 64;
 * kernel: the CPU time inside the compiled time loop only.
+
+It also says whether every batched result equals its separate run bit for bit
+(every data variable, ``np.array_equal``; the batch is meant to be exact).
 
 Run::
 
@@ -24,6 +29,8 @@ import argparse
 import copy
 import sys
 import time
+
+import numpy as np
 
 import cable
 from cable.kernels.batch import simulate_batch
@@ -40,6 +47,8 @@ def sweep(kind: str, count: int) -> list:
         c = copy.deepcopy(BASE)
         if kind == "amplitude":
             c["stimulus"][0]["amplitude"] = 100.0 + 900.0 * k / max(1, count - 1)
+        elif kind == "length":
+            c["fiber"]["length"] = round(0.5 + k / max(1, count - 1), 2)
         else:
             c["membrane"]["scale"] = {"g_Na": 0.6 + 0.4 * k / max(1, count - 1)}
         cases.append(cable.load_case(c))
@@ -60,27 +69,34 @@ class _KernelClock:
         return out
 
 
-def measure(cases, repeat: int) -> dict:
+def measure(cases, repeat: int) -> tuple:
     sim = sys.modules["cable.simulate"]
-    original = sim._fast_integrator
+    bat = sys.modules["cable.kernels.batch"]
+    original, original_segments = sim._fast_integrator, bat._segments_integrator
     fast = original(cases[0].membrane.model)
+    segments = original_segments(cases[0].membrane.model, True)
     best = {}
+    last = {}
     for label, run in (("separate", lambda: [cable.simulate(c) for c in cases]),
                        ("batch", lambda: simulate_batch(cases))):
         run()                                   # warm
         for _ in range(repeat):
-            clock = _KernelClock(fast)
+            clock, clock_segments = _KernelClock(fast), _KernelClock(segments)
             sim._fast_integrator = lambda _name, c=clock: c
+            bat._segments_integrator = lambda _name, _fast, c=clock_segments: c
             try:
                 t = time.perf_counter()
                 results = run()
                 wall = time.perf_counter() - t
             finally:
-                sim._fast_integrator = original
+                sim._fast_integrator, bat._segments_integrator = original, original_segments
             loop = sum(float(ds.attrs["wall_time_s"]) for ds in results)
-            row = (wall, loop, clock.total)
+            row = (wall, loop, clock.total + clock_segments.total)
             best[label] = tuple(min(a, b) for a, b in zip(best.get(label, row), row))
-    return best
+            last[label] = results
+    exact = all(np.array_equal(a[name].values, b[name].values, equal_nan=True)
+                for a, b in zip(last["separate"], last["batch"]) for name in a.data_vars)
+    return best, exact
 
 
 def main(argv=None) -> int:
@@ -89,13 +105,14 @@ def main(argv=None) -> int:
     ap.add_argument("--repeat", type=int, default=3)
     args = ap.parse_args(argv)
     n = args.strands
-    print(f"{n} strands of 101 nodes, 2000 steps each; per-strand cost [ms], best of {args.repeat}")
-    print(f"{'sweep over':>12} {'cost':>11} {'separate':>9} {'batch':>7} {'ratio':>6}")
-    for kind in ("amplitude", "g_Na"):
-        best = measure(sweep(kind, n), args.repeat)
+    print(f"{n} strands of 101 nodes (51 to 151 in the length sweep), 2000 steps each; per-strand cost [ms], "
+          f"best of {args.repeat}")
+    print(f"{'sweep over':>12} {'cost':>11} {'separate':>9} {'batch':>7} {'ratio':>6}  bitwise equal")
+    for kind in ("amplitude", "g_Na", "length"):
+        best, exact = measure(sweep(kind, n), args.repeat)
         for j, label in enumerate(("end to end", "time loop", "kernel")):
             sep, bat = best["separate"][j] / n * 1e3, best["batch"][j] / n * 1e3
-            print(f"{kind:>12} {label:>11} {sep:9.3f} {bat:7.3f} {sep / bat:6.2f}")
+            print(f"{kind:>12} {label:>11} {sep:9.3f} {bat:7.3f} {sep / bat:6.2f}  {'yes' if exact else 'NO'}")
     return 0
 
 
