@@ -123,7 +123,7 @@ def test_coupling_slows_conduction_far_more_than_excitability_before_block():
     excit_case = cells(0.6, 0.2, (0.3, 0.5), dx=0.0025, scale={"G_Na": 0.5})
     excit = find_critical(excit_case, "region.0.scale.G_Na", 0.02, 1.0, tolerance=0.005)
     # poorly coupled cells are isopotential: one node per 100 um cell (1 and 2 nodes per cell
-    # give the same critical coupling, 0.00246, and CV, 1.0 cm/s: measured, see the report)
+    # give the same critical coupling, 0.00246, and CV 5% above it, 1.2 cm/s: measured)
     coupled_case = cells(0.25, 0.05, (0.1, 0.2), duration=500.0, coupling=0.5)
     coupled = find_critical(coupled_case, "region.0.coupling", 1e-3, 1e-2, log=True, tolerance=0.05)
 
