@@ -25,6 +25,9 @@ def add_arguments(p):
                    help="sweep a case key: a list, e.g. --vary membrane.scale.g_Na=[1,0.5,0.25], or a range, "
                         "e.g. --vary 'fiber.radius={start=\"100 um\", stop=\"300 um\", num=3}' (repeatable; "
                         "adds to or replaces the case's [sweep])")
+    p.add_argument("--batch", type=int, metavar="N",
+                   help="most points per task (default 16): points that share a time loop run as the strands of "
+                        "one kernel call, with the same results bit for bit; 1 runs each point alone")
     p.add_argument("--overwrite", action="store_true", help="discard an existing result of a different sweep")
     add_set_option(p)
     p.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors (no progress bar)")
@@ -35,6 +38,7 @@ def run(args):
     from cable.case import parse_assignment
     from cable.sweep.run import sweep
 
+    _check_workers(args)
     case = load_case(args.case, args.overrides)
     if args.vary:
         raw = case.raw
@@ -46,10 +50,27 @@ def run(args):
         raw = dict(raw, sweep=table)
         case = load_case(raw)
     ds = sweep(case, output=args.output, workers=args.workers, scheduler=args.scheduler,
-               progress=not args.quiet, overwrite=args.overwrite, info=lambda m: say(args, m))
+               progress=not args.quiet, overwrite=args.overwrite, batch=args.batch, info=lambda m: say(args, m))
     if not args.quiet:
         print(summarise(ds))
     return 0
+
+
+def _check_workers(args) -> None:
+    """--workers: at least 1; on the local cluster at most one per usable core."""
+    import os
+
+    from cable.case import CaseError
+
+    if args.workers is None:
+        return
+    if args.workers < 1:
+        raise CaseError(f"--workers {args.workers}: must be a whole number of at least 1.")
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    if args.scheduler is None and args.workers > cores:
+        raise CaseError(f"--workers {args.workers}: the local cluster runs one process per core and this machine "
+                        f"has {cores}; give at most {cores}, or start a Dask scheduler with workers elsewhere and "
+                        f"pass --scheduler ADDRESS.")
 
 
 def _drop_nested(table: dict, key: str) -> None:

@@ -1,15 +1,35 @@
 """Running a sweep on Dask: a local cluster by default, an existing scheduler when given.
 
-Each point is one task, :func:`run_point`, which loads the point's case and calls
-:func:`cable.simulate` on a worker. Workers are separate processes that live for the
-whole sweep; the compiled time loop is held by the worker process once loaded
-(``cable.simulate`` keeps one specialised kernel per model, and numba's on-disk cache
-turns a fresh process's first call into a load, not a compilation), so JIT work is paid
-once per worker and model, not once per point. Every point file records whether its
-point was the first on its worker (``first_on_worker``), which the tests check.
+The missing points are split into tasks of at most ``batch`` points (a *chunk*), each
+run by :func:`run_chunk` on a worker, which loads the chunk's cases and calls
+:func:`cable.kernels.batch.simulate_batch`: points that share a time loop (same model,
+numerics, output times... see :func:`cable.kernels.batch.group_key`) run as strands of
+one kernel call, and each point's result is bitwise the one :func:`cable.simulate`
+gives for it alone (``tests/kernels/test_batch.py``; ``tests/sweep/test_run.py``).
+Before chunking, the client loads every point's case and sorts the points by
+:func:`chunk_key` (about 0.5 ms a point), so that each chunk holds points that can
+share a loop; a point whose case does not load is recorded as
+``invalid_case`` there and then, without a task. Each group of points with one key is
+cut into chunks of nearly equal size, at most ``batch`` points each, and at most
+``ceil(group / workers)``, so that a small sweep still gives every worker work (see
+:func:`chunks`). ``batch = 1`` runs one :func:`cable.simulate` per point.
 
-Results come back to the client, which writes each point's file as it arrives
-(:class:`cable.sweep.store.PointStore`), so workers need no shared file system.
+Workers are separate processes that live for the whole sweep; the compiled time loop is
+held by the worker process once loaded (numba's on-disk cache turns a fresh process's
+first call into a load, not a compilation), so JIT work is paid once per worker and
+model, not once per point or chunk. Every point file records whether its chunk loaded a
+time loop of its model into the worker process (``first_on_worker``: on a fresh worker,
+the points of its first chunk), which the tests check. The other attributes of a point
+file that describe its run: ``worker`` (host:pid; the client's for a point found
+invalid before chunking), ``batch_size`` (strands that shared its kernel call: 1 alone,
+0 not run), ``chunk`` (index of the first point of its chunk; -1: none), ``chunk_size``,
+``chunk_wall_time_s`` and ``wall_time_s`` (the chunk's wall time divided by its points)
+[s], ``overrides`` (the point's values, JSON).
+
+Results come back to the client, which writes each point's file as its chunk arrives
+(:class:`cable.sweep.store.PointStore`), so workers need no shared file system. A sweep
+interrupted while chunks run loses those chunks' points only: resume granularity is a
+chunk.
 """
 
 from __future__ import annotations
@@ -35,41 +55,165 @@ from cable.sweep.spec import point_raw
 #: how long to wait for a scheduler given by address [s]
 CONNECT_TIMEOUT_S = 10
 
+#: most points per task (``cable sweep --batch``): 16 small strands share a kernel call
+#: for most of the batch's gain (``python tools/bench_sweep.py --batch-only``)
+BATCH = 16
+
 
 # ----------------------------------------------------------------------------- worker side
-def run_point(raw: dict, keep_fields: bool) -> tuple[xr.Dataset, dict]:
-    """Run one point (on a worker).
+def run_chunk(raws: list, keep_fields: bool) -> list[tuple[xr.Dataset, dict]]:
+    """Run a chunk of points (on a worker) through :func:`cable.kernels.batch.simulate_batch`.
 
     Parameters
     ----------
-    raw : dict
-        The point's raw case (the case without ``[sweep]``, with the point's values).
+    raws : list of dict
+        The points' raw cases (the case without ``[sweep]``, with the point's values).
     keep_fields : bool
         Keep the space-time fields.
 
     Returns
     -------
-    (xarray.Dataset, dict)
-        The point's Dataset (see :func:`cable.sweep.store.point_dataset`) and a record
-        of the run: ``wall_time_s`` [s], ``worker`` (host:pid), ``first_on_worker``
-        (the model's time loop was not loaded in this process before this point).
-        Invalid cases and numerical failures are returned as failed points.
+    list of (xarray.Dataset, dict)
+        One entry per point, in order: the point's Dataset (see
+        :func:`cable.sweep.store.point_dataset`) and a record of the run:
+
+        * ``worker`` (host:pid);
+        * ``first_on_worker``: this chunk loaded a time loop of the point's model into
+          the worker process (the same for every point of the chunk);
+        * ``batch_size``: how many strands shared this point's kernel call (1: it ran
+          alone, as :func:`cable.simulate`; 0: it did not run, an invalid case);
+        * ``chunk_size``: points in the chunk;
+        * ``chunk_wall_time_s`` [s]: the chunk's wall time on the worker (loading,
+          running, keeping the results), and ``wall_time_s`` [s] its share per point
+          (that time divided by ``chunk_size``).
+
+        Invalid cases and numerical failures are returned as failed points, with the
+        message :func:`cable.simulate` gives for the point alone. An unexpected error of
+        the batch reruns the chunk point by point, so that it fails only its own point.
     """
-    from cable.simulate import SimulationError, simulate, time_loop
+    from cable.kernels.batch import simulate_batch
 
     wall0 = time.perf_counter()
-    meta = {"worker": f"{socket.gethostname()}:{os.getpid()}", "first_on_worker": False}
+    n = len(raws)
+    data: list = [None] * n
+    sizes = [0] * n
+    cases = {}
+    for i, raw in enumerate(raws):
+        try:
+            cases[i] = load_case(raw)
+        except CaseError as exc:
+            data[i] = _store.failed_dataset("invalid_case", str(exc))
+    unloaded = [fn for fn in _time_loops({(c.membrane.model, c.numerics.rates) for c in cases.values()})
+                if not fn.signatures]
+    order = list(cases)
     try:
-        case = load_case(raw)
-        # the loop this point's run uses (a model's fast path, or the reference loop)
-        meta["first_on_worker"] = not time_loop(case.membrane.model, case.numerics.rates).signatures
-        data = _store.point_dataset(simulate(case), keep_fields)
-    except CaseError as exc:
-        data = _store.failed_dataset("invalid_case", str(exc))
-    except SimulationError as exc:
-        data = _store.failed_dataset("numerical_failure", str(exc))
-    meta["wall_time_s"] = round(time.perf_counter() - wall0, 6)
-    return data, meta
+        results = simulate_batch([cases[i] for i in order], errors="return")
+    except Exception:  # a bug of the batch: each point on its own, so that it fails only itself
+        results = []
+        for i in order:
+            try:
+                results.extend(simulate_batch([cases[i]], errors="return"))
+            except Exception as exc:
+                results.append(exc)
+    for i, result in zip(order, results):
+        data[i], sizes[i] = _outcome(result, keep_fields)
+    first = any(fn.signatures for fn in unloaded)
+    wall = time.perf_counter() - wall0
+    worker = f"{socket.gethostname()}:{os.getpid()}"
+    return [(ds, {"worker": worker, "first_on_worker": first, "batch_size": size, "chunk_size": n,
+                  "chunk_wall_time_s": round(wall, 6), "wall_time_s": round(wall / n, 6)})
+            for ds, size in zip(data, sizes)]
+
+
+def run_point(raw: dict, keep_fields: bool) -> tuple[xr.Dataset, dict]:
+    """Run one point (on a worker): :func:`run_chunk` of a chunk of one."""
+    return run_chunk([raw], keep_fields)[0]
+
+
+def _outcome(result, keep_fields: bool) -> tuple[xr.Dataset, int]:
+    """A point's Dataset and batch size from what ``simulate_batch`` returned for it."""
+    from cable.simulate import SimulationError
+
+    if isinstance(result, CaseError):
+        return _store.failed_dataset("invalid_case", str(result)), 0
+    if isinstance(result, SimulationError):
+        return _store.failed_dataset("numerical_failure", str(result)), 1
+    if isinstance(result, Exception):
+        return _store.failed_dataset("error", f"{result.__class__.__name__}: {result}"), 0
+    return _store.point_dataset(result, keep_fields), int(result.attrs.get("batch_size", 1))
+
+
+def _time_loops(models: set) -> list:
+    """Every compiled time loop a run of these (model, rates) pairs may load: the single
+    strand's loops (fast path and reference, the latter also used to settle nodes) and
+    the batch's loop of strands laid end to end."""
+    from cable.kernels.batch import _segments_integrator
+    from cable.membrane import get_model
+    from cable.simulate import _fast_integrator, _integrator
+
+    loops = []
+    for name in sorted({name for name, _ in models}):
+        loops += [_integrator(name), _segments_integrator(name, False)]
+        if get_model(name).fast is not None:
+            loops += [_fast_integrator(name), _segments_integrator(name, True)]
+    return loops
+
+
+def chunk_key(case) -> tuple:
+    """The key by which points are chunked: :func:`cable.kernels.batch.loop_key` and, with
+    tabulated rates, the values of the rate table's parameters (``FastPath.table_parameters``,
+    e.g. the HH temperature), which :func:`cable.kernels.batch.group_key` also compares but
+    ``loop_key`` does not: without them a sweep over temperature would fill each chunk with
+    points that cannot share a loop.
+
+    Parameters
+    ----------
+    case : cable.case.Case
+        A loaded point.
+    """
+    from cable.kernels.batch import loop_key
+    from cable.membrane import get_model
+    from cable.simulate import node_parameters
+
+    key = loop_key(case)
+    model = get_model(case.membrane.model)
+    fast = model.fast
+    if case.numerics.rates in ("reference", "exact") or fast is None or fast.build_table is None:
+        return key
+    row = node_parameters(case, model, 1)[0]  # before regions: batch.group_key has the last word
+    return key + (tuple(float(row[model.parameter_names.index(name)]) for name in fast.table_parameters),)
+
+
+def chunks(keys: list, batch: int, workers: int) -> list[list[int]]:
+    """Split points into tasks: points of one key together, ``batch`` at most per task.
+
+    Parameters
+    ----------
+    keys : list of (int, hashable)
+        Each point's index and its grouping key (:func:`chunk_key`), in the order to run
+        them.
+    batch : int
+        Most points per task.
+    workers : int
+        Workers of the cluster: no task of a group holds more than ``ceil(group /
+        workers)`` points, so that a group of fewer than ``batch * workers`` points
+        still gives every worker a task (where it has that many points).
+
+    Returns
+    -------
+    list of list of int
+        The point indices of each task; groups in order of first appearance, each cut
+        into chunks of nearly equal size.
+    """
+    groups: dict = {}
+    for index, key in keys:
+        groups.setdefault(key, []).append(index)
+    out = []
+    for members in groups.values():
+        size = max(1, min(batch, -(-len(members) // max(1, workers))))
+        count = -(-len(members) // size)
+        out += [[int(i) for i in part] for part in np.array_split(np.array(members), count)]
+    return out
 
 
 # ----------------------------------------------------------------------------- progress
@@ -202,7 +346,7 @@ def sweep_id(case) -> str:
 
 
 def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progress=True, overrides=(),
-          overwrite: bool = False, limit: int | None = None, info=None) -> xr.Dataset:
+          overwrite: bool = False, limit: int | None = None, batch: int | None = None, info=None) -> xr.Dataset:
     """Run every point of a case's ``[sweep]`` on Dask and gather the results.
 
     Parameters
@@ -212,8 +356,9 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     client : distributed.Client, optional
         Run on this client (left open).
     output : str or pathlib.Path, optional
-        Result file (.nc). Each point is stored in ``<output>.points/`` as it finishes;
-        running the same sweep again computes only the missing points. Needed for
+        Result file (.nc). Each point is stored in ``<output>.points/`` as its chunk
+        finishes; running the same sweep again computes only the missing points (a
+        sweep interrupted loses the points of the chunks that were running). Needed for
         ``[output] keep_fields = true``.
     workers : int, optional
         Worker processes of the local cluster (default: one per core), or, with
@@ -231,6 +376,11 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     limit : int, optional
         Compute at most this many of the missing points in this call (the others are
         ``not_computed``; a later call with the same output continues).
+    batch : int, optional
+        Most points per task (default :data:`BATCH`); the points of a task that share a
+        time loop run as the strands of one kernel call
+        (:func:`cable.kernels.batch.simulate_batch`), with the same results bit for bit.
+        1: one :func:`cable.simulate` per point.
     info : callable, optional
         Receives one-line notes (cluster, resumed points, files written).
 
@@ -261,6 +411,10 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
                         "file (-o OUT.nc).")
     if limit is not None and (isinstance(limit, bool) or not isinstance(limit, int) or limit < 0):
         raise CaseError(f"limit = {limit!r}: must be a whole number of at least 0.")
+    batch = BATCH if batch is None else batch
+    if isinstance(batch, bool) or not isinstance(batch, (int, np.integer)) or batch < 1:
+        raise CaseError(f"batch = {batch!r}: must be a whole number of at least 1 (points per task; 1 runs each "
+                        f"point alone).")
     n = len(spec)
     ident = sweep_id(case)
     store = None
@@ -281,7 +435,7 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     failed_before = sum(_store.status_of(points[k]) != _store.STATUS["ok"] for k in done)
     if todo:
         _compute(spec, case.raw, todo, points, store, keep_fields, client, scheduler, workers, progress,
-                 len(done), failed_before, n, say)
+                 len(done), failed_before, n, say, int(batch))
     if store is not None:  # the result is built from the files alone: the same after a resume
         for k in todo:
             points[k] = store.read(k)
@@ -303,40 +457,62 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
 
 
 def _compute(spec, raw, todo, points, store, keep_fields, client, scheduler, workers, progress, n_done, n_failed,
-             n, say) -> None:
+             n, say, batch) -> None:
     from distributed import as_completed
 
     report = progress if callable(progress) else None
     done, failed = n_done, n_failed
+    bar = None
+
+    def keep(k, data, meta):
+        nonlocal done, failed
+        meta["overrides"] = spec.overrides(k)
+        labelled = _store.label(data, spec, k)
+        if store is not None:
+            store.write(k, labelled, _store.point_attrs(meta))
+        else:
+            points[k] = labelled
+        bad = _store.status_of(data) != _store.STATUS["ok"]
+        done, failed = done + 1, failed + bad
+        if bar is not None:
+            bar.update(bad)
+        if report is not None:
+            report(done, failed, n)
+
+    raws, keys, invalid = {}, [], []
+    for k in todo:  # on the client: the loop each point would use, to chunk points that share one
+        raws[k] = point_raw(raw, spec.overrides(k))
+        try:
+            keys.append((k, chunk_key(load_case(raws[k]))))
+        except CaseError as exc:
+            invalid.append((k, str(exc)))
     with connect(client, scheduler, workers, len(todo), say) as cl:
         bar = ProgressBar(n, n_done, n_failed) if progress is True else None
+        here = f"{socket.gethostname()}:{os.getpid()}"
+        for k, reason in invalid:  # nothing to run: recorded here
+            keep(k, _store.failed_dataset("invalid_case", reason),
+                 {"worker": here, "first_on_worker": False, "batch_size": 0, "chunk": -1, "chunk_size": 0,
+                  "chunk_wall_time_s": 0.0, "wall_time_s": 0.0})
         tag = uuid.uuid4().hex[:8]
+        n_workers = max(1, len(cl.scheduler_info().get("workers", {})))
         futures = {}
-        for k in todo:
-            fut = cl.submit(run_point, point_raw(raw, spec.overrides(k)), keep_fields, key=f"cable-point-{k}-{tag}",
+        for part in chunks(keys, batch, n_workers):
+            fut = cl.submit(run_chunk, [raws[k] for k in part], keep_fields, key=f"cable-chunk-{part[0]}-{tag}",
                             pure=False)
-            futures[fut.key] = (k, fut)
+            futures[fut.key] = (part, fut)
         try:
             for fut in as_completed([f for _, f in futures.values()]):
-                k = futures[fut.key][0]
+                part = futures[fut.key][0]
                 try:
-                    data, meta = fut.result()
+                    results = fut.result()
                 except Exception as exc:  # a worker died or a bug: record it, go on with the others
                     data = _store.failed_dataset("error", f"{exc.__class__.__name__}: {exc}")
-                    meta = {"worker": "", "first_on_worker": False, "wall_time_s": float("nan")}
+                    results = [(data, {"worker": "", "first_on_worker": False, "batch_size": 0,
+                                       "chunk_size": len(part), "chunk_wall_time_s": float("nan"),
+                                       "wall_time_s": float("nan")})] * len(part)
                 fut.release()
-                meta["overrides"] = spec.overrides(k)
-                labelled = _store.label(data, spec, k)
-                if store is not None:
-                    store.write(k, labelled, _store.point_attrs(meta))
-                else:
-                    points[k] = labelled
-                bad = _store.status_of(data) != _store.STATUS["ok"]
-                done, failed = done + 1, failed + bad
-                if bar is not None:
-                    bar.update(bad)
-                if report is not None:
-                    report(done, failed, n)
+                for k, (data, meta) in zip(part, results):
+                    keep(k, data, dict(meta, chunk=part[0]))
         except KeyboardInterrupt:
             cl.cancel([f for _, f in futures.values()])
             raise

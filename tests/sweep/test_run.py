@@ -35,12 +35,26 @@ def client():
         yield c
 
 
+#: points per task of the uninterrupted sweep: 6 points in 3 chunks on 2 workers, so that
+#: some worker runs a second chunk (and must not load the time loop again)
+WHOLE_BATCH = 2
+
+
 @pytest.fixture(scope="module")
 def uninterrupted(tmp_path_factory):
     """The HH sweep in one go, on the default local cluster of two worker processes."""
     out = tmp_path_factory.mktemp("whole") / "hh.nc"
-    ds = cable.sweep(hh_sweep_case(), output=out, workers=2, progress=False)
+    ds = cable.sweep(hh_sweep_case(), output=out, workers=2, progress=False, batch=WHOLE_BATCH)
     return out, ds
+
+
+def point_files(out):
+    """{point index: attributes} of a sweep's point files."""
+    attrs = {}
+    for f in sorted(out.with_name(out.name + ".points").glob("point-*.nc")):
+        with xr.open_dataset(f) as p:
+            attrs[int(p.attrs["point_index"])] = dict(p.attrs)
+    return attrs
 
 
 def centre_index(ref):
@@ -92,14 +106,20 @@ def test_values_equal_a_cable_run_of_the_same_point(uninterrupted, tmp_path):
 
 def test_jit_once_per_worker_not_per_point(uninterrupted):
     out, _ = uninterrupted
-    firsts = {}
-    for f in sorted(out.with_name(out.name + ".points").glob("point-*.nc")):
-        with xr.open_dataset(f) as p:
-            firsts.setdefault(p.attrs["worker"], []).append(int(p.attrs["first_on_worker"]))
-    assert sum(len(v) for v in firsts.values()) == 6
-    for worker, flags in firsts.items():
-        # a fresh worker process loads the model's time loop at its first point, never again
-        assert flags.count(1) == 1, (worker, flags)
+    attrs = point_files(out)
+    assert len(attrs) == 6
+    flagged, chunks = {}, {}
+    for a in attrs.values():
+        chunks.setdefault(a["worker"], set()).add(int(a["chunk"]))
+        if int(a["first_on_worker"]):
+            flagged.setdefault(a["worker"], set()).add(int(a["chunk"]))
+        # every point of the sweep shares its grid and loop: batched with its chunk
+        assert int(a["batch_size"]) == int(a["chunk_size"]) == WHOLE_BATCH
+    assert sum(len(c) for c in chunks.values()) == 3
+    for worker, ran in chunks.items():
+        # a fresh worker process loads the model's time loop in its first chunk, never again
+        # (common practice: compile once per process)
+        assert len(flagged.get(worker, ())) == 1, (worker, ran, flagged)
 
 
 def test_interrupted_sweep_resumes_to_the_same_result(uninterrupted, client, tmp_path):
@@ -142,7 +162,7 @@ def test_cli_uses_the_scheduler_given_and_draws_progress(client, tmp_path, capsy
     assert address.startswith("tcp://127.0.0.1:")
     rc = cli_main(["sweep", str(case_file), "-o", str(out), "--scheduler", address,
                    "--vary", "membrane.scale.g_Na=[1.0, 0.8]",
-                   "--vary", "stimulus.0.duration={start=0.2, stop=0.4, num=2}"])
+                   "--vary", "stimulus.0.duration={start=0.2, stop=0.4, num=2}", "--batch", "2"])
     captured = capsys.readouterr()
     assert rc == 0, captured.err
     assert "4/4 points, 0 failed" in captured.err and "4 points: 4 ok" in captured.out
@@ -150,6 +170,10 @@ def test_cli_uses_the_scheduler_given_and_draws_progress(client, tmp_path, capsy
     for f in out.with_name(out.name + ".points").glob("point-*.nc"):
         with xr.open_dataset(f) as p:
             assert p.attrs["worker"] == here
+            assert int(p.attrs["chunk_size"]) == int(p.attrs["batch_size"]) == 2  # --batch 2: two tasks of two
+    rc = cli_main(["sweep", str(case_file), "--scheduler", address, "--vary", "membrane.scale.g_Na=[1.0]", "-q",
+                   "--batch", "0"])
+    assert rc == 2 and "batch = 0: must be a whole number of at least 1" in capsys.readouterr().err
     rc = cli_main(["sweep", str(case_file), "--scheduler", address, "--vary", "membrane.scale.g_NA=[1.0]", "-q"])
     assert rc == 2 and "Did you mean 'g_Na'" in capsys.readouterr().err
 
@@ -237,10 +261,13 @@ def test_cv_falls_with_g_na_in_a_cardiac_strand(client):
     assert ok, cv
 
 
-def test_first_on_worker_tracks_the_loop_the_run_uses():
+@pytest.mark.parametrize("size", [1, 2])
+def test_first_on_worker_tracks_the_loop_the_run_uses(size):
     # At the model's own 6.3 degC nothing is settled before the run, so only the loop the run
-    # uses gets loaded (the HH model's fast path); in a fresh process the first point reports
-    # the load and the second does not (common practice: compile once per process).
+    # uses gets loaded (the HH model's fast path); in a fresh process every point of the first
+    # chunk (here of one point, then of two batched strands) reports the load and those of
+    # the second do not (common practice: compile once per process).
+    import json
     import subprocess
     import sys
     from pathlib import Path
@@ -249,11 +276,170 @@ def test_first_on_worker_tracks_the_loop_the_run_uses():
         "import json, sys\n"
         "sys.path.insert(0, sys.argv[1])\n"
         "from conftest import hh_axon_case\n"
-        "from cable.sweep.run import run_point\n"
+        "from cable.sweep.run import run_chunk\n"
         "case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=3.0)\n"
         "case['membrane']['temperature'] = 6.3\n"
-        "print(json.dumps([run_point(case, False)[1]['first_on_worker'] for _ in range(2)]))\n")
+        "print(json.dumps([[[m['first_on_worker'], m['batch_size']] for _, m in run_chunk([case] * int(sys.argv[2]),"
+        " False)] for _ in range(2)]))\n")
     tests = Path(__file__).resolve().parents[1]
-    out = subprocess.run([sys.executable, "-c", script, str(tests)], capture_output=True, text=True, timeout=300)
+    out = subprocess.run([sys.executable, "-c", script, str(tests), str(size)], capture_output=True, text=True,
+                         timeout=300)
     assert out.returncode == 0, out.stderr
-    assert out.stdout.strip().splitlines()[-1] == "[true, false]"
+    assert json.loads(out.stdout.strip().splitlines()[-1]) == [[[True, size]] * size, [[False, size]] * size]
+
+
+# ----------------------------------------------------------------------------- batched points
+def assert_point_equals_run(point, ref, fields=None):
+    """Every variable of a sweep point equals the separate run's, exactly (NaN equal to NaN).
+
+    ``point`` holds the scalars (x-resolved ones at ``sample_x``); ``fields``, where given,
+    the point's ``vm`` and ``state_*``. Returns the number of variables compared.
+    """
+    centre = centre_index(ref)
+    compared = 0
+    for name, var in ref.data_vars.items():
+        if "t" in var.dims:
+            if fields is None:
+                continue
+            got, expect = fields[name], var
+        else:
+            got, expect = point[name], var.isel(x=centre) if "x" in var.dims else var
+        # exact: each strand of a batch is computed with its separate run's operations, in
+        # the same order (cable/kernels/batch.py; common practice: IEEE 754 is deterministic)
+        assert np.array_equal(np.asarray(got.transpose(*expect.dims).values, dtype=expect.dtype), expect.values,
+                              equal_nan=expect.dtype.kind == "f"), name
+        compared += 1
+    assert float(point["sample_x"]) == float(ref["x"][centre])
+    return compared
+
+
+def mixed_length_case():
+    """Strands of two lengths and three sodium conductances: one loop, strands end to end."""
+    case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=3.0)
+    case["sweep"] = {"fiber.length": [1.0, 1.2], "membrane.scale.g_Na": [1.0, 0.8, 0.6]}
+    return case
+
+
+def test_batched_sweep_equals_separate_simulate_runs_exactly(client, tmp_path):
+    case = mixed_length_case()
+    case["output"]["keep_fields"] = True
+    out = tmp_path / "mixed.nc"
+    ds = cable.sweep(case, client=client, output=out, progress=False, batch=16)
+    spec = cable.load_case(case).extra["sweep"]
+    base = {k: v for k, v in case.items() if k != "sweep"}
+    attrs = point_files(out)
+    compared = 0
+    for k, over in enumerate(spec.points()):
+        assert int(attrs[k]["batch_size"]) == len(spec) == 6  # all six strands in one kernel call
+        ref = cable.simulate(cable.load_case(base, over))
+        point = ds.isel(dict(zip(spec.dims, np.unravel_index(k, spec.shape))))
+        assert int(point["status"]) == STATUS["ok"]
+        compared += assert_point_equals_run(point, ref)
+        # the point file's fields are float32 (as cable run writes them): the run's, rounded so
+        with xr.open_dataset(out.with_name(out.name + ".points") / f"point-{k:06d}.nc") as stored:
+            fields = stored.squeeze(drop=True).load()
+        np.testing.assert_array_equal(fields["vm"].values, ref["vm"].values.astype(np.float32))
+    assert compared >= 6 * 10
+    # the same chunk on the worker side, fields in full precision: every variable equal
+    chunk = sweep_run.run_chunk([sweep_run.point_raw(base, over) for over in spec.points()], True)
+    for (data, meta), over in zip(chunk, spec.points()):
+        assert meta["batch_size"] == 6 and meta["chunk_size"] == 6
+        ref = cable.simulate(cable.load_case(base, over))
+        assert assert_point_equals_run(data, ref, fields=data) == len(ref.data_vars)
+
+
+def test_a_chunk_with_an_invalid_and_a_nan_point_among_good_ones(client, tmp_path):
+    # One loop key for all five points (same numerics and output times), so one chunk: the
+    # cv_window holds 2 nodes at dx = 0.05 cm (refused when the case is prepared, not when
+    # loaded), and a 1e300 uA/cm^2 stimulus overflows the potential to NaN (IEEE 754
+    # arithmetic; common practice).
+    case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=3.0)
+    case["measure"] = {"cv_window": [0.4, 0.45]}
+    case["sweep"] = {"mode": "zip", "fiber.dx": [0.02, 0.05, 0.02, 0.02, 0.02],
+                     "stimulus.0.amplitude": [1000.0, 1000.0, 1000.0, 1e300, 1000.0],
+                     "membrane.scale.g_Na": [1.0, 1.0, 0.8, 1.0, 0.6]}
+    out = tmp_path / "mixed.nc"
+    ds = cable.sweep(case, client=client, output=out, progress=False, batch=16)
+    assert list(ds["status"].values) == [STATUS["ok"], STATUS["invalid_case"], STATUS["ok"],
+                                         STATUS["numerical_failure"], STATUS["ok"]]
+    attrs = point_files(out)
+    assert {int(a["chunk"]) for a in attrs.values()} == {0} and {int(a["chunk_size"]) for a in attrs.values()} == {5}
+    spec = cable.load_case(case).extra["sweep"]
+    base = {k: v for k, v in case.items() if k != "sweep"}
+    for k, over in enumerate(spec.points()):
+        point = ds.isel(point=k)
+        if k == 1:
+            with pytest.raises(cable.CaseError) as err:
+                cable.simulate(cable.load_case(base, over))
+        elif k == 3:
+            with pytest.raises(cable.SimulationError) as err:
+                cable.simulate(cable.load_case(base, over))
+        else:
+            assert str(point["failure_reason"].values) == ""
+            assert_point_equals_run(point, cable.simulate(cable.load_case(base, over)))
+            continue
+        # the reason is the one the point's own run gives
+        assert str(point["failure_reason"].values) == str(err.value)
+    assert "cv_window" in str(ds["failure_reason"][1].values) and "NaN" in str(ds["failure_reason"][3].values)
+    # the batch with a failing strand is rerun strand by strand (cable.kernels.batch), the
+    # invalid point never ran
+    assert [int(attrs[k]["batch_size"]) for k in range(5)] == [1, 0, 1, 1, 1]
+
+
+def test_interrupted_batched_sweep_resumes_to_the_same_result(uninterrupted, client, tmp_path):
+    whole_path, _ = uninterrupted
+    out = tmp_path / "hh.nc"
+
+    def interrupt(done, failed, total):
+        if done == 2:  # the first chunk (2 points) stored: stop, as Ctrl-C would
+            raise KeyboardInterrupt
+
+    with pytest.raises(KeyboardInterrupt):
+        cable.sweep(hh_sweep_case(), client=client, output=out, progress=interrupt, batch=2)
+    folder = out.with_name(out.name + ".points")
+    assert len(list(folder.glob("point-*.nc"))) == 2 and not out.exists()
+    calls = []
+    cable.sweep(hh_sweep_case(), client=client, output=out, batch=4,
+                progress=lambda done, failed, total: calls.append(done))
+    assert calls == [3, 4, 5, 6]  # only the missing points, in one chunk of four
+    assert {int(a["chunk_size"]) for a in point_files(out).values()} == {2, 4}
+    with xr.open_dataset(out) as on_file, xr.open_dataset(whole_path) as reference:
+        # the result file is built from the point files alone: chunking leaves no trace
+        xr.testing.assert_identical(on_file.drop_attrs(deep=False).assign_attrs(
+            {k: v for k, v in on_file.attrs.items() if k not in WHEN}),
+            reference.drop_attrs(deep=False).assign_attrs({k: v for k, v in reference.attrs.items() if k not in WHEN}))
+
+
+def test_chunks_keep_loop_groups_apart_and_feed_every_worker():
+    keys = [(0, "a"), (1, "b"), (2, "a"), (3, "a"), (4, "b"), (5, "a"), (6, "a")]
+    # common practice (task partitioning): never mix keys, at most `batch` per task
+    assert sweep_run.chunks(keys, batch=2, workers=1) == [[0, 2], [3, 5], [6], [1, 4]]
+    # one worker, batch 16: one task per group
+    assert sweep_run.chunks(keys, batch=16, workers=1) == [[0, 2, 3, 5, 6], [1, 4]]
+    # two workers: a group of five is cut in two, of nearly equal size
+    assert sweep_run.chunks(keys, batch=16, workers=2) == [[0, 2, 3], [5, 6], [1], [4]]
+    assert sweep_run.chunks(keys, batch=1, workers=2) == [[k] for k in (0, 2, 3, 5, 6, 1, 4)]
+
+
+def test_points_with_different_rate_tables_go_to_different_chunks(client, tmp_path):
+    # the HH rate table depends on the temperature (Hodgkin & Huxley 1952: Q10 = 3), so
+    # strands at two temperatures cannot share a tabulated loop (cable.kernels.batch.group_key);
+    # grid order alternates the temperatures, so chunking by loop alone would batch nothing
+    case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=3.0)
+    case["sweep"] = {"membrane.scale.g_Na": [1.0, 0.8], "membrane.temperature": [6.3, 18.5]}
+    out = tmp_path / "temperature.nc"
+    ds = cable.sweep(case, client=client, output=out, progress=False, batch=2)
+    assert bool(np.all(ds["status"].values == STATUS["ok"]))
+    attrs = point_files(out)
+    assert sorted(int(a["chunk"]) for a in attrs.values()) == [0, 0, 1, 1]  # by temperature: {0, 2}, {1, 3}
+    assert [int(a["batch_size"]) for a in attrs.values()] == [2] * 4
+    loaded = [cable.load_case({k: v for k, v in case.items() if k != "sweep"}, {"numerics.rates": rates,
+                                                                                 "membrane.temperature": t})
+              for rates in ("tabulated", "exact") for t in (6.3, 18.5)]
+    keys = [sweep_run.chunk_key(c) for c in loaded]
+    assert keys[0] != keys[1] and keys[2] == keys[3]  # exact rates: no table, one loop
+
+
+def test_batch_must_be_a_whole_number(client):
+    with pytest.raises(cable.CaseError, match=r"batch = 0: must be a whole number of at least 1"):
+        cable.sweep(hh_sweep_case(), client=client, progress=False, batch=0)
