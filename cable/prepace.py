@@ -53,7 +53,7 @@ def prepace_nodes(case, model, p, v0, s0):
     amp = cfg["amplitude"] if cfg["amplitude"] is not None else case.stimuli[0].amplitude
     dur = cfg["duration"] if cfg["duration"] is not None else case.stimuli[0].duration
     dt = cfg["dt"] if cfg["dt"] is not None else case.numerics.dt
-    cm = case.fiber.capacitance if case.fiber is not None else 1.0
+    cm = case.capacitance
     if dur >= cfg["cycle_length"]:
         raise CaseError(f"membrane.prepace.cycle_length = {cfg['cycle_length']:g} ms must exceed the pulse duration {dur:g} ms.")
     advance = _integrator(model.name)
@@ -138,7 +138,7 @@ def settle_nodes(case, model, p, v0, s0):
     if not changed:
         return v0, s0, None
     advance = _integrator(model.name)
-    cm = case.fiber.capacitance if case.fiber is not None else 1.0
+    cm = case.capacitance
     # The rest reached does not depend on dt (at a fixed point of the Rush-Larsen step the
     # gates sit at their steady values and I_ion = 0), so a coarse step is tried first and
     # the run's own step is the fallback if the coarse one is unstable.

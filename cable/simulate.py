@@ -9,6 +9,7 @@ from probes the kernel kept, so they do not depend on the sampling interval.
 
 from __future__ import annotations
 
+import contextlib
 import functools
 import os
 import time as _time
@@ -134,7 +135,7 @@ def node_parameters(case: Case, model: MembraneModel, n: int) -> np.ndarray:
 
 def stimulus_pulses(case: Case, x: np.ndarray | None, notes: list) -> np.ndarray:
     """Pulse table (npulse, 5) from the case's stimuli; amplitudes divided by C_m."""
-    cm = case.fiber.capacitance if case.fiber is not None else 1.0
+    cm = case.capacitance
     rows = []
     for k, s in enumerate(case.stimuli):
         if x is None:
@@ -175,7 +176,7 @@ def prepare(case) -> Setup:
     else:
         x = None
         grid = Grid(x=np.zeros(1), lo=np.zeros(1), up=np.zeros(1))
-        cm = 1.0
+        cm = case.capacitance
         p = node_parameters(case, model, 1)
     n = grid.n
     s0 = np.tile(model.initial_states(), (n, 1)).reshape(n, len(model.states))
@@ -197,6 +198,8 @@ def prepare(case) -> Setup:
     if abs(intervals * spb * num.dt - case.duration) > 1e-9 * case.duration:
         intervals = int(np.ceil(case.duration / (spb * num.dt)))
         notes.append(f"run.duration rounded up to {intervals * spb * num.dt:g} ms, a whole number of output intervals.")
+    # pulses starting after the run's end change nothing (a train may be longer than the run)
+    pulses = pulses[pulses[:, 0] < intervals * spb * num.dt]
     cv_window = None
     if x is not None:
         cv_window = case.cv_window or default_window(case.fiber.length)
@@ -229,28 +232,52 @@ def stored_bytes(setup: Setup) -> int:
     return setup.n_samples * setup.n * (1 + len(setup.case.output_states)) * 8
 
 
+def probe_bytes(n: int, n_pulses: int, n_levels: int) -> int:
+    """Bytes of the per-crossing probes (activation, upstroke, rest, peak, APD levels) of n nodes."""
+    cap = max(16, min(2 * n_pulses + 8, MAX_CROSSINGS))  # as simulate() sizes them
+    return n * cap * 8 * (4 + n_levels)
+
+
 def check_size(setup: Setup, output=None) -> None:
     """Refuse a run whose stored fields would not fit in memory (or, streamed, on disk)."""
+    _check_bytes(setup.case, setup.n, setup.n_samples, setup.pulses.shape[0], output)
+
+
+def check_case_size(case: Case, output=None) -> None:
+    """:func:`check_size` from a loaded case alone (no preparation), for checks before a protocol runs."""
+    dt = case.numerics.dt
+    spb = max(1, int(round(case.output_every / dt)))
+    n_samples = int(np.ceil(case.duration / (spb * dt) - 1e-9)) + 1
+    n_pulses = sum(sum(1 for t in s.onsets() if t < case.duration) for s in case.stimuli)
+    _check_bytes(case, case.fiber.n_nodes if case.fiber is not None else 1, n_samples, n_pulses, output)
+
+
+def _check_bytes(case: Case, n: int, n_samples: int, n_pulses: int, output) -> None:
     import shutil
 
-    need = stored_bytes(setup)
-    hint = (f"increase output.every (now {setup.case.output_every:g} ms), store fewer output.states, "
+    fields = n_samples * n * (1 + len(case.output_states)) * 8
+    probes = probe_bytes(n, n_pulses, len(case.apd_levels))
+    hint = (f"increase output.every (now {case.output_every:g} ms), store fewer output.states, "
             f"or shorten run.duration")
     if output is not None:
-        need //= 2  # float32 on file, before compression
+        on_disk = fields // 2  # float32 on file, before compression
         folder = os.path.dirname(os.path.abspath(output))
         free = shutil.disk_usage(folder).free
-        if need > free:
-            raise CaseError(f"the stored fields need up to {need / 2**30:.1f} GiB (before compression) but "
+        if on_disk > free:
+            raise CaseError(f"the stored fields need up to {on_disk / 2**30:.1f} GiB (before compression) but "
                             f"{free / 2**30:.1f} GiB is free on disk at '{folder}': {hint}.")
-        return
     try:
         avail = os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
     except (ValueError, OSError, AttributeError):
         return
+    need = probes + (0 if output is not None else fields)
     if need > 0.8 * avail:
-        raise CaseError(f"the stored fields need {need / 2**30:.1f} GiB but {avail / 2**30:.1f} GiB of memory is "
-                        f"free: {hint}; or give an output file, to which the fields are streamed.")
+        if output is None and fields > probes:
+            raise CaseError(f"the stored fields need {need / 2**30:.1f} GiB but {avail / 2**30:.1f} GiB of memory "
+                            f"is free: {hint}; or give an output file, to which the fields are streamed.")
+        raise CaseError(f"the activation probes of {n} nodes x up to {2 * n_pulses + 8} threshold crossings need "
+                        f"{need / 2**30:.1f} GiB but {avail / 2**30:.1f} GiB of memory is free: use fewer pulses "
+                        f"(stimulus count), a coarser fiber.dx or a shorter fibre.")
 
 
 class _MemorySink:
@@ -397,22 +424,58 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     wall = _time.perf_counter() - wall0
     n_done = sink.filled
     attrs["wall_time_s"] = round(wall, 4)
-    meas = measurements(setup, act, nact, upstroke, tracker, t_end=(n_done - 1) * spb * dt)
-    if failure is not None or interrupted:
-        reason = "interrupted" if interrupted else _failure_message(setup, failure)
-        attrs.update(status="partial", partial_reason=reason, completed_until_ms=(n_done - 1) * spb * dt)
-    else:
-        attrs["status"] = "complete"
-    if output is not None:
-        ds = sink.finish(meas, attrs, n_done)
-    else:
-        ds = assemble(setup, {k_: v_[:n_done] for k_, v_ in sink.fields.items()}, meas, attrs, model)
+    with _interrupts_held():  # a second Ctrl-C or SIGTERM waits until the file is complete
+        try:
+            meas = measurements(setup, act, nact, upstroke, tracker, t_end=(n_done - 1) * spb * dt)
+        except BaseException:
+            if output is not None:
+                sink.abort()
+            raise
+        if failure is not None or interrupted:
+            reason = "interrupted" if interrupted else _failure_message(setup, failure)
+            attrs.update(status="partial", partial_reason=reason, completed_until_ms=(n_done - 1) * spb * dt)
+        else:
+            attrs["status"] = "complete"
+        if output is not None:
+            ds = sink.finish(meas, attrs, n_done)
+        else:
+            ds = assemble(setup, {k_: v_[:n_done] for k_, v_ in sink.fields.items()}, meas, attrs, model)
     if interrupted:
         raise KeyboardInterrupt
     if failure is not None:
         pos = None if setup.x is None else float(setup.x[failure[2]])
         raise SimulationError(attrs["partial_reason"], time=failure[1], position=pos, partial=ds)
     return ds
+
+
+@contextlib.contextmanager
+def _interrupts_held():
+    """Hold SIGINT and SIGTERM while a result is completed; deliver them when it is.
+
+    Measuring and writing the result take a bounded time; an interrupt then would leave
+    a temporary file and lose the run. A signal received inside is sent again on leaving,
+    to whatever handler was in place (the CLI turns it into KeyboardInterrupt, exit 130).
+    """
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    received = []
+    previous = {}
+    for sig in (signal.SIGINT, signal.SIGTERM):
+        try:
+            previous[sig] = signal.signal(sig, lambda signum, frame: received.append(signum))
+        except (ValueError, OSError):  # not settable here (embedded interpreters)
+            pass
+    try:
+        yield
+    finally:
+        for sig, handler in previous.items():
+            signal.signal(sig, signal.SIG_DFL if handler is None else handler)
+        for sig in dict.fromkeys(received):
+            os.kill(os.getpid(), sig)
 
 
 def _failure_message(setup: Setup, failure) -> str:

@@ -82,6 +82,7 @@ class Membrane:
     scale: dict = field(default_factory=dict)
     parameters: dict = field(default_factory=dict)
     prepace: dict | None = None
+    capacitance: float | None = None  # [uF/cm^2]; as given in [membrane] (see Case.capacitance)
 
 
 @dataclass(frozen=True)
@@ -115,6 +116,13 @@ class Case:
     raw: dict
     notes: tuple[str, ...] = ()
     extra: dict = field(default_factory=dict)  # validated sections owned by other modules
+
+    @property
+    def capacitance(self) -> float:
+        """Membrane capacitance C_m [uF/cm^2]: the fibre's, or a single cell's (default 1)."""
+        if self.fiber is not None:
+            return self.fiber.capacitance
+        return self.membrane.capacitance if self.membrane.capacitance is not None else 1.0
 
     @property
     def text(self) -> str:
@@ -248,6 +256,8 @@ def set_key(raw: dict, dotted: str, value) -> None:
     node = raw
     for depth, part in enumerate(parts[:-1]):
         nxt = parts[depth + 1]
+        if not isinstance(node, (dict, list)):
+            _not_a_table(dotted, parts[:depth], node)
         if isinstance(node, list):
             index = _index(dotted, part, node)
             node = node[index]
@@ -262,8 +272,16 @@ def set_key(raw: dict, dotted: str, value) -> None:
     last = parts[-1]
     if isinstance(node, list):
         node[_index(dotted, last, node)] = value
-    else:
+    elif isinstance(node, dict):
         node[last] = value
+    else:
+        _not_a_table(dotted, parts[:-1], node)
+
+
+def _not_a_table(dotted, head, node):
+    where = ".".join(head)
+    raise CaseError(f"key {dotted!r}: {where} = {_fmt(node)} is a value, not a table, so it has no key "
+                    f"'{dotted[len(where) + 1:]}'; set {where} itself, e.g. --set {where}=...")
 
 
 def _index(dotted, part, seq):
@@ -271,7 +289,10 @@ def _index(dotted, part, seq):
         raise CaseError(f"key {dotted!r}: '{part}' must be a list index (0 to {len(seq) - 1}).")
     index = int(part)
     if index >= len(seq):
-        raise CaseError(f"key {dotted!r}: index {index} is out of range; the case has {len(seq)} entries.")
+        section = dotted.split(".")[0]
+        raise CaseError(f"key {dotted!r}: index {index} is out of range; the case has {len(seq)} "
+                        f"{'entry' if len(seq) == 1 else 'entries'} ({'none' if not seq else f'0 to {len(seq) - 1}'}). "
+                        f"To add one, give the whole list, e.g. --set '{section}=[{{...}}, {{...}}]'.")
     return index
 
 
@@ -375,7 +396,7 @@ def from_dict(raw: dict) -> Case:
     if mem["temperature"] is not None:
         if model.temperature_parameter is None:
             raise CaseError(f"membrane.temperature: model '{model.name}' has no temperature dependence; remove the key.")
-        params[model.temperature_parameter] = _param_value("membrane.temperature", mem["temperature"],
+        params[model.temperature_parameter] = _param_value("membrane.temperature", raw["membrane"]["temperature"],
                                                            model.parameter(model.temperature_parameter))
         t_c = params[model.temperature_parameter]
         if not PHYSIOLOGICAL_TEMPERATURE[0] <= t_c <= PHYSIOLOGICAL_TEMPERATURE[1]:
@@ -383,11 +404,17 @@ def from_dict(raw: dict) -> Case:
                          f"{PHYSIOLOGICAL_TEMPERATURE[0]:g}-{PHYSIOLOGICAL_TEMPERATURE[1]:g} degC; the model's "
                          f"temperature scaling was not validated there.")
     prepace = _read_prepace(mem["prepace"]) if mem["prepace"] is not None else None
-    membrane = Membrane(model.name, mem["temperature"], scale, params, prepace)
+    membrane = Membrane(model.name, mem["temperature"], scale, params, prepace, mem["capacitance"])
 
     fiber = None
     if "fiber" in raw:
         fiber = _read_fiber(_read_section("fiber", raw["fiber"], SECTIONS["fiber"]), notes)
+        if mem["capacitance"] is not None:
+            given = raw["fiber"].get("capacitance")
+            if given is not None and fiber.capacitance != mem["capacitance"]:
+                raise CaseError(f"membrane.capacitance = {raw['membrane']['capacitance']!r} and fiber.capacitance = "
+                                f"{given!r} differ; give C_m once (either key).")
+            fiber = replace(fiber, capacitance=mem["capacitance"])
 
     stim_raw = raw.get("stimulus", [])
     if isinstance(stim_raw, dict):
@@ -411,6 +438,13 @@ def from_dict(raw: dict) -> Case:
     if steps > MAX_STEPS:
         raise CaseError(f"numerics.dt = {num.dt:g} ms gives {steps:.3g} steps over run.duration = "
                         f"{run['duration']:g} ms; at most {MAX_STEPS:.0e} are allowed. Increase dt or shorten the run.")
+    if prepace is not None:
+        pdt = prepace["dt"] if prepace["dt"] is not None else num.dt
+        psteps = prepace["beats"] * prepace["cycle_length"] / pdt
+        if psteps > MAX_STEPS:
+            raise CaseError(f"membrane.prepace: beats = {prepace['beats']} at cycle_length = "
+                            f"{prepace['cycle_length']:g} ms with dt = {pdt:g} ms gives {psteps:.3g} steps per cell; "
+                            f"at most {MAX_STEPS:.0e} are allowed. Use fewer beats or a larger membrane.prepace.dt.")
     if fiber is not None and steps * fiber.n_nodes > MAX_NODE_STEPS:
         raise CaseError(f"the run needs {steps * fiber.n_nodes:.3g} node-steps ({fiber.n_nodes} nodes x {steps:.3g} "
                         f"steps); at most {MAX_NODE_STEPS:.0e} are allowed. Increase fiber.dx or numerics.dt, or "
@@ -433,9 +467,15 @@ def from_dict(raw: dict) -> Case:
         if cv_window[0] < 0 or cv_window[1] > fiber.length + 1e-12:
             raise CaseError(f"measure.cv_window = {raw['measure']['cv_window']!r}: must lie inside the fibre "
                             f"(0 to {fiber.length:g} cm).")
-    for lvl in meas["apd_levels"]:
+    levels = tuple(meas["apd_levels"])
+    for lvl in levels:
         if not 0.0 < lvl < 100.0:
             raise CaseError(f"measure.apd_levels: {lvl:g} must be a percentage between 0 and 100 (e.g. 90).")
+    if len(set(levels)) != len(levels):
+        raise CaseError(f"measure.apd_levels = {[float(v) for v in levels]}: a level is given twice; give each "
+                        f"level once, e.g. [50, 90].")
+    if 90.0 not in levels:
+        levels += (90.0,)  # the wavelength (CV x APD90) and the summaries need APD90
     if fiber is not None and num.diffusion == "forward-euler":
         from cable.fiber import forward_euler_limit
 
@@ -448,7 +488,7 @@ def from_dict(raw: dict) -> Case:
     case = Case(membrane=membrane, fiber=fiber, stimuli=stimuli, numerics=num,
                 duration=run["duration"], output_every=every, output_states=tuple(out["states"]),
                 threshold=meas["threshold"], cv_window=tuple(cv_window) if cv_window else None,
-                apd_levels=tuple(meas["apd_levels"]), raw=copy.deepcopy(raw), notes=tuple(notes))
+                apd_levels=levels, raw=copy.deepcopy(raw), notes=tuple(notes))
     extra = {}
     for name, (is_list, validate) in _EXTERNAL.items():
         if name in raw:

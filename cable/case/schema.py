@@ -41,6 +41,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "temperature": _q("temperature", meaning="temperature, for models with a temperature parameter [degC]"),
         "scale": Key("table", meaning="factor per scalable conductance, e.g. g_Na = 0.5"),
         "parameters": Key("table", meaning="value per model parameter, e.g. K_o = 8"),
+        "capacitance": _q("capacitance", positive=True, meaning="membrane capacitance C_m [uF/cm^2]; a single cell's (default 1), or the same as fiber.capacitance"),
         "prepace": Key("table", meaning="single-cell pacing to steady state before the run (beats, cycle_length, amplitude, duration)"),
     },
     "fiber": {
@@ -60,7 +61,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "amplitude": _q("current_density", required=True, positive=True, meaning="depolarising current per membrane area [uA/cm^2]"),
         "duration": _q("time", required=True, positive=True, meaning="pulse duration [ms]"),
         "start": _q("time", 0.0, minimum=0.0, meaning="first pulse onset [ms]"),
-        "count": Key("int", default=1, minimum=1, meaning="number of pulses"),
+        "count": Key("int", default=1, minimum=1, maximum=100000, meaning="number of pulses"),
         "cycle_length": _q("time", positive=True, meaning="interval between pulse onsets [ms] (needed when count > 1)"),
     },
     "numerics": {
@@ -82,7 +83,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
     "measure": {
         "threshold": _q("potential", meaning="activation level [mV]; default: the model's"),
         "cv_window": Key("list_quantity", quantity="length", meaning="two positions [cm]; default: the middle half of the fibre"),
-        "apd_levels": Key("list_quantity", quantity="dimensionless", default=(90.0,), meaning="repolarisation levels [%] for APD"),
+        "apd_levels": Key("list_quantity", quantity="dimensionless", default=(90.0,), meaning="repolarisation levels [%] for APD; 90 is always measured (wavelength = CV x APD90)"),
         "safety_factor": Key("bool", default=False, meaning="compute the safety factor of conduction per beat and node (Shaw & Rudy 1997); needs a fine output.every, see cable/measure/safety.py"),
         "safety_factor_length": _q("length", positive=True, meaning="length of the control volume of the safety factor [cm]; default: fiber.cell_length, else 0.01 cm"),
     },

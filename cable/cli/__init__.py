@@ -83,6 +83,14 @@ def main(argv=None) -> int:
         return EXIT_INTERRUPTED
     except BrokenPipeError:
         return EXIT_OK
+    except MemoryError:
+        print("cable: error: out of memory; store less (a larger output.every, fewer output.states, an output "
+              "file to stream to) or run a smaller case.", file=sys.stderr)
+        return EXIT_INPUT
+    except OSError as exc:  # a file system refusing (disk full, permissions): the user's to fix, no traceback
+        print(f"cable: error: {exc.strerror or exc}" + (f": '{exc.filename}'" if exc.filename else "") + ".",
+              file=sys.stderr)
+        return EXIT_INPUT
     finally:
         signal.signal(signal.SIGTERM, previous)
 

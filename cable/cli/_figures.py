@@ -11,6 +11,9 @@ from cable.case import CaseError
 DEFAULT_SIZE_CM = (16.0, 10.0)
 #: default resolution of PNG output [dots per inch]; the usual minimum for line art in print
 DEFAULT_DPI = 300
+#: most pixels along either side of a figure: 139 cm at 300 dpi; matplotlib refuses 2^16
+#: and the memory of the image grows with the square (16384^2 x 4 bytes = 1 GiB)
+MAX_PIXELS = 2 ** 14
 
 
 def add_figure_options(p, default_suffix: str) -> None:
@@ -56,9 +59,21 @@ FONT_PT_RANGE = (6.0, 10.0)
 
 def size_cm(args) -> tuple[float, float]:
     size = pair(args.size, "length", "--size") if args.size else DEFAULT_SIZE_CM
-    if min(size) <= 0:
+    if not all(v > 0 for v in size):
         raise CaseError(f"--size {' '.join(args.size)}: width and height must be above 0.")
     return size
+
+
+def check_pixels(size, dpi: int, size_option: str = "--size", dpi_option: str = "--dpi") -> None:
+    """Refuse a figure of more than :data:`MAX_PIXELS` along a side (``size`` in cm)."""
+    if dpi <= 0:
+        raise CaseError(f"{dpi_option} {dpi}: must be a positive whole number, e.g. {DEFAULT_DPI}.")
+    pixels = [v / 2.54 * dpi for v in size]
+    if not all(p <= MAX_PIXELS for p in pixels):
+        raise CaseError(f"{size_option} {size[0]:g} x {size[1]:g} cm at {dpi_option} {dpi} gives "
+                        f"{pixels[0]:.0f} x {pixels[1]:.0f} pixels; at most {MAX_PIXELS} per side are drawn. "
+                        f"Lower {dpi_option} (default {DEFAULT_DPI}) or the size (default "
+                        f"{DEFAULT_SIZE_CM[0]:g} x {DEFAULT_SIZE_CM[1]:g} cm).")
 
 
 @contextlib.contextmanager
@@ -72,9 +87,8 @@ def drawing(args):
 
     from cable.plot import _common
 
-    if args.dpi <= 0:
-        raise CaseError(f"--dpi {args.dpi}: must be a positive whole number, e.g. {DEFAULT_DPI}.")
     width, height = size_cm(args)
+    check_pixels((width, height), args.dpi)
     font = min(max(FONT_PT_PER_CM * width, FONT_PT_RANGE[0]), FONT_PT_RANGE[1])
     with matplotlib.rc_context({"font.size": font}):
         yield _common.new_figure(size=(width / 2.54, height / 2.54), dpi=args.dpi)

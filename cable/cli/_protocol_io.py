@@ -55,8 +55,11 @@ def check_figure(args) -> None:
     if args.figure_dpi <= 0:
         raise CaseError(f"--figure-dpi {args.figure_dpi}: must be a positive whole number, e.g. "
                         f"{_figures.DEFAULT_DPI}.")
-    if args.figure_size and min(_figures.pair(args.figure_size, "length", "--figure-size")) <= 0:
+    size = _figures.pair(args.figure_size, "length", "--figure-size") if args.figure_size else \
+        _figures.DEFAULT_SIZE_CM
+    if not all(v > 0 for v in size):
         raise CaseError(f"--figure-size {' '.join(args.figure_size)}: width and height must be above 0.")
+    _figures.check_pixels(size, args.figure_dpi, "--figure-size", "--figure-dpi")
 
 
 def write_figure(args, ds) -> None:

@@ -33,10 +33,42 @@ def report(args, ds) -> str:
     return summary(ds)
 
 
+def preflight(case, levels, ratio, beat) -> None:
+    """Check --levels and --beat, and that the finest grid fits, before any level runs.
+
+    Raises
+    ------
+    CaseError
+        A beat the case does not have, or a finest level too large to run (too many
+        nodes or steps, or fields that do not fit in memory).
+    """
+    from cable.case import CaseError
+    from cable.simulate import check_case_size
+
+    if case.fiber is None:
+        return  # the protocol says why a single cell has no certificate
+    onsets = {round(t, 9) for s in case.stimuli for t in s.onsets() if t < case.duration}
+    if not -len(onsets) <= beat < len(onsets):
+        raise CaseError(f"beat {beat} (--beat): the case has {len(onsets)} beat(s) within run.duration; give 0 to "
+                        f"{len(onsets) - 1}, or -1 for the last.")
+    if isinstance(levels, int) and levels >= 3:
+        shrink = 4.0 if ratio == "dt/dx^2" else 2.0
+        k = levels - 1
+        try:
+            finest = case.with_overrides({"fiber.dx": case.fiber.dx / 2 ** k,
+                                          "numerics.dt": case.numerics.dt / shrink ** k,
+                                          "output.every": case.output_every / shrink ** k})
+            check_case_size(finest)
+        except CaseError as exc:
+            raise CaseError(f"--levels {levels}: the finest level (dx / {2 ** k:g}, dt / {shrink ** k:g}) cannot run: "
+                            f"{exc} Give fewer levels (3 is enough for an observed order).") from None
+
+
 def run(args):
     from cable.protocols.converge import convergence
 
     case = prepare(args)
+    preflight(case, args.levels, args.ratio, args.beat)
     ds = convergence(case, levels=args.levels, ratio=args.ratio, beat=args.beat, info=lambda m: say(args, m))
     return finish(args, ds, report(args, ds))
 

@@ -23,9 +23,13 @@ def add_arguments(p):
 
 
 def run(args):
-    from cable.protocols.refractory import refractory_period, summary
+    from cable.case import CaseError
+    from cable.protocols.refractory import DEFAULT_TOLERANCE, refractory_period, summary
 
     case = prepare(args)
+    if not args.tolerance >= case.numerics.dt:
+        raise CaseError(f"--tolerance {args.tolerance:g} ms: give at least numerics.dt = {case.numerics.dt:g} ms, "
+                        f"the time resolution of each run (default {DEFAULT_TOLERANCE:g} ms).")
     ds = refractory_period(case, cycle_length=args.cycle_length, s1_count=args.s1_count,
                            s2_amplitude=args.s2_amplitude, s2_duration=args.s2_duration, tolerance=args.tolerance,
                            observe=args.observe, info=lambda m: say(args, m))

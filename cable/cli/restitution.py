@@ -28,6 +28,10 @@ def add_arguments(p):
 def run(args):
     from cable.protocols.restitution import restitution, summary
 
+    from cable.case import CaseError
+
+    if args.beats < 1:
+        raise CaseError(f"--beats {args.beats}: must be a whole number of at least 1 (beats per cycle length).")
     case = prepare(args)
     ds = restitution(case, args.intervals, args.protocol, cycle_length=args.cycle_length, s1_count=args.s1_count,
                      beats=args.beats, observe=args.observe, info=lambda m: say(args, m))

@@ -1,7 +1,8 @@
 """``cable info OUT.nc``: a short human summary of a result (also printed by ``cable run``).
 
 Model, status, fibre, run settings, then one line per beat: onset, capture, conduction
-velocity, APD90 and where it blocked. A sweep result gets its swept keys and point
+velocity, and at the centre of the CV window APD90, resting potential, maximal upstroke
+velocity and the wavelength; where it blocked. A sweep result gets its swept keys and point
 counts; a protocol result (threshold, erp, restitution, converge, critical) the table its
 command printed.
 """
@@ -24,7 +25,16 @@ def _num(value, fmt=".4g", missing="-") -> str:
 def _apd90(ds, b):
     if "apd" not in ds or "level" not in ds.coords or 90.0 not in list(ds["level"].values):
         return np.nan
-    a = ds["apd"].sel(level=90.0).isel(beat=b)
+    return _at_centre(ds, ds["apd"].sel(level=90.0), b)
+
+
+def _at_centre(ds, a, b):
+    """Value of ``a`` (beat[, x]) for beat ``b`` at the node nearest the centre of the CV window."""
+    if isinstance(a, str):
+        if a not in ds:
+            return np.nan
+        a = ds[a]
+    a = a.isel(beat=b)
     if "x" in a.dims:
         window = ds.attrs.get("cv_window_cm")
         centre = float(np.mean(window)) if window is not None and np.size(window) == 2 else float(ds["x"].mean())
@@ -90,13 +100,15 @@ def summarise(ds, path=None) -> str:
 
         lines.append(f"conduction pattern (stimuli : beats through the whole fibre): "
                      f"{conduction_pattern(np.asarray(ds['conducted'].values) == 1)}")
-    lines.append("beat  onset_ms  captured   CV_m/s  APD90_ms  block")
+    lines.append("beat  onset_ms  captured   CV_m/s  APD90_ms  rest_mV  dVdt_V/s  wavelength_cm  block")
     cv = ds["conduction_velocity"].values if "conduction_velocity" in ds else np.full(nb, np.nan)
     bx = ds["block_x"].values if "block_x" in ds else np.full(nb, np.nan)
     for b in range(nb):
         block = f"at x = {_num(bx[b])} cm" if blocked[b] else ("-" if captured[b] else "(not captured)")
         lines.append(f"{b:4d}  {_num(ds['beat_onset'][b], '8.2f'):>8}  {'yes' if captured[b] else 'no':>8}  "
-                     f"{_num(cv[b]):>7}  {_num(_apd90(ds, b)):>8}  {block}")
+                     f"{_num(cv[b]):>7}  {_num(_apd90(ds, b)):>8}  {_num(_at_centre(ds, 'resting_potential', b)):>7}  "
+                     f"{_num(_at_centre(ds, 'upstroke_velocity', b)):>8}  {_num(_at_centre(ds, 'wavelength', b)):>13}  "
+                     f"{block}")
     return "\n".join(lines)
 
 

@@ -3,6 +3,10 @@
 from cable.cli import say
 from cable.cli._protocol_io import add_common, finish, prepare
 
+#: smallest --tolerance: a bracket of 1 ppm of the amplitude (about 20 halvings) is far finer
+#: than any model's accuracy, and near the float64 spacing (2e-16) bisection stops halving
+MIN_TOLERANCE = 1e-6
+
 NAME = "threshold"
 HELP = "strength-duration: threshold amplitude per pulse duration, with Lapicque's and Weiss's fits"
 ORDER = 7
@@ -26,6 +30,11 @@ def add_arguments(p):
 def run(args):
     from cable.protocols.threshold import strength_duration, summary
 
+    from cable.case import CaseError
+
+    if not args.tolerance >= MIN_TOLERANCE:
+        raise CaseError(f"--tolerance {args.tolerance:g}: give at least {MIN_TOLERANCE:g} (relative width of the "
+                        f"final amplitude bracket, e.g. 0.01 for 1 %).")
     case = prepare(args)
     ds = strength_duration(case, args.durations, tolerance=args.tolerance, mode=args.mode, observe=args.observe,
                            info=lambda m: say(args, m))

@@ -22,6 +22,7 @@ import math
 import os
 import sys
 import warnings
+import weakref
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
@@ -141,6 +142,10 @@ class StreamWriter:
         self.chunks = chunk_shape(setup.n_samples, None if self.single else setup.n)
         nc = netCDF4.Dataset(self.tmp, "w", format="NETCDF4")
         self.nc = nc
+        # whatever stops the run before finish() or abort() (an interrupt or an error
+        # outside the caller's handlers), the temporary file goes when this writer does,
+        # or at the latest when the interpreter exits
+        self._discard = weakref.finalize(self, _discard, self.tmp, nc)
         try:
             nc.createDimension("t", setup.n_samples)
             tv = nc.createVariable("t", "f8", ("t",))
@@ -237,15 +242,28 @@ class StreamWriter:
             self.abort()
             raise
         os.replace(self.tmp, self.path)
+        self._discard.detach()  # the name may be reused by a later run in this process
         return open_result(self.path)
 
     def abort(self):
         """Close and remove the temporary file (after an error)."""
+        if hasattr(self, "_discard"):
+            self._discard.detach()
         try:
             if self.nc.isopen():
                 self.nc.close()
         finally:
             self.tmp.unlink(missing_ok=True)
+
+
+def _discard(tmp: Path, nc) -> None:
+    """Close ``nc`` and remove the unfinished file ``tmp`` (a finalizer of :class:`StreamWriter`)."""
+    try:
+        if nc.isopen():
+            nc.close()
+    except Exception:  # closing a file whose run failed: removing it matters more
+        pass
+    tmp.unlink(missing_ok=True)
 
 
 def write_dataset(ds: xr.Dataset, path, overwrite: bool = False) -> None:
@@ -384,13 +402,21 @@ def compare(original: xr.Dataset, new: xr.Dataset, names=COMPARED) -> dict:
             continue
         a, b = original[name], new[name]
         if "t" in a.dims:
-            if a.sizes != b.sizes:
+            if a.dims != b.dims or any(a.sizes[d] != b.sizes[d] for d in a.dims if d != "t"):
                 out[name] = (False, math.inf)
                 continue
             step = max(1, BUFFER_BYTES // (4 * max(1, a.size // a.sizes["t"])))
+            n = min(a.sizes["t"], b.sizes["t"])
+            # a partial run's file keeps every sample time, NaN past the end of the run; the
+            # rerun stopped at the same point holds only the samples computed
+            longer = a if a.sizes["t"] > n else b
+            if not all(np.all(np.isnan(longer.isel(t=slice(k, k + step)).values))
+                       for k in range(n, longer.sizes["t"], step)):
+                out[name] = (False, math.inf)
+                continue
             same, diff = True, 0.0
-            for k in range(0, a.sizes["t"], step):
-                sl = {"t": slice(k, k + step)}
+            for k in range(0, n, step):
+                sl = {"t": slice(k, min(k + step, n))}
                 s, d = _difference(a.isel(sl).values.astype(np.float32), b.isel(sl).values.astype(np.float32))
                 same, diff = same and s, max(diff, d)
             out[name] = (same, diff)

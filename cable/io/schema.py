@@ -22,12 +22,14 @@ VARIABLES = {
     "beat_onset": (("beat",), "ms", "stimulus onset of the beat", None),
     "activation_time": (("beat", "x"), "ms", "activation time (upward threshold crossing)", None),
     "conduction_velocity": (("beat",), "m/s", "conduction velocity in the measurement window", None),
-    "captured": (("beat",), "1", "the stimulus excited the tissue it was applied to", None),
+    "captured": (("beat",), "1", "stimulus capture: a stimulated node crossed the activation threshold (a stimulus "
+                                 "far above threshold can do so passively)", None),
     "blocked": (("beat",), "1", "the wave started but did not reach an end of the fibre", None),
     "block_x": (("beat",), "cm", "last activated position of a blocked wave", None),
     "apd": (("level", "beat", "x"), "ms", "action-potential duration", None),
     "resting_potential": (("beat", "x"), "mV", "lowest potential before the upstroke", None),
-    "peak_potential": (("beat", "x"), "mV", "peak potential of the action potential", None),
+    "peak_potential": (("beat", "x"), "mV", "peak potential of the action potential (largest stored sample: "
+                                            "limited by output.every)", None),
     "upstroke_velocity": (("beat", "x"), "V/s", "maximal rate of rise of the upstroke", None),
     "wavelength": (("beat",), "cm", "wavelength: CV times APD90 at the centre of the CV window", None),
     "conducted": (("beat",), "1", "the stimulus captured and the wave reached both ends of the fibre", None),

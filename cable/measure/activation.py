@@ -6,6 +6,19 @@ belonging to the wave is its first unused crossing no earlier than ``BACKWARD_TO
 before, and no later than ``MAX_NODE_DELAY`` after, the node it came from. A beat that
 captured but whose wave stopped before an end of the fibre is blocked; ``block_x`` is
 the last activated position on the blocked side.
+
+What ``captured`` means, exactly: some stimulated node crossed the activation threshold
+between the onset and ``CAPTURE_LATENCY`` after the end of the pulse. That is what "the
+stimulus excited the tissue" means for any stimulus near threshold, but not always: a
+stimulus far above threshold (several times rheobase) can carry the stimulated nodes
+over the threshold passively, without an action potential (an inexcitable membrane, or
+tissue deep in its refractory period). The beat is then ``captured`` and ``blocked``
+within the reach of the stimulus' electrotonic spread, instead of not captured; for
+the HH axon with g_Na = 0 and 1000 uA/cm^2 for 0.2 ms, block_x = 0.16 cm. Telling the
+two apart needs the sign of the ionic current at the stimulated nodes during the
+upstroke (inward: regenerative), which the kernels do not record;
+``cable.protocols.refractory`` checks it from stored states for its local refractory
+period.
 """
 
 from __future__ import annotations

@@ -310,6 +310,13 @@ def tracker_for(case, grid, v0, pulses, notes: list) -> SafetyTracker:
         length = convert("measure.safety_factor_length", given, SECTIONS["measure"]["safety_factor_length"])
     else:
         length = case.fiber.cell_length or DEFAULT_LENGTH
+    if length >= case.fiber.length:
+        from cable.case import CaseError
+
+        what = f"measure.safety_factor_length = {given!r}" if given is not None else \
+            f"the control volume (fiber.cell_length = {length:g} cm, the default)"
+        raise CaseError(f"{what}: the control volume ({length:g} cm) must be shorter than the fibre "
+                        f"({case.fiber.length:g} cm); give measure.safety_factor_length, e.g. 0.01 cm (one cell).")
     stimulated = np.zeros(grid.n, dtype=bool)
     for row in pulses:
         stimulated[int(row[2]):int(row[3])] = True

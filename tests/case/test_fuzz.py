@@ -29,6 +29,9 @@ KEYS = [
     "measure.apd_levels", "bogus.key", "membrane.prepace.beats",
 ]
 
+#: accepted cases up to this many node-steps are also run (about 0.1 s each)
+FUZZ_RUN_NODE_STEPS = 2e6
+
 values = st.one_of(
     st.none(),
     st.booleans(),
@@ -75,6 +78,15 @@ def test_any_case_is_accepted_or_refused_with_a_case_error(edits):
         return
     # accepted: must be a sane, small run
     assert setup.n >= 1 and setup.n_samples >= 1
+    # and a small one must run to its end or stop with a SimulationError (duplicate APD
+    # levels once passed preparation and raised TypeError in the run)
+    steps = (setup.n_samples - 1) * setup.steps_per_sample
+    if setup.n * steps <= FUZZ_RUN_NODE_STEPS:
+        try:
+            ds = cable.simulate(case)
+        except cable.SimulationError:
+            return
+        assert ds.sizes["t"] == setup.n_samples
 
 
 @settings(max_examples=150, deadline=None)
@@ -102,3 +114,13 @@ def test_arbitrary_set_options_are_refused_cleanly(option):
 def test_absurd_sizes_are_refused_before_running(edits):
     with pytest.raises(CaseError):
         cable.prepare(load_case(copy.deepcopy(BASE), edits))
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.sampled_from(KEYS), st.sampled_from(["", ".x", ".0", ".0.x", ".g_Na.y"]), values)
+def test_set_on_any_key_path_is_applied_or_refused_cleanly(key, suffix, value):
+    # a dotted path below a value (fiber.length.x) once raised TypeError, not CaseError
+    try:
+        load_case(copy.deepcopy(BASE), {key + suffix: value})
+    except CaseError as exc:
+        assert str(exc)
