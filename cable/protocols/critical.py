@@ -125,6 +125,58 @@ def describe(outcome: dict) -> str:
     return "does not conduct"
 
 
+class _Journal:
+    """The runs of a search with an output file, kept as they finish so that an
+    interrupted search, started again with the same output, reuses them.
+
+    Bisection is deterministic: replaying the same case, key, interval and tolerance
+    asks for the same values in the same order, so the reused outcomes give the same
+    bracket and the same file as an uninterrupted search. The folder
+    ``<output>.runs/`` holds one ``.npz`` per run and ``search.txt`` (the identity:
+    the case text and the search settings); a different search at the same output
+    discards it. It is removed when the result is written.
+    """
+
+    def __init__(self, output, identity: str):
+        import hashlib
+        from pathlib import Path
+
+        self.folder = Path(f"{output}.runs")
+        self.identity = hashlib.sha256(identity.encode()).hexdigest()
+        self.done = {}
+        stamp = self.folder / "search.txt"
+        if self.folder.is_dir():
+            if stamp.is_file() and stamp.read_text().strip() == self.identity:
+                for f in sorted(self.folder.glob("run-*.npz")):
+                    try:
+                        with np.load(f) as z:
+                            self.done[float(z["value"])] = {k: (z[k] if z[k].ndim else z[k].item())
+                                                            for k in z.files if k != "value"}
+                    except (OSError, ValueError, KeyError):  # a run cut off while written: redo it
+                        f.unlink(missing_ok=True)
+            else:
+                self.remove()
+        self.folder.mkdir(parents=True, exist_ok=True)
+        stamp.write_text(self.identity + "\n")
+
+    def get(self, value):
+        return self.done.get(float(value))
+
+    def put(self, value, outcome: dict) -> None:
+        import os
+
+        name = self.folder / f"run-{len(self.done):04d}.npz"
+        tmp = self.folder / f".{name.name}.{os.getpid()}.tmp.npz"
+        np.savez(tmp, value=float(value), **outcome)
+        os.replace(tmp, name)
+        self.done[float(value)] = outcome
+
+    def remove(self) -> None:
+        import shutil
+
+        shutil.rmtree(self.folder, ignore_errors=True)
+
+
 def find_critical(case, key: str, low, high, *, tolerance: float | None = None, beat: int | None = None,
                   log: bool = False, output=None, overwrite: bool = False, info=None) -> xr.Dataset:
     """Bisect ``key`` between ``low`` and ``high`` for the value where conduction turns into block.
@@ -147,6 +199,8 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         decades such as a coupling factor; needs 0 < low.
     output : str or pathlib.Path, optional
         netCDF file for the runs made (also written when the ends do not straddle).
+        With it, an interrupted search started again with the same output reuses the
+        runs already made (see :class:`_Journal`).
     overwrite : bool
         Replace an existing ``output``.
     info : callable, optional
@@ -214,17 +268,28 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     say = info or (lambda msg: None)
     unit = key_units(case, key)
     runs: list[tuple[float, dict]] = []
+    journal = None
+    if output is not None:
+        journal = _Journal(output, f"{case.text}\n{key} {lo!r} {hi!r} {tol!r} {beat!r} {log!r}")
+        if journal.done:
+            say(f"resuming: {len(journal.done)} run(s) of an interrupted search reused from {journal.folder}")
 
     def trial(value):
-        variant = variants.get(value) or case.with_overrides({key: value})
-        try:
-            ds = simulate(variant)
-        except SimulationError as exc:
-            raise SimulationError(f"{who}: the run at {key} = {value:g} failed: {exc}", time=exc.time,
-                                  position=exc.position, partial=exc.partial) from None
-        outcome = _judge(ds, beat)
+        outcome = journal.get(value) if journal is not None else None
+        reused = outcome is not None
+        if not reused:
+            variant = variants.get(value) or case.with_overrides({key: value})
+            try:
+                ds = simulate(variant)
+            except SimulationError as exc:
+                raise SimulationError(f"{who}: the run at {key} = {value:g} failed: {exc}", time=exc.time,
+                                      position=exc.position, partial=exc.partial) from None
+            outcome = _judge(ds, beat)
+            if journal is not None:
+                journal.put(value, outcome)
         runs.append((value, outcome))
-        say(f"{key} = {value:.6g}{' ' + unit if unit and unit != '1' else ''}: {describe(outcome)}")
+        shown = f" {unit}" if unit and unit != "1" else ""
+        say(f"{key} = {value:.6g}{shown}: {describe(outcome)}{' (reused)' if reused else ''}")
         return outcome["conducted"]
 
     c_lo, c_hi = trial(lo), trial(hi)
@@ -232,6 +297,7 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         ds = _result(case, key, unit, lo, hi, tol, runs, None, None, log)
         if output is not None:
             _write(ds, output, overwrite)
+            journal.remove()
         both = "conduct" if c_lo else "fail to conduct"
         hint = ("move the interval toward more severe values" if c_lo else
                 "move the interval toward milder values (or check that the stimulus captures)")
@@ -255,6 +321,7 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         say(f"note: {ds.attrs['note']}")
     if output is not None:
         _write(ds, output, overwrite)
+        journal.remove()
     return ds
 
 

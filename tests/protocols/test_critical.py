@@ -159,7 +159,7 @@ def test_loss_of_capture_is_not_called_block():
     # Varying the stimulus itself: below threshold the stimulus does not excite (captured = 0);
     # the transition found is excitation, which the result must say is not conduction block.
     case = {"membrane": {"model": "hodgkin-huxley-1952", "temperature": 18.5},
-            "fiber": {"length": 1.0, "dx": 0.02, "radius": "238 um", "axial_resistivity": "35.4 ohm*cm"},
+            "fiber": {"length": 1.3, "dx": 0.02, "radius": "238 um", "axial_resistivity": "35.4 ohm*cm"},
             "stimulus": [{"amplitude": 1000.0, "duration": 0.2, "width": 0.1}],
             "numerics": {"dt": 0.01}, "run": {"duration": 4.0}, "output": {"every": 0.5}}
     res = find_critical(case, "stimulus.0.amplitude", 10.0, 1000.0, tolerance=50.0)
@@ -171,3 +171,38 @@ def test_loss_of_capture_is_not_called_block():
     # a block inside a region is not loss of capture: no note
     assert "note" not in find_critical(lr1_region(dx=0.01), "region.0.scale.G_Na", 0.0, 1.0,
                                        tolerance=0.1).attrs
+
+
+def test_interrupted_search_resumes_with_the_same_result(tmp_path):
+    # issue 9: searches resume after an interrupt; bisection is deterministic, so the runs
+    # kept from the interrupted search give the same bracket and the same file (tool design)
+    case = {
+        "membrane": {"model": "hodgkin-huxley-1952", "temperature": 18.5},
+        "fiber": {"length": 1.3, "dx": 0.02, "radius": "238 um", "axial_resistivity": "35.4 ohm*cm"},
+        "region": [{"start": 0.3, "end": 1.0, "scale": {"g_Na": 0.5}}],
+        "stimulus": [{"amplitude": 1000.0, "duration": 0.2, "width": 0.1}],
+        "numerics": {"dt": 0.01},
+        "run": {"duration": 6.0},
+        "output": {"every": 0.5},
+    }
+    key, lo, hi, tol = "region.0.scale.g_Na", 0.0, 1.0, 0.02
+    whole = find_critical(case, key, lo, hi, tolerance=tol, output=tmp_path / "whole.nc")
+    said = []
+
+    def stop_after_three(msg):
+        said.append(msg)
+        if len(said) == 3:
+            raise KeyboardInterrupt
+
+    out = tmp_path / "resumed.nc"
+    with pytest.raises(KeyboardInterrupt):
+        find_critical(case, key, lo, hi, tolerance=tol, output=out, info=stop_after_three)
+    assert not out.exists() and len(list((tmp_path / "resumed.nc.runs").glob("run-*.npz"))) == 3
+    notes = []
+    again = find_critical(case, key, lo, hi, tolerance=tol, output=out, info=notes.append)
+    assert any("resuming: 3 run(s)" in n for n in notes)
+    assert sum(n.endswith("(reused)") for n in notes) == 3
+    assert again.attrs["passing_value"] == whole.attrs["passing_value"]
+    assert again.attrs["failing_value"] == whole.attrs["failing_value"]
+    np.testing.assert_array_equal(again["activation_time"].values, whole["activation_time"].values)
+    assert not (tmp_path / "resumed.nc.runs").exists()
