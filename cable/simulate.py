@@ -29,8 +29,10 @@ from cable.measure.apd import ApdTracker
 from cable.measure.velocity import conduction_velocity, default_window, window_nodes
 from cable.membrane import MembraneModel, get_model
 
-#: how often the loop checks for NaN / runaway potential [steps]
-CHECK_EVERY = 200
+#: how often the loop checks for NaN / runaway potential [steps]: often enough that a
+#: potential blown up by a huge stimulus cannot recover unseen between checks (the
+#: check is one vectorised pass over the nodes, ~1/20 of a step's work at most)
+CHECK_EVERY = 20
 #: most threshold crossings stored per node
 MAX_CROSSINGS = 4096
 

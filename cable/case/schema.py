@@ -58,7 +58,9 @@ SECTIONS: dict[str, dict[str, Key]] = {
     "stimulus": {
         "x": _q("length", 0.0, minimum=0.0, meaning="left edge of the stimulated zone [cm]"),
         "width": _q("length", 0.05, positive=True, meaning="width of the zone [cm]; at least one node"),
-        "amplitude": _q("current_density", required=True, positive=True, meaning="depolarising current per membrane area [uA/cm^2]"),
+        # at most 1e5 uA/cm^2 (100 mA/cm^2, some 50x the strongest pulses in use): beyond is a unit
+        # slip, and the potential it drives can blow up and recover between the runaway checks
+        "amplitude": _q("current_density", required=True, positive=True, maximum=1e5, meaning="depolarising current per membrane area [uA/cm^2]"),
         "duration": _q("time", required=True, positive=True, meaning="pulse duration [ms]"),
         "start": _q("time", 0.0, minimum=0.0, meaning="first pulse onset [ms]"),
         "count": Key("int", default=1, minimum=1, maximum=100000, meaning="number of pulses"),

@@ -72,6 +72,7 @@ def test_case_text_round_trips():
     ("output.states=['q']", "output.states"),
     ("measure.cv_window=[0.5, 9]", "measure.cv_window"),
     ("numerics.dt=10", "numerics.dt"),
+    ("stimulus.0.amplitude=1e7", "stimulus.0.amplitude"),   # a unit slip (100 A/cm^2)
 ])
 def test_bad_input_names_the_key(override, key):
     with pytest.raises(CaseError, match=key.replace(".", r"\.")):
