@@ -14,7 +14,7 @@ def test_readme_case_tour_loads_with_its_sweep():
     case = cable.load_case(tomllib.loads(block))
     assert case.membrane.model == "hodgkin-huxley-1952"
     assert "sweep" in case.extra and "region" in case.extra
-    assert case.fiber.radius == 0.0238
+    assert abs(case.fiber.radius - 0.0238) < 1e-12   # "238 um" in cm
 
 
 def test_readme_mentions_every_command():
