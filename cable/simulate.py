@@ -24,18 +24,11 @@ from cable.fiber import Grid, build_grid, node_positions
 from cable.io import schema
 from cable.kernels import diffusion, fused, integrate, tables
 from cable.kernels.jit import specialise
+from cable.kernels.state import CHECK_EVERY, MAX_CROSSINGS, crossing_cap, loop_arrays, scheme_codes  # noqa: F401
 from cable.measure.activation import assign_beats, per_beat
 from cable.measure.apd import ApdTracker
 from cable.measure.velocity import conduction_velocity, default_window, window_nodes
 from cable.membrane import MembraneModel, get_model
-
-#: how often the loop checks for NaN / runaway potential [steps]: often enough that a
-#: potential blown up by a huge stimulus cannot recover unseen between checks (the
-#: check is one vectorised pass over the nodes, ~1/20 of a step's work at most)
-CHECK_EVERY = 20
-#: most threshold crossings stored per node
-MAX_CROSSINGS = 4096
-
 
 class SimulationError(RuntimeError):
     """A numerical failure during the run (NaN or runaway potential).
@@ -236,7 +229,7 @@ def stored_bytes(setup: Setup) -> int:
 
 def probe_bytes(n: int, n_pulses: int, n_levels: int) -> int:
     """Bytes of the per-crossing probes (activation, upstroke, rest, peak, APD levels) of n nodes."""
-    cap = max(16, min(2 * n_pulses + 8, MAX_CROSSINGS))  # as simulate() sizes them
+    cap = crossing_cap(n_pulses)  # as simulate() sizes them
     return n * cap * 8 * (4 + n_levels)
 
 
@@ -351,40 +344,22 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     model = setup.model
     num = case.numerics
     dt = num.dt
-    gating = 0 if num.gating == "rush-larsen" else 1
+    gating, theta, splitting = scheme_codes(num)
     rates = tables.plan(model, setup.p, dt, gating, num.rates)
     if rates.note:
         say(rates.note)
     fast = rates.mode != "reference"
     advance = _fast_integrator(model.name) if fast else _integrator(model.name)
 
-    n = setup.n
     state_names = list(case.output_states)
     state_idx = [model.state_names.index(s) for s in state_names]
     field_names = ["vm"] + [schema.STATE_PREFIX + s for s in state_names]
     v = setup.v0.copy()
-    by_state = fast and model.fast.by_state
-    if by_state:  # stored by state and by parameter (see cable.kernels.fused)
-        s = np.ascontiguousarray(setup.s0.T)
-        p = tables.by_parameter(setup.p)
-    else:
-        s = np.ascontiguousarray(setup.s0.copy())
-        p = np.ascontiguousarray(np.broadcast_to(setup.p, (n, setup.p.shape[1])))
+    arrays = loop_arrays(model, fast, v, setup.s0, setup.p, setup.pulses.shape[0])
+    act, nact, upstroke = arrays.act, arrays.nact, arrays.upstroke
     grid = setup.grid
-    theta = diffusion.THETA[num.diffusion]
     half = diffusion.factor(grid.lo, grid.up, 0.5 * dt, theta)
     full = diffusion.factor(grid.lo, grid.up, dt, theta)
-    splitting = integrate.STRANG if num.splitting == "strang" else integrate.GODUNOV
-    # crossings stored per node (more are counted, not stored): two per pulse, bounded
-    cap = max(16, min(2 * setup.pulses.shape[0] + 8, MAX_CROSSINGS))
-    act = np.full((n, cap), np.nan)
-    nact = np.zeros(n, dtype=np.int64)
-    upstroke = np.full((n, cap), np.nan)
-    vprev = v.copy()
-    pre_rate = np.zeros(n)
-    open_up = np.zeros(n, dtype=np.int64)
-    i_stim = np.zeros(n)
-    work = np.zeros(n)
     tracker = ApdTracker(v, act, case.apd_levels)
 
     attrs = provenance(setup, command)
@@ -395,7 +370,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     def sample(k):
         vals = {"vm": v}
         for name, j in zip(state_names, state_idx):
-            vals[schema.STATE_PREFIX + name] = s[j] if by_state else s[:, j]
+            vals[schema.STATE_PREFIX + name] = arrays.state(j)
         sink.write(k, vals)
 
     table_args = (rates.table, rates.v_lo, rates.inv_dv, 1) if fast else ()
@@ -408,10 +383,9 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     try:
         for k in range(1, setup.n_samples):
             t0 = (k - 1) * spb * dt
-            status, step, node = advance(v, s, p, t0, spb, dt, setup.pulses, grid.lo, grid.up, theta, half, full,
-                                         splitting, num.merge_half_steps, gating, setup.ion_scale, setup.threshold,
-                                         vprev, act, nact, pre_rate, open_up, upstroke, i_stim, work, CHECK_EVERY,
-                                         *table_args)
+            status, step, node = advance(v, arrays.s, arrays.p, t0, spb, dt, setup.pulses, grid.lo, grid.up, theta,
+                                         half, full, splitting, num.merge_half_steps, gating, setup.ion_scale,
+                                         setup.threshold, *arrays.probes(), *table_args)
             if status != integrate.OK:
                 failure = (status, t0 + (step + 1) * dt, node)
                 break

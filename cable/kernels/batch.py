@@ -39,16 +39,11 @@ from types import SimpleNamespace
 
 import numpy as np
 
+from cable.kernels.state import crossing_cap, loop_arrays, scheme_codes
+
 #: at most this many nodes in one batch (the rest form further batches): the stored
 #: fields and the probes grow with it
 MAX_BATCH_NODES = 2_000_000
-
-
-def crossing_cap(setup) -> int:
-    """Threshold crossings stored per node, as ``cable.simulate`` sizes them for this case."""
-    from cable.simulate import MAX_CROSSINGS
-
-    return max(16, min(2 * setup.pulses.shape[0] + 8, MAX_CROSSINGS))
 
 
 def _rates_key(setup) -> tuple:
@@ -83,7 +78,7 @@ def group_key(setup) -> tuple | None:
     num = case.numerics
     return (setup.model.name, num.dt, num.splitting, num.diffusion, num.gating, num.merge_half_steps,
             num.rates, setup.steps_per_sample, setup.n_samples, setup.threshold, tuple(case.apd_levels),
-            setup.ion_scale, tuple(case.output_states), crossing_cap(setup), _rates_key(setup))
+            setup.ion_scale, tuple(case.output_states), crossing_cap(setup.pulses.shape[0]), _rates_key(setup))
 
 
 def loop_key(case) -> tuple:
@@ -242,7 +237,7 @@ def _run_batch(setups):
     from cable.io import schema
     from cable.kernels import diffusion, integrate, tables
     from cable.measure.apd import ApdTracker
-    from cable.simulate import CHECK_EVERY, _fast_integrator, measurements, provenance
+    from cable.simulate import _fast_integrator, measurements, provenance
 
     first = setups[0]
     model = first.model
@@ -250,13 +245,12 @@ def _run_batch(setups):
     num = case0.numerics
     dt = num.dt
     n = sum(s.n for s in setups)
-    gating = 0 if num.gating == "rush-larsen" else 1
+    gating, theta, splitting = scheme_codes(num)
     # one table for the group: its table parameters are those of every member (group_key)
     rates = tables.plan(model, first.p, dt, gating, num.rates)
     fast = rates.mode != "reference"
     interleaved, slices = _layout(setups, fast)
     grids = [(s.grid.lo, s.grid.up) for s in setups]
-    theta = diffusion.THETA[num.diffusion]
     if interleaved:
         advance = _fast_integrator(model.name)
         factor, last = diffusion.factor_interleaved, (len(setups),)
@@ -271,24 +265,10 @@ def _run_batch(setups):
     pulses = _pulses(setups, slices, n)
     v = _place([s.v0 for s in setups], slices, n)
     s0 = _place([s.s0 for s in setups], slices, n)
-    by_state = fast and model.fast.by_state
-    if by_state:
-        st = np.ascontiguousarray(s0.T)
-        p = tables.by_parameter(p_nodes)
-    else:
-        st = np.ascontiguousarray(s0)
-        p = np.ascontiguousarray(p_nodes)
+    # the crossing cap is the same for every member (group_key)
+    arrays = loop_arrays(model, fast, v, s0, p_nodes, first.pulses.shape[0])
+    act, nact, upstroke = arrays.act, arrays.nact, arrays.upstroke
     extra = ((rates.table, rates.v_lo, rates.inv_dv) if fast else ()) + last
-    splitting = integrate.STRANG if num.splitting == "strang" else integrate.GODUNOV
-    cap = crossing_cap(first)           # the same for every member (group_key)
-    act = np.full((n, cap), np.nan)
-    nact = np.zeros(n, dtype=np.int64)
-    upstroke = np.full((n, cap), np.nan)
-    vprev = v.copy()
-    pre_rate = np.zeros(n)
-    open_up = np.zeros(n, dtype=np.int64)
-    i_stim = np.zeros(n)
-    work = np.zeros(n)
     tracker = ApdTracker(v, act, case0.apd_levels)
     state_idx = [model.state_names.index(name) for name in case0.output_states]
     field_names = ["vm"] + [schema.STATE_PREFIX + name for name in case0.output_states]
@@ -309,15 +289,15 @@ def _run_batch(setups):
     def sample(k):
         put("vm", k, v)
         for name, j in zip(field_names[1:], state_idx):
-            put(name, k, st[j] if by_state else st[:, j])
+            put(name, k, arrays.state(j))
 
     sample(0)
     wall0 = _time.perf_counter()
     for k in range(1, first.n_samples):
         t0 = (k - 1) * spb * dt
-        status, _, _ = advance(v, st, p, t0, spb, dt, pulses, lo, up, theta, half, full, splitting,
-                               num.merge_half_steps, gating, first.ion_scale, first.threshold, vprev, act, nact,
-                               pre_rate, open_up, upstroke, i_stim, work, CHECK_EVERY, *extra)
+        status, _, _ = advance(v, arrays.s, arrays.p, t0, spb, dt, pulses, lo, up, theta, half, full, splitting,
+                               num.merge_half_steps, gating, first.ion_scale, first.threshold, *arrays.probes(),
+                               *extra)
         if status != integrate.OK:
             return None
         tracker.update(v, k * spb * dt, act, nact)

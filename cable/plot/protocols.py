@@ -45,6 +45,12 @@ _CASE_GRID = {"marker": "*", "markersize": 15, "markerfacecolor": "none", "marke
               "markeredgewidth": 1.3, "linestyle": "none", "clip_on": False}
 
 
+#: the two fitted strength-duration laws: (suffix of their variables, name)
+_LAWS = (("lapicque", "Lapicque"), ("weiss", "Weiss"))
+#: the fitted parameters a strength-duration result carries
+_LAW_FITS = tuple(f"{q}_{key}" for key, _law in _LAWS for q in ("rheobase", "chronaxie"))
+
+
 def _require(ds, names, who, maker):
     missing = [n for n in names if n not in ds.variables]
     if missing:
@@ -79,6 +85,20 @@ def _plain_log(axis) -> None:
 
     axis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
     axis.set_minor_formatter(FuncFormatter(minor))
+
+
+def _fits(ds):
+    """(suffix, name, rheobase, chronaxie, look) of each strength-duration fit with finite values."""
+    for k, (key, law) in enumerate(_LAWS, start=1):
+        rh, c = _scalar(ds, f"rheobase_{key}"), _scalar(ds, f"chronaxie_{key}")
+        if np.isfinite(rh) and np.isfinite(c):
+            yield key, law, rh, c, _common.look(k)
+
+
+def _fit_mark(ax, x, y, color):
+    """A fit's open mark at (x, y): its chronaxie or its charge intercept."""
+    ax.plot([x], [y], marker=_FIT_MARK, markersize=6, markerfacecolor="white", markeredgecolor=color,
+            markeredgewidth=1.3, linestyle="none", zorder=4)
 
 
 def _at_foot(ax, xs, style, label):
@@ -121,8 +141,7 @@ def strength_duration(ds, ax=None, *, logx: bool = True, logy: bool = True, fits
     CaseError
         ``ds`` is not a strength-duration result.
     """
-    _require(ds, ("threshold", "rheobase_lapicque", "chronaxie_lapicque", "rheobase_weiss", "chronaxie_weiss"),
-             "strength_duration figure", "cable.strength_duration")
+    _require(ds, ("threshold",) + _LAW_FITS, "strength_duration figure", "cable.strength_duration")
     ax = _common.axes_or_current(ax)
     d = np.asarray(ds["duration"].values, dtype=float)
     amp = np.asarray(ds["threshold"].values, dtype=float)
@@ -133,11 +152,7 @@ def strength_duration(ds, ax=None, *, logx: bool = True, logy: bool = True, fits
     if fits and d.size:
         dd = np.geomspace(d.min() / CURVE_MARGIN, d.max() * CURVE_MARGIN, CURVE_POINTS) if logx else \
             np.linspace(d.min() / CURVE_MARGIN, d.max() * CURVE_MARGIN, CURVE_POINTS)
-        for k, (key, law) in enumerate((("lapicque", "Lapicque"), ("weiss", "Weiss")), start=1):
-            rh, c = _scalar(ds, f"rheobase_{key}"), _scalar(ds, f"chronaxie_{key}")
-            if not (np.isfinite(rh) and np.isfinite(c)):
-                continue
-            style = _common.look(k)
+        for key, law, rh, c, style in _fits(ds):
             rms = _scalar(ds, f"{key}_rms_relative_residual")
             text = f"{law} fit: I_rh {rh:.3g} {unit}, c {c:.3g} ms"
             if np.isfinite(rms):
@@ -145,8 +160,7 @@ def strength_duration(ds, ax=None, *, logx: bool = True, logy: bool = True, fits
             ax.plot(dd, rh * (1.0 + c / dd), color=style["color"], linestyle=style["linestyle"], linewidth=1.3,
                     label=text)
             ax.axhline(rh, color=style["color"], linestyle=":", linewidth=0.9)
-            ax.plot([c], [2.0 * rh], marker=_FIT_MARK, markersize=6, markerfacecolor="white",
-                    markeredgecolor=style["color"], markeredgewidth=1.3, linestyle="none", zorder=4)
+            _fit_mark(ax, c, 2.0 * rh, style["color"])
         # one legend entry each for the marks the two fits share
         ax.plot([], [], color="0.35", linestyle=":", linewidth=0.9, label="rheobase I_rh of each fit")
         ax.plot([], [], marker=_FIT_MARK, markersize=6, markerfacecolor="white", markeredgecolor="0.35",
@@ -187,8 +201,7 @@ def charge_duration(ds, ax=None, *, fits: bool = True, legend: bool = True):
     CaseError
         ``ds`` is not a strength-duration result.
     """
-    _require(ds, ("charge", "rheobase_lapicque", "chronaxie_lapicque", "rheobase_weiss", "chronaxie_weiss"),
-             "charge_duration figure", "cable.strength_duration")
+    _require(ds, ("charge",) + _LAW_FITS, "charge_duration figure", "cable.strength_duration")
     ax = _common.axes_or_current(ax)
     d = np.asarray(ds["duration"].values, dtype=float)
     q = np.asarray(ds["charge"].values, dtype=float)
@@ -198,15 +211,10 @@ def charge_duration(ds, ax=None, *, fits: bool = True, legend: bool = True):
             **_common.look(0))
     if fits and d.size:
         dd = np.linspace(0.0, d.max() * 1.05, 2)
-        for k, (key, law) in enumerate((("lapicque", "Lapicque"), ("weiss", "Weiss")), start=1):
-            rh, c = _scalar(ds, f"rheobase_{key}"), _scalar(ds, f"chronaxie_{key}")
-            if not (np.isfinite(rh) and np.isfinite(c)):
-                continue
-            style = _common.look(k)
+        for _key, law, rh, c, style in _fits(ds):
             ax.plot(dd, rh * (dd + c), color=style["color"], linestyle=style["linestyle"], linewidth=1.3,
                     label=f"{law} fit: Q = {rh:.3g} x (d + {c:.3g} ms)")
-            ax.plot([0.0], [rh * c], marker=_FIT_MARK, markersize=6, markerfacecolor="white",
-                    markeredgecolor=style["color"], markeredgewidth=1.3, linestyle="none", zorder=4)
+            _fit_mark(ax, 0.0, rh * c, style["color"])
     ax.set_xlim(left=0.0)
     ax.set_ylim(bottom=0.0)
     ax.set_xlabel(f"stimulus duration [{_units(ds, 'duration', 'ms')}]")

@@ -1,0 +1,73 @@
+"""The arrays and codes a time loop runs on, set up once for ``cable.simulate`` and
+``cable.kernels.batch`` alike (so both size, store and pass them the same way).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from cable.kernels import diffusion, integrate, tables
+
+#: how often the loop checks for NaN / runaway potential [steps]: often enough that a
+#: potential blown up by a huge stimulus cannot recover unseen between checks (the
+#: check is one vectorised pass over the nodes, ~1/20 of a step's work at most)
+CHECK_EVERY = 20
+#: most threshold crossings stored per node
+MAX_CROSSINGS = 4096
+
+
+def crossing_cap(n_pulses: int) -> int:
+    """Threshold crossings stored per node (more are counted, not stored): two per pulse, bounded."""
+    return max(16, min(2 * n_pulses + 8, MAX_CROSSINGS))
+
+
+def scheme_codes(num) -> tuple[int, float, int]:
+    """(gating, theta, splitting): the kernel's codes for a case's ``numerics`` section."""
+    gating = 0 if num.gating == "rush-larsen" else 1
+    splitting = integrate.STRANG if num.splitting == "strang" else integrate.GODUNOV
+    return gating, diffusion.THETA[num.diffusion], splitting
+
+
+@dataclass
+class LoopArrays:
+    """States, parameters and probes of one time loop (node arrays, updated in place)."""
+
+    by_state: bool       #: states stored (nstate, n) and parameters by parameter (fast path)
+    s: np.ndarray
+    p: np.ndarray
+    act: np.ndarray      #: activation crossings [ms], (n, cap)
+    nact: np.ndarray     #: crossings counted per node
+    upstroke: np.ndarray  #: maximal dV/dt of each upstroke [mV/ms], (n, cap)
+    vprev: np.ndarray
+    pre_rate: np.ndarray
+    open_up: np.ndarray
+    i_stim: np.ndarray
+    work: np.ndarray
+
+    def probes(self) -> tuple:
+        """The probe arguments of the time loop, in its order (then ``CHECK_EVERY``)."""
+        return (self.vprev, self.act, self.nact, self.pre_rate, self.open_up, self.upstroke, self.i_stim,
+                self.work, CHECK_EVERY)
+
+    def state(self, j: int) -> np.ndarray:
+        """State ``j`` at every node."""
+        return self.s[j] if self.by_state else self.s[:, j]
+
+
+def loop_arrays(model, fast: bool, v: np.ndarray, s0: np.ndarray, p: np.ndarray, n_pulses: int) -> LoopArrays:
+    """The loop's arrays for initial potential ``v`` (n,), states ``s0`` (n, nstate) and
+    parameters ``p`` ((n, nparam) or (1, nparam)); ``fast``: the fast reaction path."""
+    n = v.shape[0]
+    by_state = bool(fast and model.fast.by_state)
+    if by_state:  # stored by state and by parameter (see cable.kernels.fused)
+        s = np.ascontiguousarray(s0.T)
+        p = tables.by_parameter(p)
+    else:
+        s = np.ascontiguousarray(s0.copy())
+        p = np.ascontiguousarray(np.broadcast_to(p, (n, p.shape[1])))
+    cap = crossing_cap(n_pulses)
+    return LoopArrays(by_state=by_state, s=s, p=p, act=np.full((n, cap), np.nan), nact=np.zeros(n, dtype=np.int64),
+                      upstroke=np.full((n, cap), np.nan), vprev=v.copy(), pre_rate=np.zeros(n),
+                      open_up=np.zeros(n, dtype=np.int64), i_stim=np.zeros(n), work=np.zeros(n))
