@@ -1,0 +1,89 @@
+"""What the compiler needs to know about a parsed description.
+
+* which states have a derivative linear in themselves, dy/dt = a + b y with a and b free
+  of y (found from the equations: the intermediates that depend on y are substituted
+  into dy/dt and the derivative with respect to y must not contain y). Those states are
+  advanced by the Rush-Larsen update y <- y + (dy/dt) (exp(b dt) - 1)/b, exact when a
+  and b are constant over the step (Rush & Larsen 1978, IEEE Trans Biomed Eng 25:389;
+  the same form covers gates written with rates or with y_inf and tau);
+* which intermediates each expression needs, and which depend on the states.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import sympy
+
+from cable.membrane.equations.description import POTENTIAL, Parsed
+
+
+@dataclass
+class Analysis:
+    parsed: Parsed
+    linear: dict          # state name -> b (sympy expr over symbols) or None
+    state_dependent: set  # intermediate names that depend on a state
+    v_only: set           # intermediate names that depend on V (and constants) only
+
+
+def _depends(parsed: Parsed) -> dict:
+    """Intermediate name -> set of base names (V, states, parameters) it depends on."""
+    deps: dict = {}
+    for name, expr in parsed.intermediates.items():
+        base = set()
+        for s in expr.free_symbols:
+            n = str(s)
+            base |= deps[n] if n in deps else {n}
+        deps[name] = base
+    return deps
+
+
+def needed(parsed: Parsed, exprs) -> list:
+    """The intermediates (in dependency order) the expressions ``exprs`` use."""
+    want = set()
+    todo = [str(s) for e in exprs for s in e.free_symbols]
+    while todo:
+        n = todo.pop()
+        if n in parsed.intermediates and n not in want:
+            want.add(n)
+            todo.extend(str(s) for s in parsed.intermediates[n].free_symbols)
+    return [n for n in parsed.intermediates if n in want]
+
+
+def _substitute_dependent(parsed: Parsed, expr, y: str, deps: dict):
+    """``expr`` with every intermediate that depends on ``y`` written out."""
+    inter = parsed.intermediates
+    cache: dict = {}
+
+    def expand(e):
+        subs = {}
+        for s in e.free_symbols:
+            n = str(s)
+            if n in inter and y in deps[n]:
+                if n not in cache:
+                    cache[n] = expand(inter[n])
+                subs[s] = cache[n]
+        return e.xreplace(subs) if subs else e
+
+    return expand(expr)
+
+
+def analyse(parsed: Parsed) -> Analysis:
+    deps = _depends(parsed)
+    states = {s.name for s in parsed.model.states}
+    linear = {}
+    for name, f in parsed.derivatives.items():
+        y = parsed.sym[name]
+        full = _substitute_dependent(parsed, f, name, deps)
+        if y not in full.free_symbols:
+            linear[name] = None  # dy/dt does not depend on y: forward Euler
+            continue
+        b = sympy.diff(full, y)
+        if y in b.free_symbols or b.has(sympy.Derivative, sympy.DiracDelta):
+            linear[name] = None
+        else:
+            linear[name] = b
+    state_dep = {n for n, d in deps.items() if d & states}
+    v_only = {n for n, d in deps.items() if POTENTIAL in d and not (d & states)
+              and not (d & {p.name for p in parsed.model.parameters})}
+    return Analysis(parsed, linear, state_dep, v_only)

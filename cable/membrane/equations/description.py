@@ -1,0 +1,165 @@
+"""A membrane model written once, as its equations.
+
+A description lists the states, the parameters, the intermediate expressions, the time
+derivative of each state and the ionic currents, as plain Python expressions (strings
+parsed by sympy, or sympy expressions) over the names it declares and the membrane
+potential ``V`` [mV]; time is in ms and the currents are in the model's basis (uA/cm^2
+for ``current_basis = "area"``, uA/uF otherwise), inward currents negative. The ionic
+current is the sum of the currents. :func:`cable.membrane.equations.compile.build_model`
+turns a description into a :class:`cable.membrane.base.MembraneModel`.
+
+Example (a two-state model, units in the strings are for the reader)::
+
+    Equations(
+        name="my-model", citation="...", summary="...", resting_potential=-80.0,
+        states=(EqState("w", 0.0, "1", "recovery gate"),),
+        parameters=(EqParameter("g", 1.0, "mS/cm^2", "conductance", "conductance", scalable=True),),
+        intermediates=(("w_inf", "1/(1 + exp(-(V + 40)/5))"),),
+        derivatives=(("w", "(w_inf - w)/10"),),
+        currents=(("I_w", "g*w*(V + 80)"),),
+    )
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import sympy
+
+from cable.membrane.equations.errors import EquationError
+
+#: the name of the membrane potential in every description [mV]
+POTENTIAL = "V"
+
+
+@dataclass(frozen=True)
+class EqState:
+    """A state variable: name, initial value, unit and meaning."""
+
+    name: str
+    initial: float
+    units: str
+    meaning: str
+
+
+@dataclass(frozen=True)
+class EqParameter:
+    """A parameter: default, unit, meaning, quantity kind (a key of cable.units.CANONICAL)."""
+
+    name: str
+    default: float
+    units: str
+    meaning: str
+    quantity: str = "dimensionless"
+    scalable: bool = False
+    minimum: float | None = None
+    maximum: float | None = None
+
+
+@dataclass(frozen=True)
+class Equations:
+    """One membrane model as equations (see the module docstring).
+
+    ``intermediates``, ``derivatives`` and ``currents`` are sequences of ``(name, expression)``
+    pairs; intermediates may be given in any order (they are sorted by dependency).
+    ``notes`` are lines shown by ``cable models NAME`` (what an import recognised).
+    ``capacitance`` [uF/cm^2] is the model's own membrane capacitance where it has one
+    (used when the case gives none).
+    """
+
+    name: str
+    citation: str
+    summary: str
+    resting_potential: float
+    states: tuple[EqState, ...]
+    parameters: tuple[EqParameter, ...]
+    intermediates: tuple[tuple[str, object], ...]
+    derivatives: tuple[tuple[str, object], ...]
+    currents: tuple[tuple[str, object], ...]
+    current_basis: str = "area"
+    threshold: float = -20.0
+    temperature_parameter: str | None = None
+    capacitance: float | None = None
+    notes: tuple[str, ...] = ()
+    meanings: dict = field(default_factory=dict)  # intermediate name -> meaning (optional)
+
+    def symbols(self) -> dict[str, sympy.Symbol]:
+        """The declared names as sympy symbols (potential, states, parameters, intermediates)."""
+        names = [POTENTIAL] + [s.name for s in self.states] + [p.name for p in self.parameters]
+        names += [n for n, _ in self.intermediates]
+        seen = set()
+        for n in names:
+            if n in seen:
+                raise EquationError(f"model {self.name}: the name '{n}' is declared twice.")
+            seen.add(n)
+        return {n: sympy.Symbol(n, real=True) for n in names}
+
+
+def parse(model: Equations) -> "Parsed":
+    """Parse every expression of ``model`` into sympy, checking the names it uses."""
+    sym = model.symbols()
+    local = dict(sym)
+    # sympy would read these names as its own objects (the imaginary unit, a beta function...)
+    for name in ("E", "I", "N", "O", "Q", "S", "beta", "gamma", "zeta", "lambda"):
+        local.setdefault(name, sympy.Symbol(name, real=True))
+
+    def conv(where, expr):
+        if isinstance(expr, (int, float)):
+            return sympy.Float(expr)
+        if isinstance(expr, str):
+            try:
+                expr = sympy.sympify(expr, locals=local)
+            except (sympy.SympifyError, SyntaxError, TypeError) as exc:
+                raise EquationError(f"model {model.name}: {where}: cannot read the expression: {exc}") from None
+        unknown = sorted(str(s) for s in expr.free_symbols if str(s) not in sym)
+        if unknown:
+            raise EquationError(f"model {model.name}: {where} uses unknown names {', '.join(unknown)}; "
+                                f"declared: {', '.join(sorted(sym))}.")
+        return expr.subs({s: sym[str(s)] for s in expr.free_symbols}) if expr.free_symbols else expr
+
+    inter = {n: conv(f"intermediate '{n}'", e) for n, e in model.intermediates}
+    states = [s.name for s in model.states]
+    deriv = {}
+    for n, e in model.derivatives:
+        if n not in states:
+            raise EquationError(f"model {model.name}: derivative of '{n}', which is not a state.")
+        deriv[n] = conv(f"derivative of '{n}'", e)
+    missing = [n for n in states if n not in deriv]
+    if missing:
+        raise EquationError(f"model {model.name}: no derivative for states {', '.join(missing)}.")
+    curr = {n: conv(f"current '{n}'", e) for n, e in model.currents}
+    if not curr:
+        raise EquationError(f"model {model.name}: no ionic current declared.")
+    return Parsed(model, sym, _sorted(model.name, inter, sym), deriv, curr)
+
+
+@dataclass
+class Parsed:
+    model: Equations
+    sym: dict
+    intermediates: dict  # name -> expr, in dependency order
+    derivatives: dict
+    currents: dict
+
+
+def _sorted(model_name: str, inter: dict, sym: dict) -> dict:
+    """Intermediates in an order where each comes after those it uses."""
+    done: dict = {}
+    visiting = set()
+
+    def visit(n):
+        if n in done:
+            return
+        if n in visiting:
+            raise EquationError(f"model {model_name}: the intermediate '{n}' depends on itself "
+                                f"(an algebraic loop); write it as a state or solve it by hand.")
+        visiting.add(n)
+        for s in inter[n].free_symbols:
+            if str(s) in inter:
+                visit(str(s))
+        visiting.discard(n)
+        done[n] = inter[n]
+
+    for n in inter:
+        visit(n)
+    return done
