@@ -344,10 +344,24 @@ def load_case(source, overrides=()) -> Case:
         raw = copy.deepcopy(source)
     else:
         raw = _read_toml(source)
+        _anchor_cellml_path(raw, source)
     items = overrides.items() if isinstance(overrides, dict) else (parse_assignment(o) for o in overrides)
     for key, value in items:
         set_key(raw, key, value)
     return from_dict(raw)
+
+
+def _anchor_cellml_path(raw: dict, source) -> None:
+    """A CellML path in a case file is relative to the file: made absolute here."""
+    mem = raw.get("membrane") if isinstance(raw, dict) else None
+    is_file = isinstance(source, Path) or (isinstance(source, str) and "\n" not in source and "=" not in source)
+    if not isinstance(mem, dict) or not is_file:
+        return
+    for key in ("cellml", "model"):
+        value = mem.get(key)
+        if isinstance(value, str) and value.split("?")[0].lower().endswith(".cellml") \
+                and not Path(value).expanduser().is_absolute():
+            mem[key] = str(Path(source).resolve().parent / value)
 
 
 def _read_toml(source) -> dict:
@@ -387,10 +401,15 @@ def from_dict(raw: dict) -> Case:
     notes: list[str] = []
 
     mem = _read_section("membrane", raw["membrane"], SECTIONS["membrane"])
+    mem["model"] = _model_name(mem)
     try:
         model = get_model(mem["model"])
     except UnknownModelError as exc:
         raise CaseError(f"membrane.model = {mem['model']!r}: {exc}") from None
+    own_cm = getattr(model, "capacitance", None)  # a CellML model's own C_m [uF/cm^2]
+    if own_cm is not None and mem["capacitance"] is None and "capacitance" not in raw.get("fiber", {}):
+        mem["capacitance"] = own_cm
+        notes.append(f"membrane.capacitance = {own_cm:g} uF/cm^2, the model's own (give the key to change it).")
     scale = _read_scale(mem["scale"] or {}, model)
     params = _read_parameters(mem["parameters"] or {}, model)
     if mem["temperature"] is not None:
@@ -506,6 +525,25 @@ def _param_value(where, value, par):
         return value
     out = convert(where, value, Key("quantity", par.quantity, minimum=par.minimum, maximum=par.maximum))
     return out
+
+
+def _model_name(mem: dict) -> str:
+    """The registry name of [membrane] model or cellml (a CellML file with its options)."""
+    from cable.membrane.equations.registry import cellml_model_name, is_generated_name
+
+    options = {k: mem[k] for k in ("potential", "stimulus_current", "convention")}
+    if mem["cellml"] is not None:
+        if mem["model"] is not None:
+            raise CaseError("membrane.model and membrane.cellml are both given; give one of them.")
+        return cellml_model_name(mem["cellml"], **options)
+    if mem["model"] is None:
+        raise CaseError("missing key membrane.model (a registered model, see `cable models`, or a CellML file).")
+    if is_generated_name(mem["model"]) and not mem["model"].startswith("equations:"):
+        return cellml_model_name(mem["model"].split("?")[0], **options)
+    given = [k for k, v in options.items() if v is not None]
+    if given:
+        raise CaseError(f"membrane.{given[0]} applies to CellML models only; membrane.model = {mem['model']!r}.")
+    return mem["model"]
 
 
 def _read_scale(table: dict, model) -> dict:

@@ -37,7 +37,11 @@ def _q(quantity, default=None, *, minimum=None, maximum=None, positive=False, me
 
 SECTIONS: dict[str, dict[str, Key]] = {
     "membrane": {
-        "model": Key("str", required=True, meaning="registered membrane model name (see `cable models`)"),
+        "model": Key("str", meaning="registered membrane model name (see `cable models`), or a CellML file (path ending .cellml, relative to the case file)"),
+        "cellml": Key("str", meaning="a CellML file to run instead of a registered model (path relative to the case file)"),
+        "potential": Key("str", meaning="CellML only: the membrane-potential variable, component.variable (overrides the recognition)"),
+        "stimulus_current": Key("str", meaning="CellML only: the file's stimulus-current variable, removed (overrides the recognition)"),
+        "convention": Key("choice", choices=("modern", "hodgkin-huxley-1952"), meaning="CellML only: sign convention of the file's potential (default: recognised)"),
         "temperature": _q("temperature", meaning="temperature, for models with a temperature parameter [degC]"),
         "scale": Key("table", meaning="factor per scalable conductance, e.g. g_Na = 0.5"),
         "parameters": Key("table", meaning="value per model parameter, e.g. K_o = 8"),

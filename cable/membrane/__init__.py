@@ -16,7 +16,7 @@ from pathlib import Path
 
 from cable.membrane.base import MembraneModel, Parameter, State
 
-_NOT_MODELS = {"base"}
+_NOT_MODELS = {"base", "equations"}
 
 
 def model_names() -> list[str]:
@@ -40,7 +40,15 @@ class UnknownModelError(KeyError):
 
 
 def get_model(name: str) -> MembraneModel:
-    """Return the registered model ``name``; an unknown name lists the valid ones."""
+    """Return the registered model ``name``; an unknown name lists the valid ones.
+
+    A CellML file's path (see :func:`cable.membrane.equations.registry.cellml_model_name`)
+    or ``equations:MODULE`` gives a model generated from its equations.
+    """
+    from cable.membrane.equations.registry import is_generated_name, load
+
+    if is_generated_name(name):
+        return load(str(name))
     names = model_names()
     if name not in names:
         near = difflib.get_close_matches(str(name), names, n=1, cutoff=0.4)
