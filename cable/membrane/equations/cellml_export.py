@@ -1,0 +1,175 @@
+"""Write a model described by its equations as a CellML 2.0 file.
+
+One component ``membrane`` holds every variable, in the package's canonical units
+(mV, ms, the currents in the model's basis) and a units definition per other unit
+string met (declared dimensionless when the string is not a CellML unit: the file's own
+units are kept as names, the numbers unchanged). The potential obeys
+dV/dt = -(I_ion)/C_m (area basis, C_m in uF/cm^2) or -I_ion (per capacitance) with
+I_stim = 0 as its stimulus, so that the file is a complete CellML model; importing it
+again recognises V, the stimulus and C_m. The libcellml validator checks the result.
+"""
+
+from __future__ import annotations
+
+import re
+
+import sympy
+from sympy.printing.mathml import MathMLContentPrinter
+
+from cable.membrane.equations.cellml_read import _decimal
+from cable.membrane.equations.description import POTENTIAL, Equations, parse
+from cable.membrane.equations.errors import EquationError
+
+_MATHML = "http://www.w3.org/1998/Math/MathML"
+_CELLML = "http://www.cellml.org/cellml/2.0#"
+
+
+class _Printer(MathMLContentPrinter):
+    def __init__(self, names):
+        super().__init__({"disable_split_super_sub": True})
+        self._names = names
+
+    def _print_Symbol(self, sym):
+        ci = self.dom.createElement("ci")
+        ci.appendChild(self.dom.createTextNode(self._names[str(sym)]))
+        return ci
+
+    def _cn(self, text):
+        cn = self.dom.createElement("cn")
+        cn.setAttribute("cellml:units", "dimensionless")
+        cn.appendChild(self.dom.createTextNode(text))
+        return cn
+
+    def _print_Float(self, e):
+        return self._cn(_decimal(float(e)))
+
+    def _print_Integer(self, e):
+        return self._cn(str(int(e)))
+
+    def _print_Rational(self, e):
+        return self._print(sympy.Mul(e.p, sympy.Pow(e.q, -1), evaluate=False)) if e.q != 1 else self._cn(str(e.p))
+
+    def _print_Piecewise(self, e):
+        pw = self.dom.createElement("piecewise")
+        for val, cond in e.args:
+            if cond is sympy.true:
+                other = self.dom.createElement("otherwise")
+                other.appendChild(self._print(val))
+                pw.appendChild(other)
+            else:
+                piece = self.dom.createElement("piece")
+                piece.appendChild(self._print(val))
+                piece.appendChild(self._print(cond))
+                pw.appendChild(piece)
+        return pw
+
+
+def _ident(name: str, taken: set) -> str:
+    base = re.sub(r"\W", "_", name)
+    if not re.match(r"[A-Za-z_]", base):
+        base = "v_" + base
+    out, k = base, 1
+    while out in taken:
+        k += 1
+        out = f"{base}_{k}"
+    taken.add(out)
+    return out
+
+
+def _units_id(u: str) -> str:
+    return {"1": "dimensionless", "mV": "mV", "ms": "ms"}.get(u, "u_" + re.sub(r"\W", "_", u))
+
+
+def export(eq: Equations) -> str:
+    """CellML 2.0 text of ``eq`` (validated by libcellml; EquationError if refused)."""
+    import libcellml as L
+
+    parsed = parse(eq)
+    taken: set = set()
+    names = {n: _ident(n, taken) for n in parsed.sym}
+    t, istim, cm, iion = (_ident(n, taken) for n in ("time", "I_stim", "Cm", "I_ion"))
+    cur = {n: _ident(n, taken) for n in parsed.currents}
+    pr = _Printer(names)
+    per = "uA_per_cm2" if eq.current_basis == "area" else "uA_per_uF"
+    units = {"mV": [("volt", "milli", 1)], "ms": [("second", "milli", 1)],
+             "uA_per_cm2": [("ampere", "micro", 1), ("metre", "centi", -2)],
+             "uA_per_uF": [("ampere", "micro", 1), ("farad", "micro", -1)],
+             "uF_per_cm2": [("farad", "micro", 1), ("metre", "centi", -2)]}
+
+    def var_units(u):
+        uid = _units_id(u)
+        if uid not in units and uid != "dimensionless":
+            units[uid] = []  # a unit string of the description: a named dimensionless unit
+        return uid
+
+    variables = [(POTENTIAL, "mV", eq.resting_potential), (t, "ms", None), (istim, per, 0.0), (iion, per, None)]
+    if eq.current_basis == "area":
+        variables.append((cm, "uF_per_cm2", eq.capacitance or 1.0))
+    variables += [(s.name, var_units(s.units), s.initial) for s in eq.states]
+    variables += [(p.name, var_units(p.units), p.default) for p in eq.parameters]
+    variables += [(n, "dimensionless", None) for n in parsed.intermediates]
+    variables += [(cur[n], per, None) for n in parsed.currents]
+
+    def ident(n):
+        return names.get(n, n)
+
+    def eqn(lhs, rhs_expr=None, rhs_xml=None, diff=False):
+        body = rhs_xml if rhs_xml is not None else pr.doprint(rhs_expr)
+        left = (f"<apply><diff/><bvar><ci>{t}</ci></bvar><ci>{lhs}</ci></apply>" if diff else f"<ci>{lhs}</ci>")
+        return f"<apply><eq/>{left}{body}</apply>"
+
+    maths = []
+    for n, e in parsed.intermediates.items():
+        maths.append(eqn(ident(n), e))
+    for n, e in parsed.currents.items():
+        maths.append(eqn(cur[n], e))
+    for n, e in parsed.derivatives.items():
+        maths.append(eqn(ident(n), e, diff=True))
+    total = "".join(f"<ci>{cur[n]}</ci>" for n in parsed.currents)
+    maths.append(eqn(iion, rhs_xml=f"<apply><plus/>{total}</apply>" if len(parsed.currents) > 1 else total))
+    net = f"<apply><minus/><ci>{istim}</ci><ci>{iion}</ci></apply>"
+    dv = f"<apply><divide/>{net}<ci>{cm}</ci></apply>" if eq.current_basis == "area" else net
+    maths.append(eqn(POTENTIAL, rhs_xml=dv, diff=True))
+
+    out = [f'<?xml version="1.0" encoding="UTF-8"?>',
+           f'<model xmlns="{_CELLML}" xmlns:cellml="{_CELLML}" name="{_ident(eq.name, set())}">']
+    for uid, parts in units.items():
+        if not parts:
+            out.append(f'  <units name="{uid}"><unit units="dimensionless"/></units>')
+            continue
+        inner = "".join(f'<unit units="{u}"' + (f' prefix="{p}"' if p else "") +
+                        (f' exponent="{x}"' if x != 1 else "") + "/>" for u, p, x in parts)
+        out.append(f'  <units name="{uid}">{inner}</units>')
+    out.append('  <component name="membrane">')
+    for n, u, init in variables:
+        iv = f' initial_value="{_decimal(float(init))}"' if init is not None else ""
+        out.append(f'    <variable name="{ident(n)}" units="{u}"{iv}/>')
+    out.append(f'    <math xmlns="{_MATHML}">')
+    out += ["      " + m for m in maths]
+    out += ["    </math>", "  </component>", "</model>", ""]
+    text = "\n".join(out)
+    model = L.Parser().parseModel(text)
+    v = L.Validator()
+    v.validateModel(model)
+    if v.errorCount():
+        msgs = [v.error(i).description() for i in range(min(3, v.errorCount()))]
+        raise EquationError(f"model {eq.name}: the CellML export is refused by the libcellml validator: "
+                            + "; ".join(msgs))
+    return text
+
+
+def equations_of(model) -> Equations:
+    """The description of a model: a generated one's own, or a built-in's equation form."""
+    import importlib
+
+    from cable.membrane.equations.compile import equations_from_json
+
+    if getattr(model, "equations", ""):
+        return equations_from_json(model.equations)
+    try:
+        module = importlib.import_module(f"cable.membrane.equations.{model.name.replace('-', '_')}")
+        return module.EQUATIONS
+    except (ImportError, AttributeError):
+        raise EquationError(f"model '{model.name}' has no description as equations yet (the built-in models "
+                            f"other than hodgkin-huxley-1952 are hand-written kernels), so it cannot be "
+                            f"exported to CellML.") from None
