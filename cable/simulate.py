@@ -125,6 +125,10 @@ def node_parameters(case: Case, model: MembraneModel, n: int) -> np.ndarray:
         row[model.parameter_names.index(name)] = model.parameter(name).encode(value)
     for name, factor in case.membrane.scale.items():
         row[model.parameter_names.index(name)] *= factor
+    from cable.drugs import drug_factors
+
+    for name, factor in drug_factors(case).items():  # [drug]: Hill block, after the scales
+        row[model.parameter_names.index(name)] *= factor
     return np.tile(row, (n, 1))
 
 
@@ -331,7 +335,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     # prepare() may already run the reference loop (settling, pre-pacing): say so before it
     name = case.membrane.model
     mem = case.membrane
-    settles = mem.prepace is not None or bool(mem.parameters or mem.scale or case.raw.get("region")) \
+    settles = mem.prepace is not None or bool(mem.parameters or mem.scale or case.raw.get("region") or case.raw.get("drug")) \
         or mem.temperature is not None
     if not is_compiled(name, case.numerics.rates) or (settles and not _in_cache(_integrator(name))):
         say(f"compiling the '{name}' kernels (first run only; later runs use the cache)...")
@@ -534,6 +538,7 @@ def provenance(setup: Setup, command: str | None) -> dict:
         "merge_half_steps": int(num.merge_half_steps),
         "threshold_mV": setup.threshold,
         "notes": "\n".join(setup.notes),
+        "drug_block": _drug_text(case),
         "comment": "Research tool; not for clinical decisions.",
     }
     if setup.x is not None:
@@ -543,6 +548,12 @@ def provenance(setup: Setup, command: str | None) -> dict:
         attrs["prepace"] = setup.prepace["summary"]
         attrs["prepace_last_beat_change"] = setup.prepace["last_beat_change"]
     return attrs
+
+
+def _drug_text(case) -> str:
+    from cable.drugs import describe
+
+    return describe(case)
 
 
 def assemble(setup: Setup, fields: dict, meas: dict, attrs: dict, model: MembraneModel) -> xr.Dataset:

@@ -88,6 +88,8 @@ def summarise(ds, path=None) -> str:
     if attrs.get("wall_time_s") is not None:
         run += f"; took {_num(attrs['wall_time_s'], '.3g')} s"
     lines.append(run)
+    if attrs.get("drug_block"):
+        lines.extend(str(attrs["drug_block"]).splitlines())
     nb = ds.sizes.get("beat", 0)
     if not nb:
         lines.append("beats: none (no stimulus)")
