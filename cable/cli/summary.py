@@ -126,6 +126,8 @@ def _protocol_summary(ds):
         from cable.protocols.restitution import summary
     elif kind == "grid convergence":
         from cable.protocols.converge import summary
+    elif kind == "calibration":
+        from cable.protocols.calibrate import summary
     elif kind == "critical-value search" or str(attrs.get("title", "")).startswith("cable critical-value search"):
         from cable.cli.critical import summarise as summary
     else:
