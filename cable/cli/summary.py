@@ -78,6 +78,8 @@ def summarise(ds, path=None) -> str:
         x = ds["x"].values
         dx = attrs.get("dx_cm", x[1] - x[0] if x.size > 1 else np.nan)
         fibre = f"fibre: {_num(x[-1] - x[0])} cm, {x.size} nodes, dx {_num(dx)} cm"
+        if attrs.get("ring_circumference_cm") is not None:
+            fibre = f"ring: circumference {_num(attrs['ring_circumference_cm'])} cm, {x.size} nodes, dx {_num(dx)} cm"
         if attrs.get("diffusivity_cm2_per_ms") is not None:
             fibre += f", D {_num(attrs['diffusivity_cm2_per_ms'])} cm^2/ms"
         lines.append(fibre)
@@ -90,6 +92,9 @@ def summarise(ds, path=None) -> str:
     lines.append(run)
     if attrs.get("drug_block"):
         lines.extend(str(attrs["drug_block"]).splitlines())
+    from cable.ring import summary_lines
+
+    lines.extend(summary_lines(ds))
     nb = ds.sizes.get("beat", 0)
     if not nb:
         lines.append("beats: none (no stimulus)")
