@@ -391,7 +391,16 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     sink = netcdf.StreamWriter(output, setup, field_names, model, attrs) if output is not None else \
         _MemorySink(setup, field_names)
 
+    ecg_w = None
+    if setup.x is not None:
+        from cable import electrodes
+
+        ecg_w = electrodes.of_case(case, setup.x)
+    ecg = np.full((0 if ecg_w is None else ecg_w.shape[0], setup.n_samples), np.nan)
+
     def sample(k):
+        if ecg_w is not None:
+            ecg[:, k] = ecg_w @ v  # the pseudo-ECG from the full profile at each output time
         vals = {"vm": v}
         for name, j in zip(state_names, state_idx):
             vals[schema.STATE_PREFIX + name] = arrays.state(j)
@@ -427,6 +436,9 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     with _interrupts_held():  # a second Ctrl-C or SIGTERM waits until the file is complete
         try:
             meas = measurements(setup, act, nact, upstroke, tracker, t_end=(n_done - 1) * spb * dt)
+            if ecg_w is not None:
+                meas.update(electrodes.outputs(case, setup.t[:n_done], ecg if output is not None else ecg[:, :n_done],
+                                               meas["beat_onset"][1], meas["activation_time"][1]))
         except BaseException:
             if output is not None:
                 sink.abort()

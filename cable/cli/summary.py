@@ -92,9 +92,11 @@ def summarise(ds, path=None) -> str:
     lines.append(run)
     if attrs.get("drug_block"):
         lines.extend(str(attrs["drug_block"]).splitlines())
+    from cable.electrodes import summary_lines as ecg_lines
     from cable.ring import summary_lines
 
     lines.extend(summary_lines(ds))
+    lines.extend(ecg_lines(ds))
     nb = ds.sizes.get("beat", 0)
     if not nb:
         lines.append("beats: none (no stimulus)")

@@ -53,7 +53,7 @@ VARIABLES = {
                                               "(circumference / period)", None),
     "ring_apd": (("revolution",), "ms", "APD90 at the reference node on this pass", None),
     "excitable_gap": (("revolution",), "ms", "period minus APD90 at the reference node (time excitable)", None),
-    "reentry_sustained": ((), "1", "the wave still circulated at the end of the run", None),
+    "reentry_sustained": ((), "1", "the wave still circulated at the end of the run (1 yes, 0 no)", None),
     "reentry_end": ((), "ms", "last pass at the reference node of a wave that stopped (NaN while it goes on)", None),
     # pseudo-ECG (cable.measure.ecg)
     "pseudo_ecg": (("electrode", "t"), "mV", "extracellular potential at the electrode (far-field, 1D strand)", None),
@@ -69,7 +69,7 @@ VARIABLES = {
 STATE_PREFIX = "state_"
 
 #: boolean variables are stored as int8 0/1 with flag attributes
-FLAGS = {"captured", "blocked", "conducted", "reached_left", "reached_right", "reentry_sustained"}
+FLAGS = {"captured", "blocked", "conducted", "reached_left", "reached_right"}
 
 #: coded (enumerated) int8 variables: name -> (flag_values, flag_meanings); CF 1.10 section 3.5.
 #: The codes of block_side are those of cable.measure.block (LEFT, NONE, RIGHT, BOTH).
