@@ -141,6 +141,7 @@ def summary_lines(ds) -> list:
         lines.append("reentry sustained to the end of the run")
     else:
         end = float(ds["reentry_end"].values)
-        lines.append("no reentry" if not np.isfinite(end) or n < 2 else f"reentry ended: last activation at "
-                     f"{end:.4g} ms")
+        when = f"last activation on the ring at {end:.4g} ms" if np.isfinite(end) else "no activation"
+        lines.append(f"no reentry: the wave died within its first revolution ({when})" if n < 2 else
+                     f"reentry ended: {when}")
     return lines
