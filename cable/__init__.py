@@ -8,6 +8,7 @@ Public API (everything a command does is one of these):
 * :func:`load_case` — read and validate a case (TOML path, text or dict);
 * :func:`get_model`, :func:`model_names` — the membrane-model registry;
 * :func:`find_critical` — bisection for the severity at which conduction blocks;
+* :func:`calibrate` — the value of a key at which CV, APD or wavelength hits a target;
 * :func:`strength_duration`, :func:`refractory_period`, :func:`restitution`,
   :func:`convergence` — the standard protocols;
 * :func:`sweep` — parameter sweeps on Dask;
@@ -31,6 +32,7 @@ _LAZY = {
     "refractory_period": "cable.protocols.refractory",
     "restitution": "cable.protocols.restitution",
     "convergence": "cable.protocols.converge",
+    "calibrate": "cable.protocols.calibrate",
     "open_result": "cable.io.netcdf",
     "rerun": "cable.io.netcdf",
     "plot": None,

@@ -80,6 +80,7 @@ class Grid:
     edge: np.ndarray | None = None
     volume: np.ndarray | None = None
     cell: np.ndarray | None = None
+    closed: bool = False
 
     @property
     def n(self) -> int:
@@ -96,6 +97,11 @@ class Grid:
             if i < n - 1:
                 a[i, i + 1] += self.up[i]
                 a[i, i] -= self.up[i]
+        if self.closed:  # the closing edge (n-1, 0) of a ring
+            a[0, n - 1] += self.lo[0]
+            a[0, 0] -= self.lo[0]
+            a[n - 1, 0] += self.up[n - 1]
+            a[n - 1, n - 1] -= self.up[n - 1]
         return a
 
 
@@ -213,6 +219,8 @@ def build_grid(fiber: Fiber, coupling_factor: np.ndarray | None = None,
     edge_factor : ndarray, optional
         A further factor per edge, length n-1.
     """
+    if fiber.closed:
+        return _ring_grid(fiber, coupling_factor, edge_factor)
     x = node_positions(fiber)
     n = x.size
     d_edge = np.full(n - 1, fiber.diffusivity / fiber.dx**2)
@@ -230,6 +238,25 @@ def build_grid(fiber: Fiber, coupling_factor: np.ndarray | None = None,
     lo[1:] = d_edge / volume[1:]
     up[:-1] = d_edge / volume[:-1]
     return Grid(x=x, lo=lo, up=up, edge=d_edge, volume=volume, cell=cell_index(fiber))
+
+
+def _ring_grid(fiber: Fiber, coupling_factor=None, edge_factor=None) -> Grid:
+    """A ring (``fiber.closed``): n edges, the last one (n-1, 0) closing it; every node owns a whole dx.
+
+    ``lo[0]`` and ``up[n-1]`` carry the closing edge (zero on an open fibre), which is
+    how :mod:`cable.kernels.diffusion` tells a ring from a strand. ``edge`` has n entries.
+    """
+    x = node_positions(fiber)
+    n = x.size
+    d_edge = np.full(n, fiber.diffusivity / fiber.dx**2)
+    if coupling_factor is not None:
+        f = np.asarray(coupling_factor, dtype=float)
+        d_edge = d_edge * edge_conductance(np.append(f, f[0]))  # edge (n-1, 0) between the last node and the first
+    if edge_factor is not None:
+        d_edge = d_edge * edge_factor
+    lo = np.roll(d_edge, 1)   # lo_i: edge (i-1, i); lo_0 the closing edge
+    up = d_edge.copy()        # up_i: edge (i, i+1); up_{n-1} the closing edge
+    return Grid(x=x, lo=lo, up=up, edge=d_edge, volume=np.ones(n), cell=None, closed=True)
 
 
 def forward_euler_limit(fiber: Fiber, numerics: Numerics) -> float:

@@ -125,6 +125,10 @@ def node_parameters(case: Case, model: MembraneModel, n: int) -> np.ndarray:
         row[model.parameter_names.index(name)] = model.parameter(name).encode(value)
     for name, factor in case.membrane.scale.items():
         row[model.parameter_names.index(name)] *= factor
+    from cable.drugs import drug_factors
+
+    for name, factor in drug_factors(case).items():  # [drug]: Hill block, after the scales
+        row[model.parameter_names.index(name)] *= factor
     return np.tile(row, (n, 1))
 
 
@@ -188,6 +192,8 @@ def prepare(case) -> Setup:
         if note:
             notes.append(note)
     pulses = stimulus_pulses(case, x, notes)
+    if case.fiber is not None and case.fiber.closed:
+        v0, s0, pulses = _ring_start(case, model, grid, p, v0, s0, pulses, cm, notes)
     spb = max(1, int(round(case.output_every / num.dt)))
     intervals = int(round(case.duration / (spb * num.dt)))
     if abs(intervals * spb * num.dt - case.duration) > 1e-9 * case.duration:
@@ -220,6 +226,21 @@ def prepare(case) -> Setup:
 
             setup.safety = tracker_for(case, grid, v0, pulses, notes)
     return setup
+
+
+def _ring_start(case, model, grid, p, v0, s0, pulses, cm, notes):
+    """A ring's initial state and pulses: as given, or one-way (:mod:`cable.ring`)."""
+    if case.raw.get("measure", {}).get("safety_factor", False):
+        raise CaseError("measure.safety_factor is not computed on a ring (fiber.closed = true); remove one of them.")
+    if case.fiber.initial != "one-way":
+        return v0, s0, pulses
+    from cable.ring import one_way_start, ring_cases
+
+    threshold = case.threshold if case.threshold is not None else model.threshold
+    v0, s0, t_start = one_way_start(case, model, grid, p, v0, s0, threshold, model.ion_scale(cm))
+    notes.append(f"ring: started one-way from an open strand {t_start:g} ms after stimulus 0, its wave at the far "
+                 f"end; stimulus 0 is not applied on the ring.")
+    return v0, s0, stimulus_pulses(ring_cases(case)[0], grid.x, notes)
 
 
 def stored_bytes(setup: Setup) -> int:
@@ -331,7 +352,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     # prepare() may already run the reference loop (settling, pre-pacing): say so before it
     name = case.membrane.model
     mem = case.membrane
-    settles = mem.prepace is not None or bool(mem.parameters or mem.scale or case.raw.get("region")) \
+    settles = mem.prepace is not None or bool(mem.parameters or mem.scale or case.raw.get("region") or case.raw.get("drug")) \
         or mem.temperature is not None
     if not is_compiled(name, case.numerics.rates) or (settles and not _in_cache(_integrator(name))):
         say(f"compiling the '{name}' kernels (first run only; later runs use the cache)...")
@@ -355,7 +376,10 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     state_idx = [model.state_names.index(s) for s in state_names]
     field_names = ["vm"] + [schema.STATE_PREFIX + s for s in state_names]
     v = setup.v0.copy()
-    arrays = loop_arrays(model, fast, v, setup.s0, setup.p, setup.pulses.shape[0])
+    extra = 0
+    if grid_closed(setup):
+        from cable.ring import RING_PASSES as extra  # one crossing per revolution at every node
+    arrays = loop_arrays(model, fast, v, setup.s0, setup.p, setup.pulses.shape[0] + extra)
     act, nact, upstroke = arrays.act, arrays.nact, arrays.upstroke
     grid = setup.grid
     half = diffusion.factor(grid.lo, grid.up, 0.5 * dt, theta)
@@ -367,7 +391,16 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     sink = netcdf.StreamWriter(output, setup, field_names, model, attrs) if output is not None else \
         _MemorySink(setup, field_names)
 
+    ecg_w = None
+    if setup.x is not None:
+        from cable import electrodes
+
+        ecg_w = electrodes.of_case(case, setup.x)
+    ecg = np.full((0 if ecg_w is None else ecg_w.shape[0], setup.n_samples), np.nan)
+
     def sample(k):
+        if ecg_w is not None:
+            ecg[:, k] = ecg_w @ v  # the pseudo-ECG from the full profile at each output time
         vals = {"vm": v}
         for name, j in zip(state_names, state_idx):
             vals[schema.STATE_PREFIX + name] = arrays.state(j)
@@ -403,6 +436,9 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     with _interrupts_held():  # a second Ctrl-C or SIGTERM waits until the file is complete
         try:
             meas = measurements(setup, act, nact, upstroke, tracker, t_end=(n_done - 1) * spb * dt)
+            if ecg_w is not None:
+                meas.update(electrodes.outputs(case, setup.t[:n_done], ecg if output is not None else ecg[:, :n_done],
+                                               meas["beat_onset"][1], meas["activation_time"][1]))
         except BaseException:
             if output is not None:
                 sink.abort()
@@ -507,7 +543,17 @@ def measurements(setup: Setup, act, nact, upstroke, tracker: ApdTracker, t_end=N
         out.update(block.outputs(beats))
         if setup.safety is not None:
             out["safety_factor"] = (("beat", "x"), setup.safety.per_beat(beats))
+        if grid_closed(setup):
+            from cable import ring
+
+            t_last = t_end if t_end is not None else setup.t[-1]
+            out.update(ring.outputs(setup.case.fiber.length, act, nact, tracker.repol, setup.case.apd_levels, t_last))
     return out
+
+
+def grid_closed(setup: Setup) -> bool:
+    """Whether the strand is a ring (``[fiber] closed``)."""
+    return bool(getattr(setup.grid, "closed", False))
 
 
 def provenance(setup: Setup, command: str | None) -> dict:
@@ -534,15 +580,24 @@ def provenance(setup: Setup, command: str | None) -> dict:
         "merge_half_steps": int(num.merge_half_steps),
         "threshold_mV": setup.threshold,
         "notes": "\n".join(setup.notes),
+        "drug_block": _drug_text(case),
         "comment": "Research tool; not for clinical decisions.",
     }
     if setup.x is not None:
         attrs.update(dx_cm=float(case.fiber.dx), diffusivity_cm2_per_ms=case.fiber.diffusivity,
                      cv_window_cm=list(setup.cv_window))
+        if case.fiber.closed:
+            attrs["ring_circumference_cm"] = float(case.fiber.length)
     if setup.prepace is not None:
         attrs["prepace"] = setup.prepace["summary"]
         attrs["prepace_last_beat_change"] = setup.prepace["last_beat_change"]
     return attrs
+
+
+def _drug_text(case) -> str:
+    from cable.drugs import describe
+
+    return describe(case)
 
 
 def assemble(setup: Setup, fields: dict, meas: dict, attrs: dict, model: MembraneModel) -> xr.Dataset:

@@ -61,6 +61,8 @@ class Fiber:
     surface_to_volume: float | None = None
     cell_length: float | None = None
     gap_junction_conductance: float | None = None
+    closed: bool = False      # a ring (periodic ends)
+    initial: str = "rest"     # "rest" or "one-way" (a ring's circulating start)
 
     @property
     def diffusivity(self) -> float:
@@ -72,7 +74,8 @@ class Fiber:
 
     @property
     def n_nodes(self) -> int:
-        return int(round(self.length / self.dx)) + 1
+        # a ring has no node at x = length: that point is x = 0
+        return int(round(self.length / self.dx)) + (0 if self.closed else 1)
 
 
 @dataclass(frozen=True)
@@ -441,6 +444,9 @@ def from_dict(raw: dict) -> Case:
     if not isinstance(stim_raw, list):
         raise CaseError("[[stimulus]] must be a list of tables.")
     stimuli = tuple(_read_stimulus(k, s, fiber) for k, s in enumerate(stim_raw))
+    if fiber is not None and fiber.initial == "one-way" and not stimuli:
+        raise CaseError("fiber.initial = \"one-way\" needs a [[stimulus]]: stimulus 0 starts the wave in the open "
+                        "strand whose state begins the ring.")
 
     num = Numerics(**_read_section("numerics", raw.get("numerics", {}), SECTIONS["numerics"]))
     run = _read_section("run", raw["run"], SECTIONS["run"])
@@ -607,6 +613,15 @@ def _read_fiber(f: dict, notes: list) -> Fiber:
         f = dict(f, dx=new_dx)
     if (f["cell_length"] is None) != (f["gap_junction_conductance"] is None):
         raise CaseError("[fiber] cell_length and gap_junction_conductance go together (discrete cell coupling).")
+    if f["closed"]:
+        if f["cell_length"] is not None:
+            raise CaseError("fiber.closed = true with fiber.cell_length: a ring of discrete cells is not supported; "
+                            "remove cell_length and gap_junction_conductance (a continuous ring), or open the fibre.")
+        if round(f["length"] / f["dx"]) < 3:
+            raise CaseError(f"fiber.closed = true: a ring needs at least 3 nodes; fiber.length / fiber.dx = "
+                            f"{f['length'] / f['dx']:.3g}. Refine dx.")
+    elif f["initial"] != "rest":
+        raise CaseError(f"fiber.initial = {f['initial']!r} needs fiber.closed = true (it starts a wave round a ring).")
     return Fiber(**f)
 
 

@@ -57,6 +57,11 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "surface_to_volume": _q("surface_to_volume", positive=True, meaning="membrane area per volume chi (tissue form) [1/cm]"),
         "capacitance": _q("capacitance", 1.0, positive=True, meaning="membrane capacitance C_m [uF/cm^2]"),
         "cell_length": _q("length", positive=True, meaning="cell length for discrete cell-by-cell coupling [cm]"),
+        "closed": Key("bool", default=False, meaning="a ring: the last node couples to the first (periodic ends; "
+                                                     "no node at x = length, which is x = 0)"),
+        "initial": Key("choice", default="rest", choices=("rest", "one-way"),
+                       meaning="start of a ring: \"rest\", or \"one-way\": the state of an open strand whose wave "
+                               "(started by stimulus 0) has just reached its far end, so that it circulates one way"),
         "gap_junction_conductance": _q("conductance", positive=True, meaning="gap-junction conductance per unit cross-section of the fibre (axon form) or tissue (tissue form) [mS/cm^2]; a junction resistance R_j [ohm*cm^2] is \"1/(R_j ohm*cm^2)\"; G [uS] per junction is G/(pi a^2); see cable/fiber.py"),
     },
     "stimulus": {

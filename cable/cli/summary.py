@@ -78,6 +78,8 @@ def summarise(ds, path=None) -> str:
         x = ds["x"].values
         dx = attrs.get("dx_cm", x[1] - x[0] if x.size > 1 else np.nan)
         fibre = f"fibre: {_num(x[-1] - x[0])} cm, {x.size} nodes, dx {_num(dx)} cm"
+        if attrs.get("ring_circumference_cm") is not None:
+            fibre = f"ring: circumference {_num(attrs['ring_circumference_cm'])} cm, {x.size} nodes, dx {_num(dx)} cm"
         if attrs.get("diffusivity_cm2_per_ms") is not None:
             fibre += f", D {_num(attrs['diffusivity_cm2_per_ms'])} cm^2/ms"
         lines.append(fibre)
@@ -88,6 +90,13 @@ def summarise(ds, path=None) -> str:
     if attrs.get("wall_time_s") is not None:
         run += f"; took {_num(attrs['wall_time_s'], '.3g')} s"
     lines.append(run)
+    if attrs.get("drug_block"):
+        lines.extend(str(attrs["drug_block"]).splitlines())
+    from cable.electrodes import summary_lines as ecg_lines
+    from cable.ring import summary_lines
+
+    lines.extend(summary_lines(ds))
+    lines.extend(ecg_lines(ds))
     nb = ds.sizes.get("beat", 0)
     if not nb:
         lines.append("beats: none (no stimulus)")
@@ -124,6 +133,8 @@ def _protocol_summary(ds):
         from cable.protocols.restitution import summary
     elif kind == "grid convergence":
         from cable.protocols.converge import summary
+    elif kind == "calibration":
+        from cable.protocols.calibrate import summary
     elif kind == "critical-value search" or str(attrs.get("title", "")).startswith("cable critical-value search"):
         from cable.cli.critical import summarise as summary
     else:

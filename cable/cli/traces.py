@@ -17,6 +17,7 @@ def add_arguments(p):
                    help="ionic currents to draw below the states, e.g. I_Na I_K (`cable models MODEL` lists them); "
                         "recomputed from the stored states, so the run must store all of them (output.states)")
     p.add_argument("--t-window", nargs=2, metavar=("A", "B"), help="time range; bare numbers in ms")
+    p.add_argument("--ecg", action="store_true", help="add a panel of the pseudo-ECG (a case with [[electrode]])")
     _figures.add_figure_options(p, ".traces.png")
 
 
@@ -36,9 +37,17 @@ def run(args):
             at = list(x[0] + (x[-1] - x[0]) * np.array([0.25, 0.5, 0.75]))
         else:
             at = []
+        t_window = _figures.pair(args.t_window, "time", "--t-window")
+        if args.ecg:
+            require(ds, ["pseudo_ecg"], args.result, "draw the pseudo-ECG (add an [[electrode]] to the case)")
         with _figures.drawing(args) as fig:
-            axes = fig.subplots(1 + len(args.states) + len(args.currents), 1, sharex=True, squeeze=False)[:, 0]
-            traces(ds, at, list(axes), states=args.states, currents=args.currents,
-                   t_window=_figures.pair(args.t_window, "time", "--t-window"))
+            panels = 1 + len(args.states) + len(args.currents) + int(args.ecg)
+            axes = fig.subplots(panels, 1, sharex=True, squeeze=False)[:, 0]
+            traces(ds, at, list(axes), states=args.states, currents=args.currents, t_window=t_window)
+            if args.ecg:
+                from cable.plot import pseudo_ecg
+
+                axes[-2].set_xlabel("")
+                pseudo_ecg(ds, axes[-1], t_window=t_window)
             _figures.finish(fig, args, out)
     return 0

@@ -225,6 +225,9 @@ class StreamWriter:
             lv[:] = np.array(self.setup.case.apd_levels)
             for name, (dims, arr) in meas.items():
                 arr = np.asarray(arr)
+                for d, size in zip(dims, arr.shape):  # dimensions of the studies (revolution, electrode)
+                    if d not in nc.dimensions:
+                        nc.createDimension(d, size)
                 if self.single and "x" in dims:
                     arr = np.take(arr, 0, axis=dims.index("x"))
                     dims = tuple(d for d in dims if d != "x")

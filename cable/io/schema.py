@@ -15,6 +15,10 @@ COORDS = {
     "x": (("x",), "cm", "position along the fibre", None),
     "beat": (("beat",), "1", "beat number (stimulus onsets in order)", None),
     "level": (("level",), "percent", "repolarisation level of the action-potential duration", None),
+    # studies (issue 17): calibration runs, ring revolutions, pseudo-ECG electrodes
+    "run": (("run",), "1", "run number, in the order made", None),
+    "revolution": (("revolution",), "1", "revolution of the circulating wave past the reference node", None),
+    "electrode": (("electrode",), "1", "electrode number (entries of [[electrode]] in order)", None),
 }
 
 VARIABLES = {
@@ -37,6 +41,28 @@ VARIABLES = {
     "reached_right": (("beat",), "1", "the beat's wave reached the right end (x = L)", None),
     "block_side": (("beat",), "1", "direction of block: 1 stopped going right, -1 going left, 2 both, 0 none", None),
     "safety_factor": (("beat", "x"), "1", "safety factor of conduction (Shaw & Rudy 1997), charge-based", None),
+    # calibration (cable.protocols.calibrate); units are the key's and the measure's, set per result
+    "value": ((), "1", "value of the key at which the measurement equals the target", None),
+    "residual": ((), "1", "measurement at the value found minus the target", None),
+    "run_value": (("run",), "1", "value of the key in the run", None),
+    "run_measure": (("run",), "1", "measurement of the run", None),
+    # reentry on a ring (cable.measure.ring)
+    "revolution_time": (("revolution",), "ms", "time the circulating wave passed the reference node", None),
+    "revolution_period": (("revolution",), "ms", "time since the previous pass (one revolution)", None),
+    "revolution_cv": (("revolution",), "m/s", "mean conduction velocity around the ring over the revolution "
+                                              "(circumference / period)", None),
+    "ring_apd": (("revolution",), "ms", "APD90 at the reference node on this pass", None),
+    "excitable_gap": (("revolution",), "ms", "period minus APD90 at the reference node (time excitable)", None),
+    "reentry_sustained": ((), "1", "the wave still circulated at the end of the run (1 yes, 0 no)", None),
+    "reentry_end": ((), "ms", "last pass at the reference node of a wave that stopped (NaN while it goes on)", None),
+    # pseudo-ECG (cable.measure.ecg)
+    "pseudo_ecg": (("electrode", "t"), "mV", "extracellular potential at the electrode (far-field, 1D strand)", None),
+    "electrode_x": (("electrode",), "cm", "electrode position along the strand axis", None),
+    "electrode_distance": (("electrode",), "cm", "electrode distance from the strand axis", None),
+    "qrs_onset": (("electrode", "beat"), "ms", "QRS onset: first activation of the strand in the beat", None),
+    "qt_interval": (("electrode", "beat"), "ms", "QT interval: QRS onset to the end of the T wave", None),
+    "t_peak": (("electrode", "beat"), "ms", "time of the T-wave peak", None),
+    "t_amplitude": (("electrode", "beat"), "mV", "T-wave peak amplitude (signed)", None),
 }
 
 #: long names of state variables come from the model; units from the model too

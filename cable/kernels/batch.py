@@ -72,8 +72,8 @@ def group_key(setup) -> tuple | None:
     setup : cable.simulate.Setup
         From :func:`cable.simulate.prepare`.
     """
-    if getattr(setup, "safety", None) is not None:
-        return None
+    if getattr(setup, "safety", None) is not None or getattr(setup.grid, "closed", False):
+        return None  # (a ring's cyclic solve and measurements are cable.simulate's alone)
     case = setup.case
     num = case.numerics
     return (setup.model.name, num.dt, num.splitting, num.diffusion, num.gating, num.merge_half_steps,

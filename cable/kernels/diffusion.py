@@ -13,6 +13,10 @@ dependent operations, which the processor overlaps, so the solve takes about hal
 the time of one long chain (measured in ``tools/bench``). The matrix is diagonally
 dominant (theta h (lo + up) >= 0 added to a unit diagonal), so no pivoting is needed
 and the two forms agree to rounding.
+
+A ring (``[fiber] closed``) makes the matrix cyclic tridiagonal; :func:`factor_ring`
+reduces it to a tridiagonal one and a rank-one correction (Sherman-Morrison), so a
+step stays O(n): the same two sweeps, then one pass adding a multiple of a fixed vector.
 """
 
 import numpy as np
@@ -29,11 +33,16 @@ def middle(n: int) -> int:
 
 @jit
 def _factor(lo, up, h, theta, pivot, elim, back):
-    n = lo.size
-    m = (n - 1) // 2
-    a = -theta * h * lo      # sub-diagonal
-    c = -theta * h * up      # super-diagonal
+    a = -theta * h * lo      # sub-diagonal (a[0]: a ring's corner, not used here)
+    c = -theta * h * up      # super-diagonal (c[n-1]: likewise)
     b = 1.0 + theta * h * (lo + up)
+    _factor_abc(a, b, c, pivot, elim, back)
+
+
+@jit
+def _factor_abc(a, b, c, pivot, elim, back):
+    n = a.size
+    m = (n - 1) // 2
     # downwards over rows 0..m-1: x_i = w_i - back_i x_{i+1}
     prev = 0.0
     for i in range(m):
@@ -78,11 +87,15 @@ def factor(lo, up, h, theta):
     -------
     pivot, elim, back : ndarray
         Inverse pivots, elimination multipliers (scaled by the pivot) and substitution
-        coefficients; opaque to callers, consumed by :func:`diffuse`.
+        coefficients; opaque to callers, consumed by :func:`diffuse`. For a ring
+        (``lo[0]`` or ``up[n-1]`` nonzero: the closing edge, see ``cable.fiber``)
+        ``back`` has 2n + 2 entries: see :func:`factor_ring`.
     """
     lo = np.ascontiguousarray(lo, dtype=np.float64)
     up = np.ascontiguousarray(up, dtype=np.float64)
     n = lo.size
+    if n > 2 and (lo[0] != 0.0 or up[n - 1] != 0.0) and theta != 0.0:
+        return factor_ring(lo, up, h, theta)
     pivot = np.zeros(n)
     elim = np.zeros(n)
     back = np.zeros(n)
@@ -91,15 +104,62 @@ def factor(lo, up, h, theta):
     return pivot, elim, back
 
 
+def factor_ring(lo, up, h, theta):
+    """Factors of the cyclic tridiagonal I - theta h L of a ring (Sherman-Morrison).
+
+    The corners A[0, n-1] = alpha = -theta h lo_0 and A[n-1, 0] = beta = -theta h up_{n-1}
+    make the matrix cyclic. With gamma = -b_0, A = T' + u w^T where T' is tridiagonal
+    with b'_0 = b_0 - gamma and b'_{n-1} = b_{n-1} - alpha beta / gamma, u = (gamma, 0,
+    ..., beta) and w = (1, 0, ..., alpha / gamma). Then A x = r is T' y = r, T' z = u,
+    x = y - (w.y) / (1 + w.z) z (Sherman & Morrison 1950, Ann Math Stat 21:124; the
+    cyclic form as in Press et al., Numerical Recipes, section 2.7): one extra O(n) pass
+    per solve. T' is factored as an open strand's matrix; ``back`` carries, after its
+    n substitution coefficients, z (n entries), alpha / gamma and 1 / (1 + w.z), which
+    :func:`diffuse` applies after the tridiagonal solve.
+    """
+    n = lo.size
+    h, theta = float(h), float(theta)
+    a = -theta * h * lo
+    c = -theta * h * up
+    b = 1.0 + theta * h * (lo + up)
+    alpha, beta = a[0], c[n - 1]
+    gamma = -b[0]
+    b = b.copy()
+    b[0] -= gamma
+    b[n - 1] -= alpha * beta / gamma
+    pivot, elim, back = np.zeros(n), np.zeros(n), np.zeros(n)
+    _factor_abc(a, b, c, pivot, elim, back)
+    u = np.zeros(n)
+    u[0], u[n - 1] = gamma, beta
+    z = np.zeros(n)
+    solve(z, pivot, elim, back, u * pivot)
+    q = alpha / gamma
+    return pivot, elim, np.concatenate([back, z, [q, 1.0 / (1.0 + z[0] + q * z[n - 1])]])
+
+
+@jit
+def ring_correction(v, back):
+    """v -= (w.v) / (1 + w.z) z: the Sherman-Morrison step of a ring (see :func:`factor_ring`)."""
+    n = v.shape[0]
+    q = back[2 * n]
+    s = (v[0] + q * v[n - 1]) * back[2 * n + 1]
+    for i in range(n):
+        v[i] -= s * back[n + i]
+
+
 @jit_vector
 def explicit_part(v, lo, up, e, pivot, work):
-    """work = (v + e L v) * pivot: the right-hand side, already scaled by the pivots."""
+    """work = (v + e L v) * pivot: the right-hand side, already scaled by the pivots.
+
+    The end rows add the closing edge of a ring (lo_0, up_{n-1}); on an open strand
+    those coefficients are 0 and adding the zero term changes no bit.
+    """
     n = v.shape[0]
-    work[0] = (v[0] + e * (up[0] * (v[1] - v[0]))) * pivot[0]
+    work[0] = (v[0] + e * (up[0] * (v[1] - v[0]) + lo[0] * (v[n - 1] - v[0]))) * pivot[0]
     for i in range(1, n - 1):
         vi = v[i]
         work[i] = (vi + e * (lo[i] * (v[i - 1] - vi) + up[i] * (v[i + 1] - vi))) * pivot[i]
-    work[n - 1] = (v[n - 1] + e * (lo[n - 1] * (v[n - 2] - v[n - 1]))) * pivot[n - 1]
+    work[n - 1] = (v[n - 1] + e * (lo[n - 1] * (v[n - 2] - v[n - 1]) + up[n - 1] * (v[0] - v[n - 1]))) * pivot[n - 1]
 
 
 @jit_vector
@@ -175,12 +235,12 @@ def diffuse(v, lo, up, h, theta, pivot, elim, back, work):
         return
     e = (1.0 - theta) * h
     if theta == 0.0:
-        # forward Euler: v += h L v, no solve
-        work[0] = v[0] + e * (up[0] * (v[1] - v[0]))
+        # forward Euler: v += h L v, no solve (the end rows with a ring's closing edge, 0 if open)
+        work[0] = v[0] + e * (up[0] * (v[1] - v[0]) + lo[0] * (v[n - 1] - v[0]))
         for i in range(1, n - 1):
             vi = v[i]
             work[i] = vi + e * (lo[i] * (v[i - 1] - vi) + up[i] * (v[i + 1] - vi))
-        work[n - 1] = v[n - 1] + e * (lo[n - 1] * (v[n - 2] - v[n - 1]))
+        work[n - 1] = v[n - 1] + e * (lo[n - 1] * (v[n - 2] - v[n - 1]) + up[n - 1] * (v[0] - v[n - 1]))
         for i in range(n):
             v[i] = work[i]
         return
@@ -189,6 +249,8 @@ def diffuse(v, lo, up, h, theta, pivot, elim, back, work):
     else:
         scaled_copy(v, pivot, work)
     solve(v, pivot, elim, back, work)
+    if back.shape[0] > n:  # a ring (factor_ring)
+        ring_correction(v, back)
 
 
 # ----------------------------------------------------------------------------- batches

@@ -5,7 +5,9 @@
 * :func:`sweep` — a measurement against a swept key, one curve per value of another;
 * :func:`strength_duration`, :func:`charge_duration`, :func:`refractory`,
   :func:`restitution`, :func:`cv_restitution`, :func:`convergence` — the protocol
-  results (:mod:`cable.plot.protocols`); :func:`protocol_figure` lays out their panels.
+  results (:mod:`cable.plot.protocols`); :func:`protocol_figure` lays out their panels;
+* :func:`calibration`, :func:`ring`, :func:`pseudo_ecg` — the runs of ``cable calibrate``,
+  a ring's revolutions, the pseudo-ECG of ``[[electrode]]`` (:mod:`cable.plot.studies`).
 
 They draw into the Axes given (or pyplot's current one) and leave the figure to the
 caller, so they compose into figures of one's own. The colour map and line looks are
@@ -15,8 +17,9 @@ chosen to stay readable in greyscale print (see :mod:`cable.plot._common`).
 from cable.plot.protocols import (charge_duration, convergence, cv_restitution, protocol_figure, refractory,
                                   restitution, strength_duration)
 from cable.plot.space_time import space_time
+from cable.plot.studies import calibration, pseudo_ecg, ring
 from cable.plot.sweeps import sweep
 from cable.plot.traces import traces
 
-__all__ = ["charge_duration", "convergence", "cv_restitution", "protocol_figure", "refractory", "restitution",
-           "space_time", "strength_duration", "sweep", "traces"]
+__all__ = ["calibration", "charge_duration", "convergence", "cv_restitution", "protocol_figure", "pseudo_ecg",
+           "refractory", "restitution", "ring", "space_time", "strength_duration", "sweep", "traces"]
