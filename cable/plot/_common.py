@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import difflib
+import re
 import textwrap
 import tomllib
 from dataclasses import dataclass
@@ -44,13 +45,74 @@ def look(k: int) -> dict:
 LABEL_WIDTH = 36
 
 
-def label(obj, fallback: str) -> str:
-    """``"long name [units]"`` from a DataArray's attributes (``fallback`` for the name), wrapped."""
+def label(obj, fallback: str, *, short: bool = False) -> str:
+    """``"long name [unit]"`` from a DataArray's attributes (``fallback`` for the name), wrapped.
+
+    The unit is typeset (:func:`unit_text`). With ``short``, a known variable gets its
+    short axis name (:data:`SHORT_NAMES`, "CV [m/s]") and a swept case key its last part
+    ("g_Na scale" for ``membrane.scale.g_Na``).
+    """
     attrs = getattr(obj, "attrs", {}) or {}
     name = str(attrs.get("long_name") or fallback)
-    units = attrs.get("units")
-    text = name if units in (None, "", "1") else f"{name} [{units}]"
+    if short:
+        name = short_name(str(attrs.get("case_key") or getattr(obj, "name", None) or fallback), name)
+    unit = unit_text(attrs.get("units"))
+    text = name if not unit else f"{name} [{unit}]"
     return textwrap.fill(text, LABEL_WIDTH, break_long_words=False)
+
+
+#: short axis names of measurements, as a paper writes them
+SHORT_NAMES = {"conduction_velocity": "CV", "wavelength": "wavelength", "apd": "APD",
+               "upstroke_velocity": "dV/dt max", "resting_potential": "resting potential",
+               "peak_potential": "peak potential", "block_x": "block site", "safety_factor": "safety factor",
+               "activation_time": "activation time", "vm": "V"}
+
+
+#: how a sweep result's coordinates begin their long name (cable.sweep)
+SWEPT_PREFIX = "swept case key "
+
+
+def short_name(name: str, long_name: str = "") -> str:
+    """A short axis name: :data:`SHORT_NAMES`, or the last parts of a dotted case key.
+
+    ``membrane.scale.g_Na`` -> ``g_Na scale``, ``membrane.temperature`` -> ``temperature``,
+    ``region.0.parameters.K_o`` -> ``K_o``; other names are kept.
+    """
+    if name in SHORT_NAMES:
+        return SHORT_NAMES[name]
+    if long_name.startswith(SWEPT_PREFIX):     # a sweep's coordinate names its full case key
+        name = long_name[len(SWEPT_PREFIX):].strip()
+    parts = [p for p in str(name).split(".") if p and not p.isdigit()]
+    if len(parts) >= 2 and parts[-2] == "scale":
+        return f"{parts[-1]} scale"
+    if len(parts) >= 2:
+        return parts[-1]
+    return str(name)
+
+
+#: ASCII unit spellings (as the files store them) -> typeset forms
+_UNIT_WORDS = {"degC": "°C", "ohm": "Ω", "percent": "%", "mmol/L": "mM", "umol/L": "µM", "nmol/L": "nM"}
+_SUPERSCRIPT = str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹")
+
+
+def unit_text(units) -> str:
+    """A unit string typeset for a figure: ``uA/cm^2`` -> ``µA/cm²``, ``degC`` -> ``°C``.
+
+    ``u`` as a prefix becomes ``µ``, powers become superscripts, ``ohm`` becomes ``Ω``
+    and ``*`` a middle dot; a dimensionless unit (``1``, empty, None) gives ``""``.
+    """
+    if units is None:
+        return ""
+    text = str(units).strip()
+    if text in ("", "1", "dimensionless"):
+        return ""
+    if text in _UNIT_WORDS:
+        return _UNIT_WORDS[text]
+    for word, typeset in _UNIT_WORDS.items():
+        text = re.sub(rf"\b{re.escape(word)}\b", typeset, text)
+    text = re.sub(r"(?<![A-Za-z])u(?=[A-Za-zΩ])", "µ", text)
+    text = re.sub(r"\^(-?\d+)", lambda m: m.group(1).translate(_SUPERSCRIPT), text)
+    return text.replace("*", "·")
 
 
 def axes_or_current(ax):
