@@ -36,8 +36,10 @@ def run(args):
             at = list(x[0] + (x[-1] - x[0]) * np.array([0.25, 0.5, 0.75]))
         else:
             at = []
+        panels = 1 + len(args.states) + len(args.currents)
+        _figures.stacked_size(args, panels)
         with _figures.drawing(args) as fig:
-            axes = fig.subplots(1 + len(args.states) + len(args.currents), 1, sharex=True, squeeze=False)[:, 0]
+            axes = fig.subplots(panels, 1, sharex=True, squeeze=False)[:, 0]
             traces(ds, at, list(axes), states=args.states, currents=args.currents,
                    t_window=_figures.pair(args.t_window, "time", "--t-window"))
             _figures.finish(fig, args, out)

@@ -155,23 +155,56 @@ class Zone:
     border: float = 0.0
 
 
-def _describe(item: dict, k: int) -> str:
-    """``"region 0: K_o = 12, G_Na x 0.3"`` from a [[region]] table (its own name if it has one)."""
-    name = item.get("name") or item.get("label")
-    if name:
-        return str(name)
-    parts = [f"{key} = {value}" for key, value in (item.get("parameters") or {}).items()]
-    parts += [f"{key} x {value}" for key, value in (item.get("scale") or {}).items()]
+def _model_units(raw: dict) -> dict:
+    """Parameter name -> typeset unit for the case's membrane model ({} when unknown)."""
+    try:
+        from cable.membrane import get_model
+
+        model = get_model(str(raw.get("membrane", {}).get("model")))
+    except Exception:    # an unknown or missing model: values are shown without units
+        return {}
+    return {p.name: unit_text(p.units) for p in model.parameters}
+
+
+def _value(value, unit: str) -> str:
+    if isinstance(value, str):
+        return value
+    text = f"{value:.4g}" if isinstance(value, float) else str(value)
+    return f"{text} {unit}" if unit else text
+
+
+def _describe(item: dict, name: str, start: float, end: float, units: dict) -> str:
+    """``"region 0, 2-4 mm: K_o = 12 mM, G_Na × 0.3"`` from a region table."""
+    parts = [f"{key} = {_value(value, units.get(key, ''))}" for key, value in (item.get("parameters") or {}).items()]
+    parts += [f"{key} × {value:g}" if isinstance(value, (int, float)) else f"{key} × {value}"
+              for key, value in (item.get("scale") or {}).items()]
     if item.get("coupling") is not None:
-        parts.append(f"coupling x {item['coupling']}")
-    return f"region {k}" + (": " + ", ".join(parts) if parts else "")
+        parts.append(f"coupling × {item['coupling']}")
+    where = f"{start * 10:.3g}–{end * 10:.3g} mm" if end < 1.0 else f"{start:.3g}–{end:.3g} cm"
+    return f"{name}, {where}" + (": " + ", ".join(parts) if parts else "")
+
+
+def _region_items(raw: dict) -> list[tuple[str, dict]]:
+    """(name, table) of each region: ``[[region]]`` entries are "region 0", "region 1"...;
+    named tables ``[region.zone]`` keep their name."""
+    items = raw.get("region", [])
+    if isinstance(items, dict):
+        if items and all(isinstance(v, dict) for v in items.values()) and "start" not in items:
+            return [(str(k), v) for k, v in items.items()]
+        items = [items]
+    out = []
+    for k, item in enumerate(items if isinstance(items, list) else []):
+        if isinstance(item, dict):
+            out.append((str(item.get("name") or item.get("label") or f"region {k}"), item))
+    return out
 
 
 def regions(ds) -> list[Zone]:
-    """Regions of the fibre from the ``[[region]]`` tables of the case text, in order.
+    """Regions of the fibre from the region tables of the case text, in order.
 
     The case text travels in the result's ``case`` attribute; a result without one,
-    or without regions, has none. Positions may carry units (``"1 cm"``).
+    or without regions, has none. Positions may carry units (``"1 cm"``). Each zone's
+    label names the region, its extent and what differs there, with units.
     """
     from cable import units
 
@@ -182,12 +215,11 @@ def regions(ds) -> list[Zone]:
         raw = tomllib.loads(str(text))
     except tomllib.TOMLDecodeError:
         return []
-    items = raw.get("region", [])
-    if isinstance(items, dict):
-        items = [items]
+    found = _region_items(raw)
+    model_units = _model_units(raw) if found else {}
     out = []
-    for k, item in enumerate(items if isinstance(items, list) else []):
-        if not isinstance(item, dict) or "start" not in item or "end" not in item:
+    for name, item in found:
+        if "start" not in item or "end" not in item:
             continue
         try:
             a = units.to_canonical(item["start"], "length")
@@ -195,11 +227,16 @@ def regions(ds) -> list[Zone]:
             border = units.to_canonical(item.get("border", 0.0), "length")
         except units.UnitError:
             continue
-        out.append(Zone(min(a, b), max(a, b), _describe(item, k), max(border, 0.0)))
+        lo, hi = min(a, b), max(a, b)
+        out.append(Zone(lo, hi, _describe(item, name, lo, hi, model_units), max(border, 0.0)))
     return out
 
 
-def legend_above(ax, handles, *, max_cols: int = 3, share: float = 1.0, **kw):
+#: legend entries are not wrapped narrower than this [characters]
+LEGEND_MIN_WRAP = 16
+
+
+def legend_above(ax, handles, *, max_cols: int = 3, share: float = 1.0, y: float = 1.01, **kw):
     """A legend in a row above the axes, with as many columns (up to ``max_cols``) as fit its width.
 
     ``share`` is the part of the axes' present width the legend may take (less than 1
@@ -208,7 +245,7 @@ def legend_above(ax, handles, *, max_cols: int = 3, share: float = 1.0, **kw):
     columns are reduced until it fits; without a renderer to measure with, ``max_cols``
     columns are used.
     """
-    opts = dict(loc="lower left", bbox_to_anchor=(0.0, 1.01), fontsize="small", frameon=False,
+    opts = dict(loc="lower left", bbox_to_anchor=(0.0, y), fontsize="small", frameon=False,
                 borderaxespad=0.0, handlelength=1.8, **kw)
     ncols = max(1, min(len(handles), max_cols))
     leg = ax.legend(handles=handles, ncols=ncols, **opts)
@@ -220,6 +257,12 @@ def legend_above(ax, handles, *, max_cols: int = 3, share: float = 1.0, **kw):
         ncols -= 1
         leg.remove()
         leg = ax.legend(handles=handles, ncols=ncols, **opts)
+    width = max(len(h.get_label()) for h in handles)
+    while leg.get_window_extent(renderer).width > room and width > LEGEND_MIN_WRAP:
+        # one column is still too wide: wrap the longest entries onto more lines
+        width = int(width * 0.8)
+        for text in leg.get_texts():
+            text.set_text(textwrap.fill(text.get_text().replace("\n", " "), width, break_long_words=False))
     return leg
 
 

@@ -24,6 +24,16 @@ def _renderer(fig):
     return fig.canvas.get_renderer()
 
 
+def all_axes(fig) -> list:
+    """Every Axes of ``fig``, with the ones drawn inside others (insets, strips)."""
+    out, todo = [], list(fig.axes)
+    while todo:
+        ax = todo.pop(0)
+        out.append(ax)
+        todo += list(getattr(ax, "child_axes", []))
+    return out
+
+
 def texts(fig) -> list:
     """The visible, non-empty Text artists of ``fig`` that are drawn.
 
@@ -33,7 +43,7 @@ def texts(fig) -> list:
     from matplotlib.text import Text
 
     ticks, drawn = set(), []
-    for ax in fig.axes:
+    for ax in all_axes(fig):
         for axis in (ax.xaxis, ax.yaxis):
             every = axis.get_major_ticks() + axis.get_minor_ticks()
             ticks.update(id(lab) for tick in every for lab in (tick.label1, tick.label2))
@@ -92,7 +102,7 @@ def _marker_points(line):
 def _lines(fig):
     from matplotlib.lines import Line2D
 
-    for ax in fig.axes:
+    for ax in all_axes(fig):
         if not ax.get_visible():
             continue
         for line in ax.get_lines():
@@ -154,7 +164,7 @@ def problems(fig) -> list[str]:
 
 def _legends_over_data(fig, renderer) -> list[str]:
     out = []
-    for ax in fig.axes:
+    for ax in all_axes(fig):
         leg = ax.get_legend()
         if leg is None or not leg.get_visible():
             continue
@@ -174,9 +184,9 @@ def _legends_over_data(fig, renderer) -> list[str]:
 
 
 def axis_labels(fig) -> list[str]:
-    """The x and y labels of every visible axes of ``fig`` (and colour bars), non-empty ones."""
+    """The x and y labels of every visible axes of ``fig`` (colour bars and strips too), non-empty ones."""
     out = []
-    for ax in fig.axes:
+    for ax in all_axes(fig):
         if not ax.get_visible():
             continue
         for text in (ax.get_xlabel(), ax.get_ylabel()):
