@@ -314,3 +314,53 @@ def _metadata(fmt: str) -> dict:
     if fmt == "pdf":
         return {"Creator": creator}
     return {"Creator": creator} if fmt == "svg" else {}
+
+
+#: height of one row of a strip of outcomes below the axes, and the gap between it and
+#: the axes [fraction of the axes' height]
+STRIP_ROW, STRIP_GAP = 0.09, 0.03
+#: spread of several curves' marks within a row of the strip [row height]
+STRIP_SPREAD = 0.5
+
+
+def strip_below(ax, rows, xlabel: str = ""):
+    """A strip below ``ax``, sharing its x axis, with a row per outcome that has no value.
+
+    Block, no capture, no propagation are outcomes, not values: drawn on the value axis
+    they would read as values (or sit at invented ones), so they get rows of their own
+    below it. The strip carries the x tick labels and ``xlabel``; ``ax`` hides its own.
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+    rows : list of (str, list of (array, dict))
+        Per row its name and the marks in it: x positions [data] and a line style each;
+        several sets in one row are spread a little apart vertically.
+    xlabel : str
+
+    Returns
+    -------
+    matplotlib.axes.Axes or None
+        The strip (``ax.child_axes``), or None when no row has a mark (then ``ax``
+        keeps the x label).
+    """
+    rows = [(text, [(np.asarray(xs, dtype=float), st) for xs, st in sets if np.size(xs)]) for text, sets in rows]
+    rows = [(text, sets) for text, sets in rows if sets]
+    if not rows:
+        ax.set_xlabel(xlabel)
+        return None
+    height = STRIP_ROW * len(rows)
+    strip = ax.inset_axes([0.0, -(STRIP_GAP + height), 1.0, height], sharex=ax)
+    ax.tick_params(axis="x", which="both", labelbottom=False)
+    ax.set_xlabel("")
+    for r, (text, sets) in enumerate(rows):
+        for k, (xs, style) in enumerate(sets):
+            offset = 0.0 if len(sets) == 1 else STRIP_SPREAD * (k / (len(sets) - 1) - 0.5)
+            strip.plot(xs, np.full(xs.size, r + offset), **{"linestyle": "none", **style, "label": text})
+    strip.set_ylim(-0.5, len(rows) - 0.5)
+    strip.set_yticks(range(len(rows)), [text for text, _sets in rows], fontsize="small")
+    strip.tick_params(axis="y", length=0)
+    for side in ("top", "right"):
+        strip.spines[side].set_visible(False)
+    strip.set_xlabel(xlabel)
+    return strip

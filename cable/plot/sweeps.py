@@ -126,52 +126,21 @@ def sweep(ds, y: str, x: str, ax=None, *, hue: str | None = None, select=None, b
         ax.set_yscale("log")
     x_label = _common.label(ds[x] if x in ds.coords else None, x, short=True)
     ax.set_ylabel(_common.label(ds[y], y, short=True))
-    shown = [(mark, text, mask) for mask, mark, text in flags if mask.values.astype(bool).any()]
-    if shown:
-        strip = _strip(ax, xs, shown, looks, hue)
-        strip.set_xlabel(x_label)
-    else:
-        ax.set_xlabel(x_label)
+    rows = []
+    for mask, mark, text in flags:
+        sets = []
+        for k, style in enumerate(looks):
+            hit = (mask.isel({hue: k}).values if hue else mask.values).astype(bool)
+            if hit.any():
+                sets.append((xs[hit], _foot_style(mark, style["color"])))
+        rows.append((text, sets))
+    _common.strip_below(ax, rows, x_label)
     if legend and handles:
         title = _common.label(ds[hue], hue, short=True) if hue and hue in ds.coords else hue
         # beside the axes, where it hides no point
         ax.legend(handles=handles, title=title, fontsize="small", title_fontsize="small", frameon=False,
                   loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0)
     return ax
-
-
-#: height of one row of the strip of block / no-capture marks below the axes, and the gap
-#: between it and the axes [fraction of the axes' height]
-STRIP_ROW, STRIP_GAP = 0.09, 0.03
-#: spread of the curves' marks within a row of the strip [row height]
-STRIP_SPREAD = 0.5
-
-
-def _strip(ax, xs, shown, looks, hue):
-    """A strip below ``ax`` (sharing its x axis) with a row per outcome that has no value.
-
-    Block and no capture are outcomes, not values: drawn on the value axis they would
-    read as values, so they get rows of their own, each curve's marks in its own look.
-    The strip carries the x tick labels; ``ax`` hides its own.
-    """
-    rows = len(shown)
-    height = STRIP_ROW * rows
-    strip = ax.inset_axes([0.0, -(STRIP_GAP + height), 1.0, height], sharex=ax)
-    ax.tick_params(axis="x", labelbottom=False)
-    groups = len(looks)
-    for r, (mark, _text, mask) in enumerate(shown):
-        for k, style in enumerate(looks):
-            hit = (mask.isel({hue: k}).values if hue else mask.values).astype(bool)
-            if hit.any():
-                offset = 0.0 if groups == 1 else STRIP_SPREAD * (k / (groups - 1) - 0.5)
-                strip.plot(xs[hit], np.full(hit.sum(), r + offset), linestyle="none",
-                           label=f"{_text} ({k})", **_foot_style(mark, style["color"]))
-    strip.set_ylim(-0.5, rows - 0.5)
-    strip.set_yticks(range(rows), [text for _mark, text, _mask in shown], fontsize="small")
-    strip.tick_params(axis="y", length=0)
-    for side in ("top", "right"):
-        strip.spines[side].set_visible(False)
-    return strip
 
 
 def _foot_style(mark: str, color) -> dict:
