@@ -46,19 +46,24 @@ def test_keys_header_and_toml_defaults_with_units(capsys):
     out = output(capsys, "keys")
     lines = out.splitlines()
     assert lines[1].split() == ["key", "type", "unit", "default", "meaning"]
-    row = {ln.split()[0]: ln for ln in lines if ln.startswith("  ") and ln.split()}
+    row, section = {}, None
+    for ln in lines:
+        if ln.startswith("["):
+            section = ln.strip("[]")
+        elif ln.startswith("  ") and ln.split():
+            row[(section, ln.split()[0])] = ln
     # each shown default reads back as a TOML value (what a case file may hold)
     start = lines[1].index("default")
     end = lines[1].index("meaning")
     for section, keys in SECTIONS.items():
         for key, spec in keys.items():
-            if spec.default is None or spec.required or key not in row:
+            if spec.default is None or spec.required:
                 continue
-            text = row[key][start:end].strip()
+            text = row[(section, key)][start:end].strip()
             tomllib.loads(f"v = {text}")
-    assert '"0.01 cm"' in row["dx"] and '"strang"' in row["splitting"]
+    assert '"0.01 cm"' in row[("fiber", "dx")] and '"strang"' in row[("numerics", "splitting")]
     assert "True" not in out and "(90.0,)" not in out           # no Python literals
-    apd = row["apd_levels"].split()
+    apd = row[("measure", "apd_levels")].split()
     assert apd[1:4] == ["list", "%", "[90]"]                      # percent, not a bare number
 
 
