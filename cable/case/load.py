@@ -132,6 +132,17 @@ class Case:
         """The case as TOML text."""
         return dumps_toml(self.raw)
 
+    def __repr__(self) -> str:
+        from cable.case.describe import case_repr
+
+        return case_repr(self)
+
+    def _repr_html_(self) -> str:
+        """The case and what it implies, as a table (a notebook's display)."""
+        from cable.case.describe import case_html
+
+        return case_html(self)
+
     def with_overrides(self, overrides) -> "Case":
         """A new case with ``{"section.key": value}`` overrides applied to the raw case."""
         raw = copy.deepcopy(self.raw)

@@ -21,7 +21,8 @@ def add_figure_options(p, default_suffix: str) -> None:
                    help=f"figure file: .png, .pdf or .svg (default: the input's name + '{default_suffix}')")
     p.add_argument("--size", nargs=2, metavar=("W", "H"),
                    help=f"figure width and height; bare numbers in cm, or with a unit (85mm, 3.5in); "
-                        f"default {DEFAULT_SIZE_CM[0]:g} x {DEFAULT_SIZE_CM[1]:g} cm")
+                        f"default {DEFAULT_SIZE_CM[0]:g} x {DEFAULT_SIZE_CM[1]:g} cm (stacked traces: "
+                        f"{STACKED_EACH_CM:g} cm taller per panel)")
     p.add_argument("--dpi", type=int, default=DEFAULT_DPI, help=f"resolution of PNG output (default {DEFAULT_DPI})")
     p.add_argument("--title", help="a title above the figure (none by default)")
 
@@ -62,6 +63,18 @@ def size_cm(args) -> tuple[float, float]:
     if not all(v > 0 for v in size):
         raise CaseError(f"--size {' '.join(args.size)}: width and height must be above 0.")
     return size
+
+
+#: stacked panels (traces of several states): height of the first panel and of each
+#: further one [cm]; 3 cm keeps a panel's tick labels and a two-line label readable
+STACKED_FIRST_CM, STACKED_EACH_CM = 7.0, 3.0
+
+
+def stacked_size(args, panels: int) -> None:
+    """Without --size, a figure of ``panels`` stacked panels grows in height with their number."""
+    if args.size is None and panels > 1:
+        height = max(DEFAULT_SIZE_CM[1], STACKED_FIRST_CM + STACKED_EACH_CM * (panels - 1))
+        args.size = [f"{DEFAULT_SIZE_CM[0]:g}", f"{height:g}"]
 
 
 def check_pixels(size, dpi: int, size_option: str = "--size", dpi_option: str = "--dpi") -> None:

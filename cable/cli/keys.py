@@ -4,17 +4,67 @@ NAME = "keys"
 HELP = "list the case-file sections and keys with their units, defaults and meanings"
 ORDER = 6
 
+#: units shown for keys whose canonical quantity is a plain number but which are read in one
+UNIT_SHOWN = {("measure", "apd_levels"): "%"}
+
 
 def add_arguments(p):
     p.add_argument("section", nargs="?", help="only this section, e.g. fiber")
 
 
-def run(args):
+def toml_value(value, unit: str = "") -> str:
+    """A default as it would be written in a case file: ``"0.01 cm"``, ``true``, ``[90]``, ``"strang"``."""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        return f'"{value}"'
+    if isinstance(value, (list, tuple)):
+        return "[" + ", ".join(toml_value(v) for v in value) + "]"
+    if isinstance(value, float):
+        text = f"{value:g}"
+        return f'"{text} {unit}"' if unit and unit != "%" else text
+    return str(value)
+
+
+def plain(doc: str) -> str:
+    """A docstring without its reStructuredText markup (``code``, roles, ``::``)."""
+    import re
+    import textwrap
+
+    text = textwrap.dedent(doc).strip("\n")
+    text = re.sub(r":[a-z]+:`~?([^`]+)`", r"\1", text)
+    text = re.sub(r"``([^`]+)``", r"\1", text)
+    text = re.sub(r"::\n", ":\n", text)
+    return text
+
+
+def rows(name, keys):
     from cable import units
+
+    out = []
+    for key, spec in keys.items():
+        unit = units.CANONICAL.get(spec.quantity, "") if spec.kind in ("quantity", "list_quantity") else ""
+        unit = UNIT_SHOWN.get((name, key), "" if unit == "1" else unit)
+        if spec.required:
+            default = "(required)"
+        elif spec.default is None:
+            default = "-"
+        else:
+            default = toml_value(spec.default, unit)
+        meaning = spec.meaning
+        if spec.kind == "choice":
+            meaning += "; one of " + ", ".join(f'"{c}"' for c in spec.choices)
+        kind = {"quantity": "number", "list_quantity": "list", "list_str": "list", "table": "table",
+                "str": "text", "choice": "text"}.get(spec.kind, spec.kind)
+        out.append((key, kind, unit or "-", default, meaning))
+    return out
+
+
+def run(args):
     from cable.case import CaseError
     from cable.case.load import PREPACE_KEYS, _nearest
     from cable.case.schema import LIST_SECTIONS, SECTIONS
-
+    from cable.cli.models import table
     from cable.regions import REGION_KEYS
 
     sections = dict(SECTIONS)
@@ -26,25 +76,18 @@ def run(args):
     if args.section == "sweep":
         from cable.sweep import spec
 
-        print(spec.__doc__)
+        print(plain(spec.__doc__))
         return 0
-    for name, keys in sections.items():
-        if args.section and name != args.section:
-            continue
-        header = f"[[{name}]]" if name in LIST_SECTIONS or name == "region" else f"[{name}]"
-        print(header)
-        for key, spec in keys.items():
-            unit = units.CANONICAL.get(spec.quantity, "") if spec.kind in ("quantity", "list_quantity") else ""
-            unit = "" if unit == "1" else unit
-            if spec.required:
-                default = "required"
-            elif spec.default is None or spec.default == ():
-                default = "-"
-            else:
-                default = str(spec.default)
-            kind = "/".join(spec.choices) if spec.kind == "choice" else spec.kind
-            print(f"  {key:26s} {kind:32s} {unit:9s} {default:10s} {spec.meaning}")
-        print()
+    chosen = [(n, k) for n, k in sections.items() if not args.section or n == args.section]
+    body = [r for name, keys in chosen for r in rows(name, keys)]
+    header = ("key", "type", "unit", "default", "meaning")
+    widths = [max(len(r[k]) for r in [header, *body]) for k in range(4)]
+    first = True
+    for name, keys in chosen:
+        print(("" if first else "\n") + (f"[[{name}]]" if name in LIST_SECTIONS or name == "region" else f"[{name}]"))
+        lines = table(header, [tuple(f"{c:<{w}}" for c, w in zip(r[:4], widths)) + r[4:] for r in rows(name, keys)])
+        print("\n".join(lines if first else lines[1:]))
+        first = False
     if not args.section:
-        print("[sweep]: `cable keys sweep`")
+        print("\n[sweep]: `cable keys sweep`")
     return 0

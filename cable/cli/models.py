@@ -1,7 +1,7 @@
 """``cable models [NAME]``: list the membrane models, or show one (a CellML file too)."""
 
 NAME = "models"
-HELP = "list membrane models, or show one model's states, parameters and defaults"
+HELP = "list membrane models, or show one model's states, parameters, currents and defaults"
 ORDER = 5
 
 
@@ -10,18 +10,58 @@ def add_arguments(p):
     p.add_argument("--cellml", metavar="OUT", help="write the model as a CellML 2.0 file OUT")
 
 
+def table(header, rows, indent: str = "  ") -> list[str]:
+    """Rows of text cells in columns as wide as their widest cell (the last column left free)."""
+    widths = [max(len(str(r[k])) for r in [header, *rows]) for k in range(len(header) - 1)]
+    out = []
+    for row in [header, *rows]:
+        cells = [f"{str(c):<{w}}" for c, w in zip(row, widths)] + [str(row[-1])]
+        out.append((indent + "  ".join(cells)).rstrip())
+    return out
+
+
+def _default(p) -> str:
+    return p.default if isinstance(p.default, str) else f"{p.default:.6g}"
+
+
+def describe(m) -> list[str]:
+    """The lines of ``cable models NAME``: states, parameters and currents in aligned columns."""
+    basis = "membrane area (uA/cm^2)" if m.current_basis == "area" else "capacitance (uA/uF = pA/pF)"
+    lines = [f"{m.name}: {m.summary}", f"  reference: {m.citation}",
+             f"  currents per {basis}; rest {m.resting_potential:g} mV; activation threshold {m.threshold:g} mV",
+             "", "  states"]
+    lines += table(("name", "initial", "unit", "meaning"),
+                   [(s.name, f"{s.initial:.6g}", s.units or "1", s.meaning) for s in m.states], "    ")
+    lines += ["", "  parameters (* scalable in [membrane.scale])"]
+    rows = []
+    for p in m.parameters:
+        star = "*" if p.name in m.conductances else " "
+        meaning = p.meaning
+        if p.choices and not all(c in meaning for c in p.choices):    # the choices, said once
+            meaning += f" (one of {', '.join(p.choices)})"
+        rows.append((star + p.name, _default(p), "-" if p.choices else (p.units or "1"), meaning))
+    lines += table((" name", "default", "unit", "meaning"), rows, "    ")
+    lines += ["", "  currents (`cable traces --currents NAME`; inward negative)"]
+    if m.currents is None or not m.current_names:
+        lines.append("    (this model does not report its currents separately)")
+    else:
+        unit = "uA/cm^2" if m.current_basis == "area" else "uA/uF"
+        lines.append("    " + ", ".join(m.current_names) + f"  [{unit}]")
+    return lines
+
+
 def run(args):
-    from cable.membrane import get_model, model_names
     from cable.case import CaseError
-    from cable.membrane import UnknownModelError
+    from cable.membrane import UnknownModelError, get_model, model_names
     from cable.membrane.equations.registry import cellml_model_name, is_generated_name
 
     if not args.name:
         if args.cellml:
             raise CaseError("--cellml needs a model name: cable models NAME --cellml OUT.cellml.")
-        for name in model_names():
-            m = get_model(name)
-            print(f"{name:28s} {m.summary}")
+        names = model_names()
+        width = max(map(len, names))
+        for name in names:
+            print(f"{name:<{width}}  {get_model(name).summary}")
         return 0
     name = args.name
     if is_generated_name(name) and not name.startswith("equations:"):
@@ -32,27 +72,15 @@ def run(args):
         raise CaseError(str(exc)) from None
     if args.cellml:
         return _export(m, args.cellml)
-    print(f"{m.name}: {m.summary}")
-    print(f"  reference: {m.citation}")
-    print(f"  currents per {'membrane area (uA/cm^2)' if m.current_basis == 'area' else 'capacitance (uA/uF)'}; "
-          f"rest {m.resting_potential:g} mV; activation threshold {m.threshold:g} mV")
-    for line in getattr(m, "notes", ()):
-        print(f"  {line}")
+    lines = describe(m)
+    extra = [f"  {line}" for line in getattr(m, "notes", ())]
     schemes = getattr(m, "integration", ())
     if schemes:
         rl = [s.name for s, k in zip(m.states, schemes) if k == "rush-larsen"]
-        print(f"  Rush-Larsen (derivative linear in the state; numerics.gating): {', '.join(rl) or '(none)'}; "
-              f"forward Euler: {', '.join(s.name for s in m.states if s.name not in rl) or '(none)'}")
-        print("  rates: evaluated exactly (no tabulated fast path for generated models yet)")
-    print("  states (initial value, unit, meaning):")
-    for s in m.states:
-        print(f"    {s.name:12s} {s.initial:<12.6g} {s.units:8s} {s.meaning}")
-    print("  parameters (default, unit, meaning; * = scalable in [membrane.scale]):")
-    for p in m.parameters:
-        star = "*" if p.name in m.conductances else " "
-        default = p.default if isinstance(p.default, str) else f"{p.default:.6g}"
-        extra = f" (one of {', '.join(p.choices)})" if p.choices else ""
-        print(f"   {star}{p.name:12s} {default:<12s} {p.units:8s} {p.meaning}{extra}")
+        extra.append(f"  Rush-Larsen (derivative linear in the state; numerics.gating): {', '.join(rl) or '(none)'}; "
+                     f"forward Euler: {', '.join(s.name for s in m.states if s.name not in rl) or '(none)'}")
+        extra.append("  rates: evaluated exactly (no tabulated fast path for generated models yet)")
+    print("\n".join(lines[:3] + extra + lines[3:]))
     return 0
 
 

@@ -40,8 +40,9 @@ def run(args):
         t_window = _figures.pair(args.t_window, "time", "--t-window")
         if args.ecg:
             require(ds, ["pseudo_ecg"], args.result, "draw the pseudo-ECG (add an [[electrode]] to the case)")
+        panels = 1 + len(args.states) + len(args.currents) + int(args.ecg)
+        _figures.stacked_size(args, panels)
         with _figures.drawing(args) as fig:
-            panels = 1 + len(args.states) + len(args.currents) + int(args.ecg)
             axes = fig.subplots(panels, 1, sharex=True, squeeze=False)[:, 0]
             traces(ds, at, list(axes), states=args.states, currents=args.currents, t_window=t_window)
             if args.ecg:

@@ -222,6 +222,17 @@ class MembraneModel:
         """Default parameter vector, shape (nparam,)."""
         return np.array([p.encode(p.default) for p in self.parameters], dtype=np.float64)
 
+    def __repr__(self) -> str:
+        from cable.case.describe import model_repr
+
+        return model_repr(self)
+
+    def _repr_html_(self) -> str:
+        """States, parameters and currents with their units, as tables (a notebook's display)."""
+        from cable.case.describe import model_html
+
+        return model_html(self)
+
     def ion_scale(self, capacitance: float) -> float:
         """Factor turning I_ion into dV/dt (1/C_m per area, 1 per capacitance)."""
         return 1.0 / capacitance if self.current_basis == "area" else 1.0

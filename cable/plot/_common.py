@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import difflib
+import re
 import textwrap
 import tomllib
 from dataclasses import dataclass
@@ -44,13 +45,74 @@ def look(k: int) -> dict:
 LABEL_WIDTH = 36
 
 
-def label(obj, fallback: str) -> str:
-    """``"long name [units]"`` from a DataArray's attributes (``fallback`` for the name), wrapped."""
+def label(obj, fallback: str, *, short: bool = False) -> str:
+    """``"long name [unit]"`` from a DataArray's attributes (``fallback`` for the name), wrapped.
+
+    The unit is typeset (:func:`unit_text`). With ``short``, a known variable gets its
+    short axis name (:data:`SHORT_NAMES`, "CV [m/s]") and a swept case key its last part
+    ("g_Na scale" for ``membrane.scale.g_Na``).
+    """
     attrs = getattr(obj, "attrs", {}) or {}
     name = str(attrs.get("long_name") or fallback)
-    units = attrs.get("units")
-    text = name if units in (None, "", "1") else f"{name} [{units}]"
+    if short:
+        name = short_name(str(attrs.get("case_key") or getattr(obj, "name", None) or fallback), name)
+    unit = unit_text(attrs.get("units"))
+    text = name if not unit else f"{name} [{unit}]"
     return textwrap.fill(text, LABEL_WIDTH, break_long_words=False)
+
+
+#: short axis names of measurements, as a paper writes them
+SHORT_NAMES = {"conduction_velocity": "CV", "wavelength": "wavelength", "apd": "APD",
+               "upstroke_velocity": "dV/dt max", "resting_potential": "resting potential",
+               "peak_potential": "peak potential", "block_x": "block site", "safety_factor": "safety factor",
+               "activation_time": "activation time", "vm": "V"}
+
+
+#: how a sweep result's coordinates begin their long name (cable.sweep)
+SWEPT_PREFIX = "swept case key "
+
+
+def short_name(name: str, long_name: str = "") -> str:
+    """A short axis name: :data:`SHORT_NAMES`, or the last parts of a dotted case key.
+
+    ``membrane.scale.g_Na`` -> ``g_Na scale``, ``membrane.temperature`` -> ``temperature``,
+    ``region.0.parameters.K_o`` -> ``K_o``; other names are kept.
+    """
+    if name in SHORT_NAMES:
+        return SHORT_NAMES[name]
+    if long_name.startswith(SWEPT_PREFIX):     # a sweep's coordinate names its full case key
+        name = long_name[len(SWEPT_PREFIX):].strip()
+    parts = [p for p in str(name).split(".") if p and not p.isdigit()]
+    if len(parts) >= 2 and parts[-2] == "scale":
+        return f"{parts[-1]} scale"
+    if len(parts) >= 2:
+        return parts[-1]
+    return str(name)
+
+
+#: ASCII unit spellings (as the files store them) -> typeset forms
+_UNIT_WORDS = {"degC": "°C", "ohm": "Ω", "percent": "%", "mmol/L": "mM", "umol/L": "µM", "nmol/L": "nM"}
+_SUPERSCRIPT = str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹")
+
+
+def unit_text(units) -> str:
+    """A unit string typeset for a figure: ``uA/cm^2`` -> ``µA/cm²``, ``degC`` -> ``°C``.
+
+    ``u`` as a prefix becomes ``µ``, powers become superscripts, ``ohm`` becomes ``Ω``
+    and ``*`` a middle dot; a dimensionless unit (``1``, empty, None) gives ``""``.
+    """
+    if units is None:
+        return ""
+    text = str(units).strip()
+    if text in ("", "1", "dimensionless"):
+        return ""
+    if text in _UNIT_WORDS:
+        return _UNIT_WORDS[text]
+    for word, typeset in _UNIT_WORDS.items():
+        text = re.sub(rf"\b{re.escape(word)}\b", typeset, text)
+    text = re.sub(r"(?<![A-Za-z])u(?=[A-Za-zΩ])", "µ", text)
+    text = re.sub(r"\^(-?\d+)", lambda m: m.group(1).translate(_SUPERSCRIPT), text)
+    return text.replace("*", "·")
 
 
 def axes_or_current(ax):
@@ -93,23 +155,56 @@ class Zone:
     border: float = 0.0
 
 
-def _describe(item: dict, k: int) -> str:
-    """``"region 0: K_o = 12, G_Na x 0.3"`` from a [[region]] table (its own name if it has one)."""
-    name = item.get("name") or item.get("label")
-    if name:
-        return str(name)
-    parts = [f"{key} = {value}" for key, value in (item.get("parameters") or {}).items()]
-    parts += [f"{key} x {value}" for key, value in (item.get("scale") or {}).items()]
+def _model_units(raw: dict) -> dict:
+    """Parameter name -> typeset unit for the case's membrane model ({} when unknown)."""
+    try:
+        from cable.membrane import get_model
+
+        model = get_model(str(raw.get("membrane", {}).get("model")))
+    except Exception:    # an unknown or missing model: values are shown without units
+        return {}
+    return {p.name: unit_text(p.units) for p in model.parameters}
+
+
+def _value(value, unit: str) -> str:
+    if isinstance(value, str):
+        return value
+    text = f"{value:.4g}" if isinstance(value, float) else str(value)
+    return f"{text} {unit}" if unit else text
+
+
+def _describe(item: dict, name: str, start: float, end: float, units: dict) -> str:
+    """``"region 0, 2-4 mm: K_o = 12 mM, G_Na × 0.3"`` from a region table."""
+    parts = [f"{key} = {_value(value, units.get(key, ''))}" for key, value in (item.get("parameters") or {}).items()]
+    parts += [f"{key} × {value:g}" if isinstance(value, (int, float)) else f"{key} × {value}"
+              for key, value in (item.get("scale") or {}).items()]
     if item.get("coupling") is not None:
-        parts.append(f"coupling x {item['coupling']}")
-    return f"region {k}" + (": " + ", ".join(parts) if parts else "")
+        parts.append(f"coupling × {item['coupling']}")
+    where = f"{start * 10:.3g}–{end * 10:.3g} mm" if end < 1.0 else f"{start:.3g}–{end:.3g} cm"
+    return f"{name}, {where}" + (": " + ", ".join(parts) if parts else "")
+
+
+def _region_items(raw: dict) -> list[tuple[str, dict]]:
+    """(name, table) of each region: ``[[region]]`` entries are "region 0", "region 1"...;
+    named tables ``[region.zone]`` keep their name."""
+    items = raw.get("region", [])
+    if isinstance(items, dict):
+        if items and all(isinstance(v, dict) for v in items.values()) and "start" not in items:
+            return [(str(k), v) for k, v in items.items()]
+        items = [items]
+    out = []
+    for k, item in enumerate(items if isinstance(items, list) else []):
+        if isinstance(item, dict):
+            out.append((str(item.get("name") or item.get("label") or f"region {k}"), item))
+    return out
 
 
 def regions(ds) -> list[Zone]:
-    """Regions of the fibre from the ``[[region]]`` tables of the case text, in order.
+    """Regions of the fibre from the region tables of the case text, in order.
 
     The case text travels in the result's ``case`` attribute; a result without one,
-    or without regions, has none. Positions may carry units (``"1 cm"``).
+    or without regions, has none. Positions may carry units (``"1 cm"``). Each zone's
+    label names the region, its extent and what differs there, with units.
     """
     from cable import units
 
@@ -120,12 +215,11 @@ def regions(ds) -> list[Zone]:
         raw = tomllib.loads(str(text))
     except tomllib.TOMLDecodeError:
         return []
-    items = raw.get("region", [])
-    if isinstance(items, dict):
-        items = [items]
+    found = _region_items(raw)
+    model_units = _model_units(raw) if found else {}
     out = []
-    for k, item in enumerate(items if isinstance(items, list) else []):
-        if not isinstance(item, dict) or "start" not in item or "end" not in item:
+    for name, item in found:
+        if "start" not in item or "end" not in item:
             continue
         try:
             a = units.to_canonical(item["start"], "length")
@@ -133,11 +227,16 @@ def regions(ds) -> list[Zone]:
             border = units.to_canonical(item.get("border", 0.0), "length")
         except units.UnitError:
             continue
-        out.append(Zone(min(a, b), max(a, b), _describe(item, k), max(border, 0.0)))
+        lo, hi = min(a, b), max(a, b)
+        out.append(Zone(lo, hi, _describe(item, name, lo, hi, model_units), max(border, 0.0)))
     return out
 
 
-def legend_above(ax, handles, *, max_cols: int = 3, share: float = 1.0, **kw):
+#: legend entries are not wrapped narrower than this [characters]
+LEGEND_MIN_WRAP = 16
+
+
+def legend_above(ax, handles, *, max_cols: int = 3, share: float = 1.0, y: float = 1.01, **kw):
     """A legend in a row above the axes, with as many columns (up to ``max_cols``) as fit its width.
 
     ``share`` is the part of the axes' present width the legend may take (less than 1
@@ -146,7 +245,7 @@ def legend_above(ax, handles, *, max_cols: int = 3, share: float = 1.0, **kw):
     columns are reduced until it fits; without a renderer to measure with, ``max_cols``
     columns are used.
     """
-    opts = dict(loc="lower left", bbox_to_anchor=(0.0, 1.01), fontsize="small", frameon=False,
+    opts = dict(loc="lower left", bbox_to_anchor=(0.0, y), fontsize="small", frameon=False,
                 borderaxespad=0.0, handlelength=1.8, **kw)
     ncols = max(1, min(len(handles), max_cols))
     leg = ax.legend(handles=handles, ncols=ncols, **opts)
@@ -158,6 +257,12 @@ def legend_above(ax, handles, *, max_cols: int = 3, share: float = 1.0, **kw):
         ncols -= 1
         leg.remove()
         leg = ax.legend(handles=handles, ncols=ncols, **opts)
+    width = max(len(h.get_label()) for h in handles)
+    while leg.get_window_extent(renderer).width > room and width > LEGEND_MIN_WRAP:
+        # one column is still too wide: wrap the longest entries onto more lines
+        width = int(width * 0.8)
+        for text in leg.get_texts():
+            text.set_text(textwrap.fill(text.get_text().replace("\n", " "), width, break_long_words=False))
     return leg
 
 
@@ -209,3 +314,53 @@ def _metadata(fmt: str) -> dict:
     if fmt == "pdf":
         return {"Creator": creator}
     return {"Creator": creator} if fmt == "svg" else {}
+
+
+#: height of one row of a strip of outcomes below the axes, and the gap between it and
+#: the axes [fraction of the axes' height]
+STRIP_ROW, STRIP_GAP = 0.09, 0.03
+#: spread of several curves' marks within a row of the strip [row height]
+STRIP_SPREAD = 0.5
+
+
+def strip_below(ax, rows, xlabel: str = ""):
+    """A strip below ``ax``, sharing its x axis, with a row per outcome that has no value.
+
+    Block, no capture, no propagation are outcomes, not values: drawn on the value axis
+    they would read as values (or sit at invented ones), so they get rows of their own
+    below it. The strip carries the x tick labels and ``xlabel``; ``ax`` hides its own.
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+    rows : list of (str, list of (array, dict))
+        Per row its name and the marks in it: x positions [data] and a line style each;
+        several sets in one row are spread a little apart vertically.
+    xlabel : str
+
+    Returns
+    -------
+    matplotlib.axes.Axes or None
+        The strip (``ax.child_axes``), or None when no row has a mark (then ``ax``
+        keeps the x label).
+    """
+    rows = [(text, [(np.asarray(xs, dtype=float), st) for xs, st in sets if np.size(xs)]) for text, sets in rows]
+    rows = [(text, sets) for text, sets in rows if sets]
+    if not rows:
+        ax.set_xlabel(xlabel)
+        return None
+    height = STRIP_ROW * len(rows)
+    strip = ax.inset_axes([0.0, -(STRIP_GAP + height), 1.0, height], sharex=ax)
+    ax.tick_params(axis="x", which="both", labelbottom=False)
+    ax.set_xlabel("")
+    for r, (text, sets) in enumerate(rows):
+        for k, (xs, style) in enumerate(sets):
+            offset = 0.0 if len(sets) == 1 else STRIP_SPREAD * (k / (len(sets) - 1) - 0.5)
+            strip.plot(xs, np.full(xs.size, r + offset), **{"linestyle": "none", **style, "label": text})
+    strip.set_ylim(-0.5, len(rows) - 0.5)
+    strip.set_yticks(range(len(rows)), [text for text, _sets in rows], fontsize="small")
+    strip.tick_params(axis="y", length=0)
+    for side in ("top", "right"):
+        strip.spines[side].set_visible(False)
+    strip.set_xlabel(xlabel)
+    return strip

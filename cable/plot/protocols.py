@@ -60,7 +60,13 @@ def _require(ds, names, who, maker):
 
 
 def _units(ds, name, default):
-    return str(ds[name].attrs.get("units") or default)
+    """The typeset unit of a variable (µA/cm², ms)."""
+    return _common.unit_text(str(ds[name].attrs.get("units") or default))
+
+
+def _ms(value) -> str:
+    """A duration in a label: one decimal, the precision the protocols' searches report [ms]."""
+    return f"{value:.1f}"
 
 
 def _scalar(ds, name) -> float:
@@ -97,17 +103,16 @@ def _fits(ds):
 
 def _fit_mark(ax, x, y, color):
     """A fit's open mark at (x, y): its chronaxie or its charge intercept."""
+    # not clipped: the charge intercept sits on the axis at d = 0
     ax.plot([x], [y], marker=_FIT_MARK, markersize=6, markerfacecolor="white", markeredgecolor=color,
-            markeredgewidth=1.3, linestyle="none", zorder=4)
+            markeredgewidth=1.3, linestyle="none", zorder=4, clip_on=False)
 
 
-def _at_foot(ax, xs, style, label):
-    """Marks at the foot of the axis (x in data, y in axes fraction) for points with no value."""
+def _at_foot(ax, xs, style, label, xlabel):
+    """The x label, and a strip below the axes for points with no value (none without them)."""
     xs = np.asarray(xs, dtype=float)
     xs = xs[np.isfinite(xs)]
-    if xs.size:
-        ax.plot(xs, np.full(xs.size, 0.04), transform=ax.get_xaxis_transform(), clip_on=False, label=label,
-                **style)
+    _common.strip_below(ax, [(label, [(xs, style)])], xlabel)
 
 
 # --------------------------------------------------------------------------- strength-duration
@@ -148,7 +153,6 @@ def strength_duration(ds, ax=None, *, logx: bool = True, logy: bool = True, fits
     unit = _units(ds, "threshold", "uA/cm^2")
     ok = np.isfinite(amp)
     ax.plot(d[ok], amp[ok], markersize=5, linewidth=1.2, label="computed threshold", zorder=3, **_common.look(0))
-    _at_foot(ax, d[~ok], _RING | {"markersize": 7}, "no threshold found (search limit)")
     if fits and d.size:
         dd = np.geomspace(d.min() / CURVE_MARGIN, d.max() * CURVE_MARGIN, CURVE_POINTS) if logx else \
             np.linspace(d.min() / CURVE_MARGIN, d.max() * CURVE_MARGIN, CURVE_POINTS)
@@ -165,11 +169,12 @@ def strength_duration(ds, ax=None, *, logx: bool = True, logy: bool = True, fits
         ax.plot([], [], color="0.35", linestyle=":", linewidth=0.9, label="rheobase I_rh of each fit")
         ax.plot([], [], marker=_FIT_MARK, markersize=6, markerfacecolor="white", markeredgecolor="0.35",
                 linestyle="none", label="chronaxie c: threshold 2 I_rh")
-    ax.set_xlabel(f"stimulus duration [{_units(ds, 'duration', 'ms')}]")
     ax.set_ylabel(f"threshold amplitude [{unit}]")
     if logx:
         ax.set_xscale("log")
         _plain_log(ax.xaxis)
+    _at_foot(ax, d[~ok], _RING | {"markersize": 7}, "no threshold found",
+             f"stimulus duration [{_units(ds, 'duration', 'ms')}]")
     if logy:
         ax.set_yscale("log")
         _plain_log(ax.yaxis)
@@ -213,7 +218,7 @@ def charge_duration(ds, ax=None, *, fits: bool = True, legend: bool = True):
         dd = np.linspace(0.0, d.max() * 1.05, 2)
         for _key, law, rh, c, style in _fits(ds):
             ax.plot(dd, rh * (dd + c), color=style["color"], linestyle=style["linestyle"], linewidth=1.3,
-                    label=f"{law} fit: Q = {rh:.3g} x (d + {c:.3g} ms)")
+                    label=f"{law} fit: Q = {rh:.3g} × (d + {c:.3g} ms)")
             _fit_mark(ax, 0.0, rh * c, style["color"])
     ax.set_xlim(left=0.0)
     ax.set_ylim(bottom=0.0)
@@ -270,18 +275,19 @@ def refractory(ds, ax=None, *, legend: bool = True):
     apd = _scalar(ds, "apd90_s1")
     if np.isfinite(erp) and np.isfinite(local) and erp > local:
         ax.axvspan(local, erp, facecolor="0.9", edgecolor="0.55", hatch="///", linewidth=0,
-                   label=f"vulnerable window {erp - local:.3g} {unit}")
+                   label=f"vulnerable window {_ms(erp - local)} {unit}")
     if np.isfinite(erp):
-        ax.axvline(erp, label=f"ERP {erp:.4g} {unit}", **_ERP)
+        ax.axvline(erp, label=f"ERP {_ms(erp)} {unit}", **_ERP)
     if np.isfinite(local):
-        ax.axvline(local, label=f"local refractory period {local:.4g} {unit}", **_LOCAL)
+        ax.axvline(local, label=f"local refractory period {_ms(local)} {unit}", **_LOCAL)
     if np.isfinite(apd):
-        ax.axvline(apd, label=f"APD90 of the last S1 {apd:.4g} {unit}", **_APD)
+        ax.axvline(apd, label=f"APD90 of the last S1 {_ms(apd)} {unit}", **_APD)
     ax.set_yticks(range(len(OUTCOMES)), OUTCOMES)
     ax.set_ylim(-0.6, len(OUTCOMES) - 0.4)
     ax.set_xlabel(f"S1-S2 coupling interval [{unit}]")
     ax.set_ylabel("S2 outcome")
-    _legend(ax, legend, loc="center left", bbox_to_anchor=(1.02, 0.5))
+    # below the axes, in two columns: beside them it would take half the width
+    _legend(ax, legend, loc="upper center", bbox_to_anchor=(0.5, -0.18), ncols=2)
     return ax
 
 
@@ -291,21 +297,28 @@ def _restitution_points(ds, y):
     di = np.asarray(ds["diastolic_interval"].values, dtype=float)
     val = np.asarray(ds[y].values, dtype=float)
     prop = np.asarray(ds["propagated"].values).astype(bool)
-    # a point that failed has no DI of its own when its site never activated: place it at
-    # the coupling interval (cycle length) minus the basic APD90, the DI it was aiming at
-    aim = np.asarray(ds["interval"].values, dtype=float) - _scalar(ds, "apd90_s1")
-    where_failed = np.where(np.isfinite(di), di, aim)[~prop]
+    interval = np.asarray(ds["interval"].values, dtype=float)
+    # a beat that failed has a DI of its own only when its site activated; the others are
+    # named by their interval (no position on the DI axis is invented for them)
+    failed = ~prop & np.isfinite(di)
+    unplaced = interval[~prop & ~np.isfinite(di)]
     ok = prop & np.isfinite(di) & np.isfinite(val)
     order = np.argsort(di[ok])
     one = np.asarray(ds["one_to_one"].values).astype(bool)[ok][order] if "one_to_one" in ds.variables else None
-    return di[ok][order], val[ok][order], where_failed, one
+    return di[ok][order], val[ok][order], (di[failed], unplaced), one
 
 
-def _failures(ds, ax, failed, one, x, y):
+def _failures(ds, ax, failed, one, x, y, xlabel):
+    placed, unplaced = failed
     strand = np.isfinite(float(ds.attrs.get("measurement_x_cm", 0.0)))
-    _at_foot(ax, failed, _FAIL, "no propagation" if strand else "no capture")
+    what = "no propagation" if strand else "no capture"
+    _at_foot(ax, placed, _FAIL, what, xlabel)
     if one is not None and (~one).any():
         ax.plot(x[~one], y[~one], label="last beat of a train that was not 1:1", **_RING)
+    if unplaced.size:
+        kind = "S1-S2" if ds.attrs.get("protocol") == "s1s2" else "cycle length"
+        values = ", ".join(_ms(v) for v in np.sort(unplaced)[::-1])
+        ax.plot([], [], linestyle="none", label=f"{what} at {kind} {values} ms")
 
 
 def restitution(ds, ax=None, *, slope: bool = True, legend: bool = True):
@@ -347,7 +360,7 @@ def restitution(ds, ax=None, *, slope: bool = True, legend: bool = True):
     unit = _units(ds, "apd90", "ms")
     kind = "S1-S2" if ds.attrs.get("protocol") == "s1s2" else ds.attrs.get("protocol") or "computed"
     ax.plot(di, apd, markersize=5, linewidth=1.3, label=f"APD90 ({kind})", zorder=3, **_common.look(0))
-    _failures(ds, ax, failed, one, di, apd)
+    _failures(ds, ax, failed, one, di, apd, f"diastolic interval [{_units(ds, 'diastolic_interval', 'ms')}]")
     s, s_di = _scalar(ds, "max_slope"), _scalar(ds, "max_slope_di")
     if slope and np.isfinite(s) and di.size >= 2:
         mids = 0.5 * (di[1:] + di[:-1])
@@ -357,13 +370,12 @@ def restitution(ds, ax=None, *, slope: bool = True, legend: bool = True):
         xs = np.array([x0 - over, x1 + over])
         style = _common.look(1)
         ax.plot(xs, apd[k] + s * (xs - x0), color=style["color"], linestyle=style["linestyle"], linewidth=1.6,
-                label=f"maximal slope {s:.3g} at DI {s_di:.3g} {unit}", zorder=4)
-        ax.annotate(f"slope {s:.3g}", (0.5 * (x0 + x1), apd[k] + s * 0.5 * (x1 - x0)), xytext=(8, -14),
+                label=f"maximal slope {s:.2f} at DI {_ms(s_di)} {unit}", zorder=4)
+        ax.annotate(f"slope {s:.2f}", (0.5 * (x0 + x1), apd[k] + s * 0.5 * (x1 - x0)), xytext=(8, -14),
                     textcoords="offset points", fontsize="small", color=style["color"])
         base = _scalar(ds, "apd90_s1")
         if np.isfinite(base):
-            ax.axhline(base, label=f"APD90 at the basic cycle length {base:.4g} {unit}", **_APD)
-    ax.set_xlabel(f"diastolic interval [{_units(ds, 'diastolic_interval', 'ms')}]")
+            ax.axhline(base, label=f"APD90 at the basic cycle length {_ms(base)} {unit}", **_APD)
     ax.set_ylabel(f"APD90 [{unit}]")
     _legend(ax, legend, loc="lower right")
     return ax
@@ -398,8 +410,7 @@ def cv_restitution(ds, ax=None, *, legend: bool = True):
     ax = _common.axes_or_current(ax)
     di, cv, failed, one = _restitution_points(ds, "conduction_velocity")
     ax.plot(di, cv, markersize=5, linewidth=1.3, label="conduction velocity", zorder=3, **_common.look(2))
-    _failures(ds, ax, failed, one, di, cv)
-    ax.set_xlabel(f"diastolic interval [{_units(ds, 'diastolic_interval', 'ms')}]")
+    _failures(ds, ax, failed, one, di, cv, f"diastolic interval [{_units(ds, 'diastolic_interval', 'ms')}]")
     ax.set_ylabel(f"conduction velocity [{_units(ds, 'conduction_velocity', 'm/s')}]")
     _legend(ax, legend, loc="lower right")
     return ax
@@ -407,6 +418,8 @@ def cv_restitution(ds, ax=None, *, legend: bool = True):
 
 # --------------------------------------------------------------------------- convergence
 
+#: the grid-spacing axis runs this factor beyond the coarsest and the finest grid
+CONVERGENCE_MARGIN = 1.25
 #: quantities of a convergence result: variable per level, prefix of its scalars, name
 _CONVERGED = {"cv": ("conduction_velocity", "CV"), "apd90": ("apd90", "APD90")}
 
@@ -487,43 +500,68 @@ def convergence(ds, ax=None, *, quantity: str = "cv", error: bool = False, legen
             ax.plot(dx[:1], f[:1], label=case_text, zorder=4, **_CASE_GRID)
         ax.set_ylabel(f"{'conduction velocity' if quantity == 'cv' else 'APD90'} [{unit}]")
     block = " (numerical block)" if int(ds.attrs.get("numerical_block", 0) or 0) else ""
-    _at_foot(ax, dx[~prop], _FAIL, f"no propagation{block}")
     ax.set_xscale("log")
     ax.set_xticks(dx, [f"{v:.3g}" for v in dx])      # one tick per grid
     ax.xaxis.set_minor_formatter(NullFormatter())
-    ax.set_xlabel(f"grid spacing dx [{dx_unit}]")
+    if ok.size:    # a little room beyond the coarsest and finest grids, so that no mark is cut
+        ax.set_xlim(dx.min() / CONVERGENCE_MARGIN, dx.max() * CONVERGENCE_MARGIN)
+    _at_foot(ax, dx[~prop], _FAIL, f"no propagation{block}", f"grid spacing dx [{dx_unit}]")
     _legend(ax, legend)
     return ax
 
 
 # --------------------------------------------------------------------------- whole figures
 
-#: height of the legend row under the panels of :func:`protocol_figure`, relative to the panels
-LEGEND_ROW = 0.55
+#: most columns of the legend under the panels of :func:`protocol_figure`
+LEGEND_COLUMNS = 2
 
 
 def _side_by_side(fig, draws):
-    """Panels side by side, each with its legend in a row of its own below it (no overlap)."""
-    grid = fig.add_gridspec(2, len(draws), height_ratios=[1.0, LEGEND_ROW])
-    axes = []
-    for k, draw in enumerate(draws):
-        ax = fig.add_subplot(grid[0, k])
+    """Panels side by side, and one legend of all their entries below them (no entry twice)."""
+    axes = fig.subplots(1, len(draws), squeeze=False)[0]
+    handles, labels = [], []
+    for ax, draw in zip(axes, draws):
         draw(ax)
-        key = fig.add_subplot(grid[1, k])
-        key.set_axis_off()
-        handles, labels = ax.get_legend_handles_labels()
-        if handles:
-            key.legend(handles, labels, loc="upper center", fontsize="small", frameon=False)
-        axes.append(ax)
-    return axes
+        for h, text in zip(*ax.get_legend_handles_labels()):
+            if text not in labels:
+                handles.append(h)
+                labels.append(text)
+    if handles:
+        _legend_below(fig, handles, labels)
+    return list(axes)
 
 
-def protocol_figure(ds, fig=None):
+def _legend_below(fig, handles, labels):
+    """One legend under the panels, in as many columns (up to :data:`LEGEND_COLUMNS`) as fit the figure."""
+    import textwrap
+
+    def make(ncols, texts):
+        return fig.legend(handles, texts, loc="outside lower center", ncols=ncols, fontsize="small", frameon=False)
+
+    ncols = min(LEGEND_COLUMNS, len(handles))
+    leg = make(ncols, labels)
+    renderer = _common._renderer(fig)
+    if renderer is None:
+        return leg
+    room = 0.98 * fig.bbox.width
+    width = max(len(t) for t in labels)
+    while leg.get_window_extent(renderer).width > room and (ncols > 1 or width > _common.LEGEND_MIN_WRAP):
+        leg.remove()
+        if ncols > 1:
+            ncols -= 1
+        else:   # one column is still too wide: wrap the longest entries
+            width = int(width * 0.8)
+        leg = make(ncols, [textwrap.fill(t, width, break_long_words=False) for t in labels])
+    return leg
+
+
+def protocol_figure(ds, fig=None, *, title: str | None = None):
     """The figure a protocol command's ``--figure`` writes: its panels side by side.
 
     Strength-duration: amplitude and charge; refractoriness: the trials; restitution:
-    APD90 and (on a strand) CV; convergence: CV and its estimated error. The kind is
-    recognised from the variables of ``ds``; the legends sit below the panels.
+    APD90 and (on a strand) CV; convergence: CV, its estimated error, and APD90 when
+    computed. The kind is recognised from the variables of ``ds``; one legend sits below
+    the panels.
 
     Parameters
     ----------
@@ -531,6 +569,8 @@ def protocol_figure(ds, fig=None):
         A protocol result.
     fig : matplotlib.figure.Figure, optional
         Where to draw; default a new pyplot-free Figure (:func:`cable.plot._common.new_figure`).
+    title : str, optional
+        A title above the panels (none by default: a paper's caption says what it is).
 
     Returns
     -------
@@ -546,7 +586,7 @@ def protocol_figure(ds, fig=None):
     if "rheobase_weiss" in ds.variables:
         _side_by_side(fig, [lambda ax: strength_duration(ds, ax, **quiet), lambda ax: charge_duration(ds, ax, **quiet)])
     elif "erp" in ds.variables:
-        refractory(ds, fig.add_subplot())
+        _side_by_side(fig, [lambda ax: refractory(ds, ax, **quiet)])
     elif "max_slope" in ds.variables:
         draws = [lambda ax: restitution(ds, ax, **quiet)]
         if "conduction_velocity" in ds.variables and \
@@ -554,12 +594,13 @@ def protocol_figure(ds, fig=None):
             draws.append(lambda ax: cv_restitution(ds, ax, **quiet))
         _side_by_side(fig, draws)
     elif "cv_extrapolated" in ds.variables:
-        _side_by_side(fig, [lambda ax: convergence(ds, ax, **quiet),
-                            lambda ax: convergence(ds, ax, error=True, **quiet)])
+        draws = [lambda ax: convergence(ds, ax, **quiet), lambda ax: convergence(ds, ax, error=True, **quiet)]
+        if "apd90" in ds.variables and np.isfinite(_scalar(ds, "apd90_extrapolated")):
+            draws.append(lambda ax: convergence(ds, ax, quantity="apd90", **quiet))
+        _side_by_side(fig, draws)
     else:
         raise CaseError("figure: the result is none of strength-duration, refractory period, restitution or "
                         f"convergence (its variables: {', '.join(map(str, ds.data_vars)) or '(none)'}).")
-    title = ds.attrs.get("title")
     if title:
         fig.suptitle(str(title), fontsize="medium")
     return fig

@@ -143,7 +143,9 @@ def space_time(ds, ax=None, *, t_window=None, x_window=None, vmin=None, vmax=Non
     if legend and handles:
         # above the map, so that it hides no data; no wider than the map (the colour bar
         # will take about a sixth of the axes' present width)
-        _common.legend_above(ax, handles, max_cols=3, share=0.85 if colorbar else 1.0)
+        # (above the region bar, when the bar runs along the top)
+        above = 1.01 + (1.2 * REGION_BAR if regions and time_axis == "y" and _common.regions(ds) else 0.0)
+        _common.legend_above(ax, handles, max_cols=3, share=0.85 if colorbar else 1.0, y=above)
     if colorbar:
         extend = {(False, False): "neither", (True, False): "min", (False, True): "max", (True, True): "both"}[
             (bool(finite.size) and finite.min() < lo, bool(finite.size) and finite.max() > hi)]
@@ -238,7 +240,8 @@ def _blocks(ax, ds, t_range, x_range, point):
         tb = float(act.isel(beat=int(b)).sel(x=bx[b], method="nearest"))
         if not np.isfinite(tb) or not t_range[0] <= tb <= t_range[1]:
             continue
-        ax.plot(*point(tb, bx[b]), **_common.BLOCK_MARK, scalex=False, scaley=False, zorder=5)
+        # not clipped: a beat blocked near the start of the run sits on the map's edge
+        ax.plot(*point(tb, bx[b]), **_common.BLOCK_MARK, scalex=False, scaley=False, zorder=5, clip_on=False)
         ax.annotate("block", point(tb, bx[b]), xytext=(7, 7), textcoords="offset points", fontsize="small",
                     color="black", bbox={"boxstyle": "round,pad=0.2", "facecolor": "white", "edgecolor": "none",
                                          "alpha": 0.85}, zorder=6)
@@ -246,34 +249,53 @@ def _blocks(ax, ds, t_range, x_range, point):
     return [Line2D([], [], label="conduction block", **_common.BLOCK_MARK)] if drawn else []
 
 
+#: hatch of each region's bar in the margin (cycling), and the bar's width [axes fraction]
+REGION_HATCHES = ("///", "\\\\\\", "xxx", "...")
+REGION_BAR = 0.025
+
+
 def _regions(ax, ds, x_range, time_axis):
-    """Hatch each region's core, dot its border ramp, and name it at the right edge."""
+    """Mark each region by a hatched bar in the margin beside the map and thin lines at its ends.
+
+    Nothing is laid over the field itself but the lines (dashed: the region's ends,
+    dotted: the ends of its border ramp), so the potential inside the region stays
+    visible; the legend names each region with its extent and what differs there.
+    """
+    from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
 
     zones = [z for z in _common.regions(ds) if z.end + z.border > x_range[0] and z.start - z.border < x_range[1]]
-    span = ax.axhspan if time_axis == "x" else ax.axvspan
-    line = ax.axhline if time_axis == "x" else ax.axvline
-    trans = ax.get_yaxis_transform() if time_axis == "x" else ax.get_xaxis_transform()
-    for zone in zones:
-        a, b = max(zone.start, x_range[0]), min(zone.end, x_range[1])
-        if b > a:
-            span(a, b, facecolor="none", edgecolor=(1, 1, 1, 0.55), hatch="///", linewidth=0)
-        for edge in (zone.start, zone.end):
-            if x_range[0] < edge < x_range[1]:
-                line(edge, color="white", linewidth=0.8, linestyle=(0, (4, 2)))
-        for edge in ((zone.start - zone.border, zone.end + zone.border) if zone.border > 0 else ()):
-            if x_range[0] < edge < x_range[1]:
-                line(edge, color="white", linewidth=0.9, linestyle=":")
-        centre = 0.5 * (max(zone.start, x_range[0]) + min(zone.end, x_range[1]))
-        where = (0.99, centre) if time_axis == "x" else (centre, 0.99)
-        ax.text(*where, zone.label, transform=trans, fontsize="small", ha="right" if time_axis == "x" else "center",
-                va="center" if time_axis == "x" else "top", rotation=0 if time_axis == "x" else 90,
-                bbox={"boxstyle": "round,pad=0.2", "facecolor": "white", "edgecolor": "none", "alpha": 0.8})
     if not zones:
         return []
-    handles = [Patch(facecolor="none", edgecolor="0.3", hatch="///", label="region (case)")]
+    line = ax.axhline if time_axis == "x" else ax.axvline
+    if time_axis == "x":     # the bar runs along the position axis, beside the map
+        bar = ax.inset_axes([1.0 + 0.2 * REGION_BAR, 0.0, REGION_BAR, 1.0], sharey=ax)
+        span = bar.axhspan
+    else:
+        bar = ax.inset_axes([0.0, 1.0 + 0.2 * REGION_BAR, 1.0, REGION_BAR], sharex=ax)
+        span = bar.axvspan
+    bar.set_axis_off()
+    handles = []
+    for k, zone in enumerate(zones):
+        hatch = REGION_HATCHES[k % len(REGION_HATCHES)]
+        a, b = max(zone.start, x_range[0]), min(zone.end, x_range[1])
+        if b > a:
+            span(a, b, facecolor="white", edgecolor="0.25", hatch=hatch, linewidth=0.6)
+        if zone.border > 0:
+            for lo, hi in ((zone.start - zone.border, zone.start), (zone.end, zone.end + zone.border)):
+                lo, hi = max(lo, x_range[0]), min(hi, x_range[1])
+                if hi > lo:
+                    span(lo, hi, facecolor="0.85", edgecolor="none")
+        for edge in (zone.start, zone.end):
+            if x_range[0] < edge < x_range[1]:
+                line(edge, color="white", linewidth=0.7, linestyle=(0, (4, 3)), alpha=0.8)
+        for edge in ((zone.start - zone.border, zone.end + zone.border) if zone.border > 0 else ()):
+            if x_range[0] < edge < x_range[1]:
+                line(edge, color="white", linewidth=0.7, linestyle=(0, (1, 2)), alpha=0.8)
+        handles.append(Patch(facecolor="white", edgecolor="0.25", hatch=hatch, linewidth=0.6,
+                             label=zone.label))
     if any(z.border > 0 for z in zones):
-        from matplotlib.lines import Line2D
-
-        handles.append(Line2D([], [], color="0.3", linewidth=0.9, linestyle=":", label="region border"))
+        width = max(z.border for z in zones)
+        handles.append(Line2D([], [], color="0.3", linewidth=0.9, linestyle=(0, (1, 2)),
+                              label=f"border ramp, {width * 10:.3g} mm"))
     return handles

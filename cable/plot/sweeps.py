@@ -69,9 +69,10 @@ def sweep(ds, y: str, x: str, ax=None, *, hue: str | None = None, select=None, b
     block : bool
         Mark the points whose wave blocked (variable ``blocked``) with a cross, and
         those whose stimulus did not capture (``captured`` = 0) with an open circle,
-        at the foot of the axis in the curve's colour.
+        in a strip below the axes (one row per outcome, in the curve's colour; the
+        strip is ``ax.child_axes[0]`` and carries the x label).
     legend : bool
-        Name the curves and the block mark.
+        Name the curves beside the axes (the strip names its rows).
     logx, logy : bool
         Logarithmic axes.
 
@@ -84,7 +85,6 @@ def sweep(ds, y: str, x: str, ax=None, *, hue: str | None = None, select=None, b
     CaseError
         ``y``, ``x`` or ``hue`` unknown, or a dimension left unchosen.
     """
-    from matplotlib.lines import Line2D
 
     if y not in ds.data_vars:
         names = [str(v) for v in ds.data_vars]
@@ -101,7 +101,7 @@ def sweep(ds, y: str, x: str, ax=None, *, hue: str | None = None, select=None, b
     da = _reduce(da, keep, select, f"'{y}'").transpose(*keep)
     flags = []      # (mask over keep, marker style, legend label)
     if block:
-        for name, invert, mark, text in (("blocked", False, "x", "conduction block"),
+        for name, invert, mark, text in (("blocked", False, "x", "blocked"),
                                          ("captured", True, "o", "no capture")):
             mask = _flag(ds, name, x, keep, select, da, invert)
             if mask is not None:
@@ -111,64 +111,36 @@ def sweep(ds, y: str, x: str, ax=None, *, hue: str | None = None, select=None, b
     xs = np.asarray(da[x].values if x in da.coords else np.arange(da.sizes[x]))
     groups = list(da[hue].values) if hue else [None]
     handles = []
-    shown = set()
-    foot = ax.get_xaxis_transform()
+    looks = []
     for k, g in enumerate(groups):
         row = da.isel({hue: k}).values if hue else da.values
         style = _common.look(k)
+        looks.append(style)
         name = None if hue is None else f"{g:g}" if isinstance(g, (float, np.floating)) else str(g)
         (line,) = ax.plot(xs, row, markersize=5, linewidth=1.4, label=name, **style)
         if hue is not None:
             handles.append(line)
-        for mask, mark, text in flags:
-            hit = (mask.isel({hue: k}).values if hue else mask.values).astype(bool)
-            if hit.any():
-                shown.add((mark, text))
-                # at the foot of the axis, one row per curve so that marks do not hide each other
-                ax.plot(xs[hit], np.full(hit.sum(), FOOT_GAP + FOOT_ROW * k), transform=foot, clip_on=False,
-                        linestyle="none", **_foot_style(mark, style["color"]))
-    ax.set_xlabel(_common.label(ds[x] if x in ds.coords else None, x))
-    ax.set_ylabel(_common.label(ds[y], y))
     if logx:
         ax.set_xscale("log")
     if logy:
         ax.set_yscale("log")
-    if shown and not logy:
-        _clear_the_foot(ax, da.values, len(groups))
-    for mark, text in sorted(shown, key=lambda m: m[1]):
-        handles.append(Line2D([], [], linestyle="none", label=text, **_foot_style(mark, "0.2")))
+    x_label = _common.label(ds[x] if x in ds.coords else None, x, short=True)
+    ax.set_ylabel(_common.label(ds[y], y, short=True))
+    rows = []
+    for mask, mark, text in flags:
+        sets = []
+        for k, style in enumerate(looks):
+            hit = (mask.isel({hue: k}).values if hue else mask.values).astype(bool)
+            if hit.any():
+                sets.append((xs[hit], _foot_style(mark, style["color"])))
+        rows.append((text, sets))
+    _common.strip_below(ax, rows, x_label)
     if legend and handles:
-        title = _common.label(ds[hue], hue) if hue and hue in ds.coords else hue
-        ax.legend(handles=handles, title=title, fontsize="small", title_fontsize="small", frameon=False)
+        title = _common.label(ds[hue], hue, short=True) if hue and hue in ds.coords else hue
+        # beside the axes, where it hides no point
+        ax.legend(handles=handles, title=title, fontsize="small", title_fontsize="small", frameon=False,
+                  loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0)
     return ax
-
-
-#: height of the rows of block / no-capture marks at the foot of the axis, and the gap
-#: kept above them [axes fraction]
-FOOT_ROW, FOOT_GAP = 0.045, 0.04
-
-
-def _clear_the_foot(ax, values, rows: int) -> None:
-    """Lower the y limit so that no curve runs through the rows of marks at the foot.
-
-    The marks say "no value here" (block, no capture); drawn among the data they would
-    read as values.
-    """
-    finite = np.asarray(values, dtype=float)
-    finite = finite[np.isfinite(finite)]
-    if finite.size == 0:
-        return
-    lo, hi = ax.get_ylim()
-    frac = FOOT_GAP + FOOT_ROW * rows          # the data must start above this fraction
-    low = float(finite.min())
-    if frac >= 1.0:
-        return
-    if (low - lo) < frac * (hi - lo):
-        ax.set_ylim((low - frac * hi) / (1.0 - frac), hi)
-    # a faint rule sets the strip of marks apart from the values
-    edge = frac - 0.5 * FOOT_GAP
-    ax.hlines(edge, 0.0, 1.0, transform=ax.transAxes, colors="0.75", linewidths=0.6, linestyles=(0, (1, 2)),
-              zorder=0.5)
 
 
 def _foot_style(mark: str, color) -> dict:

@@ -43,10 +43,23 @@ def state_variable(ds, state: str) -> str:
                     f"{', '.join(stored) or '(none)'}; store more with output.states = [...] in the case.")
 
 
-#: longest axis label of a stacked panel kept on one line [characters]
-STACKED_LABEL_WIDTH = 10
+#: longest axis label of a stacked panel kept on one line [characters]: a panel of
+#: 3 cm holds about 16 characters of 10 pt text along its height
+STACKED_LABEL_WIDTH = 16
 #: units of the ionic currents by the model's current basis (cable.membrane.base)
 CURRENT_UNITS = {"area": "uA/cm^2", "capacitance": "uA/uF"}
+
+
+def _panel_label(ds, name: str, units, *, stacked: bool) -> str:
+    """A panel's y label: "V [mV]", "h", "I_Na [µA/cm²]" (the short name and the typeset unit)."""
+    unit = _common.unit_text(units)
+    if not stacked:
+        return _common.label(ds[name], name)
+    short = name[len(schema.STATE_PREFIX):] if name.startswith(schema.STATE_PREFIX) else name
+    short = _common.SHORT_NAMES.get(short, short)
+    text = short if not unit else f"{short} [{unit}]"
+    # a stacked panel is short: a long label goes on two lines rather than into its neighbours'
+    return text if len(text) <= STACKED_LABEL_WIDTH else f"{short}\n[{unit}]"
 
 
 def ionic_current(ds, name: str, node: float | None):
@@ -137,7 +150,8 @@ def traces(ds, at, ax=None, *, states=(), currents=(), t_window=None, legend: bo
     t_window : (float, float), optional
         Time range [ms].
     legend : bool
-        Name the positions in a legend on the first panel.
+        Name the positions (and say that inward currents are negative) in a row above
+        the first panel.
 
     Returns
     -------
@@ -189,22 +203,18 @@ def traces(ds, at, ax=None, *, states=(), currents=(), t_window=None, legend: bo
             style.pop("marker")
             axis.plot(t, y, linewidth=1.4, label=f"x = {node:.3g} cm" if fibre else None, **style)
         if not is_current:
-            units, long_name = ds[name].attrs.get("units"), None
-        if len(names) == 1:
-            axis.set_ylabel(_common.label(ds[name], name))
-        else:   # stacked panels: a short axis label, the long name inside the panel
-            short = name[len(schema.STATE_PREFIX):] if name.startswith(schema.STATE_PREFIX) else name
-            text_label = short if units in (None, "", "1") else f"{short} [{units}]"
-            # a stacked panel is short: a long label goes on two lines rather than into its neighbours'
-            axis.set_ylabel(text_label if len(text_label) <= STACKED_LABEL_WIDTH else f"{short}\n[{units}]")
-            text = long_name or ds[name].attrs.get("long_name", short)
-            axis.text(0.01, 0.96, text, transform=axis.transAxes,
-                      va="top", ha="left", fontsize="small",
-                      bbox={"boxstyle": "round,pad=0.15", "facecolor": "white", "edgecolor": "none", "alpha": 0.8})
+            units = ds[name].attrs.get("units")
+        axis.set_ylabel(_panel_label(ds, name, units, stacked=len(names) > 1))
     for axis in axes[: len(names) - 1]:
         axis.label_outer()
     axes[0].figure.align_ylabels(axes[: len(names)])
     axes[len(names) - 1].set_xlabel(_common.label(ds["t"], "time"))
-    if legend and fibre:
-        axes[0].legend(fontsize="small", frameon=False)
+    handles = axes[0].get_lines()[: len(points)] if legend and fibre else []
+    if currents and legend:
+        from matplotlib.lines import Line2D
+
+        handles = list(handles) + [Line2D([], [], linestyle="none", label="currents: inward negative")]
+    if handles:
+        # in a row above the panels, where it hides no trace
+        _common.legend_above(axes[0], list(handles), max_cols=4)
     return axes[: len(names)]

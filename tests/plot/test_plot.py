@@ -12,7 +12,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 import cable
-from cable.plot import _common
+from cable.plot import _common, layout
 from conftest import hh_axon_case
 
 #: fraction of pixels that must change between maps of different results: the block
@@ -116,20 +116,27 @@ def test_block_site_is_marked(blocked):
     assert any(t.get_text() == "block" for t in ax.texts)
 
 
-def test_regions_from_the_case_text_are_shaded(normal):
-    # regions come from [[region]] tables of the case text; positions may carry units (pint; common practice)
+def test_regions_from_the_case_text_are_marked_beside_the_map(normal):
+    # regions come from [[region]] tables of the case text; positions may carry units (pint; common practice).
+    # The field inside a region stays visible: the region is a hatched bar beside the map, and on the map
+    # only lines at its ends and at the ends of its border ramp
     ds = normal.copy()
     ds.attrs = dict(normal.attrs, case=normal.attrs["case"] + '\n[[region]]\nstart = "0.5 cm"\nend = "10 mm"\n'
-                                                              'border = "1 mm"\nscale = {g_Na = 0.5}\n')
-    assert _common.regions(ds) == [_common.Zone(0.5, 1.0, "region 0: g_Na x 0.5", 0.1)]
-    _, ax, _, _ = render(lambda ax: cable.plot.space_time(ds, ax, colorbar=False))
-    hatched = [p for p in ax.patches if p.get_hatch()]
-    assert len(hatched) == 1
-    assert any(t.get_text() == "region 0: g_Na x 0.5" for t in ax.texts)
-    dotted = sorted(ln.get_ydata()[0] for ln in ax.get_lines() if ln.get_linestyle() == ":")
-    assert dotted == pytest.approx([0.4, 1.1])      # the border ramp ends 1 mm outside the core
+                                                              'border = "1 mm"\nparameters = {E_K = -70}\n'
+                                                              'scale = {g_Na = 0.5}\n')
+    label = "region 0, 0.5–1 cm: E_K = -70 mV, g_Na × 0.5"     # the unit from the model (HH 1952: mV)
+    assert _common.regions(ds) == [_common.Zone(0.5, 1.0, label, 0.1)]
+    fig, ax, _, _ = render(lambda ax: cable.plot.space_time(ds, ax, colorbar=False), size=(6, 4))
+    assert not [p for p in ax.patches if p.get_hatch()]             # nothing hatched over the field
+    (bar,) = ax.child_axes
+    assert [p.get_hatch() for p in bar.patches if p.get_hatch()] == ["///"]
+    assert label in [t.get_text().replace("\n", " ") for t in ax.get_legend().get_texts()]
+    marked = sorted(ln.get_ydata()[0] for ln in ax.get_lines() if ln.get_xdata()[0] == 0 and
+                    np.ptp(ln.get_ydata()) == 0 and ln.get_transform() is not ax.transData)
+    assert marked == pytest.approx([0.4, 0.5, 1.0, 1.1])   # the border ramp ends 1 mm outside the core
+    assert layout.problems(fig) == []
     _, ax, _, _ = render(lambda ax: cable.plot.space_time(normal, ax, colorbar=False))
-    assert not [p for p in ax.patches if p.get_hatch()]
+    assert not ax.child_axes
 
 
 def test_windows_and_colour_limits(normal):
@@ -169,7 +176,7 @@ def test_traces_at_positions(normal):
     axes = fig.subplots(2, 1, sharex=True)
     out = cable.plot.traces(normal, [0.5, 1.5], list(axes), states=["h"])
     assert out[-1].get_xlabel() == "time [ms]"
-    assert out[0].get_ylabel() == "vm [mV]"
+    assert out[0].get_ylabel() == "V [mV]"     # a stacked panel: the short name, as a paper writes it
     lines = out[0].get_lines()
     assert [ln.get_label() for ln in lines] == ["x = 0.5 cm", "x = 1.5 cm"]
     assert np.array_equal(lines[1].get_ydata(), normal["vm"].sel(x=1.5, method="nearest").values)
@@ -213,17 +220,18 @@ def test_sweep_plot_curves_and_block():
     assert len(curves) == 2
     assert np.array_equal(curves[1].get_ydata(), ds["conduction_velocity"].isel(temperature=1, beat=0).values,
                           equal_nan=True)
-    crosses = [ln for ln in ax.get_lines() if ln.get_marker() == "x"]
+    (strip,) = ax.child_axes                                          # the outcomes without a value
+    crosses = [ln for ln in strip.get_lines() if ln.get_marker() == "x"]
     assert [list(ln.get_xdata()) for ln in crosses] == [[0.2]]
     assert crosses[0].get_color() == curves[1].get_color()           # in the colour of its curve
-    circles = [ln for ln in ax.get_lines() if ln.get_marker() == "o" and ln.get_linestyle() == "None"]
+    circles = [ln for ln in strip.get_lines() if ln.get_marker() == "o"]
     assert [list(ln.get_xdata()) for ln in circles] == [[0.2]]
     assert circles[0].get_markeredgecolor() == curves[0].get_color()
     labels = [t.get_text() for t in ax.get_legend().get_texts()]
-    assert labels == ["6.3", "18.5", "conduction block", "no capture"]
-    assert ax.get_xlabel() == "g_Na"
+    assert labels == ["6.3", "18.5"]
+    assert strip.get_xlabel() == "g_Na"
     assert ax.get_ylabel().endswith("[m/s]")
-    assert ax.get_legend().get_title().get_text() == "temperature [degC]"
+    assert ax.get_legend().get_title().get_text() == "temperature [°C]"
 
 
 def test_sweep_plot_errors_name_the_fix():
@@ -258,7 +266,7 @@ def test_sweep_plot_does_not_mark_points_without_a_result():
     ds["captured"][2, 0, :] = -1
     ax = Figure().add_subplot()
     cable.plot.sweep(ds, "conduction_velocity", "g_Na", ax, hue="temperature", select={"beat": 0})
-    marked = sorted(float(v) for ln in ax.get_lines() if ln.get_linestyle() == "None" for v in ln.get_xdata())
+    marked = sorted(float(v) for ln in ax.child_axes[0].get_lines() for v in ln.get_xdata())
     assert marked == [0.2, 0.2]   # the block (18.5 degC) and the no-capture (6.3 degC) of g_Na 0.2 only
 
 
@@ -296,7 +304,7 @@ def test_traces_of_ionic_currents_follow_the_model(tmp_path):
         at = ds.sel(x=0.5)
         v, m, h = (at[k].values.astype(float) for k in ("vm", "state_m", "state_h"))
         np.testing.assert_allclose(drawn, g_na * m**3 * h * (v - e_na), rtol=1e-9, atol=1e-9)
-        assert out[2].get_ylabel().startswith("I_Na") and "uA/cm^2" in out[2].get_ylabel()
+        assert out[2].get_ylabel().startswith("I_Na") and "µA/cm²" in out[2].get_ylabel()
         assert drawn.min() < -100.0   # the upstroke's inward sodium current (HH 1952, Fig. 17; from memory)
         with pytest.raises(cable.CaseError, match="Did you mean 'I_Na'"):
             cable.plot.traces(ds, [0.5], list(axes), currents=["I_Nx"])
@@ -307,18 +315,17 @@ def test_traces_of_ionic_currents_follow_the_model(tmp_path):
         cable.plot.traces(ds, [0.5], list(axes), currents=["I_Na"])
 
 
-def test_sweep_marks_sit_below_every_value():
-    # the block / no-capture marks say "no value"; drawn among the values they would read as
-    # values (common practice), so the curves must all lie above the rows of marks
-    from cable.plot.sweeps import FOOT_GAP, FOOT_ROW
-
+def test_sweep_outcomes_without_a_value_sit_in_a_strip_below_the_axes():
+    # block and no capture are outcomes, not values (common practice): they are drawn in a strip of their
+    # own below the axes, one row per outcome, never on the value axis
     ds = sweep_dataset()
-    ax = Figure().add_subplot()
-    cable.plot.sweep(ds, "conduction_velocity", "g_Na", ax, hue="temperature", select={"beat": 0})
-    lo, hi = ax.get_ylim()
-    low = float(np.nanmin(ds["conduction_velocity"].isel(beat=0).values))
-    rows = ds.sizes["temperature"]
-    marks = [ln for ln in ax.get_lines() if ln.get_linestyle() == "None"]
-    top_mark = max(float(np.max(ln.get_ydata())) for ln in marks)      # axes fraction
-    assert (low - lo) / (hi - lo) > top_mark
-    assert (low - lo) / (hi - lo) >= FOOT_GAP + FOOT_ROW * rows - 1e-9
+    fig, ax, _, _ = render(lambda ax: cable.plot.sweep(ds, "conduction_velocity", "g_Na", ax, hue="temperature",
+                                                        select={"beat": 0}), size=(6, 4), dpi=100)
+    assert all(ln.get_linestyle() != "None" for ln in ax.get_lines())     # only the curves on the value axis
+    (strip,) = ax.child_axes
+    assert [t.get_text() for t in strip.get_yticklabels()] == ["blocked", "no capture"]
+    rows = {round(float(np.mean(ln.get_ydata()))): ln.get_xdata().tolist() for ln in strip.get_lines()}
+    assert rows == {0: [0.2], 1: [0.2]}
+    assert strip.get_xlabel() == "g_Na" and ax.get_ylabel() == "CV [m/s]"
+    assert ax.get_legend().get_title().get_text() == "temperature [°C]"
+    assert layout.problems(fig) == []

@@ -11,6 +11,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 import cable
+from cable.plot import layout
 from cable.cli import main
 from conftest import hh_axon_case
 
@@ -87,7 +88,7 @@ def changed(a, b):
 def test_strength_duration_thresholds_fits_rheobase_and_chronaxie(sd):
     ax, _ = render(lambda ax: cable.plot.strength_duration(sd, ax))
     assert ax.get_xlabel() == "stimulus duration [ms]"          # house style: quantity [unit]
-    assert ax.get_ylabel() == "threshold amplitude [uA/cm^2]"
+    assert ax.get_ylabel() == "threshold amplitude [µA/cm²]"   # units typeset
     assert ax.get_xscale() == "log" and ax.get_yscale() == "log"
     texts = legend_texts(ax)
     assert texts[0] == "computed threshold"
@@ -98,7 +99,7 @@ def test_strength_duration_thresholds_fits_rheobase_and_chronaxie(sd):
     assert np.array_equal(points.get_ydata(), sd["threshold"].values)
     for key, law in (("lapicque", "Lapicque"), ("weiss", "Weiss")):
         rh, c = float(sd[f"rheobase_{key}"]), float(sd[f"chronaxie_{key}"])
-        assert f"I_rh {rh:.3g} uA/cm^2, c {c:.3g} ms" in [t for t in texts if t.startswith(law)][0]
+        assert f"I_rh {rh:.3g} µA/cm², c {c:.3g} ms" in [t for t in texts if t.startswith(law)][0]
         (curve,) = lines_labelled(ax, f"{law} fit")
         d, i = np.asarray(curve.get_xdata()), np.asarray(curve.get_ydata())
         # the fitted law I = I_rh (1 + c/d) (Lapicque 1907, J Physiol Pathol Gen 9:620; from memory)
@@ -113,11 +114,14 @@ def test_strength_duration_thresholds_fits_rheobase_and_chronaxie(sd):
 
 
 def test_strength_duration_marks_a_duration_without_threshold(sd):
-    # a NaN threshold (no amplitude up to the search limit excited) is marked, not dropped silently
+    # a NaN threshold (no amplitude up to the search limit excited) is marked, not dropped silently,
+    # in a strip below the axes (it has no value to draw on the amplitude axis)
     ds = sd.copy(deep=True)
     ds["threshold"][0] = np.nan
     ax, _ = render(lambda ax: cable.plot.strength_duration(ds, ax))
-    (ring,) = lines_labelled(ax, "no threshold found")
+    (strip,) = ax.child_axes
+    (ring,) = lines_labelled(strip, "no threshold found")
+    assert strip.get_xlabel() == "stimulus duration [ms]"
     assert list(ring.get_xdata()) == [float(ds["duration"][0])]
     (points,) = lines_labelled(ax, "computed threshold")
     assert list(points.get_xdata()) == list(ds["duration"].values[1:])
@@ -132,7 +136,7 @@ def test_strength_duration_linear_axes_when_asked(sd):
 def test_charge_duration_is_weiss_line(sd):
     # Weiss 1901 (Arch Ital Biol 35:413; from memory): Q = I_rh (d + c), a line of slope I_rh
     ax, _ = render(lambda ax: cable.plot.charge_duration(sd, ax))
-    assert ax.get_ylabel() == "threshold charge [nC/cm^2]"
+    assert ax.get_ylabel() == "threshold charge [nC/cm²]"
     (points,) = lines_labelled(ax, "computed threshold charge")
     assert np.array_equal(points.get_ydata(), sd["charge"].values)
     rh, c = float(sd["rheobase_weiss"]), float(sd["chronaxie_weiss"])
@@ -166,7 +170,7 @@ def test_refractory_trials_by_outcome_and_the_window(erp):
     for start, value in (("ERP", e), ("local refractory period", local), ("APD90 of the last S1", apd)):
         (ln,) = lines_labelled(ax, start)
         assert np.allclose(ln.get_xdata(), value)
-        assert f"{value:.4g} ms" in ln.get_label()
+        assert f"{value:.1f} ms" in ln.get_label()      # one decimal in every label [ms]
     # the vulnerable window: local response without propagation (the definition)
     if e > local:
         (span,) = [p for p in ax.patches if p.get_hatch()]
@@ -193,13 +197,13 @@ def test_restitution_curve_and_maximal_slope(rest):
     x, y = chord.get_xdata(), chord.get_ydata()
     assert (y[1] - y[0]) / (x[1] - x[0]) == pytest.approx(s, rel=EXACT)
     assert x[0] < s_di < x[1]
-    assert chord.get_label() == f"maximal slope {s:.3g} at DI {s_di:.3g} ms"
-    # the S2 that failed is marked at the foot, at the DI it aimed at
+    assert chord.get_label() == f"maximal slope {s:.2f} at DI {s_di:.1f} ms"
+    # the S2 that failed never activated the site, so it has no DI: it is named by its coupling
+    # interval in the legend, not drawn at an invented DI
+    assert not np.isfinite(rest["diastolic_interval"].values[~ok]).any()
     (fails,) = lines_labelled(ax, "no propagation")
-    expected = rest["interval"].values[~ok] - float(rest["apd90_s1"])
-    aimed = np.where(np.isfinite(rest["diastolic_interval"].values[~ok]), rest["diastolic_interval"].values[~ok],
-                     expected)
-    assert np.allclose(fails.get_xdata(), aimed)
+    assert fails.get_label() == "no propagation at S1-S2 300.0 ms" and np.size(fails.get_xdata()) == 0
+    assert not ax.child_axes
 
 
 def test_cv_restitution(rest):
@@ -269,7 +273,7 @@ def test_convergence_apd90_and_no_propagation(conv):
     ds.attrs["numerical_block"] = 1
     ax, _ = render(lambda ax: cable.plot.convergence(ds, ax, quantity="apd90"))
     assert ax.get_ylabel() == "APD90 [ms]"
-    (fail,) = lines_labelled(ax, "no propagation (numerical block)")
+    (fail,) = lines_labelled(ax.child_axes[0], "no propagation (numerical block)")
     assert float(fail.get_xdata()[0]) == float(ds["dx"][0])
     with pytest.raises(cable.CaseError, match="Did you mean 'cv'"):
         cable.plot.convergence(conv, ax, quantity="cvv")
@@ -294,14 +298,18 @@ def test_protocol_figure_panels(sd, erp, rest, conv):
         fig = cable.plot.protocol_figure(ds, Figure(layout="constrained"))
         drawn = [ax for ax in fig.axes if ax.axison]
         panels[name] = [ax.get_ylabel() for ax in drawn]
-        assert fig.get_suptitle() == ds.attrs["title"]
-        # every panel's curves are named in its legend (beside it or in the row below)
-        assert all(ax.get_legend() is not None or any(k.get_legend() for k in fig.axes if not k.axison)
-                   for ax in drawn)
-    assert panels == {"sd": ["threshold amplitude [uA/cm^2]", "threshold charge [nC/cm^2]"],
+        assert fig.get_suptitle() == ""          # no title built from the command's tokens
+        # one legend below the panels names every entry once
+        (legend,) = fig.legends
+        names = [t.get_text() for t in legend.get_texts()]
+        assert len(names) == len(set(names)) and names
+        assert layout.problems(fig) == []
+    assert panels == {"sd": ["threshold amplitude [µA/cm²]", "threshold charge [nC/cm²]"],
                       "erp": ["S2 outcome"],
                       "rest": ["APD90 [ms]", "conduction velocity [m/s]"],
-                      "conv": ["conduction velocity [m/s]", "relative error of the CV [%]"]}
+                      "conv": ["conduction velocity [m/s]", "relative error of the CV [%]", "APD90 [ms]"]}
+    titled = cable.plot.protocol_figure(sd, Figure(layout="constrained"), title="HH membrane")
+    assert titled.get_suptitle() == "HH membrane"
 
 
 def shifted(ds, **factors):
