@@ -155,7 +155,7 @@ def regions_of(case) -> tuple[Region, ...]:
     return tuple(case.extra.get("region", ()))
 
 
-def apply_regions(p: np.ndarray, x: np.ndarray, regions, model) -> np.ndarray:
+def apply_regions(p: np.ndarray, x: np.ndarray, regions, model, given=(), scale=None) -> np.ndarray:
     """Per-node parameters with the regions applied (later regions win where they overlap).
 
     Parameters
@@ -166,6 +166,11 @@ def apply_regions(p: np.ndarray, x: np.ndarray, regions, model) -> np.ndarray:
         Node positions [cm].
     regions : sequence of Region
     model : MembraneModel
+    given : collection of str
+        Parameters ``[membrane]`` sets explicitly; the others whose default depends on a
+        label (:attr:`cable.membrane.base.Parameter.by_label`) follow a region's label.
+    scale : dict, optional
+        ``[membrane.scale]``, applied to those label-dependent defaults.
 
     Returns
     -------
@@ -174,12 +179,27 @@ def apply_regions(p: np.ndarray, x: np.ndarray, regions, model) -> np.ndarray:
     out = np.array(p, dtype=np.float64, copy=True)
     base = np.array(p, dtype=np.float64)
     names = model.parameter_names
+    scale = scale or {}
     for region in regions:
         w = region.weight(x)
         touched = set(region.parameters) | set(region.scale)
+        typed = {}  # label-dependent defaults for the region's own label (G_to of an endo zone)
+        if any(model.parameter(n).choices is not None for n in region.parameters):
+            row = base[:1].copy()
+            for name, value in region.parameters.items():
+                row[0, names.index(name)] = value
+            model.fill_labelled_defaults(row, given=set(given) | set(region.parameters))
+            typed = {par.name: row[0, j] * scale.get(par.name, 1.0) for j, par in enumerate(model.parameters)
+                     if par.by_label is not None and par.name not in given and par.name not in region.parameters}
+            touched |= set(typed)
         for name in touched:
             j = names.index(name)
-            target = np.full(x.size, region.parameters[name]) if name in region.parameters else base[:, j].copy()
+            if name in region.parameters:
+                target = np.full(x.size, region.parameters[name])
+            elif name in typed:
+                target = np.full(x.size, typed[name])
+            else:
+                target = base[:, j].copy()
             target = target * region.scale.get(name, 1.0)
             if model.parameter(name).choices is not None:
                 out[:, j] = np.where(w >= 0.5, target, out[:, j])
@@ -220,7 +240,8 @@ def node_fields(case, model, x: np.ndarray, p: np.ndarray) -> tuple[np.ndarray, 
     regions = regions_of(case)
     if not regions:
         return p, None
-    return apply_regions(p, x, regions, model), coupling_factors(x, regions)
+    return (apply_regions(p, x, regions, model, given=case.membrane.parameters, scale=case.membrane.scale),
+            coupling_factors(x, regions))
 
 
 register_section("region", is_list=True, validate=validate)

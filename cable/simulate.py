@@ -123,6 +123,7 @@ def node_parameters(case: Case, model: MembraneModel, n: int) -> np.ndarray:
     row = model.default_parameters()
     for name, value in case.membrane.parameters.items():
         row[model.parameter_names.index(name)] = model.parameter(name).encode(value)
+    model.fill_labelled_defaults(row, given=case.membrane.parameters)
     for name, factor in case.membrane.scale.items():
         row[model.parameter_names.index(name)] *= factor
     from cable.drugs import drug_factors

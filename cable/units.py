@@ -85,7 +85,17 @@ def to_canonical(value, quantity: str) -> float:
     float
         The value in the canonical unit.
     """
-    unit = CANONICAL[quantity]
+    return to_unit(value, CANONICAL[quantity], quantity)
+
+
+def to_unit(value, unit: str, quantity: str | None = None) -> float:
+    """Convert a case-file value to ``unit`` (a pint unit expression such as "pA/pF").
+
+    A bare number is taken to be in ``unit`` already; ``quantity`` only names the kind
+    in messages. Model parameters use this with their own declared unit, so that every
+    parameter accepts the unit it is listed in (and any unit of the same dimension).
+    """
+    quantity = quantity or unit
     if isinstance(value, bool):
         raise UnitError(f"expected a number, got the boolean {value!r}")
     if isinstance(value, (int, float)):

@@ -8,6 +8,18 @@ import pytest
 os.environ.setdefault("MPLBACKEND", "Agg")
 
 
+@pytest.fixture(autouse=True)
+def _floating_point_faults_fail():
+    """Every floating-point fault in numpy (overflow, invalid operation, division by zero) raises.
+
+    Underflow is the one exception: a result below the smallest normal number rounds to a
+    subnormal or zero, which is the correctly rounded answer (IEEE 754), and scipy's own
+    solve_ivp underflows at t = 0 (``np.nextafter(0, inf)``) in every BDF run.
+    """
+    with np.errstate(all="raise", under="ignore"):
+        yield
+
+
 @pytest.fixture
 def rng():
     return np.random.default_rng(20261201)

@@ -429,6 +429,12 @@ def from_dict(raw: dict) -> Case:
     if mem["temperature"] is not None:
         if model.temperature_parameter is None:
             raise CaseError(f"membrane.temperature: model '{model.name}' has no temperature dependence; remove the key.")
+        if model.temperature_parameter in (mem["parameters"] or {}):
+            # one quantity, two keys: refuse rather than let one of them win silently
+            given = raw["membrane"]["parameters"][model.temperature_parameter]
+            raise CaseError(f"membrane.temperature = {raw['membrane']['temperature']!r} and "
+                            f"membrane.parameters.{model.temperature_parameter} = {given!r} both set the "
+                            f"temperature; give it once (either key).")
         params[model.temperature_parameter] = _param_value("membrane.temperature", raw["membrane"]["temperature"],
                                                            model.parameter(model.temperature_parameter))
         t_c = params[model.temperature_parameter]
@@ -437,6 +443,8 @@ def from_dict(raw: dict) -> Case:
                          f"{PHYSIOLOGICAL_TEMPERATURE[0]:g}-{PHYSIOLOGICAL_TEMPERATURE[1]:g} degC; the model's "
                          f"temperature scaling was not validated there.")
     prepace = _read_prepace(mem["prepace"]) if mem["prepace"] is not None else None
+    if prepace is not None and prepace["beats"] == 0:
+        prepace = None  # beats = 0 switches pre-pacing off (the nodes start as without [membrane.prepace])
     membrane = Membrane(model.name, mem["temperature"], scale, params, prepace, mem["capacitance"])
 
     fiber = None
@@ -540,7 +548,19 @@ def _param_value(where, value, par):
             raise CaseError(f"{where} = {_fmt(value)}: allowed values are "
                             f"{', '.join(repr(c) for c in par.choices)}.{_nearest(value, par.choices)}")
         return value
-    out = convert(where, value, Key("quantity", par.quantity, minimum=par.minimum, maximum=par.maximum))
+    # converted to the parameter's own declared unit (the model's internal one), so that a
+    # value written in the unit `cable models` lists is accepted whatever its quantity kind
+    unit = par.units if par.units not in ("", "1") else "1"
+    try:
+        out = units.to_unit(value, unit, par.quantity)
+    except units.UnitError as exc:
+        raise CaseError(f"{where} = {_fmt(value)}: {exc}. Give a number in {unit} or a string with a unit.") from None
+    if not math.isfinite(out):
+        raise CaseError(f"{where} = {_fmt(value)}: must be a finite number.")
+    if par.minimum is not None and not out >= par.minimum:
+        raise CaseError(f"{where} = {_fmt(value)}: must be at least {par.minimum:g} {unit}.")
+    if par.maximum is not None and not out <= par.maximum:
+        raise CaseError(f"{where} = {_fmt(value)}: must be at most {par.maximum:g} {unit}.")
     return out
 
 
@@ -584,7 +604,7 @@ def _read_parameters(table: dict, model) -> dict:
 
 
 PREPACE_KEYS = {
-    "beats": Key("int", default=10, minimum=1, maximum=100000, meaning="number of paced beats"),
+    "beats": Key("int", default=10, minimum=0, maximum=100000, meaning="number of paced beats (0: no pre-pacing)"),
     "cycle_length": Key("quantity", "time", default=1000.0, minimum=0.0, exclusive_minimum=True, meaning="pacing interval [ms]"),
     "amplitude": Key("quantity", "current_density", minimum=0.0, exclusive_minimum=True,
                      meaning="stimulus per area [uA/cm^2]; default: the first [[stimulus]]'s"),
@@ -619,8 +639,10 @@ def _read_fiber(f: dict, notes: list) -> Fiber:
         raise CaseError(f"fiber.length / fiber.dx = {n:.3g} nodes; more than 5 million nodes is refused. Increase dx.")
     if abs(n - round(n)) > 1e-6 * n:
         new_dx = f["length"] / round(n)
-        notes.append(f"fiber.length = {f['length']:g} cm is not a multiple of dx = {f['dx']:g} cm; "
-                     f"using dx = {new_dx:.6g} cm.")
+        pairs = _grid_pairs(f["length"], f["dx"])
+        notes.append(f"note: fiber.length = {f['length']:g} cm is not a multiple of fiber.dx = {f['dx']:g} cm; "
+                     f"the spacing was changed to dx = {new_dx:.6g} cm ({int(round(n))} intervals). Valid pairs "
+                     f"near the request: {pairs}.")
         f = dict(f, dx=new_dx)
     if (f["cell_length"] is None) != (f["gap_junction_conductance"] is None):
         raise CaseError("[fiber] cell_length and gap_junction_conductance go together (discrete cell coupling).")
@@ -634,6 +656,14 @@ def _read_fiber(f: dict, notes: list) -> Fiber:
     elif f["initial"] != "rest":
         raise CaseError(f"fiber.initial = {f['initial']!r} needs fiber.closed = true (it starts a wave round a ring).")
     return Fiber(**f)
+
+
+def _grid_pairs(length: float, dx: float) -> str:
+    """Nearest (length, dx) pairs with a whole number of intervals, for the grid note."""
+    lo, hi = math.floor(length / dx), math.ceil(length / dx)
+    out = [f"length {length:g} cm with dx {length / k:.6g} cm" for k in sorted({max(lo, 1), hi})]
+    out += [f"length {k * dx:g} cm with dx {dx:g} cm" for k in sorted({max(lo, 1), hi})]
+    return "; ".join(out)
 
 
 def _read_stimulus(k: int, table, fiber: Fiber | None) -> Stimulus:

@@ -83,10 +83,17 @@ def plan(model, p: np.ndarray, dt: float, gating: int, rates: str = "tabulated")
         What ``numerics.rates`` asks for.
     """
     fast = model.fast
-    if rates == "reference" or fast is None:
+    if rates == "reference":
         return Plan("reference", no_table())
-    if rates == "exact" or fast.build_table is None:
+    if fast is None:
+        # said once per run, so that a speed or accuracy comparison knows what ran
+        return Plan("reference", no_table(), note=f"note: numerics.rates = \"{rates}\": {model.name} has no "
+                                                  f"fast path; its plain kernel (as rates = \"reference\") is used.")
+    if rates == "exact":
         return Plan("exact", no_table())
+    if fast.build_table is None:
+        return Plan("exact", no_table(), note=f"note: numerics.rates = \"tabulated\": {model.name} has no rate "
+                                              f"table; its rates are evaluated exactly.")
     columns = [model.parameter_names.index(name) for name in fast.table_parameters]
     if not uniform_columns(p, columns):
         names = ", ".join(fast.table_parameters)

@@ -71,6 +71,10 @@ class Parameter:
     choices: tuple[str, ...] | None = None  # for labelled parameters (cell type)
     minimum: float | None = None
     maximum: float | None = None
+    #: (name of a labelled parameter, {label: default}): the default depends on that label
+    #: (a conductance that differs between cell types); a value given in a case is the value
+    #: for the chosen label, used as it is
+    by_label: tuple[str, dict] | None = None
 
     def encode(self, value) -> float:
         """The float stored in the parameter array for ``value``."""
@@ -213,6 +217,23 @@ class MembraneModel:
             if p.name == name:
                 return p
         raise KeyError(name)
+
+    def fill_labelled_defaults(self, p: np.ndarray, given=()) -> np.ndarray:
+        """Set, in place, the defaults that depend on a label (:attr:`Parameter.by_label`).
+
+        ``p`` has shape (n, nparam) (or (nparam,)); parameters named in ``given`` keep
+        their value. Returns ``p``.
+        """
+        rows = p.reshape(-1, len(self.parameters))
+        names = self.parameter_names
+        for j, par in enumerate(self.parameters):
+            if par.by_label is None or par.name in given:
+                continue
+            label, values = par.by_label
+            choices = self.parameter(label).choices
+            table = np.array([values[c] for c in choices], dtype=np.float64)
+            rows[:, j] = table[rows[:, names.index(label)].astype(np.int64)]
+        return p
 
     def initial_states(self) -> np.ndarray:
         """Initial state vector, shape (nstate,)."""

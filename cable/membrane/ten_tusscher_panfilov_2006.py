@@ -22,14 +22,14 @@ Conventions and choices of this implementation
   F 96485.3415. These are module constants, not parameters (no temperature parameter:
   the model has no Q10 factors, and T enters only through RT/F).
 * Cell type (``cell_type`` = "epi", "endo" or "mid", stored as its index 0, 1, 2): the
-  parameters ``G_to`` and ``G_Ks`` hold the *epicardial* values (0.294 and 0.392 nS/pF);
-  the kernel multiplies them by the published cell-type ratio relative to epi, so
-  endo uses G_to x 0.073/0.294 and mid uses G_Ks x 0.098/0.392. A ``[membrane.scale]``
-  factor on G_to or G_Ks therefore scales the cell's own value. Endocardial cells also
+  parameters ``G_to`` and ``G_Ks`` mean the paper's symbols for the chosen cell type; their
+  defaults follow it (G_to 0.294 epi and mid, 0.073 endo; G_Ks 0.392 epi and endo, 0.098
+  mid; ``Parameter.by_label``), and a value given in a case is used as it is. A
+  ``[membrane.scale]`` factor on G_to or G_Ks scales the cell's own value. Endocardial cells also
   use the slower s-gate of I_to (s_inf and tau_s); r is the same in all three types.
 * The stimulus (``i_stim`` [mV/ms], positive depolarises, i.e. minus the paper's I_stim
-  in pA/pF) changes V only; it is not carried by K_i. Over many beats the cell then loses
-  about C_m/(V_c F) x (stimulus charge) of cations per beat (6e-3 mM for 52 mV/ms x 1 ms).
+  in pA/pF) is carried by K+, as in the paper's K_i balance, so that long pacing conserves
+  charge (without it K_i drifts by about -6e-3 mM per beat at 52 mV/ms x 1 ms).
 * Gates (m, h, j, Xr1, Xr2, Xs, r, s, d, f, f2, fCass and R-bar, which is linear in
   itself for fixed Ca_ss and Ca_SR) use Rush-Larsen (``gating = 0``) or forward Euler
   (``gating = 1``); Na_i, K_i and the total calcium concentrations use forward Euler with
@@ -42,9 +42,7 @@ Conventions and choices of this implementation
 * Initial state: computed, not copied: the end-diastolic state (just before the next
   stimulus) of an epicardial cell paced with this kernel at 1 Hz (52 mV/ms for 1 ms,
   Rush-Larsen, dt 0.02 ms) for 1000 beats, starting near the paper's initial values.
-  During that pacing only, the stimulus charge was added to K_i (as in the paper), so
-  that a true 1 Hz limit cycle exists; with the kernel's convention K_i then drifts by
-  about -6e-3 mM per beat, negligible over tens of beats.
+  During that pacing the stimulus charge was added to K_i (as in the paper and the kernel).
 """
 
 import math
@@ -69,8 +67,9 @@ CA_SS_FLUX = C_M / (2.0 * V_SS * FARADAY)
 
 CELL_TYPES = ("epi", "endo", "mid")
 EPI, ENDO, MID = range(3)
-ENDO_G_TO_RATIO = 0.073 / 0.294  # endo G_to relative to epi
-MID_G_KS_RATIO = 0.098 / 0.392  # mid G_Ks relative to epi
+# G_to and G_Ks per cell type [nS/pF] (ten Tusscher & Panfilov 2006, Table 1 and text)
+G_TO_BY_TYPE = {"epi": 0.294, "endo": 0.073, "mid": 0.294}
+G_KS_BY_TYPE = {"epi": 0.392, "endo": 0.392, "mid": 0.098}
 
 # state indices (order of STATES); the first N_GATES are Hodgkin-Huxley gates
 (M, H, J, XR1, XR2, XS, R, S, D, F, F2, FCASS, R_PRIME,
@@ -91,11 +90,11 @@ def _par(name, default, units, meaning, quantity="dimensionless", **kw):
 
 PARAMETERS = (
     _par("G_Na", 14.838, "nS/pF", "fast sodium conductance", "rate"),
-    _par("G_to", 0.294, "nS/pF", "transient outward conductance, epi value (endo x 0.073/0.294)",
-         "rate"),
+    _par("G_to", 0.294, "nS/pF", "transient outward conductance of the chosen cell type "
+         "(default: epi and mid 0.294, endo 0.073)", "rate", by_label=("cell_type", G_TO_BY_TYPE)),
     _par("G_Kr", 0.153, "nS/pF", "rapid delayed rectifier conductance (at K_o 5.4 mM)", "rate"),
-    _par("G_Ks", 0.392, "nS/pF", "slow delayed rectifier conductance, epi value (mid x 0.098/0.392)",
-         "rate"),
+    _par("G_Ks", 0.392, "nS/pF", "slow delayed rectifier conductance of the chosen cell type "
+         "(default: epi and endo 0.392, mid 0.098)", "rate", by_label=("cell_type", G_KS_BY_TYPE)),
     _par("p_KNa", 0.03, "1", "Na/K permeability ratio of I_Ks"),
     _par("G_K1", 5.405, "nS/pF", "inward rectifier conductance (at K_o 5.4 mM)", "rate"),
     _par("G_CaL", 3.98e-5, "cm/(ms*uF)", "L-type calcium permeability"),
@@ -208,9 +207,8 @@ def _membrane_currents(V, s, p, i):
     E_Na = RTF * math.log(Na_o / Na_i)
     E_Ca = 0.5 * RTF * math.log(Ca_o / Ca_i)
     E_Ks = RTF * math.log((K_o + p[i, P_KNA] * Na_o) / (K_i + p[i, P_KNA] * Na_i))
-    cell = int(p[i, CELL_TYPE])
-    g_to = p[i, G_TO] * (ENDO_G_TO_RATIO if cell == ENDO else 1.0)
-    g_ks = p[i, G_KS] * (MID_G_KS_RATIO if cell == MID else 1.0)
+    g_to = p[i, G_TO]
+    g_ks = p[i, G_KS]
     root_ko = math.sqrt(K_o / 5.4)
     m = s[i, M]
     I_Na = p[i, G_NA] * m * m * m * s[i, H] * s[i, J] * (V - E_Na)
@@ -296,7 +294,8 @@ def reaction(v, s, p, i_stim, dt, ion_scale, gating):
         s[i, CA_SR] = _buffered(Ca_SR, dt * d_ca_sr, p[i, BUF_SR], p[i, K_BUFSR])
         s[i, CA_SS] = _buffered(Ca_ss, dt * d_ca_ss, p[i, BUF_SS], p[i, K_BUFSS])
         s[i, NA_I] -= dt * (I_Na + I_bNa + 3.0 * I_NaK + 3.0 * I_NaCa) * NA_FLUX
-        s[i, K_I] -= dt * (I_K1 + I_to + I_Kr + I_Ks - 2.0 * I_NaK + I_pK) * NA_FLUX
+        # the stimulus is carried by K+ (ten Tusscher & Panfilov 2006; i_stim = -I_stim)
+        s[i, K_I] -= dt * (I_K1 + I_to + I_Kr + I_Ks - 2.0 * I_NaK + I_pK - i_stim[i]) * NA_FLUX
         v[i] = V + dt * (i_stim[i] - ion_scale * ion)
 
 
@@ -320,7 +319,7 @@ def reference(v, s, p):
      Ca_i, Ca_SR, Ca_ss, Na_i, K_i) = (s[:, k] for k in range(18))
     P = {name: p[:, k] for k, name in enumerate(p_.name for p_ in PARAMETERS)}
     cell = P["cell_type"].astype(int)
-    endo, mid = cell == ENDO, cell == MID
+    endo = cell == ENDO
     # gates
     lo = V < -40.0
     Vl = np.minimum(V, -40.0)  # keeps the unused branch finite
@@ -381,9 +380,9 @@ def reference(v, s, p):
     ghk = np.where(small, 1.0 - 0.5 * x, xs_ / np.expm1(xs_))
     I = dict(
         I_Na=P["G_Na"] * m ** 3 * h * j * (V - E_Na),
-        I_to=P["G_to"] * np.where(endo, ENDO_G_TO_RATIO, 1.0) * r * s_ * (V - E_K),
+        I_to=P["G_to"] * r * s_ * (V - E_K),
         I_Kr=P["G_Kr"] * root_ko * xr1 * xr2 * (V - E_K),
-        I_Ks=P["G_Ks"] * np.where(mid, MID_G_KS_RATIO, 1.0) * xs ** 2 * (V - E_Ks),
+        I_Ks=P["G_Ks"] * xs ** 2 * (V - E_Ks),
         I_K1=P["G_K1"] * root_ko * a_k1 / (a_k1 + b_k1) * (V - E_K),
         I_NaCa=P["k_NaCa"] * (e(g * u) * Na_i ** 3 * Ca_o - e((g - 1.0) * u) * Na_o ** 3 * Ca_i * P["alpha"])
         / ((P["K_mNai"] ** 3 + Na_o ** 3) * (P["K_mCa"] + Ca_o) * (1.0 + P["k_sat"] * e((g - 1.0) * u))),
@@ -488,9 +487,8 @@ def _tabulated_currents(V, s, p, i, table, j, f):
     E_Na = RTF * math.log(Na_o / Na_i)
     E_Ca = 0.5 * RTF * math.log(Ca_o / Ca_i)
     E_Ks = RTF * math.log((K_o + p[i, P_KNA] * Na_o) / (K_i + p[i, P_KNA] * Na_i))
-    cell = int(p[i, CELL_TYPE])
-    g_to = p[i, G_TO] * (ENDO_G_TO_RATIO if cell == ENDO else 1.0)
-    g_ks = p[i, G_KS] * (MID_G_KS_RATIO if cell == MID else 1.0)
+    g_to = p[i, G_TO]
+    g_ks = p[i, G_KS]
     root_ko = math.sqrt(K_o / 5.4)
     m = s[i, M]
     I_Na = p[i, G_NA] * m * m * m * s[i, H] * s[i, J] * (V - E_Na)
@@ -572,7 +570,8 @@ def reaction_fast(v, s, p, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):
         s[i, CA_SR] = _buffered(Ca_SR, dt * d_ca_sr, p[i, BUF_SR], p[i, K_BUFSR])
         s[i, CA_SS] = _buffered(Ca_ss, dt * d_ca_ss, p[i, BUF_SS], p[i, K_BUFSS])
         s[i, NA_I] -= dt * (I_Na + I_bNa + 3.0 * I_NaK + 3.0 * I_NaCa) * NA_FLUX
-        s[i, K_I] -= dt * (I_K1 + I_to + I_Kr + I_Ks - 2.0 * I_NaK + I_pK) * NA_FLUX
+        # the stimulus is carried by K+ (ten Tusscher & Panfilov 2006; i_stim = -I_stim)
+        s[i, K_I] -= dt * (I_K1 + I_to + I_Kr + I_Ks - 2.0 * I_NaK + I_pK - i_stim[i]) * NA_FLUX
         v[i] = V + dt * (i_stim[i] - ion_scale * ion)
 
 

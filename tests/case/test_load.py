@@ -127,3 +127,32 @@ def test_temperature_outside_physiological_range_warns():
     assert any("outside the physiological range" in n for n in case.notes)
     with pytest.raises(CaseError, match="membrane.temperature"):
         load_case(BASE, ["membrane.temperature=80"])   # beyond the model's declared maximum
+
+
+def test_temperature_in_two_keys_is_refused():
+    # issue 13 item 10: one quantity, two keys; neither may win silently
+    with pytest.raises(CaseError, match=r"membrane.temperature = .* and membrane.parameters.temperature = 6.3"):
+        load_case(BASE, ["membrane.parameters.temperature=6.3"])
+    case = load_case(BASE, ["membrane.temperature=6.3"])
+    assert case.membrane.parameters["temperature"] == pytest.approx(6.3)
+
+
+def test_grid_change_is_announced_with_valid_pairs():
+    # issue 13 item 23: 3 cm at dx 0.08 cm is 37.5 intervals; the spacing becomes 3/38 cm
+    case = load_case(BASE, ["fiber.length=3", "fiber.dx=0.08"])
+    assert case.fiber.dx == pytest.approx(3.0 / 38)
+    (note,) = [n for n in case.notes if "fiber.dx" in n]
+    assert "changed to dx = 0.0789474 cm" in note
+    for pair in ("length 3 cm with dx 0.0810811 cm", "length 2.96 cm with dx 0.08 cm",
+                 "length 3.04 cm with dx 0.08 cm"):
+        assert pair in note
+    assert not [n for n in load_case(BASE).notes if "fiber.dx" in n]
+
+
+def test_prepace_beats_zero_switches_pre_pacing_off():
+    # issue 13 item 24
+    case = load_case(BASE, ["membrane.prepace.beats=0"])
+    assert case.membrane.prepace is None
+    assert load_case(BASE, ["membrane.prepace.beats=2"]).membrane.prepace["beats"] == 2
+    with pytest.raises(CaseError, match="beats"):
+        load_case(BASE, ["membrane.prepace.beats=-1"])

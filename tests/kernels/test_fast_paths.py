@@ -311,3 +311,16 @@ def test_rates_key_is_validated_and_recorded():
     passive = {"membrane": {"model": "passive"}, "stimulus": [{"amplitude": 1.0, "duration": 1.0}],
                "numerics": {"dt": 0.01, "rates": "tabulated"}, "run": {"duration": 2.0}}
     assert cable.simulate(passive).attrs["rates"] == "reference"
+
+
+def test_tabulated_fallback_is_said_once():
+    # issue 13 item 13: a model without a fast path runs its plain kernel under the default
+    # rates = "tabulated"; the run says so, once
+    case = {"membrane": {"model": "passive"}, "run": {"duration": 2.0},
+            "numerics": {"dt": 0.01}, "output": {"every": 0.5}}
+    said = []
+    cable.simulate(case, info=said.append)
+    assert sum("has no fast path" in line for line in said) == 1
+    said.clear()
+    cable.simulate(dict(case, numerics={"dt": 0.01, "rates": "reference"}), info=said.append)
+    assert not any("fast path" in line for line in said)

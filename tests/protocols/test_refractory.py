@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 import xarray as xr
-from protocol_cases import cable_cli, cardiac_strand, write_case
+from protocol_cases import cable_cli, cardiac_strand, hh_axon, write_case
 
 import cable
 
@@ -79,6 +79,33 @@ def test_luo_rudy_erp_near_apd90_and_rises_with_reduced_sodium():
     assert abs(erp - apd) < HEALTHY_FRACTION * apd, (erp, apd)
     grow = float(reduced["erp_minus_apd90"]) - float(healthy["erp_minus_apd90"])
     assert grow > 2 * tol + 1.0, grow
+    for ds in (healthy, reduced):
+        _assert_capture_is_monotone(ds)
+
+
+def _assert_capture_is_monotone(ds):
+    # Definition (issue 13 item 7): refractoriness ends once; every trial shorter than the local
+    # refractory period failed to capture and every longer one captured, and the search began
+    # after the S1 upstroke (an S2 inside it would be read as part of the S1 beat)
+    ci = ds["coupling_interval"].values
+    cap = ds["s2_captured"].values.astype(bool)
+    local = float(ds["local_refractory_period"])
+    assert np.all(cap[ci >= local]) and not np.any(cap[ci < local]), list(zip(ci, cap))
+    assert ci.min() >= ds.attrs["search_start_ms"] > 0.0
+
+
+def test_hh_local_refractory_period_is_a_response_not_the_s1_tail():
+    # Hodgkin & Huxley (1952) axon paced twice at 15 ms: an S2 0.67 ms after the last S1 falls on
+    # the S1's own repolarisation (the site is still above -30 mV; its ionic drive is two orders
+    # below an upstroke's) and must not count as a local response; the local refractory period
+    # follows the S1 action potential (APD90 at the site), and capture is monotone in the interval.
+    case = hh_axon(length=1.0, duration=10.0)
+    case["stimulus"][0].update(count=2, cycle_length=15.0)
+    case["output"]["every"] = 0.05
+    ds = cable.refractory_period(case, tolerance=0.1)
+    _assert_capture_is_monotone(ds)
+    assert float(ds["local_refractory_period"]) > float(ds["apd90_s1"])
+    assert 0.0 <= float(ds["vulnerable_window"]) < float(ds["erp"])
 
 
 def test_result_writes_to_netcdf(ms_healthy, tmp_path):
