@@ -22,7 +22,7 @@ from cable import __version__
 from cable.case import Case, CaseError, load_case
 from cable.fiber import Grid, build_grid, node_positions
 from cable.io import schema
-from cable.kernels import diffusion, fused, integrate, tables
+from cable.kernels import diffusion, fused, integrate, schemes, tables
 from cable.kernels.jit import specialise
 from cable.kernels.state import CHECK_EVERY, MAX_CROSSINGS, crossing_cap, loop_arrays, scheme_codes  # noqa: F401
 from cable.measure.activation import assign_beats, per_beat
@@ -49,9 +49,13 @@ class SimulationError(RuntimeError):
 
 
 @functools.lru_cache(maxsize=None)
-def _integrator(model_name: str):
+def _integrator(model_name: str, reaction: str = "rush-larsen"):
     model = get_model(model_name)
-    return specialise(integrate.advance, model.name, reaction=model.reaction)
+    if reaction == schemes.DEFAULT:
+        return specialise(integrate.advance, model.name, reaction=model.reaction)
+    # the reaction scheme applied to the model's kinetics (cable/kernels/schemes.py)
+    return specialise(integrate.advance, f"{model.name}_{reaction}", reaction=schemes.kernel(model_name, reaction),
+                      depends=(model.kinetics,))
 
 
 @functools.lru_cache(maxsize=None)
@@ -60,23 +64,24 @@ def _fast_integrator(model_name: str):
     return specialise(fused.advance_fast, model.name, vector=True, fast_reaction=model.fast.kernel)
 
 
-def time_loop(model_name: str, rates: str = "tabulated"):
+def time_loop(model_name: str, rates: str = "tabulated", reaction: str = "rush-larsen"):
     """The compiled time loop (numba dispatcher) that a run of ``model_name`` uses.
 
     ``rates`` is ``numerics.rates``: models with a fast path
     (:class:`cable.membrane.base.FastPath`) use ``cable.kernels.fused.advance_fast``
-    unless it is ``"reference"``; the others use ``cable.kernels.integrate.advance``.
+    unless it is ``"reference"`` or ``reaction`` (``numerics.reaction``) is not
+    ``"rush-larsen"``; the others use ``cable.kernels.integrate.advance``.
     Its ``signatures`` are non-empty once it is loaded in this process.
     """
     model = get_model(model_name)
-    if rates == "reference" or model.fast is None:
-        return _integrator(model_name)
+    if rates == "reference" or model.fast is None or reaction != schemes.DEFAULT:
+        return _integrator(model_name, reaction)
     return _fast_integrator(model_name)
 
 
-def is_compiled(model_name: str, rates: str = "tabulated") -> bool:
+def is_compiled(model_name: str, rates: str = "tabulated", reaction: str = "rush-larsen") -> bool:
     """Whether the time loop a run of ``model_name`` uses is in numba's on-disk cache already."""
-    return _in_cache(time_loop(model_name, rates))
+    return _in_cache(time_loop(model_name, rates, reaction))
 
 
 def _in_cache(fn) -> bool:
@@ -355,7 +360,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     mem = case.membrane
     settles = mem.prepace is not None or bool(mem.parameters or mem.scale or case.raw.get("region") or case.raw.get("drug")) \
         or mem.temperature is not None
-    if not is_compiled(name, case.numerics.rates) or (settles and not _in_cache(_integrator(name))):
+    if not is_compiled(name, case.numerics.rates, case.numerics.reaction) or (settles and not _in_cache(_integrator(name))):
         say(f"compiling the '{name}' kernels (first run only; later runs use the cache)...")
     setup = prepare(case)
     check_size(setup, output)
@@ -367,11 +372,11 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     num = case.numerics
     dt = num.dt
     gating, theta, splitting = scheme_codes(num)
-    rates = tables.plan(model, setup.p, dt, gating, num.rates)
+    rates = tables.plan(model, setup.p, dt, gating, num.rates, reaction=num.reaction)
     if rates.note:
         say(rates.note)
     fast = rates.mode != "reference"
-    advance = _fast_integrator(model.name) if fast else _integrator(model.name)
+    advance = _fast_integrator(model.name) if fast else _integrator(model.name, num.reaction)
 
     state_names = list(case.output_states)
     state_idx = [model.state_names.index(s) for s in state_names]
@@ -578,6 +583,7 @@ def provenance(setup: Setup, command: str | None) -> dict:
         "splitting": num.splitting,
         "diffusion": num.diffusion,
         "gating": num.gating,
+        "reaction": num.reaction,
         "merge_half_steps": int(num.merge_half_steps),
         "threshold_mV": setup.threshold,
         "notes": "\n".join(setup.notes),

@@ -95,6 +95,7 @@ class Numerics:
     diffusion: str = "crank-nicolson"
     gating: str = "rush-larsen"
     merge_half_steps: bool = True
+    reaction: str = "rush-larsen"
     rates: str = "tabulated"
 
 
@@ -246,6 +247,22 @@ def _read_section(name: str, table, specs: dict[str, Key]) -> dict:
         else:
             out[key] = spec.default
     return out
+
+
+def _reaction_notes(num, model, given: dict) -> list[str]:
+    """Check ``numerics.reaction`` against the model and ``numerics.gating``; the stability warning."""
+    from cable.kernels import schemes
+
+    if num.reaction == schemes.DEFAULT:
+        return []
+    if model.kinetics is None:
+        raise CaseError(f"numerics.reaction = \"{num.reaction}\": model '{model.name}' supplies no kinetics "
+                        f"kernel, so only \"rush-larsen\" applies to it.")
+    if "gating" in given and num.gating != "rush-larsen":
+        raise CaseError(f"numerics.gating = \"{num.gating}\" selects the gate update of numerics.reaction = "
+                        f"\"rush-larsen\" only; with reaction = \"{num.reaction}\" leave gating out.")
+    note = schemes.stability_note(model.name, num.reaction, num.dt)
+    return [note] if note else []
 
 
 # ----------------------------------------------------------------------------- --set
@@ -468,6 +485,7 @@ def from_dict(raw: dict) -> Case:
                         "strand whose state begins the ring.")
 
     num = Numerics(**_read_section("numerics", raw.get("numerics", {}), SECTIONS["numerics"]))
+    notes.extend(_reaction_notes(num, model, raw.get("numerics", {})))
     run = _read_section("run", raw["run"], SECTIONS["run"])
     out = _read_section("output", raw.get("output", {}), SECTIONS["output"])
     meas = _read_section("measure", raw.get("measure", {}), SECTIONS["measure"])

@@ -22,8 +22,8 @@ interval, instead of one each per strand. How:
   ``cable.simulate.prepare``, as alone.
 
 Cases are batched together when everything their time loop depends on is the same
-(:func:`group_key`): model, ``numerics`` (dt, splitting, diffusion, gating, merged
-half steps, rates), output interval and count, activation threshold, APD levels,
+(:func:`group_key`): model, ``numerics`` (dt, splitting, diffusion, gating, reaction,
+merged half steps, rates), output interval and count, activation threshold, APD levels,
 stored states, ion scale (capacitance), crossings stored per node, and the rate table
 (tabulated rates: the values of the table's parameters, ``FastPath.table_parameters``,
 so that the batch's one table is the table each case builds alone). Grids,
@@ -53,7 +53,7 @@ def _rates_key(setup) -> tuple:
     model = setup.model
     fast = model.fast
     rates = setup.case.numerics.rates
-    if rates == "reference" or fast is None:
+    if rates == "reference" or fast is None or setup.case.numerics.reaction != "rush-larsen":
         return ("reference",)
     if rates == "exact" or fast.build_table is None:
         return ("exact",)
@@ -76,7 +76,7 @@ def group_key(setup) -> tuple | None:
         return None  # (a ring's cyclic solve and measurements are cable.simulate's alone)
     case = setup.case
     num = case.numerics
-    return (setup.model.name, num.dt, num.splitting, num.diffusion, num.gating, num.merge_half_steps,
+    return (setup.model.name, num.dt, num.splitting, num.diffusion, num.gating, num.reaction, num.merge_half_steps,
             num.rates, setup.steps_per_sample, setup.n_samples, setup.threshold, tuple(case.apd_levels),
             setup.ion_scale, tuple(case.output_states), crossing_cap(setup.pulses.shape[0]), _rates_key(setup))
 
@@ -97,7 +97,7 @@ def loop_key(case) -> tuple:
     num = case.numerics
     cm = case.fiber.capacitance if case.fiber is not None else 1.0
     alone = bool(case.raw.get("measure", {}).get("safety_factor", False)) and case.fiber is not None
-    return (case.membrane.model, num.dt, num.splitting, num.diffusion, num.gating, num.merge_half_steps,
+    return (case.membrane.model, num.dt, num.splitting, num.diffusion, num.gating, num.reaction, num.merge_half_steps,
             num.rates, case.output_every, case.duration, case.threshold, tuple(case.apd_levels),
             tuple(case.output_states), cm, alone)
 
@@ -213,16 +213,20 @@ def _pulses(setups, slices, n):
 
 
 @functools.lru_cache(maxsize=None)
-def _segments_integrator(model_name: str, fast: bool):
-    """The time loop of strands laid end to end (fast or reference path), per model."""
-    from cable.kernels import fused
+def _segments_integrator(model_name: str, fast: bool, reaction: str = "rush-larsen"):
+    """The time loop of strands laid end to end (fast or reference path), per model and
+    reaction scheme (``numerics.reaction``; the fast path is "rush-larsen" only)."""
+    from cable.kernels import fused, schemes
     from cable.kernels.jit import specialise
     from cable.membrane import get_model
 
     model = get_model(model_name)
     if fast:
         return specialise(fused.advance_fast_segments, model.name, vector=True, fast_reaction=model.fast.kernel)
-    return specialise(fused.advance_segments, model.name, reaction=model.reaction)
+    if reaction == schemes.DEFAULT:
+        return specialise(fused.advance_segments, model.name, reaction=model.reaction)
+    return specialise(fused.advance_segments, f"{model.name}_{reaction}", reaction=schemes.kernel(model_name, reaction),
+                      depends=(model.kinetics,))
 
 
 def _tracker_part(tracker, sl):
@@ -247,7 +251,7 @@ def _run_batch(setups):
     n = sum(s.n for s in setups)
     gating, theta, splitting = scheme_codes(num)
     # one table for the group: its table parameters are those of every member (group_key)
-    rates = tables.plan(model, first.p, dt, gating, num.rates)
+    rates = tables.plan(model, first.p, dt, gating, num.rates, reaction=num.reaction)
     fast = rates.mode != "reference"
     interleaved, slices = _layout(setups, fast)
     grids = [(s.grid.lo, s.grid.up) for s in setups]
@@ -255,7 +259,7 @@ def _run_batch(setups):
         advance = _fast_integrator(model.name)
         factor, last = diffusion.factor_interleaved, (len(setups),)
     else:
-        advance = _segments_integrator(model.name, fast)
+        advance = _segments_integrator(model.name, fast, num.reaction)
         factor = diffusion.factor_segments
         last = (np.concatenate([[0], np.cumsum([s.n for s in setups])]).astype(np.int64),)
     half, full = factor(grids, 0.5 * dt, theta), factor(grids, dt, theta)

@@ -69,7 +69,7 @@ def _source_hash(*objects) -> str:
     return h.hexdigest()[:12]
 
 
-def specialise(template, tag: str, *, vector: bool = False, **bindings):
+def specialise(template, tag: str, *, vector: bool = False, depends=(), **bindings):
     """Compile ``template`` with its globals ``bindings`` replaced.
 
     Parameters
@@ -80,6 +80,9 @@ def specialise(template, tag: str, *, vector: bool = False, **bindings):
         A readable name for the specialisation (the model name).
     vector : bool
         Compile with numpy's error model, as :data:`jit_vector`.
+    depends : sequence
+        Further functions whose modules' sources go into the name's hash (the model
+        kernel inside a bound kernel that was itself specialised).
     **bindings
         Global names of the template to bind (numba dispatchers).
     """
@@ -87,7 +90,7 @@ def specialise(template, tag: str, *, vector: bool = False, **bindings):
     glb.update(bindings)
     fn = types.FunctionType(template.__code__, glb, template.__name__,
                             template.__defaults__, template.__closure__)
-    digest = _source_hash(template, *bindings.values())
+    digest = _source_hash(template, *bindings.values(), *depends)
     safe = "".join(ch if ch.isalnum() else "_" for ch in tag)
     fn.__qualname__ = f"{template.__qualname__}__{safe}_{digest}"
     fn.__module__ = template.__module__

@@ -9,7 +9,9 @@
 * ``"reference"``: the model's contract kernel ``reaction`` and the original time loop
   (C library exponentials, states stored by node): the slowest, for checks.
 
-A model without a fast path always runs its ``reaction`` kernel; a table is used only
+A model without a fast path always runs its ``reaction`` kernel, and a
+``numerics.reaction`` other than ``"rush-larsen"`` always the reference loop (the
+scheme applied to the model's ``kinetics``); a table is used only
 when the parameters it depends on (``FastPath.table_parameters``) are the same at every
 node, otherwise the rates are evaluated exactly and the run says so.
 """
@@ -67,7 +69,8 @@ def by_parameter(p: np.ndarray) -> np.ndarray:
     return np.ascontiguousarray(p.T)
 
 
-def plan(model, p: np.ndarray, dt: float, gating: int, rates: str = "tabulated") -> Plan:
+def plan(model, p: np.ndarray, dt: float, gating: int, rates: str = "tabulated", *,
+         reaction: str = "rush-larsen") -> Plan:
     """Choose the reaction path and build its table.
 
     Parameters
@@ -81,9 +84,12 @@ def plan(model, p: np.ndarray, dt: float, gating: int, rates: str = "tabulated")
         0 Rush-Larsen, 1 forward Euler.
     rates : {"tabulated", "exact", "reference"}
         What ``numerics.rates`` asks for.
+    reaction : str
+        ``numerics.reaction``: the schemes other than ``"rush-larsen"`` run on the
+        reference loop (``cable.kernels.schemes``), with exact rates.
     """
     fast = model.fast
-    if rates == "reference":
+    if rates == "reference" or reaction != "rush-larsen":
         return Plan("reference", no_table())
     if fast is None:
         # said once per run, so that a speed or accuracy comparison knows what ran

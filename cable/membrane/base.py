@@ -13,7 +13,10 @@ A membrane model is data plus kernels, declared in one module:
 * ``reaction``: a numba kernel that advances all nodes of a strand by one reaction
   step (see :func:`reaction_signature_doc`);
 * ``reference``: a plain-numpy function giving the time derivatives and the ionic
-  current, used by the contract tests and by scipy cross-checks.
+  current, used by the contract tests and by scipy cross-checks;
+* ``kinetics`` (optional): a numba kernel giving the right-hand side of one node in
+  the form the reaction schemes of the time loop need (``numerics.reaction`` other
+  than ``"rush-larsen"``; see :mod:`cable.kernels.schemes` and below).
 
 Kernel contract (``reaction``)::
 
@@ -31,6 +34,25 @@ Each node: gates advanced over ``dt`` at the old potential (Rush-Larsen or forwa
 Euler), then ``v += dt * (i_stim - ion_scale * I_ion)`` with I_ion evaluated at the
 old potential and the updated gates (the usual Rush-Larsen ordering; Rush & Larsen
 1978, IEEE Trans Biomed Eng 25:389).
+
+Kinetics contract (``kinetics``)::
+
+    kinetics(V, y, p, i, a, b) -> i_ion
+
+    V       float              membrane potential of node i [mV] (any stage value)
+    y       float64[nstate]    the node's states (any stage value), read only
+    p       float64[n, nparam] parameters; row i is the node's
+    a, b    float64[nstate]    filled: dy_k/dt = a_k - b_k y_k, with a_k and b_k not
+                               depending on y_k; b_k >= 0 is the gate's rate
+                               1/tau_k (a_k = y_inf,k / tau_k), b_k = 0 for a state that
+                               is not a gate (a_k is then its whole derivative)
+    returns I_ion at (V, y) in the model's basis
+
+so that dV/dt = i_stim - ion_scale * I_ion. It must agree with ``reference`` (the
+contract tests check it): a time loop applies Rush-Larsen-type schemes (exponential in
+b_k) or Runge-Kutta schemes (derivative a_k - b_k y_k) with it, whatever the model. A
+generated model needs only this kernel, ``reference`` and ``reaction`` (which may be
+written as one first-order Rush-Larsen step of ``kinetics``).
 
 Reference contract (``reference``)::
 
@@ -172,6 +194,9 @@ class MembraneModel:
     fast : FastPath or None
         Optional vectorisable and tabulated kernels (see :class:`FastPath`); models
         without one always run ``reaction``.
+    kinetics : numba dispatcher or None
+        Optional right-hand side per node (see the module docstring) for the reaction
+        schemes other than ``"rush-larsen"``; a model without it runs only that one.
     """
 
     name: str
@@ -189,6 +214,7 @@ class MembraneModel:
     current_names: tuple[str, ...] = ()
     temperature_parameter: str | None = None
     fast: FastPath | None = None
+    kinetics: Callable | None = None
 
     def __post_init__(self):
         if self.current_basis not in ("area", "capacitance"):

@@ -12,9 +12,11 @@ sqrt(D k / 2) (1 - 2a) (McKean 1970, Adv Math 4:209; Keener & Sneyd, Mathematica
 Physiology, ch. 6).
 """
 
+from dataclasses import replace
+
 import numpy as np
 
-from cable.kernels.jit import jit
+from cable.kernels.jit import jit, jit_inline
 from cable.membrane.base import MembraneModel, Parameter, State
 
 V_REST, V_PEAK, A, K, C, EPSILON, GAMMA = range(7)
@@ -73,3 +75,17 @@ MODEL = MembraneModel(
     reaction=reaction,
     reference=reference,
 )
+
+
+@jit_inline
+def kinetics(V, y, p, i, a, b):
+    """Right-hand side of node i for the loop's reaction schemes (contract: cable.membrane.base)."""
+    span = p[i, V_PEAK] - p[i, V_REST]
+    u = (V - p[i, V_REST]) / span
+    eps = p[i, EPSILON]
+    a[0] = eps * u
+    b[0] = eps * p[i, GAMMA]
+    return -span * (p[i, K] * u * (u - p[i, A]) * (1.0 - u) - p[i, C] * y[0])
+
+
+MODEL = replace(MODEL, kinetics=kinetics)

@@ -9,6 +9,8 @@ E_Na = 50, E_K = -77, E_L = -54.387 mV. Rates are the paper's at 6.3 degC, multi
 phi = 3^((T - 6.3)/10) (Q10 = 3).
 """
 
+from dataclasses import replace
+
 import numpy as np
 
 from cable.kernels.elementary import exp as vexp
@@ -346,3 +348,24 @@ MODEL = MembraneModel(
     fast=FastPath(kernel=reaction_fast, build_table=build_table, table_parameters=("temperature",),
                   v_lo=-150.0, v_hi=100.0, dv=0.05),
 )
+
+
+# ----------------------------------------------------------------------------- kinetics
+@jit_inline
+def kinetics(V, y, p, i, a, b):
+    """Right-hand side of node i for the loop's reaction schemes (contract: cable.membrane.base)."""
+    phi = 3.0 ** ((p[i, TEMPERATURE] - 6.3) / 10.0)
+    am, bm, ah, bh, an, bn = _rates(V, phi)
+    a[0] = am
+    b[0] = am + bm
+    a[1] = ah
+    b[1] = ah + bh
+    a[2] = an
+    b[2] = an + bn
+    m, h, n = y[0], y[1], y[2]
+    n2 = n * n
+    return (p[i, G_NA] * m * m * m * h * (V - p[i, E_NA]) + p[i, G_K] * n2 * n2 * (V - p[i, E_K])
+            + p[i, G_L] * (V - p[i, E_L]))
+
+
+MODEL = replace(MODEL, kinetics=kinetics)

@@ -36,10 +36,11 @@ published). X_i = 1 for V <= -100 mV, as in the paper.
 """
 
 import math
+from dataclasses import replace
 
 import numpy as np
 
-from cable.kernels.jit import jit
+from cable.kernels.jit import jit, jit_inline
 from cable.membrane.base import MembraneModel, Parameter, State
 
 #: RT/F at 37 degC [mV]: R = 8314 mJ/(mol K), T = 310 K, F = 96485 C/mol
@@ -368,3 +369,33 @@ MODEL = MembraneModel(
     currents=currents,
     current_names=("I_Na", "I_si", "I_K", "I_K1", "I_Kp", "I_b"),
 )
+
+
+# ---------------------------------------------------------------------------------------
+# kinetics for the loop's reaction schemes (contract: cable.membrane.base)
+# ---------------------------------------------------------------------------------------
+
+@jit_inline
+def kinetics(V, y, p, i, a, b):
+    """Right-hand side of node i: the six gates as a - b y, Ca_i as its derivative (b = 0)."""
+    am, bm, ah, bh, aj, bj, ad, bd, af, bf, ax, bx = _rates(V)
+    a[S_M] = am
+    b[S_M] = am + bm
+    a[S_H] = ah
+    b[S_H] = ah + bh
+    a[S_J] = aj
+    b[S_J] = aj + bj
+    a[S_D] = ad
+    b[S_D] = ad + bd
+    a[S_F] = af
+    b[S_F] = af + bf
+    a[S_X] = ax
+    b[S_X] = ax + bx
+    ca = y[S_CA]
+    a[S_CA] = -1e-4 * _i_si(V, y[S_D], y[S_F], ca, p[i, G_SI]) + 0.07 * (1e-4 - ca)
+    b[S_CA] = 0.0
+    i_na, i_si, i_k, i_k1, i_kp, i_b = _ionic(V, y[S_M], y[S_H], y[S_J], y[S_D], y[S_F], y[S_X], ca, p, i)
+    return i_na + i_si + i_k + i_k1 + i_kp + i_b
+
+
+MODEL = replace(MODEL, kinetics=kinetics)

@@ -35,10 +35,11 @@ tau_close ln(g_in tau_out/(4 tau_in)).
 """
 
 import math
+from dataclasses import replace
 
 import numpy as np
 
-from cable.kernels.jit import jit
+from cable.kernels.jit import jit, jit_inline
 from cable.membrane.base import MembraneModel, Parameter, State
 
 # parameter indices (order of PARAMETERS)
@@ -125,3 +126,21 @@ MODEL = MembraneModel(
     currents=currents,
     current_names=("I_in", "I_out"),
 )
+
+
+@jit_inline
+def kinetics(V, y, p, i, a, b):
+    """Right-hand side of node i for the loop's reaction schemes (contract: cable.membrane.base)."""
+    span = p[i, V_PEAK] - p[i, V_REST]
+    u = (V - p[i, V_REST]) / span
+    if u < p[i, V_GATE]:
+        a[0] = 1.0 / p[i, TAU_OPEN]
+        b[0] = a[0]
+    else:
+        a[0] = 0.0
+        b[0] = 1.0 / p[i, TAU_CLOSE]
+    j_in, j_out = _fluxes(u, y[0], p, i)
+    return -span * (j_in + j_out)
+
+
+MODEL = replace(MODEL, kinetics=kinetics)

@@ -5,9 +5,11 @@ lambda = sqrt(a R_m / (2 R_i)) with R_m = 1/g_L (Jack, Noble & Tsien 1975,
 Electric Current Flow in Excitable Cells; Koch 1999, Biophysics of Computation, ch. 2).
 """
 
+from dataclasses import replace
+
 import numpy as np
 
-from cable.kernels.jit import jit
+from cable.kernels.jit import jit, jit_inline
 from cable.membrane.base import MembraneModel, Parameter
 
 G_L, E_L = range(2)
@@ -50,3 +52,12 @@ MODEL = MembraneModel(
     currents=currents,
     current_names=("I_L",),
 )
+
+
+@jit_inline
+def kinetics(V, y, p, i, a, b):
+    """I_L of node i (no states; contract: cable.membrane.base)."""
+    return p[i, G_L] * (V - p[i, E_L])
+
+
+MODEL = replace(MODEL, kinetics=kinetics)

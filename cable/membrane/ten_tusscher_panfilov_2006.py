@@ -46,10 +46,11 @@ Conventions and choices of this implementation
 """
 
 import math
+from dataclasses import replace
 
 import numpy as np
 
-from cable.kernels.jit import jit
+from cable.kernels.jit import jit, jit_inline
 from cable.membrane.base import FastPath, MembraneModel, Parameter, State
 
 # physical constants and cell geometry (ten Tusscher & Panfilov 2006, Table 1)
@@ -620,3 +621,48 @@ MODEL = MembraneModel(
     fast=FastPath(kernel=reaction_fast, build_table=build_table, table_parameters=("gamma",),
                   v_lo=-150.0, v_hi=100.0, dv=0.05, by_state=False),
 )
+
+
+# ----------------------------------------------------------------------------- kinetics
+# The right-hand side for the loop's reaction schemes (contract: cable.membrane.base):
+# gates and R-bar as a - b y, the free calcium concentrations with the rapid-buffering
+# derivative of ``reference`` (the dt -> 0 limit of the buffered update of ``reaction``),
+# Na_i and K_i as their derivatives.
+
+@jit_inline
+def kinetics(V, y, p, i, a, b):
+    """Right-hand side of node i (contract: cable.membrane.base)."""
+    s = y.reshape((1, y.shape[0]))
+    q = p[i:i + 1]
+    Ca_i, Ca_SR, Ca_ss, R_bar = y[CA_I], y[CA_SR], y[CA_SS], y[R_PRIME]
+    x_inf, tau = _kinetics(V, Ca_ss, int(p[i, CELL_TYPE]) == ENDO)
+    for k in range(N_GATES):
+        b[k] = 1.0 / tau[k]
+        a[k] = x_inf[k] * b[k]
+    k1, k2 = _ryr(Ca_SR, Ca_ss, q, 0)
+    a[R_PRIME] = p[i, K4]
+    b[R_PRIME] = k2 * Ca_ss + p[i, K4]
+    (I_Na, I_to, I_Kr, I_Ks, I_K1, I_NaCa, I_NaK, I_pCa, I_pK, I_bNa, I_bCa,
+     I_CaL) = _membrane_currents(V, s, q, 0)
+    O = k1 * Ca_ss * Ca_ss * R_bar / (p[i, K3] + k1 * Ca_ss * Ca_ss)
+    I_rel = p[i, V_REL] * O * (Ca_SR - Ca_ss)
+    I_up = p[i, V_MAXUP] / (1.0 + (p[i, K_UP] / Ca_i) ** 2)
+    I_leak = p[i, V_LEAK] * (Ca_SR - Ca_i)
+    I_xfer = p[i, V_XFER] * (Ca_ss - Ca_i)
+    d_ca_i = -(I_bCa + I_pCa - 2.0 * I_NaCa) * CA_FLUX + V_SR / V_C * (I_leak - I_up) + I_xfer
+    d_ca_sr = I_up - I_leak - I_rel
+    d_ca_ss = -I_CaL * CA_SS_FLUX + V_SR / V_SS * I_rel - V_C / V_SS * I_xfer
+    kb = p[i, K_BUFC]
+    a[CA_I] = d_ca_i / (1.0 + p[i, BUF_C] * kb / ((Ca_i + kb) * (Ca_i + kb)))
+    kb = p[i, K_BUFSR]
+    a[CA_SR] = d_ca_sr / (1.0 + p[i, BUF_SR] * kb / ((Ca_SR + kb) * (Ca_SR + kb)))
+    kb = p[i, K_BUFSS]
+    a[CA_SS] = d_ca_ss / (1.0 + p[i, BUF_SS] * kb / ((Ca_ss + kb) * (Ca_ss + kb)))
+    a[NA_I] = -(I_Na + I_bNa + 3.0 * I_NaK + 3.0 * I_NaCa) * NA_FLUX
+    a[K_I] = -(I_K1 + I_to + I_Kr + I_Ks - 2.0 * I_NaK + I_pK) * NA_FLUX
+    for k in range(CA_I, K_I + 1):
+        b[k] = 0.0
+    return I_Na + I_to + I_Kr + I_Ks + I_K1 + I_NaCa + I_NaK + I_pCa + I_pK + I_bNa + I_bCa + I_CaL
+
+
+MODEL = replace(MODEL, kinetics=kinetics)

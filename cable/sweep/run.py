@@ -103,7 +103,8 @@ def run_chunk(raws: list, keep_fields: bool) -> list[tuple[xr.Dataset, dict]]:
             cases[i] = load_case(raw)
         except CaseError as exc:
             data[i] = _store.failed_dataset("invalid_case", str(exc))
-    unloaded = [fn for fn in _time_loops({(c.membrane.model, c.numerics.rates) for c in cases.values()})
+    unloaded = [fn for fn in _time_loops({(c.membrane.model, c.numerics.rates, c.numerics.reaction)
+                                         for c in cases.values()})
                 if not fn.signatures]
     order = list(cases)
     try:
@@ -144,18 +145,20 @@ def _outcome(result, keep_fields: bool) -> tuple[xr.Dataset, int]:
 
 
 def _time_loops(models: set) -> list:
-    """Every compiled time loop a run of these (model, rates) pairs may load: the single
-    strand's loops (fast path and reference, the latter also used to settle nodes) and
-    the batch's loop of strands laid end to end."""
+    """Every compiled time loop a run of these (model, rates, reaction) triples may load: the
+    single strand's loops (fast path and reference, the latter also used to settle nodes) and
+    the batch's loop of strands laid end to end, for each reaction scheme asked for."""
     from cable.kernels.batch import _segments_integrator
     from cable.membrane import get_model
     from cable.simulate import _fast_integrator, _integrator
 
     loops = []
-    for name in sorted({name for name, _ in models}):
+    for name in sorted({key[0] for key in models}):
         loops += [_integrator(name), _segments_integrator(name, False)]
         if get_model(name).fast is not None:
             loops += [_fast_integrator(name), _segments_integrator(name, True)]
+    for name, _, reaction in sorted(key for key in models if key[2:] and key[2] != "rush-larsen"):
+        loops += [_integrator(name, reaction), _segments_integrator(name, False, reaction)]
     return loops
 
 
