@@ -19,6 +19,7 @@ import numpy as np
 import xarray as xr
 
 from cable import __version__
+from cable.arguments import check_call
 from cable.case import Case, CaseError, load_case
 from cable.fiber import Grid, build_grid, node_positions
 from cable.io import schema
@@ -324,6 +325,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     """
     from cable.io import netcdf
 
+    check_call("simulate", output=output, overwrite=overwrite, progress=progress, command=command, info=info)
     say = info or (lambda msg: None)
     case = case if isinstance(case, Case) else load_case(case)
     if output is not None:
@@ -364,8 +366,10 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
 
     attrs = provenance(setup, command)
     attrs["rates"] = rates.mode
-    sink = netcdf.StreamWriter(output, setup, field_names, model, attrs) if output is not None else \
-        _MemorySink(setup, field_names)
+    if output is not None:
+        sink = netcdf.StreamWriter(output, setup, field_names, model, attrs, overwrite=overwrite)
+    else:
+        sink = _MemorySink(setup, field_names)
 
     def sample(k):
         vals = {"vm": v}
