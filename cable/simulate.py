@@ -223,6 +223,24 @@ def prepare(case) -> Setup:
     return setup
 
 
+def check_threshold(setup: Setup) -> None:
+    """Refuse a ``measure.threshold`` that no activation can cross upward: at or below the
+    resting potential of every node (each would read as activated at once or never), or
+    beyond the runaway bound of the time loop (crossing it stops the run)."""
+    th = setup.case.threshold
+    if th is None:
+        return
+    rest = float(np.max(setup.v0))
+    if th <= rest:
+        raise CaseError(f"measure.threshold = {th:g} mV is at or below the resting potential ({rest:.4g} mV): an "
+                        f"activation is an upward crossing from rest. Give a level between rest and the action "
+                        f"potential's peak (the model's default is {setup.model.threshold:g} mV).")
+    if th >= integrate.RUNAWAY_MV:
+        raise CaseError(f"measure.threshold = {th:g} mV is beyond +/-{integrate.RUNAWAY_MV:g} mV, where a run "
+                        f"stops as a runaway; give a level between rest ({rest:.4g} mV) and the action "
+                        f"potential's peak (the model's default is {setup.model.threshold:g} mV).")
+
+
 def stored_bytes(setup: Setup) -> int:
     """Bytes of the stored fields (vm and extra states, float32 on file, float64 in memory)."""
     return setup.n_samples * setup.n * (1 + len(setup.case.output_states)) * 8
@@ -338,6 +356,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     if not is_compiled(name, case.numerics.rates) or (settles and not _in_cache(_integrator(name))):
         say(f"compiling the '{name}' kernels (first run only; later runs use the cache)...")
     setup = prepare(case)
+    check_threshold(setup)
     check_size(setup, output)
     for note in setup.notes:
         say(note)
@@ -371,7 +390,10 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     else:
         sink = _MemorySink(setup, field_names)
 
+    highest = [-np.inf]  # the highest potential sampled: says why no node crossed a given threshold
+
     def sample(k):
+        highest[0] = max(highest[0], float(np.max(v)))
         vals = {"vm": v}
         for name, j in zip(state_names, state_idx):
             vals[schema.STATE_PREFIX + name] = arrays.state(j)
@@ -403,6 +425,10 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
         interrupted = True
     wall = _time.perf_counter() - wall0
     n_done = sink.filled
+    if case.threshold is not None and not np.any(nact) and setup.pulses.shape[0]:
+        say(f"warning: no node crossed measure.threshold = {case.threshold:g} mV (the highest potential sampled "
+            f"was {highest[0]:.4g} mV), so every beat reads as not captured; the model's default is "
+            f"{model.threshold:g} mV.")
     attrs["wall_time_s"] = round(wall, 4)
     with _interrupts_held():  # a second Ctrl-C or SIGTERM waits until the file is complete
         try:

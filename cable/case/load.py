@@ -236,10 +236,14 @@ def _read_section(name: str, table, specs: dict[str, Key]) -> dict:
 
 
 # ----------------------------------------------------------------------------- --set
-def parse_assignment(text: str) -> tuple[str, object]:
-    """Split ``KEY=VALUE`` and read VALUE as a TOML value (a bare word is a string)."""
-    if "=" not in text:
-        raise CaseError(f"--set {text!r}: expected KEY=VALUE, e.g. membrane.scale.g_Na=0.5.")
+def parse_assignment(text: str, option: str = "--set") -> tuple[str, object]:
+    """Split ``KEY=VALUE`` and read VALUE as a TOML value (a bare word is a string).
+
+    ``option`` names the command-line option in messages (``--set``, ``--vary``).
+    """
+    if not isinstance(text, str) or "=" not in text:
+        example = "membrane.scale.g_Na=[1,0.5]" if option == "--vary" else "membrane.scale.g_Na=0.5"
+        raise CaseError(f"{option} {text!r}: expected KEY=VALUE, e.g. {example}.")
     key, value = text.split("=", 1)
     key, value = key.strip(), value.strip()
     try:
@@ -247,7 +251,7 @@ def parse_assignment(text: str) -> tuple[str, object]:
     except tomllib.TOMLDecodeError:
         parsed = value
     except RecursionError:
-        raise CaseError(f"--set {key}: the value is nested too deeply.") from None
+        raise CaseError(f"{option} {key}: the value is nested too deeply.") from None
     return key, parsed
 
 

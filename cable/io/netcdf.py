@@ -45,8 +45,13 @@ BUFFER_BYTES = 8 * 2 ** 20
 #: nothing needs to stay cached, since the writer sends whole rows of chunks
 WRITE_CACHE_BYTES = 0
 WRITE_CACHE_SLOTS = 1
-#: the variables a rerun compares with the original, ``activation_time`` first
+#: the variables a rerun reports first (it compares every variable either file holds)
 COMPARED = ("activation_time", "conduction_velocity", "captured", "blocked", "block_x", "vm")
+#: global attributes that change from run to run of one case (time, machine, command
+#: line, library versions: the versions are reported apart), not compared by a rerun
+VOLATILE_ATTRS = ("history", "date_created", "command", "wall_time_s", "cable_version", "numpy_version",
+                  "numba_version", "netcdf4_python_version", "netcdf_library_version", "hdf5_version",
+                  "xarray_version", "python_version", "dask_version")
 
 
 def chunk_shape(n_t: int, n_x: int | None) -> tuple[int, ...]:
@@ -486,21 +491,29 @@ class RerunReport:
     result : xarray.Dataset
         The new result (partial if the run failed again where the original did).
     compared : dict
-        ``{name: (identical, largest absolute difference)}`` for each variable of
-        :data:`COMPARED` present in both; ``identical`` counts NaN = NaN.
+        ``{name: (identical, largest absolute difference)}`` for every variable and
+        coordinate either file holds (:data:`COMPARED` first); ``identical`` counts
+        NaN = NaN; a variable only one holds is ``(False, inf)`` and listed in ``missing``.
     versions : dict
         ``{attribute: (recorded, now)}`` for versions that differ from the original's.
+    attributes : dict
+        ``{attribute: (original, rerun)}`` for global attributes the run determines
+        (all but :data:`VOLATILE_ATTRS`) that differ; None for one a file lacks.
+    missing : dict
+        ``{variable: "original" or "rerun"}``: the file that lacks it.
     """
 
     source: Path
     result: xr.Dataset
     compared: dict = field(default_factory=dict)
     versions: dict = field(default_factory=dict)
+    attributes: dict = field(default_factory=dict)
+    missing: dict = field(default_factory=dict)
 
     @property
     def identical(self) -> bool:
-        """Whether ``activation_time`` (and every other compared variable) is bit-for-bit the same."""
-        return bool(self.compared) and all(same for same, _ in self.compared.values())
+        """Whether every variable, coordinate and determined attribute is bit-for-bit the same."""
+        return bool(self.compared) and all(same for same, _ in self.compared.values()) and not self.attributes
 
 
 def _difference(a: np.ndarray, b: np.ndarray) -> tuple[bool, float]:
@@ -518,17 +531,26 @@ def _difference(a: np.ndarray, b: np.ndarray) -> tuple[bool, float]:
     return bool(np.array_equal(a[ok], b[ok])), diff
 
 
-def compare(original: xr.Dataset, new: xr.Dataset, names=COMPARED) -> dict:
-    """``{name: (identical, largest absolute difference)}`` over the variables both hold.
+def compare(original: xr.Dataset, new: xr.Dataset, names=None) -> dict:
+    """``{name: (identical, largest absolute difference)}``.
 
-    Fields with a ``t`` dimension are compared as float32 (as stored) in blocks of
-    samples, so a long result is not loaded whole.
+    ``names`` None: every variable and coordinate either holds (:data:`COMPARED` first);
+    one that only one of them holds is a difference, ``(False, inf)``. Fields with a
+    ``t`` dimension are compared as float32 (as stored) in blocks of samples, so a long
+    result is not loaded whole.
     """
+    if names is None:
+        every = list(dict.fromkeys([*original.variables, *new.variables]))
+        names = [n for n in COMPARED if n in every] + [n for n in every if n not in COMPARED]
     out = {}
     for name in names:
         if name not in original.variables or name not in new.variables:
+            out[name] = (False, math.inf)
             continue
         a, b = original[name], new[name]
+        if a.dtype.kind in "OSU" or b.dtype.kind in "OSU":
+            out[name] = (bool(np.array_equal(a.values.astype(str), b.values.astype(str))), math.nan)
+            continue
         if "t" in a.dims:
             if a.dims != b.dims or any(a.sizes[d] != b.sizes[d] for d in a.dims if d != "t"):
                 out[name] = (False, math.inf)
@@ -617,7 +639,36 @@ def rerun(path, output=None, *, overwrite: bool = False, command: str | None = N
                 raise
             new = exc.partial
         compared = compare(original, new)
-    return RerunReport(source=path, result=new, compared=compared, versions=versions)
+        missing = {n: ("original" if n not in original.variables else "rerun")
+                   for n in compared if n not in original.variables or n not in new.variables}
+        attributes = compare_attrs(original.attrs, new.attrs)
+    return RerunReport(source=path, result=new, compared=compared, versions=versions, attributes=attributes,
+                       missing=missing)
+
+
+def compare_attrs(original: dict, new: dict) -> dict:
+    """``{name: (original, new)}`` for the global attributes that differ, as they would be stored.
+
+    Compared: every attribute but :data:`VOLATILE_ATTRS`; values are compared in their
+    stored form (:func:`_encode_attr`), so an in-memory result (bools, tuples) compares
+    equal to the file it would make.
+    """
+    out = {}
+    for name in dict.fromkeys([*original, *new]):
+        if name in VOLATILE_ATTRS:
+            continue
+        a, b = original.get(name), new.get(name)
+        ea = None if a is None else np.asarray(_encode_attr(a))
+        eb = None if b is None else np.asarray(_encode_attr(b))
+        if ea is None or eb is None:
+            same = ea is None and eb is None
+        elif ea.dtype.kind in "OSU" or eb.dtype.kind in "OSU":
+            same = ea.shape == eb.shape and bool(np.all(ea.astype(str) == eb.astype(str)))
+        else:
+            same = ea.shape == eb.shape and bool(np.array_equal(ea.astype(np.float64), eb.astype(np.float64)))
+        if not same:
+            out[name] = (a, b)
+    return out
 
 
 def _not_a_run(ds: xr.Dataset) -> str:
