@@ -367,6 +367,8 @@ class StreamWriter:
         try:
             if self.nc.isopen():
                 self.nc.close()
+        except Exception:  # noqa: BLE001 -- closing a file whose writes failed (a full disk) fails too
+            pass
         finally:
             self.tmp.unlink(missing_ok=True)
 
@@ -375,15 +377,16 @@ def _write_failure(path: Path, exc: Exception) -> OutputError:
     """The error for a writer that failed: what happened, and that nothing was kept."""
     import shutil
 
+    from cable.units import format_bytes
+
     folder = path.parent if str(path.parent) else Path(".")
     try:
-        free = f"; {shutil.disk_usage(folder).free / 2 ** 20:.1f} MiB are free there now"
+        free = f"; {format_bytes(shutil.disk_usage(folder).free)} is free there now"
     except OSError:
         free = ""
     err = OutputError(f"writing '{path}' failed ({exc.__class__.__name__}: {exc}); the disk may be full or the "
                       f"file system failing{free}. The unfinished temporary file was removed, so no result file "
                       f"was kept; free space (or choose another output) and run again.")
-    err.filename = None
     return err
 
 
@@ -608,6 +611,12 @@ def rerun(path, output=None, *, overwrite: bool = False, command: str | None = N
     from cable.case import load_case
     from cable.simulate import SimulationError, simulate
 
+    from cable.arguments import check_call
+
+    if not isinstance(path, (str, os.PathLike)):
+        raise CaseError(f"rerun(path={path!r}): path must be a result file (str or pathlib.Path), not "
+                        f"{type(path).__name__}.")
+    check_call("rerun", output=output, overwrite=overwrite, command=command, info=info)
     path = Path(path)
     if output is not None and Path(output).resolve() == path.resolve():
         raise CaseError(f"rerun output '{output}' is the original file; give another name, e.g. "
