@@ -391,6 +391,7 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     ident = sweep_id(case)
     store = None
     points: list = [None] * n
+    check_sweep_size(case, n, 0, None, keep_fields)  # memory, before anything is created or loaded
     if output is not None:
         from cable.io.netcdf import check_target
 
