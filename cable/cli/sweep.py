@@ -1,5 +1,7 @@
 """``cable sweep CASE -o OUT.nc``: run every point of a case's ``[sweep]`` on Dask."""
 
+import logging
+
 import numpy as np
 
 from cable.cli import add_set_option, say
@@ -40,6 +42,12 @@ def run(args):
     from cable.sweep.run import sweep
 
     _check_workers(args)
+    # a lost scheduler makes the Dask client log each reconnection attempt with a traceback;
+    # what failed is said once, by the ClusterError (exit 5)
+    import distributed  # noqa: F401 -- configures its loggers, each with its own level
+
+    for name in [n for n in logging.root.manager.loggerDict if n == "distributed" or n.startswith("distributed.")]:
+        logging.getLogger(name).setLevel(logging.CRITICAL)
     from pathlib import Path
 
     case = load_case(Path(args.case), args.overrides)

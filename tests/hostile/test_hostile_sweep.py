@@ -17,15 +17,17 @@ from hostile_cases import ROOT, cable_cmd, env, small_case, wait_for
 
 distributed = pytest.importorskip("distributed")
 
-#: six points, each run alone (--batch 1) on one worker, each long enough (400 ms of a
+#: six points, each run alone (--batch 1) on one worker, each long enough (150 ms of a
 #: 201-node axon) that the scheduler can be killed while some are still to run
-SLOW = small_case(duration=400.0, every=1.0).replace("length = 0.5", "length = 2.0") + \
+SLOW = small_case(duration=150.0, every=1.0).replace("length = 0.5", "length = 2.0") + \
     '\n[sweep]\n"membrane.scale.g_Na" = [1.0, 0.95, 0.9, 0.85, 0.8, 0.75]\n'
 
 
-def _spawn(*args, **kw):
-    return subprocess.Popen(list(args), stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=ROOT,
-                            env=env(), **kw)
+def _spawn(*args, log=None):
+    """A process whose output goes to the file ``log`` (a pipe nobody reads would fill and stall it)."""
+    out = open(log, "w") if log is not None else subprocess.PIPE
+    return subprocess.Popen(list(args), stdout=out, stderr=subprocess.STDOUT if log else subprocess.PIPE, text=True,
+                            cwd=ROOT, env=env())
 
 
 def _statuses(folder):
@@ -36,6 +38,7 @@ def _statuses(folder):
     return out
 
 
+@pytest.mark.slow
 def test_lost_scheduler_stores_nothing_false_exits_5_and_resume_finishes(tmp_path):
     # item 1: points cut off by a lost scheduler were stored as finished errors
     # (FutureCancelledError ... scheduler-connection-lost), the sweep exited 0, and a
@@ -46,17 +49,17 @@ def test_lost_scheduler_stores_nothing_false_exits_5_and_resume_finishes(tmp_pat
     info = tmp_path / "scheduler.json"
     dask = [sys.executable, "-m", "distributed.cli.dask_scheduler"]
     sched = _spawn(*dask, "--scheduler-file", str(info), "--host", "127.0.0.1", "--port", "0",
-                   "--no-dashboard")
+                   "--no-dashboard", log=tmp_path / "scheduler.log")
     worker = None
     try:
         wait_for(info.exists, sched, timeout=120, what="the scheduler file")
         address = json.loads(info.read_text())["address"]
         worker = _spawn(sys.executable, "-m", "distributed.cli.dask_worker", address, "--nthreads", "1",
-                        "--nworkers", "1", "--no-dashboard", "--death-timeout", "5")
+                        "--nworkers", "1", "--no-dashboard", "--death-timeout", "5", log=tmp_path / "worker.log")
         out = tmp_path / "s.nc"
         points = tmp_path / "s.nc.points"
         proc = _spawn(*cable_cmd("sweep", case, "-o", out, "--scheduler", address, "--workers", "1", "--batch", "1"))
-        wait_for(lambda: list(points.glob("point-*.nc")), proc, timeout=240, what="the first point file")
+        wait_for(lambda: list(points.glob("point-*.nc")), proc, timeout=120, what="the first point file")
         sched.send_signal(signal.SIGKILL)
         sched.wait(timeout=60)
         rc = proc.wait(timeout=120)
