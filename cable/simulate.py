@@ -19,6 +19,7 @@ import numpy as np
 import xarray as xr
 
 from cable import __version__
+from cable.arguments import check_call
 from cable.case import Case, CaseError, load_case
 from cable.fiber import Grid, build_grid, node_positions
 from cable.io import schema
@@ -249,6 +250,24 @@ def _ring_start(case, model, grid, p, v0, s0, pulses, cm, notes):
     return v0, s0, stimulus_pulses(ring_cases(case)[0], grid.x, notes)
 
 
+def check_threshold(setup: Setup) -> None:
+    """Refuse a ``measure.threshold`` that no activation can cross upward: at or below the
+    resting potential of every node (each would read as activated at once or never), or
+    beyond the runaway bound of the time loop (crossing it stops the run)."""
+    th = setup.case.threshold
+    if th is None:
+        return
+    rest = float(np.max(setup.v0))
+    if th <= rest:
+        raise CaseError(f"measure.threshold = {th:g} mV is at or below the resting potential ({rest:.4g} mV): an "
+                        f"activation is an upward crossing from rest. Give a level between rest and the action "
+                        f"potential's peak (the model's default is {setup.model.threshold:g} mV).")
+    if th >= integrate.RUNAWAY_MV:
+        raise CaseError(f"measure.threshold = {th:g} mV is beyond +/-{integrate.RUNAWAY_MV:g} mV, where a run "
+                        f"stops as a runaway; give a level between rest ({rest:.4g} mV) and the action "
+                        f"potential's peak (the model's default is {setup.model.threshold:g} mV).")
+
+
 def stored_bytes(setup: Setup) -> int:
     """Bytes of the stored fields (vm and extra states, float32 on file, float64 in memory)."""
     return setup.n_samples * setup.n * (1 + len(setup.case.output_states)) * 8
@@ -351,6 +370,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     """
     from cable.io import netcdf
 
+    check_call("simulate", output=output, overwrite=overwrite, progress=progress, command=command, info=info)
     say = info or (lambda msg: None)
     case = case if isinstance(case, Case) else load_case(case)
     if output is not None:
@@ -363,6 +383,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     if not is_compiled(name, case.numerics.rates, case.numerics.reaction) or (settles and not _in_cache(_integrator(name))):
         say(f"compiling the '{name}' kernels (first run only; later runs use the cache)...")
     setup = prepare(case)
+    check_threshold(setup)
     check_size(setup, output)
     for note in setup.notes:
         say(note)
@@ -394,8 +415,12 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
 
     attrs = provenance(setup, command)
     attrs["rates"] = rates.mode
-    sink = netcdf.StreamWriter(output, setup, field_names, model, attrs) if output is not None else \
-        _MemorySink(setup, field_names)
+    if output is not None:
+        sink = netcdf.StreamWriter(output, setup, field_names, model, attrs, overwrite=overwrite)
+    else:
+        sink = _MemorySink(setup, field_names)
+
+    highest = [-np.inf]  # the highest potential sampled: says why no node crossed a given threshold
 
     ecg_w = None
     if setup.x is not None:
@@ -407,6 +432,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     def sample(k):
         if ecg_w is not None:
             ecg[:, k] = ecg_w @ v  # the pseudo-ECG from the full profile at each output time
+        highest[0] = max(highest[0], float(np.max(v)))
         vals = {"vm": v}
         for name, j in zip(state_names, state_idx):
             vals[schema.STATE_PREFIX + name] = arrays.state(j)
@@ -438,6 +464,10 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
         interrupted = True
     wall = _time.perf_counter() - wall0
     n_done = sink.filled
+    if case.threshold is not None and not np.any(nact) and setup.pulses.shape[0]:
+        say(f"warning: no node crossed measure.threshold = {case.threshold:g} mV (the highest potential sampled "
+            f"was {highest[0]:.4g} mV), so every beat reads as not captured; the model's default is "
+            f"{model.threshold:g} mV.")
     attrs["wall_time_s"] = round(wall, 4)
     with _interrupts_held():  # a second Ctrl-C or SIGTERM waits until the file is complete
         try:

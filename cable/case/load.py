@@ -10,6 +10,7 @@ from __future__ import annotations
 import copy
 import difflib
 import math
+import os
 import tomllib
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -266,16 +267,22 @@ def _reaction_notes(num, model, given: dict) -> list[str]:
 
 
 # ----------------------------------------------------------------------------- --set
-def parse_assignment(text: str) -> tuple[str, object]:
-    """Split ``KEY=VALUE`` and read VALUE as a TOML value (a bare word is a string)."""
-    if "=" not in text:
-        raise CaseError(f"--set {text!r}: expected KEY=VALUE, e.g. membrane.scale.g_Na=0.5.")
+def parse_assignment(text: str, option: str = "--set") -> tuple[str, object]:
+    """Split ``KEY=VALUE`` and read VALUE as a TOML value (a bare word is a string).
+
+    ``option`` names the command-line option in messages (``--set``, ``--vary``).
+    """
+    if not isinstance(text, str) or "=" not in text:
+        example = "membrane.scale.g_Na=[1,0.5]" if option == "--vary" else "membrane.scale.g_Na=0.5"
+        raise CaseError(f"{option} {text!r}: expected KEY=VALUE, e.g. {example}.")
     key, value = text.split("=", 1)
     key, value = key.strip(), value.strip()
     try:
         parsed = tomllib.loads(f"v = {value}")["v"]
     except tomllib.TOMLDecodeError:
         parsed = value
+    except RecursionError:
+        raise CaseError(f"{option} {key}: the value is nested too deeply.") from None
     return key, parsed
 
 
@@ -350,15 +357,20 @@ def _list_sections():
 
 
 # ----------------------------------------------------------------------------- loading
-def load_case(source, overrides=()) -> Case:
+def load_case(source=None, overrides=(), *, text: str | None = None) -> Case:
     """Load and validate a case.
 
     Parameters
     ----------
     source : str, pathlib.Path, dict or Case
-        A path to a TOML file, TOML text, a dict of the same structure, or a Case.
+        A path to a TOML file, a dict of the same structure, or a Case. A string is a
+        path when it names a file (whatever characters it holds, ``=`` included); a
+        string that names no file is read as TOML text only if it has several lines
+        (kept for compatibility; pass ``text=`` to say so).
     overrides : iterable of str or dict
         ``"KEY=VALUE"`` strings (as on the command line) or a ``{key: value}`` dict.
+    text : str, optional
+        TOML text of the case, instead of ``source``.
 
     Returns
     -------
@@ -369,23 +381,56 @@ def load_case(source, overrides=()) -> Case:
     CaseError
         With a message naming the key, the value and what is allowed.
     """
-    if isinstance(source, Case):
-        raw = copy.deepcopy(source.raw)
-    elif isinstance(source, dict):
-        raw = copy.deepcopy(source)
-    else:
-        raw = _read_toml(source)
-        _anchor_cellml_path(raw, source)
-    items = overrides.items() if isinstance(overrides, dict) else (parse_assignment(o) for o in overrides)
-    for key, value in items:
-        set_key(raw, key, value)
-    return from_dict(raw)
+    if (source is None) == (text is None):
+        raise CaseError("load_case: give the case as source (a file path, a dict or a Case) or as text=TOML text, "
+                        f"not {'both' if text is not None else 'neither'}.")
+    try:
+        if text is not None:
+            if not isinstance(text, str):
+                raise CaseError(f"load_case(text={text!r}): text must be a string of TOML, not "
+                                f"{type(text).__name__}.")
+            raw = _parse_toml(text, None)
+        elif isinstance(source, Case):
+            raw = copy.deepcopy(source.raw)
+        elif isinstance(source, dict):
+            raw = copy.deepcopy(source)
+        else:
+            raw = _read_toml(source)
+            _anchor_cellml_path(raw, source)
+        if isinstance(overrides, (str, bytes)):
+            overrides = [overrides]
+        items = overrides.items() if isinstance(overrides, dict) else (parse_assignment(o) for o in overrides)
+        for key, value in items:
+            set_key(raw, key, value)
+        return from_dict(raw)
+    except RecursionError:
+        raise CaseError(f"the case is nested too deeply (tables or lists within lists more than "
+                        f"{_MAX_DEPTH} levels); a case has sections of keys and short lists.") from None
+
+
+#: deepest nesting of tables and lists accepted in a case
+_MAX_DEPTH = 32
+
+
+def _depth(value, limit: int = _MAX_DEPTH) -> int:
+    """Nesting depth of tables/lists, counted without recursion (stops past ``limit``)."""
+    stack, deepest = [(value, 0)], 0
+    while stack:
+        node, d = stack.pop()
+        deepest = max(deepest, d)
+        if deepest > limit:
+            return deepest
+        if isinstance(node, dict):
+            stack.extend((v, d + 1) for v in node.values())
+        elif isinstance(node, (list, tuple)):
+            stack.extend((v, d + 1) for v in node)
+    return deepest
 
 
 def _anchor_cellml_path(raw: dict, source) -> None:
     """A CellML path in a case file is relative to the file: made absolute here."""
     mem = raw.get("membrane") if isinstance(raw, dict) else None
-    is_file = isinstance(source, Path) or (isinstance(source, str) and "\n" not in source and "=" not in source)
+    is_file = isinstance(source, (str, os.PathLike)) and _names_file(os.fspath(source))
     if not isinstance(mem, dict) or not is_file:
         return
     for key in ("cellml", "model"):
@@ -396,23 +441,46 @@ def _anchor_cellml_path(raw: dict, source) -> None:
 
 
 def _read_toml(source) -> dict:
-    text = None
-    path = None
-    if isinstance(source, Path) or (isinstance(source, str) and "\n" not in source and "=" not in source):
-        path = Path(source)
-        if not path.is_file():
-            raise CaseError(f"case file '{source}' not found.")
-        try:
-            text = path.read_text(encoding="utf-8")
-        except (OSError, UnicodeDecodeError) as exc:
-            raise CaseError(f"case file '{source}' cannot be read: {exc}.") from None
-    else:
-        text = str(source)
+    if isinstance(source, str) and "\n" in source.strip() and not _names_file(source):
+        return _parse_toml(source, None)  # TOML text given as source (several lines): as before
+    if not isinstance(source, (str, os.PathLike)):
+        raise CaseError(f"case = {source!r}: give a path to a TOML case file, a dict, a Case, or TOML text as "
+                        f"load_case(text=...); not {type(source).__name__}.")
+    path = Path(source)
+    if path.is_dir():
+        raise CaseError(f"case file '{source}' is a folder; give the TOML file inside it"
+                        + (f" (there: {', '.join(sorted(p.name for p in path.glob('*.toml'))[:5])})."
+                           if any(path.glob("*.toml")) else "."))
+    if not path.is_file():
+        if path.exists():
+            raise CaseError(f"case file '{source}' is not a regular file.")
+        raise CaseError(f"case file '{source}' not found.")
     try:
-        return tomllib.loads(text)
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise CaseError(f"case file '{source}' cannot be read: {exc}.") from None
+    return _parse_toml(text, path)
+
+
+def _names_file(source: str) -> bool:
+    try:
+        return Path(source).is_file()
+    except (OSError, ValueError):  # a name too long, or with a NUL: not a file
+        return False
+
+
+def _parse_toml(text: str, path) -> dict:
+    where = f"case file '{path}'" if path else "case text"
+    try:
+        raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        where = f"case file '{path}'" if path else "case text"
         raise CaseError(f"{where} is not valid TOML: {exc}.") from None
+    except RecursionError:
+        raise CaseError(f"{where} is nested too deeply (more than {_MAX_DEPTH} levels of tables or lists).") from None
+    if _depth(raw) > _MAX_DEPTH:
+        raise CaseError(f"{where} is nested too deeply (more than {_MAX_DEPTH} levels of tables or lists); a case "
+                        f"has sections of keys and short lists.")
+    return raw
 
 
 def from_dict(raw: dict) -> Case:

@@ -95,7 +95,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
     "measure": {
         "threshold": _q("potential", meaning="activation level [mV]; default: the model's"),
         "cv_window": Key("list_quantity", quantity="length", meaning="two positions [cm]; default: the middle half of the fibre"),
-        "apd_levels": Key("list_quantity", quantity="dimensionless", default=(90.0,), meaning="repolarisation levels [%] for APD; 90 is always measured (wavelength = CV x APD90)"),
+        "apd_levels": Key("list_quantity", quantity="percent", default=(90.0,), meaning="repolarisation levels [%] for APD; 90 is always measured (wavelength = CV x APD90)"),
         "safety_factor": Key("bool", default=False, meaning="compute the safety factor of conduction per beat and node (Shaw & Rudy 1997); needs a fine output.every, see cable/measure/safety.py"),
         "safety_factor_length": _q("length", positive=True, meaning="length of the control volume of the safety factor [cm]; default: fiber.cell_length, else 0.01 cm"),
     },

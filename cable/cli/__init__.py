@@ -4,8 +4,15 @@ Each subcommand is one module of this package defining ``NAME``, ``HELP``,
 ``add_arguments(parser)`` and ``run(args) -> int``; they are found by listing the
 package, so adding a command means adding one file.
 
-Exit codes: 0 success, 2 invalid input (case, option, file), 3 numerical failure
-(a partial result is kept), 130 interrupted.
+Exit codes: 0 success (the result is written), 1 ``cable rerun`` found a difference,
+2 invalid input (case, option, file; nothing is run or replaced), 3 numerical failure
+(a partial result is kept), 4 the result could not be written (disk full, file system
+error; the message says what was kept), 5 a sweep is incomplete because the cluster
+failed (the points computed are stored; run it again to finish), 130 interrupted (a
+partial result is kept).
+
+A reader that goes away (``cable sweep ... | head``) does not stop the work: printing
+stops, and the command computes and writes its result as it would otherwise.
 """
 
 from __future__ import annotations
@@ -20,6 +27,7 @@ from pathlib import Path
 CAUTION = "Research tool for modelling studies; not for clinical or diagnostic decisions."
 
 EXIT_OK, EXIT_INPUT, EXIT_NUMERICAL, EXIT_INTERRUPTED = 0, 2, 3, 130
+EXIT_OUTPUT, EXIT_CLUSTER = 4, 5
 
 
 def _commands():
@@ -60,8 +68,64 @@ def _terminate(signum, frame):
     raise KeyboardInterrupt
 
 
+class _Unbroken:
+    """A text stream that stops printing, silently, once its reader has gone (a closed pipe).
+
+    Python ignores SIGPIPE, so writing to a closed pipe raises BrokenPipeError wherever
+    a print happens, which would abandon the work; here the stream's descriptor is
+    pointed at /dev/null instead (so that the interpreter's last flush is quiet too).
+    """
+
+    def __init__(self, stream):
+        self._stream = stream
+        self.broken = False
+
+    def write(self, text):
+        if not self.broken:
+            try:
+                self._stream.write(text)
+                self._stream.flush()
+            except BrokenPipeError:
+                self._gone()
+        return len(text)
+
+    def flush(self):
+        if not self.broken:
+            try:
+                self._stream.flush()
+            except BrokenPipeError:
+                self._gone()
+
+    def _gone(self):
+        import os
+
+        self.broken = True
+        try:
+            null = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(null, self._stream.fileno())
+            os.close(null)
+        except (OSError, ValueError, AttributeError):  # no descriptor (a test's capture): nothing to quiet
+            pass
+
+    def isatty(self):
+        return not self.broken and self._stream.isatty()
+
+    def __getattr__(self, name):
+        return getattr(self._stream, name)
+
+
 def main(argv=None) -> int:
+    out, err = sys.stdout, sys.stderr
+    sys.stdout, sys.stderr = _Unbroken(out), _Unbroken(err)
+    try:
+        return _main(argv)
+    finally:
+        sys.stdout, sys.stderr = out, err
+
+
+def _main(argv) -> int:
     from cable.case import CaseError
+    from cable.io import OutputError
     from cable.simulate import SimulationError
 
     parser = build_parser()
@@ -81,16 +145,27 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print("cable: interrupted", file=sys.stderr)
         return EXIT_INTERRUPTED
-    except BrokenPipeError:
-        return EXIT_OK
+    except OutputError as exc:
+        print(f"cable: error: {exc}", file=sys.stderr)
+        return EXIT_OUTPUT
     except MemoryError:
         print("cable: error: out of memory; store less (a larger output.every, fewer output.states, an output "
               "file to stream to) or run a smaller case.", file=sys.stderr)
+        return EXIT_INPUT
+    except RecursionError:
+        print("cable: error: the input is nested too deeply to read.", file=sys.stderr)
         return EXIT_INPUT
     except OSError as exc:  # a file system refusing (disk full, permissions): the user's to fix, no traceback
         print(f"cable: error: {exc.strerror or exc}" + (f": '{exc.filename}'" if exc.filename else "") + ".",
               file=sys.stderr)
         return EXIT_INPUT
+    except Exception as exc:
+        from cable.sweep.run import ClusterError
+
+        if not isinstance(exc, ClusterError):
+            raise
+        print(f"cable: error: {exc}", file=sys.stderr)
+        return EXIT_CLUSTER
     finally:
         signal.signal(signal.SIGTERM, previous)
 

@@ -2,6 +2,7 @@
 
 import shlex
 import sys
+from pathlib import Path
 
 from cable.cli import add_set_option
 
@@ -82,9 +83,9 @@ def prepare(args):
     from cable import load_case
     from cable.io.netcdf import check_target
 
-    case = load_case(args.case, args.overrides)
+    case = load_case(Path(args.case), args.overrides)
     if args.output:
-        check_target(args.output, args.overwrite)
+        check_target(args.output, args.overwrite, inputs=(args.case,))
     check_figure(args)
     return case
 

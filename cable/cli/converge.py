@@ -33,8 +33,11 @@ def report(args, ds) -> str:
     return summary(ds)
 
 
-def preflight(case, levels, ratio, beat) -> None:
+def preflight(case, levels, ratio, beat, option: str | None = None) -> None:
     """Check --levels and --beat, and that the finest grid fits, before any level runs.
+
+    ``option`` names the option to cite (``--certify`` for ``cable run``, which has no
+    ``--levels``); default ``--levels N``.
 
     Raises
     ------
@@ -60,6 +63,9 @@ def preflight(case, levels, ratio, beat) -> None:
                                           "output.every": case.output_every / shrink ** k})
             check_case_size(finest)
         except CaseError as exc:
+            if option is not None:
+                raise CaseError(f"{option}: its finest grid (dx / {2 ** k:g}, dt / {shrink ** k:g}) cannot run: {exc} "
+                                f"Run without {option}, or certify a coarser case with `cable converge`.") from None
             raise CaseError(f"--levels {levels}: the finest level (dx / {2 ** k:g}, dt / {shrink ** k:g}) cannot run: "
                             f"{exc} Give fewer levels (3 is enough for an observed order).") from None
 

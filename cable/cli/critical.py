@@ -59,7 +59,9 @@ def run(args):
     from cable import load_case
     from cable.protocols.critical import NoBracketError, find_critical
 
-    case = load_case(args.case, args.overrides)
+    from pathlib import Path
+
+    case = load_case(Path(args.case), args.overrides)
     low, high = sorted(args.between)
     try:
         ds = find_critical(case, args.vary, low, high, tolerance=args.tolerance, beat=args.beat, log=args.log,

@@ -24,13 +24,19 @@ def run(args):
     from cable import load_case, simulate
     from cable.cli.summary import summarise
 
-    case = load_case(args.case, args.overrides)
+    from pathlib import Path
+
+    from cable.io.netcdf import check_target
+
+    case = load_case(Path(args.case), args.overrides)
+    if args.output:
+        check_target(args.output, args.overwrite, inputs=(args.case,))
     if "sweep" in case.raw:
         say(args, "note: `cable run` runs the case as given and ignores its [sweep]; `cable sweep` runs the points.")
     if args.certify:
         from cable.cli.converge import preflight
 
-        preflight(case, 3, "dt/dx^2", -1)  # the refined grids must fit before the first run starts
+        preflight(case, 3, "dt/dx^2", -1, option="--certify")  # the refined grids must fit before the first run starts
     command = "cable " + " ".join(shlex.quote(a) for a in sys.argv[1:])
     ds = simulate(case, output=args.output, overwrite=args.overwrite, command=command,
                   info=lambda m: say(args, m))

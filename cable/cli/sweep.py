@@ -1,5 +1,7 @@
 """``cable sweep CASE -o OUT.nc``: run every point of a case's ``[sweep]`` on Dask."""
 
+import logging
+
 import numpy as np
 
 from cable.cli import add_set_option, say
@@ -28,7 +30,8 @@ def add_arguments(p):
     p.add_argument("--batch", type=int, metavar="N",
                    help="most points per task (default 16): points that share a time loop run as the strands of "
                         "one kernel call, with the same results bit for bit; 1 runs each point alone")
-    p.add_argument("--overwrite", action="store_true", help="discard an existing result of a different sweep")
+    p.add_argument("--overwrite", action="store_true", help="discard an existing result and points of a different sweep (the finished points of this same "
+                        "sweep are always kept and reused)")
     add_set_option(p)
     p.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors (no progress bar)")
 
@@ -39,18 +42,27 @@ def run(args):
     from cable.sweep.run import sweep
 
     _check_workers(args)
-    case = load_case(args.case, args.overrides)
+    # a lost scheduler makes the Dask client log each reconnection attempt with a traceback;
+    # what failed is said once, by the ClusterError (exit 5)
+    import distributed  # noqa: F401 -- configures its loggers, each with its own level
+
+    for name in [n for n in logging.root.manager.loggerDict if n == "distributed" or n.startswith("distributed.")]:
+        logging.getLogger(name).setLevel(logging.CRITICAL)
+    from pathlib import Path
+
+    case = load_case(Path(args.case), args.overrides)
     if args.vary:
         raw = case.raw
         table = dict(raw.get("sweep", {}))
         for text in args.vary:
-            key, value = parse_assignment(text)
+            key, value = parse_assignment(text, option="--vary")
             _drop_nested(table, key)
             table[key] = value
         raw = dict(raw, sweep=table)
         case = load_case(raw)
     ds = sweep(case, output=args.output, workers=args.workers, scheduler=args.scheduler,
-               progress=not args.quiet, overwrite=args.overwrite, batch=args.batch, info=lambda m: say(args, m))
+               progress=not args.quiet, overwrite=args.overwrite, batch=args.batch, info=lambda m: say(args, m),
+               case_path=args.case)
     if not args.quiet:
         print(summarise(ds))
     return 0

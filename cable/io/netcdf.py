@@ -32,7 +32,7 @@ import numpy as np
 import xarray as xr
 
 from cable.case import CaseError
-from cable.io import schema
+from cable.io import OutputError, schema
 
 #: elements per chunk (256 KiB of float32): big enough for zlib to work well, small
 #: enough that one trace or one profile does not decompress much more than it needs
@@ -45,8 +45,13 @@ BUFFER_BYTES = 8 * 2 ** 20
 #: nothing needs to stay cached, since the writer sends whole rows of chunks
 WRITE_CACHE_BYTES = 0
 WRITE_CACHE_SLOTS = 1
-#: the variables a rerun compares with the original, ``activation_time`` first
+#: the variables a rerun reports first (it compares every variable either file holds)
 COMPARED = ("activation_time", "conduction_velocity", "captured", "blocked", "block_x", "vm")
+#: global attributes that change from run to run of one case (time, machine, command
+#: line, library versions: the versions are reported apart), not compared by a rerun
+VOLATILE_ATTRS = ("history", "date_created", "command", "wall_time_s", "cable_version", "numpy_version",
+                  "numba_version", "netcdf4_python_version", "netcdf_library_version", "hdf5_version",
+                  "xarray_version", "python_version", "dask_version")
 
 
 def chunk_shape(n_t: int, n_x: int | None) -> tuple[int, ...]:
@@ -75,18 +80,109 @@ def chunk_shape(n_t: int, n_x: int | None) -> tuple[int, ...]:
     return (c_t, c_x)
 
 
-def check_target(path, overwrite: bool) -> None:
-    """Refuse to overwrite an existing result without ``overwrite``; check the folder."""
+def check_target(path, overwrite: bool, inputs=()) -> None:
+    """Refuse an output that would lose something; check its folder.
+
+    Refused: an existing file without ``overwrite``; a target that is not a regular
+    file (a folder, a FIFO, a device such as /dev/null), even with ``overwrite``; a
+    target that is one of ``inputs`` (the case file). Temporaries of this output left
+    by runs that died (``.NAME.PID.tmp`` whose process is gone) are removed.
+    """
     path = Path(path)
     if path.is_dir():
         raise CaseError(f"output '{path}' is a folder; give a file name such as '{path / 'result.nc'}'.")
+    for source in inputs:
+        if source is not None and path.exists() and Path(source).exists() and os.path.samefile(path, source):
+            raise CaseError(f"output '{path}' is the input file '{source}'; writing the result there would destroy "
+                            f"the input. Give another output name, e.g. '{path.with_suffix('.nc')}'"
+                            f"{'' if path.suffix != '.nc' else ' in another folder'}.")
+    _check_regular(path)
     if path.exists() and not overwrite:
         raise CaseError(f"output '{path}' exists; pass --overwrite (overwrite=True) to replace it.")
     folder = path.parent if str(path.parent) else Path(".")
     if not folder.is_dir():
+        above = next((p for p in folder.parents if p.exists()), None) if not folder.exists() else folder
+        if above is not None and not above.is_dir():
+            raise CaseError(f"output folder '{folder}': '{above}' is a file, not a folder.")
         raise CaseError(f"output folder '{folder}' does not exist.")
     if not os.access(folder, os.W_OK):
         raise CaseError(f"output folder '{folder}' is not writable.")
+    remove_stale_temporaries(path)
+
+
+def _check_regular(path: Path) -> None:
+    """Refuse to replace something that is not a regular file (FIFO, device, socket)."""
+    if (path.exists() or path.is_symlink()) and not path.is_file():
+        raise CaseError(f"output '{path}' exists and is not a regular file (a FIFO, a device or a socket); "
+                        f"cable writes results only to regular files. Give a file name.")
+
+
+def temporary_name(path) -> Path:
+    """The name a result is built under before :func:`publish`: ``.NAME.PID.tmp`` beside it."""
+    path = Path(path)
+    return path.with_name(f".{path.name}.{os.getpid()}.tmp")
+
+
+def remove_stale_temporaries(path) -> list[Path]:
+    """Remove ``.NAME.PID.tmp`` files of ``path`` whose process no longer runs (killed with SIGKILL)."""
+    path = Path(path)
+    folder = path.parent if str(path.parent) else Path(".")
+    removed = []
+    for tmp in folder.glob(f".{glob_escape(path.name)}.*.tmp"):
+        pid = tmp.name[len(path.name) + 2:-len(".tmp")]
+        if not pid.isdigit() or int(pid) == os.getpid() or _alive(int(pid)):
+            continue
+        tmp.unlink(missing_ok=True)
+        removed.append(tmp)
+    return removed
+
+
+def glob_escape(name: str) -> str:
+    import glob
+
+    return glob.escape(name)
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # someone else's process: alive
+        return True
+    return True
+
+
+def publish(tmp, path, overwrite: bool) -> None:
+    """Give the finished temporary file ``tmp`` its name ``path``, atomically.
+
+    Without ``overwrite`` the name is taken exclusively (a hard link, which fails if
+    the name exists), so of two runs to one output that both passed
+    :func:`check_target`, the second is refused here rather than silently replacing
+    the first's result. ``tmp`` is removed in every case.
+    """
+    tmp, path = Path(tmp), Path(path)
+    try:
+        if overwrite:
+            _check_regular(path)
+            os.replace(tmp, path)
+            return
+        try:
+            os.link(tmp, path)
+        except FileExistsError:
+            raise CaseError(f"output '{path}' was created by another run while this one ran; it is left as that "
+                            f"run wrote it and this run's result is not kept. Pass --overwrite (overwrite=True) "
+                            f"to replace it, or choose another output.") from None
+        except OSError:  # a file system without hard links: create the name exclusively, then fill it
+            try:
+                fd = os.open(path, os.O_CREAT | os.O_EXCL | os.O_WRONLY)
+            except FileExistsError:
+                raise CaseError(f"output '{path}' was created by another run while this one ran; this run's "
+                                f"result is not kept. Pass --overwrite to replace it.") from None
+            os.close(fd)
+            os.replace(tmp, path)
+    finally:
+        tmp.unlink(missing_ok=True)
 
 
 # ----------------------------------------------------------------------------- attributes
@@ -131,16 +227,21 @@ def variable_attrs(attrs: dict, dtype) -> dict:
 class StreamWriter:
     """Write a run's fields as they are computed, then its measurements."""
 
-    def __init__(self, path, setup, field_names, model, attrs):
+    def __init__(self, path, setup, field_names, model, attrs, overwrite: bool = False):
         from cable.simulate import _field_attrs
 
         self.path = Path(path)
-        self.tmp = self.path.with_name(f".{self.path.name}.{os.getpid()}.tmp")
+        self.overwrite = overwrite
+        self.tmp = temporary_name(self.path)
         self.setup = setup
         self.names = list(field_names)
         self.single = setup.x is None
         self.chunks = chunk_shape(setup.n_samples, None if self.single else setup.n)
-        nc = netCDF4.Dataset(self.tmp, "w", format="NETCDF4")
+        try:
+            nc = netCDF4.Dataset(self.tmp, "w", format="NETCDF4")
+        except OSError as exc:
+            self.tmp.unlink(missing_ok=True)
+            raise _write_failure(self.path, exc) from None
         self.nc = nc
         # whatever stops the run before finish() or abort() (an interrupt or an error
         # outside the caller's handlers), the temporary file goes when this writer does,
@@ -170,6 +271,9 @@ class StreamWriter:
                 # leaving define mode (sync), where the HDF5 dataset's cache is created.
                 nc.variables[name].set_var_chunk_cache(size=WRITE_CACHE_BYTES, nelems=WRITE_CACHE_SLOTS,
                                                        preemption=1.0)
+        except Exception as exc:
+            self.abort()
+            raise _write_failure(self.path, exc) from None
         except BaseException:
             self.abort()
             raise
@@ -198,10 +302,14 @@ class StreamWriter:
         if self.buffered == 0:
             return
         sl = slice(self.start, self.start + self.buffered)
-        self.nc.variables["t"][sl] = self._times(sl.start, sl.stop)
-        for name in self.names:
-            block = self.buffer[name][: self.buffered]
-            self.nc.variables[name][sl] = block[:, 0] if self.single else block
+        try:
+            self.nc.variables["t"][sl] = self._times(sl.start, sl.stop)
+            for name in self.names:
+                block = self.buffer[name][: self.buffered]
+                self.nc.variables[name][sl] = block[:, 0] if self.single else block
+        except Exception as exc:  # the library's error (RuntimeError: NetCDF: HDF error) for a full disk
+            self.abort()
+            raise _write_failure(self.path, exc) from None
         self.start += self.buffered
         self.buffered = 0
 
@@ -241,11 +349,18 @@ class StreamWriter:
                 var[:] = arr
             nc.setncatts(_global_attrs(attrs))
             nc.close()
+        except OutputError:
+            raise
+        except Exception as exc:
+            self.abort()
+            raise _write_failure(self.path, exc) from None
         except BaseException:
             self.abort()
             raise
-        os.replace(self.tmp, self.path)
-        self._discard.detach()  # the name may be reused by a later run in this process
+        try:
+            publish(self.tmp, self.path, self.overwrite)
+        finally:
+            self._discard.detach()  # the name may be reused by a later run in this process
         return open_result(self.path)
 
     def abort(self):
@@ -255,8 +370,27 @@ class StreamWriter:
         try:
             if self.nc.isopen():
                 self.nc.close()
+        except Exception:  # noqa: BLE001 -- closing a file whose writes failed (a full disk) fails too
+            pass
         finally:
             self.tmp.unlink(missing_ok=True)
+
+
+def _write_failure(path: Path, exc: Exception) -> OutputError:
+    """The error for a writer that failed: what happened, and that nothing was kept."""
+    import shutil
+
+    from cable.units import format_bytes
+
+    folder = path.parent if str(path.parent) else Path(".")
+    try:
+        free = f"; {format_bytes(shutil.disk_usage(folder).free)} is free there now"
+    except OSError:
+        free = ""
+    err = OutputError(f"writing '{path}' failed ({exc.__class__.__name__}: {exc}); the disk may be full or the "
+                      f"file system failing{free}. The unfinished temporary file was removed, so no result file "
+                      f"was kept; free space (or choose another output) and run again.")
+    return err
 
 
 def _discard(tmp: Path, nc) -> None:
@@ -277,7 +411,7 @@ def write_dataset(ds: xr.Dataset, path, overwrite: bool = False) -> None:
     """
     check_target(path, overwrite)
     path = Path(path)
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    tmp = temporary_name(path)
     encoding = {}
     out = ds.copy()
     for name, var in ds.data_vars.items():
@@ -295,11 +429,13 @@ def write_dataset(ds: xr.Dataset, path, overwrite: bool = False) -> None:
         out[name].attrs = variable_attrs(coord.attrs, coord.dtype)
     out.attrs = _global_attrs(ds.attrs)
     try:
-        out.to_netcdf(tmp, engine="netcdf4", encoding=encoding)
-        os.replace(tmp, path)
+        try:
+            out.to_netcdf(tmp, engine="netcdf4", encoding=encoding)
+        except (OSError, RuntimeError) as exc:
+            raise _write_failure(path, exc) from None
+        publish(tmp, path, overwrite)
     finally:
-        if tmp.exists():
-            tmp.unlink()
+        tmp.unlink(missing_ok=True)
 
 
 # ----------------------------------------------------------------------------- reading
@@ -361,21 +497,29 @@ class RerunReport:
     result : xarray.Dataset
         The new result (partial if the run failed again where the original did).
     compared : dict
-        ``{name: (identical, largest absolute difference)}`` for each variable of
-        :data:`COMPARED` present in both; ``identical`` counts NaN = NaN.
+        ``{name: (identical, largest absolute difference)}`` for every variable and
+        coordinate either file holds (:data:`COMPARED` first); ``identical`` counts
+        NaN = NaN; a variable only one holds is ``(False, inf)`` and listed in ``missing``.
     versions : dict
         ``{attribute: (recorded, now)}`` for versions that differ from the original's.
+    attributes : dict
+        ``{attribute: (original, rerun)}`` for global attributes the run determines
+        (all but :data:`VOLATILE_ATTRS`) that differ; None for one a file lacks.
+    missing : dict
+        ``{variable: "original" or "rerun"}``: the file that lacks it.
     """
 
     source: Path
     result: xr.Dataset
     compared: dict = field(default_factory=dict)
     versions: dict = field(default_factory=dict)
+    attributes: dict = field(default_factory=dict)
+    missing: dict = field(default_factory=dict)
 
     @property
     def identical(self) -> bool:
-        """Whether ``activation_time`` (and every other compared variable) is bit-for-bit the same."""
-        return bool(self.compared) and all(same for same, _ in self.compared.values())
+        """Whether every variable, coordinate and determined attribute is bit-for-bit the same."""
+        return bool(self.compared) and all(same for same, _ in self.compared.values()) and not self.attributes
 
 
 def _difference(a: np.ndarray, b: np.ndarray) -> tuple[bool, float]:
@@ -393,17 +537,26 @@ def _difference(a: np.ndarray, b: np.ndarray) -> tuple[bool, float]:
     return bool(np.array_equal(a[ok], b[ok])), diff
 
 
-def compare(original: xr.Dataset, new: xr.Dataset, names=COMPARED) -> dict:
-    """``{name: (identical, largest absolute difference)}`` over the variables both hold.
+def compare(original: xr.Dataset, new: xr.Dataset, names=None) -> dict:
+    """``{name: (identical, largest absolute difference)}``.
 
-    Fields with a ``t`` dimension are compared as float32 (as stored) in blocks of
-    samples, so a long result is not loaded whole.
+    ``names`` None: every variable and coordinate either holds (:data:`COMPARED` first);
+    one that only one of them holds is a difference, ``(False, inf)``. Fields with a
+    ``t`` dimension are compared as float32 (as stored) in blocks of samples, so a long
+    result is not loaded whole.
     """
+    if names is None:
+        every = list(dict.fromkeys([*original.variables, *new.variables]))
+        names = [n for n in COMPARED if n in every] + [n for n in every if n not in COMPARED]
     out = {}
     for name in names:
         if name not in original.variables or name not in new.variables:
+            out[name] = (False, math.inf)
             continue
         a, b = original[name], new[name]
+        if a.dtype.kind in "OSU" or b.dtype.kind in "OSU":
+            out[name] = (bool(np.array_equal(a.values.astype(str), b.values.astype(str))), math.nan)
+            continue
         if "t" in a.dims:
             if a.dims != b.dims or any(a.sizes[d] != b.sizes[d] for d in a.dims if d != "t"):
                 out[name] = (False, math.inf)
@@ -461,6 +614,12 @@ def rerun(path, output=None, *, overwrite: bool = False, command: str | None = N
     from cable.case import load_case
     from cable.simulate import SimulationError, simulate
 
+    from cable.arguments import check_call
+
+    if not isinstance(path, (str, os.PathLike)):
+        raise CaseError(f"rerun(path={path!r}): path must be a result file (str or pathlib.Path), not "
+                        f"{type(path).__name__}.")
+    check_call("rerun", output=output, overwrite=overwrite, command=command, info=info)
     path = Path(path)
     if output is not None and Path(output).resolve() == path.resolve():
         raise CaseError(f"rerun output '{output}' is the original file; give another name, e.g. "
@@ -476,7 +635,7 @@ def rerun(path, output=None, *, overwrite: bool = False, command: str | None = N
             raise CaseError(f"'{path}' has no 'case' attribute, so the run cannot be repeated from it; "
                             "only files written by `cable run` or cable.simulate(output=...) can.")
         try:
-            case = load_case(str(text))
+            case = load_case(text=str(text))
         except CaseError as exc:
             raise CaseError(f"the case stored in '{path}' no longer loads: {exc}") from None
         import numba
@@ -492,7 +651,36 @@ def rerun(path, output=None, *, overwrite: bool = False, command: str | None = N
                 raise
             new = exc.partial
         compared = compare(original, new)
-    return RerunReport(source=path, result=new, compared=compared, versions=versions)
+        missing = {n: ("original" if n not in original.variables else "rerun")
+                   for n in compared if n not in original.variables or n not in new.variables}
+        attributes = compare_attrs(original.attrs, new.attrs)
+    return RerunReport(source=path, result=new, compared=compared, versions=versions, attributes=attributes,
+                       missing=missing)
+
+
+def compare_attrs(original: dict, new: dict) -> dict:
+    """``{name: (original, new)}`` for the global attributes that differ, as they would be stored.
+
+    Compared: every attribute but :data:`VOLATILE_ATTRS`; values are compared in their
+    stored form (:func:`_encode_attr`), so an in-memory result (bools, tuples) compares
+    equal to the file it would make.
+    """
+    out = {}
+    for name in dict.fromkeys([*original, *new]):
+        if name in VOLATILE_ATTRS:
+            continue
+        a, b = original.get(name), new.get(name)
+        ea = None if a is None else np.asarray(_encode_attr(a))
+        eb = None if b is None else np.asarray(_encode_attr(b))
+        if ea is None or eb is None:
+            same = ea is None and eb is None
+        elif ea.dtype.kind in "OSU" or eb.dtype.kind in "OSU":
+            same = ea.shape == eb.shape and bool(np.all(ea.astype(str) == eb.astype(str)))
+        else:
+            same = ea.shape == eb.shape and bool(np.array_equal(ea.astype(np.float64), eb.astype(np.float64)))
+        if not same:
+            out[name] = (a, b)
+    return out
 
 
 def _not_a_run(ds: xr.Dataset) -> str:

@@ -98,7 +98,7 @@ def ionic_current(ds, name: str, node: float | None):
     if not text:
         raise CaseError(f"current {name!r}: the result has no 'case' attribute, so the model and its parameters "
                         "are unknown; draw currents from files written by cable.")
-    case = load_case(str(text))
+    case = load_case(text=str(text))
     model = get_model(case.membrane.model)
     if model.currents is None or name not in model.current_names:
         have = ", ".join(model.current_names) or "(none)"

@@ -152,7 +152,8 @@ class _Journal:
                         with np.load(f) as z:
                             self.done[float(z["value"])] = {k: (z[k] if z[k].ndim else z[k].item())
                                                             for k in z.files if k != "value"}
-                    except (OSError, ValueError, KeyError):  # a run cut off while written: redo it
+                    except Exception:  # noqa: BLE001 -- a damaged entry (cut off: BadZipFile, EOFError,
+                        # zlib.error, OSError...) is redone, whatever the zip reader raises for it
                         f.unlink(missing_ok=True)
             else:
                 self.remove()
@@ -165,7 +166,8 @@ class _Journal:
     def put(self, value, outcome: dict) -> None:
         import os
 
-        name = self.folder / f"run-{len(self.done):04d}.npz"
+        taken = [int(f.stem.split("-")[1]) for f in self.folder.glob("run-*.npz") if f.stem.split("-")[1].isdigit()]
+        name = self.folder / f"run-{max(taken, default=-1) + 1:04d}.npz"  # after every entry kept (none replaced)
         tmp = self.folder / f".{name.name}.{os.getpid()}.tmp.npz"
         np.savez(tmp, value=float(value), **outcome)
         os.replace(tmp, name)

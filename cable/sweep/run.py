@@ -52,6 +52,31 @@ from cable.sweep import store as _store
 from cable.sweep.progress import ProgressBar
 from cable.sweep.spec import point_raw
 
+class ClusterError(RuntimeError):
+    """Points not computed because the cluster failed (lost connection, cancelled task,
+    worker killed after its retries). They are not stored, so a run with the same output
+    computes them; the CLI exits with status 5.
+
+    Attributes
+    ----------
+    missing : list of int
+        Indices of the points not computed.
+    """
+
+    def __init__(self, message: str, missing=()):
+        super().__init__(message)
+        self.missing = list(missing)
+
+
+#: disk taken by one point file of scalars [bytes]: classic netCDF, about 5 kB (see
+#: :meth:`cable.sweep.store.PointStore.write`), with room for many beats and levels
+POINT_FILE_BYTES = 16 * 2 ** 10
+#: client memory per point while a sweep runs and is assembled [bytes]: the point's
+#: loaded Dataset and its raw case (an estimate with a margin; see DEVELOPERS.md)
+POINT_MEMORY_BYTES = 64 * 2 ** 10
+#: seconds between notes while the client prepares (loads and sorts) the points
+PREPARE_NOTE_S = 2.0
+
 #: how long to wait for a scheduler given by address [s]
 CONNECT_TIMEOUT_S = 10
 
@@ -281,7 +306,8 @@ def sweep_id(case) -> str:
 
 
 def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progress=True, overrides=(),
-          overwrite: bool = False, limit: int | None = None, batch: int | None = None, info=None) -> xr.Dataset:
+          overwrite: bool = False, limit: int | None = None, batch: int | None = None, info=None,
+          case_path=None) -> xr.Dataset:
     """Run every point of a case's ``[sweep]`` on Dask and gather the results.
 
     Parameters
@@ -307,7 +333,8 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     overrides : iterable of str or dict
         ``KEY=VALUE`` overrides of the case (as ``--set``), applied before sweeping.
     overwrite : bool
-        Discard an existing result and points of a different sweep at ``output``.
+        Discard an existing result and points of a different sweep at ``output``. The
+        points of this same sweep are kept and reused either way.
     limit : int, optional
         Compute at most this many of the missing points in this call (the others are
         ``not_computed``; a later call with the same output continues).
@@ -318,6 +345,9 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
         1: one :func:`cable.simulate` per point.
     info : callable, optional
         Receives one-line notes (cluster, resumed points, files written).
+    case_path : str or pathlib.Path, optional
+        The file the case was read from, when ``case`` is already loaded: ``output``
+        may not be it.
 
     Returns
     -------
@@ -333,8 +363,18 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     CaseError
         No ``[sweep]`` section, an invalid swept key or value, an unreachable
         scheduler, or an output holding another sweep.
+    ClusterError
+        Some points were not computed because the cluster failed; the others are stored
+        (with ``output``), and a run with the same output computes the rest.
     """
+    from cable.arguments import check_call
+
+    check_call("sweep", output=output, overwrite=overwrite, info=info)
+    if not (isinstance(progress, bool) or callable(progress)):
+        raise CaseError(f"sweep(progress={progress!r}): progress must be True, False or a callable "
+                        f"progress(done, failed, total).")
     say = info or (lambda msg: None)
+    source = case
     case = load_case(case, overrides)
     spec = case.extra.get("sweep")
     if spec is None:
@@ -354,7 +394,12 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     ident = sweep_id(case)
     store = None
     points: list = [None] * n
+    check_sweep_size(case, n, 0, None, keep_fields)  # memory, before anything is created or loaded
     if output is not None:
+        from cable.io.netcdf import check_target
+
+        source = case_path if case_path is not None else (source if isinstance(source, (str, os.PathLike)) else None)
+        check_target(output, True, inputs=(source,))  # a folder, FIFO or the case file itself is refused
         store = _store.PointStore(output, ident, n, overwrite=overwrite)
         _store.remove(_store.stale_temporaries(store))
         done = store.done()
@@ -365,6 +410,7 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     todo = [k for k in range(n) if k not in done]
     if limit is not None:
         todo = todo[:limit]
+    check_sweep_size(case, n, len(todo), output, keep_fields)
     for k in done:
         points[k] = store.read(k)
     failed_before = sum(_store.status_of(points[k]) != _store.STATUS["ok"] for k in done)
@@ -391,6 +437,50 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     return result
 
 
+def check_sweep_size(case, n: int, n_todo: int, output, keep_fields: bool) -> None:
+    """Refuse a sweep whose points cannot fit: the client's memory, the point files' disk.
+
+    Parameters
+    ----------
+    case : cable.case.Case
+        The sweep's case (its base point sizes the fields with ``keep_fields``).
+    n, n_todo : int
+        Points of the sweep, and those still to compute.
+    output : str or pathlib.Path or None
+        The sweep's output (its folder holds the point files).
+    keep_fields : bool
+        Each point file also holds its fields.
+    """
+    import shutil
+
+    from cable.units import format_bytes
+
+    try:
+        avail = os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
+    except (ValueError, OSError, AttributeError):
+        avail = None
+    need = n * POINT_MEMORY_BYTES
+    if avail is not None and need > 0.8 * avail:
+        raise CaseError(f"the sweep has {n} points; the client holds each while the sweep runs and is assembled, "
+                        f"about {format_bytes(need)}, but {format_bytes(avail)} of memory is free. Sweep fewer "
+                        f"values (at most about {int(0.8 * avail // POINT_MEMORY_BYTES)} points here), or split "
+                        f"the sweep into several.")
+    if output is None or not n_todo:
+        return
+    per_point = POINT_FILE_BYTES
+    if keep_fields and case.fiber is not None:
+        dt = case.numerics.dt
+        spb = max(1, int(round(case.output_every / dt)))
+        samples = int(np.ceil(case.duration / (spb * dt) - 1e-9)) + 1
+        per_point += samples * case.fiber.n_nodes * (1 + len(case.output_states)) * 4
+    folder = os.path.dirname(os.path.abspath(output))
+    free = shutil.disk_usage(folder).free
+    if n_todo * per_point > free:
+        raise CaseError(f"the {n_todo} points to compute need up to {format_bytes(n_todo * per_point)} of point "
+                        f"files (about {format_bytes(per_point)} each) but {format_bytes(free)} is free on disk at "
+                        f"'{folder}'; sweep fewer values, free space or choose another output folder.")
+
+
 def _compute(spec, raw, todo, points, store, keep_fields, client, scheduler, workers, progress, n_done, n_failed,
              n, say, batch) -> None:
     from distributed import as_completed
@@ -415,7 +505,13 @@ def _compute(spec, raw, todo, points, store, keep_fields, client, scheduler, wor
             report(done, failed, n)
 
     raws, keys, invalid = {}, [], []
-    for k in todo:  # on the client: the loop each point would use, to chunk points that share one
+    noted = time.perf_counter()
+    if len(todo) > 1000:
+        say(f"preparing {len(todo)} points (loading each case to group the points that share a time loop)...")
+    for j, k in enumerate(todo):  # on the client: the loop each point would use, to chunk points that share one
+        if time.perf_counter() - noted > PREPARE_NOTE_S:
+            say(f"preparing points: {j} of {len(todo)}")
+            noted = time.perf_counter()
         raws[k] = point_raw(raw, spec.overrides(k))
         try:
             keys.append((k, chunk_key(load_case(raws[k]))))
@@ -435,16 +531,20 @@ def _compute(spec, raw, todo, points, store, keep_fields, client, scheduler, wor
             fut = cl.submit(run_chunk, [raws[k] for k in part], keep_fields, key=f"cable-chunk-{part[0]}-{tag}",
                             pure=False)
             futures[fut.key] = (part, fut)
+        lost, why = [], ""
         try:
             for fut in as_completed([f for _, f in futures.values()]):
                 part = futures[fut.key][0]
                 try:
                     results = fut.result()
-                except Exception as exc:  # a worker died or a bug: record it, go on with the others
-                    data = _store.failed_dataset("error", f"{exc.__class__.__name__}: {exc}")
-                    results = [(data, {"worker": "", "first_on_worker": False, "batch_size": 0,
-                                       "chunk_size": len(part), "chunk_wall_time_s": float("nan"),
-                                       "wall_time_s": float("nan")})] * len(part)
+                except Exception as exc:  # noqa: BLE001
+                    # run_chunk returns every failure of a point's own computation as a
+                    # failed point; an exception here is the cluster's (lost connection,
+                    # cancelled future, worker killed after retries): not a result, so the
+                    # points are not stored and a resume computes them
+                    lost += part
+                    why = why or f"{exc.__class__.__name__}: {exc}"
+                    continue
                 fut.release()
                 for k, (data, meta) in zip(part, results):
                     keep(k, data, dict(meta, chunk=part[0]))
@@ -454,6 +554,11 @@ def _compute(spec, raw, todo, points, store, keep_fields, client, scheduler, wor
         finally:
             if bar is not None:
                 bar.close()
+    if lost:
+        where = " (the others are stored; run the sweep again with the same output to compute these)" \
+            if store is not None else ""
+        raise ClusterError(f"{len(lost)} of {n} points were not computed because the cluster failed ({why}); they "
+                           f"are not stored as results{where}.", sorted(lost))
 
 
 def result_attrs(case, spec, ident: str) -> dict:

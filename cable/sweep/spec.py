@@ -206,8 +206,8 @@ def _magnitude(where: str, value, unit):
         raise CaseError(f"{where} = {value!r}: must be a number or a string with a unit.")
     if isinstance(value, str):
         try:
-            q = units.registry().Quantity(value.strip())
-        except Exception:  # pint raises several unrelated types for bad text
+            q = units.parse(value)
+        except units.UnitError:
             raise CaseError(f"{where} = {value!r}: cannot be read as a quantity (e.g. \"100 um\").") from None
         if unit is None:
             return float(q.magnitude), str(q.units)

@@ -181,13 +181,14 @@ class PointStore:
         parent = self.output.parent if str(self.output.parent) else Path(".")
         if not parent.is_dir():
             raise CaseError(f"output folder '{parent}' does not exist.")
-        if overwrite:
+        foreign = self._foreign()
+        if foreign and not overwrite:
+            raise CaseError(foreign)
+        if foreign:  # overwrite: only another sweep's files go; this sweep's points are kept and reused
             self._clear()
-        else:
-            self._check_foreign()
         self.folder.mkdir(exist_ok=True)
         marker = self.folder / MARKER
-        if not marker.exists():
+        if not _marker_id(marker):
             stamp = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
             tmp = marker.with_name(f".{MARKER}.{os.getpid()}.tmp")
             tmp.write_text(json.dumps({"sweep_id": sweep_id, "created": stamp, "n_points": n_points}))
@@ -210,18 +211,31 @@ class PointStore:
         if self.output.exists():
             self.output.unlink()
 
-    def _check_foreign(self) -> None:
+    def _foreign(self) -> str:
+        """Why the output or the point folder holds another sweep ("" when they hold this one or nothing).
+
+        A damaged ``sweep.json`` (cut off, not JSON) is not taken for another sweep: the
+        point files record their sweep themselves, and when they are this sweep's the
+        record is written again.
+        """
         if self.output.exists() and _sweep_id_of(self.output) != self.sweep_id:
-            raise CaseError(f"output '{self.output}' exists and is not a result of this sweep; pass --overwrite "
-                            f"(overwrite=True) to replace it, or choose another output.")
+            return (f"output '{self.output}' exists and is not a result of this sweep; pass --overwrite "
+                    f"(overwrite=True) to replace it, or choose another output.")
         marker = self.folder / MARKER
-        try:
-            theirs = json.loads(marker.read_text()).get("sweep_id") if marker.exists() else None
-        except (ValueError, OSError, AttributeError):
-            theirs = None
-        if (marker.exists() or self._files()) and theirs != self.sweep_id:
-            raise CaseError(f"'{self.folder}' holds points of a different sweep (the case or its [sweep] changed); "
-                            f"pass --overwrite (overwrite=True) to discard them, or choose another output.")
+        theirs = _marker_id(marker)
+        files = self._files()
+        if theirs is None and files:  # no record, or a damaged one: ask the point files
+            theirs = _sweep_id_of(files[0])
+            if theirs == self.sweep_id:
+                marker.unlink(missing_ok=True)  # rewritten by __init__
+                return ""
+        if (marker.exists() or files) and theirs != self.sweep_id:
+            if theirs is None and marker.exists() and not files:
+                return (f"'{marker}' is damaged (not a sweep record) and the folder holds no point files; delete "
+                        f"'{marker}' and run again.")
+            return (f"'{self.folder}' holds points of a different sweep (the case or its [sweep] changed); pass "
+                    f"--overwrite (overwrite=True) to discard them, or choose another output.")
+        return ""
 
     def done(self) -> set[int]:
         """Indices of the points stored already."""
@@ -268,11 +282,23 @@ class PointStore:
             tmp.unlink(missing_ok=True)
 
     def read(self, index: int, fields: bool = False) -> xr.Dataset:
-        """One stored point, loaded (without its fields unless asked)."""
-        with xr.open_dataset(self.path(index)) as ds:
-            if not fields:
-                ds = ds.drop_vars([v for v in ds.data_vars if "t" in ds[v].dims])
-            return ds.load()
+        """One stored point, loaded (without its fields unless asked).
+
+        Raises
+        ------
+        CaseError
+            The point file is damaged: the message names it, to be deleted and redone.
+        """
+        path = self.path(index)
+        try:
+            with xr.open_dataset(path) as ds:
+                if not fields:
+                    ds = ds.drop_vars([v for v in ds.data_vars if "t" in ds[v].dims])
+                return ds.load()
+        except Exception as exc:  # netCDF4/HDF5 raise OSError, ValueError, RuntimeError... for a damaged file
+            raise CaseError(f"point file '{path}' is damaged ({exc.__class__.__name__}: {exc}); delete it and run "
+                            f"the sweep again with the same output: that point will be computed again, the others "
+                            f"are kept.") from None
 
 
 def open_points(output, **kwargs) -> xr.Dataset:
@@ -291,6 +317,15 @@ def open_points(output, **kwargs) -> xr.Dataset:
         raise CaseError(f"'{folder}' holds no point files; run the sweep with -o {output} first.")
     opts = dict(combine="by_coords", join="outer", compat="no_conflicts", combine_attrs="drop_conflicts")
     return xr.open_mfdataset(files, **{**opts, **kwargs})
+
+
+def _marker_id(marker: Path) -> str | None:
+    """The sweep id a ``sweep.json`` records; None when missing or damaged."""
+    try:
+        record = json.loads(marker.read_text())
+        return str(record["sweep_id"]) if isinstance(record, dict) and "created" in record else None
+    except (ValueError, OSError, KeyError, TypeError):
+        return None
 
 
 def _sweep_id_of(path: Path) -> str | None:
