@@ -26,7 +26,7 @@ from cable.kernels import diffusion, fused, integrate, tables
 from cable.kernels.jit import specialise
 from cable.kernels.state import CHECK_EVERY, MAX_CROSSINGS, crossing_cap, loop_arrays, scheme_codes  # noqa: F401
 from cable.measure.activation import assign_beats, per_beat
-from cable.measure.apd import ApdTracker
+from cable.measure.apd import ApdProbe
 from cable.measure.velocity import conduction_velocity, default_window, window_nodes
 from cable.membrane import MembraneModel, get_model
 
@@ -355,12 +355,11 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     state_idx = [model.state_names.index(s) for s in state_names]
     field_names = ["vm"] + [schema.STATE_PREFIX + s for s in state_names]
     v = setup.v0.copy()
-    arrays = loop_arrays(model, fast, v, setup.s0, setup.p, setup.pulses.shape[0])
+    arrays = loop_arrays(model, fast, v, setup.s0, setup.p, setup.pulses.shape[0], case.apd_levels)
     act, nact, upstroke = arrays.act, arrays.nact, arrays.upstroke
     grid = setup.grid
     half = diffusion.factor(grid.lo, grid.up, 0.5 * dt, theta)
     full = diffusion.factor(grid.lo, grid.up, dt, theta)
-    tracker = ApdTracker(v, act, case.apd_levels)
 
     attrs = provenance(setup, command)
     attrs["rates"] = rates.mode
@@ -390,7 +389,6 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
                 failure = (status, t0 + (step + 1) * dt, node)
                 break
             t_k = k * spb * dt
-            tracker.update(v, t_k, act, nact)
             if setup.safety is not None: setup.safety.update(v, t_k, nact)  # noqa: E701
             sample(k)
             if progress is not None:
@@ -402,7 +400,8 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     attrs["wall_time_s"] = round(wall, 4)
     with _interrupts_held():  # a second Ctrl-C or SIGTERM waits until the file is complete
         try:
-            meas = measurements(setup, act, nact, upstroke, tracker, t_end=(n_done - 1) * spb * dt)
+            arrays.apd.finish(nact)
+            meas = measurements(setup, act, nact, upstroke, arrays.apd, t_end=(n_done - 1) * spb * dt)
         except BaseException:
             if output is not None:
                 sink.abort()
@@ -473,8 +472,11 @@ def _failure_message(setup: Setup, failure) -> str:
     return f"{what}{where} near t = {t_fail:.4g} ms. Likely cause: " + "; or ".join(causes) + "."
 
 
-def measurements(setup: Setup, act, nact, upstroke, tracker: ApdTracker, t_end=None) -> dict:
+def measurements(setup: Setup, act, nact, upstroke, tracker: ApdProbe, t_end=None) -> dict:
     """Per-beat measurements as ``{name: (dims, array)}`` (with the x dimension).
+
+    ``tracker``: the repolarisation probe of the run (its ``rest``, ``peak`` and
+    ``repol`` arrays, peaks stored by :meth:`cable.measure.apd.ApdProbe.finish`).
 
     ``t_end`` [ms]: the time computed (a partial run counts only the beats begun by then).
     """
