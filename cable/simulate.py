@@ -482,7 +482,7 @@ def measurements(setup: Setup, act, nact, upstroke, tracker: ApdProbe, t_end=Non
     """
     x = setup.x if setup.x is not None else np.zeros(1)
     pulses = setup.pulses if t_end is None else setup.pulses[setup.pulses[:, 0] < t_end]
-    beats = assign_beats(act, nact, x, pulses)
+    beats = assign_beats(act, nact, x, pulses, t_end=t_end)
     out = {
         "beat_onset": (("beat",), beats.onset),
         "activation_time": (("beat", "x"), beats.activation),
@@ -503,10 +503,13 @@ def measurements(setup: Setup, act, nact, upstroke, tracker: ApdProbe, t_end=Non
         levels = list(setup.case.apd_levels)
         if 90.0 in levels:
             apd90 = apd[levels.index(90.0), :, centre]
-            out["wavelength"] = (("beat",), cv / 10.0 * apd90)  # m/s -> cm/ms, times ms
+            out["wavelength_apd"] = (("beat",), cv / 10.0 * apd90)  # m/s -> cm/ms, times ms
         from cable.measure import block
 
         out.update(block.outputs(beats))
+        ups = out["upstroke_velocity"][1]
+        out["slow_response"] = (("beat",), block.slow_response(ups, setup.x, setup.cv_window,
+                                                               out["conducted"][1] == 1).astype(np.int8))
         if setup.safety is not None:
             out["safety_factor"] = (("beat", "x"), setup.safety.per_beat(beats))
     return out
