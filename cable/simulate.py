@@ -187,6 +187,12 @@ def prepare(case) -> Setup:
         v0, s0, note = settle_nodes(case, model, p, v0, s0)
         if note:
             notes.append(note)
+    if x is not None:
+        from cable.settle import settle_strand
+
+        v0, s0, note = settle_strand(case, model, p, grid, v0, s0, prepaced=pre is not None)
+        if note:
+            notes.append(note)
     pulses = stimulus_pulses(case, x, notes)
     spb = max(1, int(round(case.output_every / num.dt)))
     intervals = int(round(case.duration / (spb * num.dt)))
