@@ -13,6 +13,7 @@ import numpy as np
 
 from cable.case import CaseError
 from cable.kernels import diffusion, integrate
+from cable.measure.apd import no_probe
 
 
 def _pace_cell(advance, model, p_row, v0, s_row, beats, cl, amp, dur, dt, ion_scale):
@@ -35,7 +36,7 @@ def _pace_cell(advance, model, p_row, v0, s_row, beats, cl, amp, dur, dt, ion_sc
         status, step, node = advance(v, s, p, 0.0, steps, dt, pulses, lo, up, 0.5, fac, fac,
                                      integrate.GODUNOV, False, 0, ion_scale, model.threshold,
                                      v.copy(), act, nact, np.zeros(1), np.zeros(1, dtype=np.int64), ups,
-                                     np.zeros(1), np.zeros(1), 200)
+                                     no_probe(n, cap), np.zeros(1), np.zeros(1), 200)
         if status != integrate.OK:
             raise CaseError(f"membrane.prepace: the single cell became unstable in beat {b + 1} "
                             f"(t = {(step + 1) * dt:g} ms); reduce membrane.prepace.dt or check the parameters.")
@@ -106,8 +107,8 @@ def _settle_cell(advance, model, p_row, v0, s0, dt, ion_scale):
         status, _, _ = advance(v, s, prow, 0.0, steps, dt, np.zeros((0, 5)), lo, lo, 0.5, fac, fac,
                                integrate.GODUNOV, False, 0, ion_scale, 1e9, v.copy(),
                                np.full((1, 1), np.nan), np.zeros(1, dtype=np.int64), np.zeros(1),
-                               np.zeros(1, dtype=np.int64), np.full((1, 1), np.nan), np.zeros(1), np.zeros(1),
-                               200)
+                               np.zeros(1, dtype=np.int64), np.full((1, 1), np.nan), no_probe(1, 1), np.zeros(1),
+                               np.zeros(1), 200)
         t += steps * dt
         if status != integrate.OK or not np.all(np.isfinite(s)):
             return None

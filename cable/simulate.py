@@ -27,7 +27,7 @@ from cable.kernels import diffusion, fused, integrate, schemes, tables
 from cable.kernels.jit import specialise
 from cable.kernels.state import CHECK_EVERY, MAX_CROSSINGS, crossing_cap, loop_arrays, scheme_codes  # noqa: F401
 from cable.measure.activation import assign_beats, per_beat
-from cable.measure.apd import ApdTracker
+from cable.measure.apd import ApdProbe
 from cable.measure.velocity import conduction_velocity, default_window, window_nodes
 from cable.membrane import MembraneModel, get_model
 
@@ -196,6 +196,12 @@ def prepare(case) -> Setup:
         from cable.prepace import settle_nodes
 
         v0, s0, note = settle_nodes(case, model, p, v0, s0)
+        if note:
+            notes.append(note)
+    if x is not None:
+        from cable.settle import settle_strand
+
+        v0, s0, note = settle_strand(case, model, p, grid, v0, s0, prepaced=pre is not None)
         if note:
             notes.append(note)
     pulses = stimulus_pulses(case, x, notes)
@@ -406,12 +412,12 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     extra = 0
     if grid_closed(setup):
         from cable.ring import RING_PASSES as extra  # one crossing per revolution at every node
-    arrays = loop_arrays(model, fast, v, setup.s0, setup.p, setup.pulses.shape[0] + extra)
+    arrays = loop_arrays(model, fast, v, setup.s0, setup.p, setup.pulses.shape[0] + extra,
+                          case.apd_levels)
     act, nact, upstroke = arrays.act, arrays.nact, arrays.upstroke
     grid = setup.grid
     half = diffusion.factor(grid.lo, grid.up, 0.5 * dt, theta)
     full = diffusion.factor(grid.lo, grid.up, dt, theta)
-    tracker = ApdTracker(v, act, case.apd_levels)
 
     attrs = provenance(setup, command)
     attrs["rates"] = rates.mode
@@ -455,7 +461,6 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
                 failure = (status, t0 + (step + 1) * dt, node)
                 break
             t_k = k * spb * dt
-            tracker.update(v, t_k, act, nact)
             if setup.safety is not None: setup.safety.update(v, t_k, nact)  # noqa: E701
             sample(k)
             if progress is not None:
@@ -471,7 +476,8 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     attrs["wall_time_s"] = round(wall, 4)
     with _interrupts_held():  # a second Ctrl-C or SIGTERM waits until the file is complete
         try:
-            meas = measurements(setup, act, nact, upstroke, tracker, t_end=(n_done - 1) * spb * dt)
+            arrays.apd.finish(nact)
+            meas = measurements(setup, act, nact, upstroke, arrays.apd, t_end=(n_done - 1) * spb * dt)
             if ecg_w is not None:
                 meas.update(electrodes.outputs(case, setup.t[:n_done], ecg if output is not None else ecg[:, :n_done],
                                                meas["beat_onset"][1], meas["activation_time"][1]))
@@ -545,14 +551,17 @@ def _failure_message(setup: Setup, failure) -> str:
     return f"{what}{where} near t = {t_fail:.4g} ms. Likely cause: " + "; or ".join(causes) + "."
 
 
-def measurements(setup: Setup, act, nact, upstroke, tracker: ApdTracker, t_end=None) -> dict:
+def measurements(setup: Setup, act, nact, upstroke, tracker: ApdProbe, t_end=None) -> dict:
     """Per-beat measurements as ``{name: (dims, array)}`` (with the x dimension).
+
+    ``tracker``: the repolarisation probe of the run (its ``rest``, ``peak`` and
+    ``repol`` arrays, peaks stored by :meth:`cable.measure.apd.ApdProbe.finish`).
 
     ``t_end`` [ms]: the time computed (a partial run counts only the beats begun by then).
     """
     x = setup.x if setup.x is not None else np.zeros(1)
     pulses = setup.pulses if t_end is None else setup.pulses[setup.pulses[:, 0] < t_end]
-    beats = assign_beats(act, nact, x, pulses)
+    beats = assign_beats(act, nact, x, pulses, t_end=t_end)
     out = {
         "beat_onset": (("beat",), beats.onset),
         "activation_time": (("beat", "x"), beats.activation),
@@ -573,10 +582,13 @@ def measurements(setup: Setup, act, nact, upstroke, tracker: ApdTracker, t_end=N
         levels = list(setup.case.apd_levels)
         if 90.0 in levels:
             apd90 = apd[levels.index(90.0), :, centre]
-            out["wavelength"] = (("beat",), cv / 10.0 * apd90)  # m/s -> cm/ms, times ms
+            out["wavelength_apd"] = (("beat",), cv / 10.0 * apd90)  # m/s -> cm/ms, times ms
         from cable.measure import block
 
         out.update(block.outputs(beats))
+        ups = out["upstroke_velocity"][1]
+        out["slow_response"] = (("beat",), block.slow_response(ups, setup.x, setup.cv_window,
+                                                               out["conducted"][1] == 1).astype(np.int8))
         if setup.safety is not None:
             out["safety_factor"] = (("beat", "x"), setup.safety.per_beat(beats))
         if grid_closed(setup):

@@ -113,7 +113,7 @@ def test_wavelength_is_cv_times_apd90_at_centre():
     x = ds.x.values
     mid = int(np.argmin(np.abs(x - 0.5)))
     apd90 = float(ds.apd.sel(level=90.0).isel(beat=0, x=mid))
-    assert float(ds.wavelength[0]) == pytest.approx(float(ds.conduction_velocity[0]) / 10.0 * apd90)
+    assert float(ds.wavelength_apd[0]) == pytest.approx(float(ds.conduction_velocity[0]) / 10.0 * apd90)
     assert 200.0 < apd90 < 400.0   # Mitchell & Schaeffer 2003 defaults: APD of order 300 ms
 
 

@@ -23,6 +23,9 @@ def add_arguments(p):
                    help="bisect the logarithm of the value (keys spanning decades, e.g. a coupling factor); "
                         "the tolerance is then relative (default 0.01)")
     p.add_argument("--beat", type=int, metavar="B", help="judge this beat only (default: every beat must conduct)")
+    p.add_argument("--criterion", default="block", metavar="C",
+                   help="what failing means: block (default: a judged beat does not conduct), slow-response (or it "
+                        "conducts as a slow response, upstroke below 10 V/s), cv-below=X (or its CV is below X m/s)")
     p.add_argument("-o", "--output", help="netCDF file for the runs made")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output file")
     add_set_option(p)
@@ -38,8 +41,10 @@ def summarise(ds) -> str:
         return (f"{a['key']}: {a['low']:.6g}{unit} and {a['high']:.6g}{unit} do not straddle block "
                 f"(both ends {'conduct' if int(ds['conducted'].values.all()) else 'fail to conduct'}); "
                 f"runs: {a['runs']}")
+    crit = a.get("criterion", "block")
+    fails = {"block": "blocks", "slow-response": "blocks or slow response"}.get(crit, f"blocks or {crit}")
     lines = [f"{a['key']}: critical value between {a['passing_value']:.6g}{unit} (conducts) and "
-             f"{a['failing_value']:.6g}{unit} (blocks); midpoint {a['critical_value']:.6g}{unit}",
+             f"{a['failing_value']:.6g}{unit} ({fails}); midpoint {a['critical_value']:.6g}{unit}",
              f"runs: {a['runs']}   final bracket: {_width(a)} (tolerance {a['tolerance']:.3g})",
              f"CV just on the passing side: {a['cv_passing_m_per_s']:.4g} m/s"]
     if a.get("note"):
@@ -65,7 +70,8 @@ def run(args):
     low, high = sorted(args.between)
     try:
         ds = find_critical(case, args.vary, low, high, tolerance=args.tolerance, beat=args.beat, log=args.log,
-                           output=args.output, overwrite=args.overwrite, info=lambda m: say(args, m))
+                           output=args.output, overwrite=args.overwrite, info=lambda m: say(args, m),
+                           criterion=args.criterion)
     except NoBracketError as exc:
         print(f"cable: error: {exc}", file=sys.stderr)
         if args.output:

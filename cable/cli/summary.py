@@ -103,21 +103,36 @@ def summarise(ds, path=None) -> str:
         return "\n".join(lines)
     captured = np.asarray(ds["captured"].values).astype(bool)
     blocked = np.asarray(ds["blocked"].values).astype(bool)
-    lines.append(f"beats: {nb} ({int(captured.sum())} captured, {int(blocked.sum())} blocked)")
+    timed_out = np.asarray(ds["timed_out"].values).astype(bool) if "timed_out" in ds else np.zeros(nb, bool)
+    slow = np.asarray(ds["slow_response"].values).astype(bool) if "slow_response" in ds else np.zeros(nb, bool)
+    lines.append(f"beats: {nb} ({int(captured.sum())} captured, {int(blocked.sum())} blocked"
+                 + (f", {int(timed_out.sum())} still travelling when the run ended (timed out)" if timed_out.any()
+                    else "") + ")")
     if nb > 1 and "conducted" in ds:
         from cable.measure.block import conduction_pattern
 
         lines.append(f"conduction pattern (stimuli : beats through the whole fibre): "
                      f"{conduction_pattern(np.asarray(ds['conducted'].values) == 1)}")
-    lines.append("beat  onset_ms  captured   CV_m/s  APD90_ms  rest_mV  dVdt_V/s  wavelength_cm  block")
+    lines.append("beat  onset_ms  captured   CV_m/s  APD90_ms  rest_mV  dVdt_V/s  wavelength_apd_cm  block")
     cv = ds["conduction_velocity"].values if "conduction_velocity" in ds else np.full(nb, np.nan)
     bx = ds["block_x"].values if "block_x" in ds else np.full(nb, np.nan)
+    fx = ds["front_x"].values if "front_x" in ds else np.full(nb, np.nan)
     for b in range(nb):
         block = f"at x = {_num(bx[b])} cm" if blocked[b] else ("-" if captured[b] else "(not captured)")
+        if timed_out[b]:
+            block = (f"timed out: still travelling at x = {_num(fx[b])} cm when the run ended" if np.isfinite(fx[b])
+                     else "timed out: the run ended before the stimulus could capture")
+        elif slow[b]:
+            block = "- (slow response)"
         lines.append(f"{b:4d}  {_num(ds['beat_onset'][b], '8.2f'):>8}  {'yes' if captured[b] else 'no':>8}  "
                      f"{_num(cv[b]):>7}  {_num(_apd90(ds, b)):>8}  {_num(_at_centre(ds, 'resting_potential', b)):>7}  "
-                     f"{_num(_at_centre(ds, 'upstroke_velocity', b)):>8}  {_num(_at_centre(ds, 'wavelength', b)):>13}  "
-                     f"{block}")
+                     f"{_num(_at_centre(ds, 'upstroke_velocity', b)):>8}  "
+                     f"{_num(_at_centre(ds, 'wavelength_apd', b)):>17}  {block}")
+    if "wavelength_apd" in ds:
+        lines.append("wavelength_apd: CV x APD90 at the centre of the CV window (CV x ERP: see `cable erp`); "
+                     "dVdt: stimulus current excluded")
+    if timed_out.any():
+        lines.append("timed out: raise run.duration to see whether the wave conducts or blocks")
     return "\n".join(lines)
 
 

@@ -32,10 +32,19 @@ VARIABLES = {
     "block_x": (("beat",), "cm", "last activated position of a blocked wave", None),
     "apd": (("level", "beat", "x"), "ms", "action-potential duration", None),
     "resting_potential": (("beat", "x"), "mV", "lowest potential before the upstroke", None),
-    "peak_potential": (("beat", "x"), "mV", "peak potential of the action potential (largest stored sample: "
-                                            "limited by output.every)", None),
-    "upstroke_velocity": (("beat", "x"), "V/s", "maximal rate of rise of the upstroke", None),
-    "wavelength": (("beat",), "cm", "wavelength: CV times APD90 at the centre of the CV window", None),
+    "peak_potential": (("beat", "x"), "mV", "peak potential of the action potential (probed every time step)",
+                       None),
+    "upstroke_velocity": (("beat", "x"), "V/s", "maximal rate of rise of the upstroke, stimulus current excluded "
+                                                "(membrane and axial currents)", None),
+    "wavelength_apd": (("beat",), "cm", "wavelength: CV times APD90 at the centre of the CV window", None),
+    "timed_out": (("beat",), "1", "the run ended before the wave could be seen to stop (neither conducted nor "
+                                  "blocked)", None),
+    "front_x": (("beat",), "cm", "last activated position of a wave still travelling when the run ended", None),
+    "outcome": (("beat",), "1", "what the beat did: not captured, conducted through the fibre, blocked, or timed "
+                                "out (the run ended first)", None),
+    "slow_response": (("beat",), "1", "conduction by a slow response: median upstroke velocity in the CV window "
+                                      "below the fast-response limit (cable.measure.block.SLOW_RESPONSE_V_PER_S)",
+                      None),
     "conducted": (("beat",), "1", "the stimulus captured and the wave reached both ends of the fibre", None),
     "reached_left": (("beat",), "1", "the beat's wave reached the left end (x = 0)", None),
     "reached_right": (("beat",), "1", "the beat's wave reached the right end (x = L)", None),
@@ -69,11 +78,12 @@ VARIABLES = {
 STATE_PREFIX = "state_"
 
 #: boolean variables are stored as int8 0/1 with flag attributes
-FLAGS = {"captured", "blocked", "conducted", "reached_left", "reached_right"}
+FLAGS = {"captured", "blocked", "conducted", "reached_left", "reached_right", "timed_out", "slow_response"}
 
 #: coded (enumerated) int8 variables: name -> (flag_values, flag_meanings); CF 1.10 section 3.5.
 #: The codes of block_side are those of cable.measure.block (LEFT, NONE, RIGHT, BOTH).
-CODES = {"block_side": ([-1, 0, 1, 2], "blocked_leftward none blocked_rightward blocked_both_ways")}
+CODES = {"block_side": ([-1, 0, 1, 2], "blocked_leftward none blocked_rightward blocked_both_ways"),
+         "outcome": ([0, 1, 2, 3, 4], "not_captured conducted blocked timed_out other")}
 
 
 def attrs(name: str) -> dict:

@@ -6,7 +6,7 @@ rounding: every strand is computed with the same floating-point operations, in t
 same order, as ``cable.simulate(case)`` performs for it, so its fields and
 measurements are bitwise those of the separate run (checked with ``np.array_equal``
 in ``tests/kernels/test_batch.py``). What is shared is the per-call and per-step
-work: one time loop, one table, one APD tracker, one set of Python calls per output
+work: one time loop, one table, one set of Python calls per output
 interval, instead of one each per strand. How:
 
 * diffusion: each strand with the factors it has alone (``diffusion.factor``) and the
@@ -15,7 +15,7 @@ interval, instead of one each per strand. How:
   the single-strand loop ``fused.advance_fast`` with ``strands`` > 1), others laid end
   to end, each solved on its own slice (``fused.advance_fast_segments``, and
   ``fused.advance_segments`` on the reference path);
-* reaction, stimulus, probes and the APD tracker act node by node, with the same
+* reaction, stimulus and probes act node by node, with the same
   arithmetic whatever the node's place in the batch (the pulse table keeps each
   strand's pulses in its own order);
 * each case is prepared (grid, parameters, settling or pre-pacing, pulses) by
@@ -230,17 +230,15 @@ def _segments_integrator(model_name: str, fast: bool, reaction: str = "rush-lars
 
 
 def _tracker_part(tracker, sl):
-    """The per-node arrays of an ApdTracker restricted to the nodes ``sl`` (contiguous)."""
-    return SimpleNamespace(levels=tracker.levels, tprev=tracker.tprev,
-                           **{name: np.ascontiguousarray(getattr(tracker, name)[sl])
-                              for name in ("seen", "phase", "vmin", "rest", "peak", "repol", "vprev")})
+    """The per-beat arrays of an ApdProbe restricted to the nodes ``sl`` (contiguous)."""
+    return SimpleNamespace(levels=tracker.levels,
+                           **{name: np.ascontiguousarray(getattr(tracker, name)[sl]) for name in ("rest", "peak", "repol")})
 
 
 def _run_batch(setups):
     """The strands of ``setups`` (one group key) in one time loop; None if any failed."""
     from cable.io import schema
     from cable.kernels import diffusion, integrate, tables
-    from cable.measure.apd import ApdTracker
     from cable.simulate import _fast_integrator, measurements, provenance
 
     first = setups[0]
@@ -270,10 +268,9 @@ def _run_batch(setups):
     v = _place([s.v0 for s in setups], slices, n)
     s0 = _place([s.s0 for s in setups], slices, n)
     # the crossing cap is the same for every member (group_key)
-    arrays = loop_arrays(model, fast, v, s0, p_nodes, first.pulses.shape[0])
+    arrays = loop_arrays(model, fast, v, s0, p_nodes, first.pulses.shape[0], case0.apd_levels)
     act, nact, upstroke = arrays.act, arrays.nact, arrays.upstroke
     extra = ((rates.table, rates.v_lo, rates.inv_dv) if fast else ()) + last
-    tracker = ApdTracker(v, act, case0.apd_levels)
     state_idx = [model.state_names.index(name) for name in case0.output_states]
     field_names = ["vm"] + [schema.STATE_PREFIX + name for name in case0.output_states]
     spb = first.steps_per_sample
@@ -304,10 +301,11 @@ def _run_batch(setups):
                                *extra)
         if status != integrate.OK:
             return None
-        tracker.update(v, k * spb * dt, act, nact)
         sample(k)
     wall = _time.perf_counter() - wall0
     t_end = (first.n_samples - 1) * spb * dt
+    tracker = arrays.apd
+    tracker.finish(nact)
     results = []
     template = None
     for j, (setup, sl) in enumerate(zip(setups, slices)):

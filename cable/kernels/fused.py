@@ -9,8 +9,9 @@ splitting, stimuli, probes and status codes; see that module for the scheme), wi
   node loops vectorise, or by node for models that say so (``FastPath.by_state``);
   the rates exact (``table`` with no rows) or tabulated;
 * the probe block by block: a vectorised pass over a block of nodes of which none
-  crosses the threshold or is in an upstroke (almost every block, almost always),
-  the full per-node pass (the same as ``integrate.probe``) over the others;
+  crosses the threshold, is in an upstroke or crosses a repolarisation level (almost
+  every block, almost always), the full per-node pass (the same as
+  ``integrate.probe``) over the others and over every block while a stimulus is on;
 * for batches of strands of one length (:mod:`cable.kernels.batch`), the strands
   stored interleaved and their diffusion solves run side by side (``strands`` > 1),
   each strand with its own factors and its own operations: bitwise its run alone;
@@ -43,43 +44,63 @@ def reaction(v, s, p, i_stim, dt, ion_scale, gating):  # bound by specialise() (
     raise NotImplementedError
 
 
-#: nodes per block of the probe: a block with no node crossing the threshold and none
-#: in an upstroke (almost all blocks, almost always) takes the vectorised pass
+#: nodes per block of the probe: a block with no node crossing the threshold, none in an
+#: upstroke and none crossing a repolarisation level (almost all blocks, almost always)
+#: takes the vectorised pass
 PROBE_BLOCK = 64
 
 
 @jit_inline
-def quiet(v, vprev, threshold, open_up):
-    """True when no node crosses ``threshold`` upwards and none is in an upstroke."""
+def quiet(v, vprev, threshold, open_up, vpeak, lin, off):
+    """True when no node crosses ``threshold`` upwards, none is in an upstroke and none
+    falls below its next repolarisation level (``lin * peak + off``; -inf when none)."""
     busy = False
     for i in range(v.shape[0]):
-        busy = busy | (open_up[i] != 0) | ((vprev[i] < threshold) & (v[i] >= threshold))
+        vi = v[i]
+        level = lin[i] * max(vpeak[i], vi) + off[i]
+        busy = busy | (open_up[i] != 0) | ((vprev[i] < threshold) & (vi >= threshold)) | (vi < level)
     return not busy
 
 
 @jit_inline
-def quiet_probe(v, vprev, dt, pre_rate):
-    """The probe of quiet nodes: the rise rate kept for the next upstroke, vprev = v."""
+def quiet_probe(v, vprev, dt, pre_rate, vmin, vpeak):
+    """The probe of quiet nodes: the rise rate kept for the next upstroke, the running
+    lowest and highest potentials."""
     for i in range(v.shape[0]):
         vi = v[i]
         rate = (vi - vprev[i]) / dt
         pr = pre_rate[i]
         pre_rate[i] = (rate if rate > pr else pr) if rate > 0.0 else 0.0
-        vprev[i] = vi
+        lo = vmin[i]
+        vmin[i] = vi if vi < lo else lo
+        hi = vpeak[i]
+        vpeak[i] = vi if vi > hi else hi
 
 
 @jit_inline
-def block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke):
-    """The probe of :func:`cable.kernels.integrate.probe`, block by block."""
+def block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on):
+    """The probe of :func:`cable.kernels.integrate.probe`, block by block (every block
+    takes the full pass while a stimulus is on: its current is taken out of the rates)."""
+    vmin, vpeak, lin, off = apd[3], apd[4], apd[5], apd[6]
     n = v.shape[0]
     for i0 in range(0, n, PROBE_BLOCK):
         i1 = min(i0 + PROBE_BLOCK, n)
         vb = v[i0:i1]
         pb = vprev[i0:i1]
-        if quiet(vb, pb, threshold, open_up[i0:i1]):
-            quiet_probe(vb, pb, dt, pre_rate[i0:i1])
+        if not stim_on and quiet(vb, pb, threshold, open_up[i0:i1], vpeak[i0:i1], lin[i0:i1], off[i0:i1]):
+            quiet_probe(vb, pb, dt, pre_rate[i0:i1], vmin[i0:i1], vpeak[i0:i1])
         else:
-            probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, i0, i1)
+            probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, i0, i1)
+    close(v, vprev, apd[0])
+
+
+@jit_inline
+def close(v, vprev, dlast):
+    """:func:`cable.kernels.integrate.close_probe`, inlined: ``dlast = v - vprev``, ``vprev = v``."""
+    for i in range(v.shape[0]):
+        vi = v[i]
+        dlast[i] = vi - vprev[i]
+        vprev[i] = vi
 
 
 @jit_vector
@@ -109,7 +130,7 @@ def _diffuse(v, lo, up, h, theta, pivot, elim, back, work, strands):
 
 def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, splitting, merge,
                  gating, ion_scale, threshold, vprev, act, nact, pre_rate, open_up, upstroke,
-                 i_stim, work, check_every, table, v_lo, inv_dv, strands):
+                 apd, i_stim, work, check_every, table, v_lo, inv_dv, strands):
     """Advance the strand by ``nsteps`` steps of ``dt`` from time ``t0``.
 
     Arguments as for :func:`cable.kernels.integrate.advance`, with ``sT`` and ``pT``
@@ -122,6 +143,7 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
     stim_on = True
     pv_h, el_h, bk_h = half
     pv_f, el_f, bk_f = full
+    grid = (lo, up, dt if splitting == GODUNOV else 0.5 * dt, strands)   # the probe's: diffusion after it
     for k in range(nsteps):
         t = t0 + k * dt
         if splitting == STRANG:
@@ -134,11 +156,11 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
             i_stim[:] = 0.0
         stim_on = any_on
         fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
+        block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on)
         if splitting == GODUNOV:
             _diffuse(v, lo, up, dt, theta, pv_f, el_f, bk_f, work, strands)
         elif not merge or k == nsteps - 1:
             _diffuse(v, lo, up, 0.5 * dt, theta, pv_h, el_h, bk_h, work, strands)
-        block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke)
         if (k + 1) % check_every == 0 or k == nsteps - 1:
             status, node = check(v)
             if status != OK:
@@ -148,7 +170,7 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
 
 def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, splitting, merge,
                           gating, ion_scale, threshold, vprev, act, nact, pre_rate, open_up, upstroke,
-                          i_stim, work, check_every, table, v_lo, inv_dv, offsets):
+                          apd, i_stim, work, check_every, table, v_lo, inv_dv, offsets):
     """:func:`advance_fast` for strands laid end to end (strand j on nodes
     ``offsets[j]`` to ``offsets[j + 1] - 1``, factors from
     ``diffusion.factor_segments``): each strand's diffusion solved alone
@@ -156,6 +178,7 @@ def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half
     stim_on = True
     pv_h, el_h, bk_h = half
     pv_f, el_f, bk_f = full
+    grid = (lo, up, dt if splitting == GODUNOV else 0.5 * dt, 1)   # the probe's: diffusion after it
     for k in range(nsteps):
         t = t0 + k * dt
         if splitting == STRANG:
@@ -168,11 +191,11 @@ def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half
             i_stim[:] = 0.0
         stim_on = any_on
         fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
+        block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on)
         if splitting == GODUNOV:
             diffuse_segments(v, lo, up, dt, theta, pv_f, el_f, bk_f, work, offsets)
         elif not merge or k == nsteps - 1:
             diffuse_segments(v, lo, up, 0.5 * dt, theta, pv_h, el_h, bk_h, work, offsets)
-        block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke)
         if (k + 1) % check_every == 0 or k == nsteps - 1:
             status, node = check(v)
             if status != OK:
@@ -182,13 +205,14 @@ def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half
 
 def advance_segments(v, s, p, t0, nsteps, dt, pulses, lo, up, theta, half, full, splitting, merge,
                      gating, ion_scale, threshold, vprev, act, nact, pre_rate, open_up, upstroke,
-                     i_stim, work, check_every, offsets):
+                     apd, i_stim, work, check_every, offsets):
     """:func:`cable.kernels.integrate.advance` (the reference loop: the model's
     ``reaction`` bound by specialise, states by node) for strands laid end to end,
     each strand's diffusion solved alone as in :func:`advance_fast_segments`."""
     stim_on = True
     sub_h, cp_h, inv_h = half
     sub_f, cp_f, inv_f = full
+    grid = (lo, up, dt if splitting == GODUNOV else 0.5 * dt, 1)   # the probe's: diffusion after it
     for k in range(nsteps):
         t = t0 + k * dt
         if splitting == STRANG:
@@ -201,11 +225,11 @@ def advance_segments(v, s, p, t0, nsteps, dt, pulses, lo, up, theta, half, full,
             i_stim[:] = 0.0
         stim_on = any_on
         reaction(v, s, p, i_stim, dt, ion_scale, gating)
+        probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid)
         if splitting == GODUNOV:
             diffuse_segments(v, lo, up, dt, theta, sub_f, cp_f, inv_f, work, offsets)
         elif not merge or k == nsteps - 1:
             diffuse_segments(v, lo, up, 0.5 * dt, theta, sub_h, cp_h, inv_h, work, offsets)
-        probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke)
         if (k + 1) % check_every == 0 or k == nsteps - 1:
             for i in range(v.shape[0]):
                 vi = v[i]

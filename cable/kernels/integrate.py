@@ -11,8 +11,14 @@ Splitting (S = stimulus + ionic reaction over dt, D(h) = diffusion over h):
   the solves.
 * godunov: S D(dt) each step (first order).
 
-Probes, updated every step after the reaction: upward crossings of ``threshold`` (time
-by linear interpolation) and the maximal dV/dt of each upstroke.
+Probes, updated every step right after the reaction (before the closing diffusion
+step), so that every probed potential sits at the same point of the splitting whatever
+``merge`` and the output interval (with ``merge`` the potential at the end of a step
+is that point, except at the last step of each call, which closes with D(dt/2)):
+upward crossings of ``threshold`` (time by linear interpolation), the maximal dV/dt of
+each upstroke without the stimulus current, and per beat the resting potential (the
+lowest potential since the previous beat repolarised), the peak and the downward
+crossings of the repolarisation levels (:mod:`cable.measure.apd`).
 """
 
 import numpy as np
@@ -57,43 +63,124 @@ def stimulus_current(t, dt, pulses, i_stim):
 
 
 @jit
-def probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, i0, i1):
-    """Probe nodes i0..i1-1 after a step ending at t + dt (crossings, upstroke rates)."""
+def step_rate(v, vprev, dlast, lo, up, h, stride, i, dt):
+    """dV/dt of node ``i`` over the whole step [mV/ms], from the potentials probed after
+    two consecutive reactions (``vprev``, ``v``).
+
+    Their difference d lacks the diffusion of the rest of the step (``h``): it is added
+    as h L applied to the mean of d and the previous step's difference ``dlast`` (L the
+    grid's diffusion operator, neighbours ``stride`` nodes away: strands interleaved in
+    a batch). To second order in dt that is the increment of the whole step; the mean
+    over two steps cancels the grid-scale modes that Crank-Nicolson leaves undamped and
+    flips in sign every step with the half steps merged (which an explicit h L d would
+    amplify by up to 2 h (lo + up), ~100 on fine grids).
+    """
+    d = v[i] - vprev[i]
+    mid = 0.5 * (d + dlast[i])
+    acc = 0.0
+    if i >= stride:
+        j = i - stride
+        acc += lo[i] * (0.5 * ((v[j] - vprev[j]) + dlast[j]) - mid)
+    if i + stride < v.shape[0]:
+        j = i + stride
+        acc += up[i] * (0.5 * ((v[j] - vprev[j]) + dlast[j]) - mid)
+    return (d + h * acc) / dt
+
+
+@jit
+def probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, i0, i1):
+    """Probe nodes i0..i1-1 after the reaction of the step ending at t + dt (``vprev``
+    and ``dlast`` are updated by the caller, :func:`close_probe`, after every node).
+
+    Crossings; the upstroke rate (:func:`step_rate` with ``grid`` = (lo, up, h,
+    stride), without the stimulus current ``i_stim`` of the step: the rate of the
+    membrane's own and axial currents); the repolarisation probe ``apd`` (the arrays of
+    :class:`cable.measure.apd.ApdProbe`).
+    """
     cap = act.shape[1]
+    dlast, fracs, slot, vmin, vpeak, lin, off, vrest, pending, rest, peak, repol = apd
+    lo, up, h, stride = grid
+    nlev = fracs.shape[0]
     for i in range(i0, i1):
         vi = v[i]
         vp = vprev[i]
-        rate = (vi - vp) / dt
+        rate = (vi - vp) / dt - i_stim[i]      # the rise kept before the crossing (pre_rate)
+        if vi < vmin[i]:
+            vmin[i] = vi
         if vp < threshold and vi >= threshold:
             k = nact[i]
             if k < cap:
                 act[i, k] = t + dt * (threshold - vp) / (vi - vp)
-                upstroke[i, k] = max(pre_rate[i], rate)
+                upstroke[i, k] = max(pre_rate[i], step_rate(v, vprev, dlast, lo, up, h, stride, i, dt) - i_stim[i])
                 nact[i] = k + 1
                 open_up[i] = 1
             else:
                 nact[i] = k + 1  # counted, not stored
+            if nlev > 0:   # a new beat: its rest is the lowest potential since the last one repolarised
+                if pending[i] < nlev and 0 < k <= cap:
+                    peak[i, k - 1] = vpeak[i]
+                if k < cap:
+                    rest[i, k] = vmin[i]
+                vrest[i] = vmin[i]
+                vpeak[i] = vi
+                pending[i] = 0
+                lin[i] = 1.0 - fracs[0]
+                off[i] = fracs[0] * vmin[i]
+        if vi > vpeak[i]:
+            vpeak[i] = vi
         if rate > 0.0:
             if rate > pre_rate[i]:
                 pre_rate[i] = rate
             if open_up[i] == 1:
                 k = nact[i] - 1
-                if k < cap and rate > upstroke[i, k]:
-                    upstroke[i, k] = rate
+                if k < cap:
+                    full = step_rate(v, vprev, dlast, lo, up, h, stride, i, dt) - i_stim[i]
+                    if full > upstroke[i, k]:
+                        upstroke[i, k] = full
         else:
             pre_rate[i] = 0.0
             open_up[i] = 0
-        vprev[i] = vi
+        if pending[i] < nlev:
+            k = nact[i] - 1
+            # the levels below the peak, highest first: several may be crossed in one step
+            while pending[i] < nlev and vi < lin[i] * vpeak[i] + off[i]:
+                level = lin[i] * vpeak[i] + off[i]
+                j = pending[i]
+                if k < cap:
+                    repol[i, k, slot[j]] = t + dt * min(1.0, max(0.0, (vp - level) / (vp - vi)))
+                j += 1
+                pending[i] = j
+                if j < nlev:
+                    lin[i] = 1.0 - fracs[j]
+                    off[i] = fracs[j] * vrest[i]
+                else:      # repolarised: the next rest is looked for from here
+                    lin[i] = 0.0
+                    off[i] = -np.inf
+                    vmin[i] = vi
+            if k < cap:
+                peak[i, k] = vpeak[i]
 
 
 @jit
-def probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke):
-    probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, 0, v.shape[0])
+def probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid):
+    """Probe every node (:func:`probe_nodes`), then ``vprev = v``."""
+    probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid,
+                0, v.shape[0])
+    close_probe(v, vprev, apd[0])
+
+
+@jit
+def close_probe(v, vprev, dlast):
+    """After the probe of a step: ``dlast = v - vprev``, ``vprev = v``."""
+    for i in range(v.shape[0]):
+        vi = v[i]
+        dlast[i] = vi - vprev[i]
+        vprev[i] = vi
 
 
 def advance(v, s, p, t0, nsteps, dt, pulses, lo, up, theta, half, full, splitting, merge,
             gating, ion_scale, threshold, vprev, act, nact, pre_rate, open_up, upstroke,
-            i_stim, work, check_every):
+            apd, i_stim, work, check_every):
     """Advance the strand by ``nsteps`` steps of ``dt`` from time ``t0``.
 
     Returns (status, step, node): status OK, or NONFINITE / RUNAWAY with the step and
@@ -102,6 +189,7 @@ def advance(v, s, p, t0, nsteps, dt, pulses, lo, up, theta, half, full, splittin
     stim_on = True
     sub_h, cp_h, inv_h = half
     sub_f, cp_f, inv_f = full
+    grid = (lo, up, dt if splitting == GODUNOV else 0.5 * dt, 1)   # the probe's: diffusion after it
     for k in range(nsteps):
         t = t0 + k * dt
         if splitting == STRANG:
@@ -114,11 +202,11 @@ def advance(v, s, p, t0, nsteps, dt, pulses, lo, up, theta, half, full, splittin
             i_stim[:] = 0.0
         stim_on = any_on
         reaction(v, s, p, i_stim, dt, ion_scale, gating)
+        probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid)
         if splitting == GODUNOV:
             diffuse(v, lo, up, dt, theta, sub_f, cp_f, inv_f, work)
         elif not merge or k == nsteps - 1:
             diffuse(v, lo, up, 0.5 * dt, theta, sub_h, cp_h, inv_h, work)
-        probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke)
         if (k + 1) % check_every == 0 or k == nsteps - 1:
             for i in range(v.shape[0]):
                 vi = v[i]

@@ -9,6 +9,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from cable.kernels import diffusion, integrate, tables
+from cable.measure.apd import ApdProbe
 
 #: how often the loop checks for NaN / runaway potential [steps]: often enough that a
 #: potential blown up by a huge stimulus cannot recover unseen between checks (the
@@ -43,22 +44,25 @@ class LoopArrays:
     vprev: np.ndarray
     pre_rate: np.ndarray
     open_up: np.ndarray
+    apd: ApdProbe        #: rest, peak and repolarisation crossings per beat
     i_stim: np.ndarray
     work: np.ndarray
 
     def probes(self) -> tuple:
         """The probe arguments of the time loop, in its order (then ``CHECK_EVERY``)."""
-        return (self.vprev, self.act, self.nact, self.pre_rate, self.open_up, self.upstroke, self.i_stim,
-                self.work, CHECK_EVERY)
+        return (self.vprev, self.act, self.nact, self.pre_rate, self.open_up, self.upstroke, self.apd.args(),
+                self.i_stim, self.work, CHECK_EVERY)
 
     def state(self, j: int) -> np.ndarray:
         """State ``j`` at every node."""
         return self.s[j] if self.by_state else self.s[:, j]
 
 
-def loop_arrays(model, fast: bool, v: np.ndarray, s0: np.ndarray, p: np.ndarray, n_pulses: int) -> LoopArrays:
+def loop_arrays(model, fast: bool, v: np.ndarray, s0: np.ndarray, p: np.ndarray, n_pulses: int,
+                levels=(90.0,)) -> LoopArrays:
     """The loop's arrays for initial potential ``v`` (n,), states ``s0`` (n, nstate) and
-    parameters ``p`` ((n, nparam) or (1, nparam)); ``fast``: the fast reaction path."""
+    parameters ``p`` ((n, nparam) or (1, nparam)); ``fast``: the fast reaction path;
+    ``levels``: the repolarisation levels [%] probed."""
     n = v.shape[0]
     by_state = bool(fast and model.fast.by_state)
     if by_state:  # stored by state and by parameter (see cable.kernels.fused)
@@ -70,4 +74,5 @@ def loop_arrays(model, fast: bool, v: np.ndarray, s0: np.ndarray, p: np.ndarray,
     cap = crossing_cap(n_pulses)
     return LoopArrays(by_state=by_state, s=s, p=p, act=np.full((n, cap), np.nan), nact=np.zeros(n, dtype=np.int64),
                       upstroke=np.full((n, cap), np.nan), vprev=v.copy(), pre_rate=np.zeros(n),
-                      open_up=np.zeros(n, dtype=np.int64), i_stim=np.zeros(n), work=np.zeros(n))
+                      open_up=np.zeros(n, dtype=np.int64), apd=ApdProbe(v, cap, levels), i_stim=np.zeros(n),
+                      work=np.zeros(n))

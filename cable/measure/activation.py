@@ -7,6 +7,14 @@ before, and no later than ``MAX_NODE_DELAY`` after, the node it came from. A bea
 captured but whose wave stopped before an end of the fibre is blocked; ``block_x`` is
 the last activated position on the blocked side.
 
+Block means the wave stopped, which the run must have gone on long enough to show: a
+wave whose last activation was less than ``WAIT_FACTOR`` times its locally measured
+node-to-node delay (the mean over its last ``LOCAL_NODES`` nodes, at least the last
+delay) before the end of the run, and less than ``MAX_NODE_DELAY``, may still be
+travelling. Such a beat is ``timed_out`` (not blocked; ``front_x`` is its last
+activated position), as is a beat whose capture deadline lies after the end of the
+run and whose stimulated nodes did not cross yet.
+
 What ``captured`` means, exactly: some stimulated node crossed the activation threshold
 between the onset and ``CAPTURE_LATENCY`` after the end of the pulse. That is what "the
 stimulus excited the tissue" means for any stimulus near threshold, but not always: a
@@ -35,6 +43,12 @@ BACKWARD_TOLERANCE = 2.0
 MAX_NODE_DELAY = 50.0
 #: time after the end of the pulse within which a stimulated node must cross [ms]
 CAPTURE_LATENCY = 20.0
+#: a wave is taken to have stopped when the run went on for this many times its local
+#: node-to-node delay after its last activation (common practice: a margin for the
+#: slowing of decremental conduction near block, which lengthens the last delays)
+WAIT_FACTOR = 5.0
+#: nodes over which the local delay is measured
+LOCAL_NODES = 5
 
 
 @dataclass
@@ -46,6 +60,8 @@ class Beats:
     blocked: np.ndarray        # (nbeat,) bool
     block_x: np.ndarray        # (nbeat,) [cm], NaN unless blocked
     block_side: np.ndarray     # (nbeat,) int: +1 wave stopped going right, -1 left, 0 none
+    timed_out: np.ndarray = None   # (nbeat,) bool: the run ended before the wave could be seen to stop
+    front_x: np.ndarray = None     # (nbeat,) [cm], last activated position of a timed-out wave, else NaN
 
 
 def beat_onsets(pulses: np.ndarray) -> tuple[np.ndarray, list[np.ndarray], np.ndarray]:
@@ -64,8 +80,34 @@ def beat_onsets(pulses: np.ndarray) -> tuple[np.ndarray, list[np.ndarray], np.nd
     return onsets, seeds, deadline
 
 
-def assign_beats(act: np.ndarray, nact: np.ndarray, x: np.ndarray, pulses: np.ndarray) -> Beats:
-    """Follow each beat's wave through the crossings ``act[i, :nact[i]]``."""
+def stopped(activation: np.ndarray, last: int, step: int, t_end: float | None) -> bool:
+    """Whether the wave whose last activated node is ``last`` (coming from the side
+    ``-step``) was seen to stop before ``t_end`` [ms] (None: the run's end is unknown, so yes)."""
+    if t_end is None:
+        return True
+    t_last = activation[last]
+    waited = t_end - t_last
+    if waited >= MAX_NODE_DELAY:
+        return True
+    times = []
+    for m in range(LOCAL_NODES + 1):      # the wave's own nodes behind the last one
+        i = last - step * m
+        if not (0 <= i < activation.size and np.isfinite(activation[i])):
+            break
+        times.append(activation[i])
+    if len(times) < 2:       # the wave did not travel: the stimulated zone's own spread
+        return waited >= CAPTURE_LATENCY
+    delay = max((times[0] - times[-1]) / (len(times) - 1), times[0] - times[1], 0.0)
+    return waited >= WAIT_FACTOR * delay
+
+
+def assign_beats(act: np.ndarray, nact: np.ndarray, x: np.ndarray, pulses: np.ndarray,
+                 t_end: float | None = None) -> Beats:
+    """Follow each beat's wave through the crossings ``act[i, :nact[i]]``.
+
+    ``t_end`` [ms]: the end of the computed run; a wave still possibly travelling then
+    is ``timed_out`` rather than blocked (see the module's notes). None: no such check.
+    """
     n, cap = act.shape
     onsets, seeds, deadline = beat_onsets(pulses)
     nb = onsets.size
@@ -77,6 +119,8 @@ def assign_beats(act: np.ndarray, nact: np.ndarray, x: np.ndarray, pulses: np.nd
     blocked = np.zeros(nb, dtype=bool)
     block_x = np.full(nb, np.nan)
     side = np.zeros(nb, dtype=np.int64)
+    timed_out = np.zeros(nb, dtype=bool)
+    front_x = np.full(nb, np.nan)
 
     def take(i, lo, hi):
         for k in range(count[i]):
@@ -94,6 +138,7 @@ def assign_beats(act: np.ndarray, nact: np.ndarray, x: np.ndarray, pulses: np.nd
                 activation[b, i] = act[i, k]
         hit = np.flatnonzero(index[b] >= 0)
         if hit.size == 0:
+            timed_out[b] = t_end is not None and t_end < deadline[b]
             continue
         captured[b] = True
         # outward to the right from the rightmost captured node, then to the left
@@ -124,11 +169,14 @@ def assign_beats(act: np.ndarray, nact: np.ndarray, x: np.ndarray, pulses: np.nd
             activation[b, i - 1] = act[i - 1, k]
             i -= 1
         left = i
-        if right < n - 1:
-            blocked[b], block_x[b], side[b] = True, x[right], 1
-        elif left > 0:
-            blocked[b], block_x[b], side[b] = True, x[left], -1
-    return Beats(onsets, index, activation, captured, blocked, block_x, side)
+        ends = [(right, 1)] if right < n - 1 else []
+        ends += [(left, -1)] if left > 0 else []
+        running = [(i, way) for i, way in ends if not stopped(activation[b], i, way, t_end)]
+        if running:
+            timed_out[b], front_x[b] = True, x[running[0][0]]
+        elif ends:
+            blocked[b], block_x[b], side[b] = True, x[ends[0][0]], ends[0][1]
+    return Beats(onsets, index, activation, captured, blocked, block_x, side, timed_out, front_x)
 
 
 def per_beat(values: np.ndarray, index: np.ndarray) -> np.ndarray:

@@ -8,7 +8,8 @@ followed node by node outward from the stimulated nodes that captured):
   unidirectional block as one of them false: the direction that passes is the one
   whose end was reached.
 * ``block_side``: +1 the wave stopped while travelling right (toward x = L), -1 while
-  travelling left, 2 both ways, 0 no block (or no capture).
+  travelling left, 2 both ways, 0 no block (or no capture, or a wave still travelling
+  when the run ended: ``timed_out``).
 * ``conducted``: the stimulus captured and the wave reached both ends.
 
 :func:`conduction_pattern` turns the ``conducted`` flags of a pacing train into the
@@ -22,6 +23,13 @@ import numpy as np
 
 #: codes of block_side
 NONE, RIGHT, LEFT, BOTH = 0, 1, -1, 2
+#: codes of outcome (cable.io.schema.CODES)
+NOT_CAPTURED, CONDUCTED, BLOCKED, TIMED_OUT, OTHER = 0, 1, 2, 3, 4
+#: a propagated upstroke slower than this [V/s] (median over the CV window) is a slow
+#: response: calcium-current-driven responses rise at about 1-10 V/s, sodium-driven ones
+#: at 100-1000 V/s (Cranefield 1975, The Conduction of the Cardiac Impulse: the slow
+#: response and cardiac arrhythmias, Futura; values from memory)
+SLOW_RESPONSE_V_PER_S = 10.0
 
 
 def directions(beats) -> dict[str, np.ndarray]:
@@ -35,19 +43,52 @@ def directions(beats) -> dict[str, np.ndarray]:
     side[captured & left & ~right] = RIGHT
     side[captured & right & ~left] = LEFT
     side[captured & ~left & ~right] = BOTH
+    if getattr(beats, "timed_out", None) is not None:
+        side[np.asarray(beats.timed_out, dtype=bool)] = NONE    # not seen to stop: no block
     return {"reached_left": left, "reached_right": right, "block_side": side,
             "conducted": captured & left & right}
+
+
+def outcome(beats) -> np.ndarray:
+    """Per-beat outcome code: NOT_CAPTURED, CONDUCTED, BLOCKED, TIMED_OUT (else OTHER)."""
+    d = directions(beats)
+    out = np.full(len(beats.onset), OTHER, dtype=np.int8)
+    out[~np.asarray(beats.captured, dtype=bool)] = NOT_CAPTURED
+    out[np.asarray(beats.blocked, dtype=bool)] = BLOCKED
+    out[d["conducted"]] = CONDUCTED
+    if beats.timed_out is not None:
+        out[np.asarray(beats.timed_out, dtype=bool)] = TIMED_OUT
+    return out
+
+
+def slow_response(upstroke, x, window, conducted) -> np.ndarray:
+    """Per beat: the wave conducted with a median upstroke velocity over the window's
+    nodes below ``SLOW_RESPONSE_V_PER_S`` (``upstroke`` (nbeat, n) [V/s])."""
+    from cable.measure.velocity import window_nodes
+
+    nodes = window_nodes(x, window)
+    out = np.zeros(upstroke.shape[0], dtype=bool)
+    for b in range(upstroke.shape[0]):
+        rates = upstroke[b, nodes]
+        if conducted[b] and np.all(np.isfinite(rates)):
+            out[b] = float(np.median(rates)) < SLOW_RESPONSE_V_PER_S
+    return out
 
 
 def outputs(beats) -> dict:
     """The block outputs of a strand as ``{name: (dims, array)}``."""
     d = directions(beats)
-    return {
+    out = {
         "conducted": (("beat",), d["conducted"].astype(np.int8)),
         "reached_left": (("beat",), d["reached_left"].astype(np.int8)),
         "reached_right": (("beat",), d["reached_right"].astype(np.int8)),
         "block_side": (("beat",), d["block_side"]),
+        "outcome": (("beat",), outcome(beats)),
     }
+    if beats.timed_out is not None:
+        out["timed_out"] = (("beat",), np.asarray(beats.timed_out).astype(np.int8))
+        out["front_x"] = (("beat",), np.asarray(beats.front_x, dtype=np.float64))
+    return out
 
 
 def conduction_pattern(conducted) -> str:

@@ -16,6 +16,15 @@ key (raised K_o is supernormal before it depresses) it finds one of the transiti
 When the failing end's stimulus did not excite at all, the transition found is loss of
 capture rather than block; the result's ``note`` attribute says so.
 
+The criterion (``criterion``) says what failing means: ``"block"`` (the default: a
+judged beat did not conduct), ``"slow-response"`` (a judged beat did not conduct, or
+conducted as a slow response: ``slow_response`` of :func:`cable.simulate`), or
+``"cv-below=X"`` (a judged beat did not conduct, or its CV was below X m/s).
+
+A run in which a judged beat was still travelling when the run ended (``timed_out``)
+says nothing about block: it is run again with ``run.duration`` doubled, up to
+``MAX_EXTENSIONS`` times, and the search stops with an error if it still times out.
+
 The CV reported on the passing side is that run's CV in the case's ``cv_window`` (put
 the window inside the injured region to read the region's CV). Within a few % of the
 critical value a passing wave in depressed tissue may linger near failure before it
@@ -39,6 +48,30 @@ from cable.simulate import SimulationError, simulate
 DEFAULT_RELATIVE_TOLERANCE = 0.01
 #: most runs a search may make (a tolerance far below the interval's scale)
 MAX_RUNS = 60
+#: times a run that timed out is repeated with run.duration doubled
+MAX_EXTENSIONS = 3
+#: the criteria of failing (see the module's notes)
+CRITERIA = ("block", "slow-response", "cv-below=")
+
+
+def parse_criterion(text) -> tuple[str, float | None]:
+    """``"block"``, ``"slow-response"`` or ``"cv-below=X"`` (X in m/s) -> (kind, X or None)."""
+    text = str(text).strip()
+    if text in ("block", "slow-response"):
+        return text, None
+    if text.startswith("cv-below="):
+        try:
+            limit = float(text.split("=", 1)[1])
+        except ValueError:
+            limit = float("nan")
+        if math.isfinite(limit) and limit > 0:
+            return "cv-below", limit
+        raise CaseError(f"criterion = {text!r}: cv-below needs a positive speed in m/s, e.g. cv-below=0.1.")
+    import difflib
+
+    near = difflib.get_close_matches(text, ["block", "slow-response", "cv-below=0.1"], n=1)
+    hint = f" (did you mean {near[0]!r}?)" if near else ""
+    raise CaseError(f"criterion = {text!r}: allowed are 'block', 'slow-response' and 'cv-below=X' (X in m/s){hint}.")
 
 
 class NoBracketError(CaseError):
@@ -93,11 +126,21 @@ def _number(who, name, value) -> float:
     return out
 
 
-def _judge(ds: xr.Dataset, beat: int | None) -> dict:
-    """The outcome of one run: conducted, and what the judged beats did."""
+def _judge(ds: xr.Dataset, beat: int | None, criterion=("block", None)) -> dict:
+    """The outcome of one run: passed (``conducted``, under ``criterion``), and what the
+    judged beats did."""
     nb = ds.sizes.get("beat", 0)
     beats = list(range(nb)) if beat is None else [beat]
     conducted = ds["conducted"].values.astype(bool)
+    through = conducted.copy()
+    kind, limit = criterion
+    slow = ds["slow_response"].values.astype(bool) if "slow_response" in ds else np.zeros(nb, dtype=bool)
+    if kind == "slow-response":
+        conducted = conducted & ~slow
+    elif kind == "cv-below":
+        with np.errstate(invalid="ignore"):
+            conducted = conducted & (ds["conduction_velocity"].values >= limit)
+    timed = ds["timed_out"].values.astype(bool) if "timed_out" in ds else np.zeros(nb, dtype=bool)
     ok = bool(all(conducted[b] for b in beats))
     failed = [b for b in beats if not conducted[b]]
     last = failed[0] if failed else beats[-1]
@@ -108,6 +151,10 @@ def _judge(ds: xr.Dataset, beat: int | None) -> dict:
         "block_x": float(ds["block_x"].values[last]),
         "cv": float(ds["conduction_velocity"].values[last]),
         "beats_conducted": int(sum(conducted[b] for b in beats)),
+        "timed_out": bool(any(timed[b] for b in beats)),
+        "front_x": float(next((ds["front_x"].values[b] for b in beats if timed[b]), np.nan)),
+        "slow_response": bool(slow[last]),
+        "through": bool(through[last]),
         "activation": ds["activation_time"].values[beats[0]],
         "x": ds["x"].values,
     }
@@ -118,6 +165,10 @@ def describe(outcome: dict) -> str:
     if outcome["conducted"]:
         cv = outcome["cv"]
         return f"conducts (CV {cv:.4g} m/s)" if np.isfinite(cv) else "conducts"
+    if outcome.get("through", False):
+        cv = outcome["cv"]
+        why = "as a slow response" if outcome.get("slow_response", False) else "below the CV limit"
+        return f"conducts {why} (CV {cv:.4g} m/s): fails the criterion"
     if not outcome["captured"]:
         return "no capture (the stimulus did not excite)"
     if outcome["blocked"]:
@@ -180,7 +231,8 @@ class _Journal:
 
 
 def find_critical(case, key: str, low, high, *, tolerance: float | None = None, beat: int | None = None,
-                  log: bool = False, output=None, overwrite: bool = False, info=None) -> xr.Dataset:
+                  log: bool = False, output=None, overwrite: bool = False, info=None,
+                  criterion: str = "block") -> xr.Dataset:
     """Bisect ``key`` between ``low`` and ``high`` for the value where conduction turns into block.
 
     Parameters
@@ -207,6 +259,9 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         Replace an existing ``output``.
     info : callable, optional
         Receives one line per run.
+    criterion : str
+        What failing means: ``"block"`` (default), ``"slow-response"``, ``"cv-below=X"``
+        (X in m/s); see the module's notes.
 
     Returns
     -------
@@ -223,13 +278,15 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     Raises
     ------
     CaseError
-        Invalid key, values or options.
+        Invalid key, values or options; a run still timed out after ``MAX_EXTENSIONS``
+        doublings of ``run.duration``.
     NoBracketError
         The two ends do not straddle block (the message says how each end fell).
     SimulationError
         A run failed numerically (the message names the value).
     """
     who = "find_critical"
+    crit = parse_criterion(criterion)
     case = case if isinstance(case, Case) else load_case(case)
     if case.fiber is None:
         raise CaseError(f"{who}: the case has no [fiber]; conduction block needs a strand.")
@@ -272,7 +329,7 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     runs: list[tuple[float, dict]] = []
     journal = None
     if output is not None:
-        journal = _Journal(output, f"{case.text}\n{key} {lo!r} {hi!r} {tol!r} {beat!r} {log!r}")
+        journal = _Journal(output, f"{case.text}\n{key} {lo!r} {hi!r} {tol!r} {beat!r} {log!r} {criterion!r}")
         if journal.done:
             say(f"resuming: {len(journal.done)} run(s) of an interrupted search reused from {journal.folder}")
 
@@ -280,13 +337,7 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         outcome = journal.get(value) if journal is not None else None
         reused = outcome is not None
         if not reused:
-            variant = variants.get(value) or case.with_overrides({key: value})
-            try:
-                ds = simulate(variant)
-            except SimulationError as exc:
-                raise SimulationError(f"{who}: the run at {key} = {value:g} failed: {exc}", time=exc.time,
-                                      position=exc.position, partial=exc.partial) from None
-            outcome = _judge(ds, beat)
+            outcome = _run_until_decided(case, variants.get(value), key, value, beat, crit, say)
             if journal is not None:
                 journal.put(value, outcome)
         runs.append((value, outcome))
@@ -296,7 +347,7 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
 
     c_lo, c_hi = trial(lo), trial(hi)
     if c_lo == c_hi:
-        ds = _result(case, key, unit, lo, hi, tol, runs, None, None, log)
+        ds = _result(case, key, unit, lo, hi, tol, runs, None, None, log, criterion)
         if output is not None:
             _write(ds, output, overwrite)
             journal.remove()
@@ -313,7 +364,7 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
             passing = mid
         else:
             failing = mid
-    ds = _result(case, key, unit, lo, hi, tol, runs, passing, failing, log)
+    ds = _result(case, key, unit, lo, hi, tol, runs, passing, failing, log, criterion)
     fail_outcome = [o for v, o in runs if v == failing][-1]
     if not fail_outcome["captured"]:
         # the search found where the stimulus stops exciting, not where a started wave blocks
@@ -327,7 +378,33 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     return ds
 
 
-def _result(case, key, unit, lo, hi, tol, runs, passing, failing, log=False) -> xr.Dataset:
+def _run_until_decided(case, variant, key, value, beat, crit, say) -> dict:
+    """The outcome of the run at ``key = value``, with run.duration doubled while a
+    judged beat times out (at most MAX_EXTENSIONS times)."""
+    who = "find_critical"
+    variant = variant or case.with_overrides({key: value})
+    duration = variant.duration
+    for extension in range(MAX_EXTENSIONS + 1):
+        try:
+            ds = simulate(variant)
+        except SimulationError as exc:
+            raise SimulationError(f"{who}: the run at {key} = {value:g} failed: {exc}", time=exc.time,
+                                  position=exc.position, partial=exc.partial) from None
+        outcome = _judge(ds, beat, crit)
+        if not outcome["timed_out"]:
+            return outcome
+        if extension == MAX_EXTENSIONS:
+            break
+        duration *= 2.0
+        say(f"{key} = {value:.6g}: the wave was still travelling at x = {outcome['front_x']:.4g} cm when the run "
+            f"ended; running again with run.duration = {duration:g} ms")
+        variant = case.with_overrides({key: value, "run.duration": duration})
+    raise CaseError(f"{who}: at {key} = {value:g} the wave was still travelling at x = {outcome['front_x']:.4g} cm "
+                    f"after run.duration = {duration:g} ms ({MAX_EXTENSIONS} doublings): it neither conducted nor "
+                    f"blocked; raise run.duration in the case.")
+
+
+def _result(case, key, unit, lo, hi, tol, runs, passing, failing, log=False, criterion="block") -> xr.Dataset:
     values = np.array([v for v, _ in runs])
     out = [o for _, o in runs]
     data = {
@@ -347,6 +424,9 @@ def _result(case, key, unit, lo, hi, tol, runs, passing, failing, log=False) -> 
                                 {"units": "m/s", "long_name": "conduction velocity in the measurement window"}),
         "beats_conducted": (("run",), np.array([o["beats_conducted"] for o in out], dtype=np.int32),
                             {"units": "1", "long_name": "judged beats that conducted"}),
+        "slow_response": (("run",), np.array([bool(o.get("slow_response", False)) for o in out], dtype=np.int8),
+                          {"long_name": "conduction by a slow response (first failing beat, else last judged)",
+                           "flag_values": [0, 1], "flag_meanings": "false true"}),
     }
     coords = {"run": ("run", np.arange(len(runs)), {"long_name": "run number, in the order made"})}
     grids = [o["x"] for o in out]
@@ -368,6 +448,7 @@ def _result(case, key, unit, lo, hi, tol, runs, passing, failing, log=False) -> 
         "runs": len(runs),
         "straddles": int(passing is not None),
         "case": case.text,
+        "criterion": criterion,
         "comment": "Research tool; not for clinical decisions.",
     }
     if passing is not None:

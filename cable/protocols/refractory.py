@@ -162,6 +162,7 @@ def refractory_period(case, *, cycle_length: float | None = None, s1_count: int 
                                                                         "centre of the CV window"}),
         "erp_minus_apd90": ((), erp - apd_site, {"units": "ms", "long_name": "post-repolarisation refractoriness "
                                                                             "(ERP - APD90 at the site)"}),
+        **_wavelengths(ref, n1 - 1, erp, apd_centre),
         "s2_captured": ("trial", np.array([tried[c][0] for c in cis], dtype=np.int8),
                         {"long_name": "S2 started a regenerative response at the site", "flag_values": [0, 1],
                          "flag_meanings": "false true"}),
@@ -310,6 +311,18 @@ def search(trial, lo, hi, tol, *, who, limit, guess=None):
         b["cap_lo"] = min(b["cap_lo"], b["cap_hi"])
 
 
+def _wavelengths(ref, beat, erp, apd_centre) -> dict:
+    """Wavelengths of the last S1 beat: CV x ERP (the classical one) and CV x APD90."""
+    cv = float(ref["conduction_velocity"].values[beat])     # m/s
+    return {
+        "conduction_velocity_s1": ((), cv, {"units": "m/s", "long_name": "CV of the last S1 beat"}),
+        "wavelength_erp": ((), cv / 10.0 * erp, {"units": "cm", "long_name": "wavelength: CV of the last S1 beat "
+                                                                             "times the ERP"}),
+        "wavelength_apd": ((), cv / 10.0 * apd_centre, {"units": "cm", "long_name": "wavelength: CV of the last S1 "
+                                                                                   "beat times its APD90 mid-strand"}),
+    }
+
+
 def summary(ds: xr.Dataset) -> str:
     """A few lines: the periods, APD90 and the trials."""
     f = lambda name: float(ds[name])  # noqa: E731
@@ -320,6 +333,8 @@ def summary(ds: xr.Dataset) -> str:
              f"vulnerable window {f('vulnerable_window'):.4g} ms",
              f"APD90 of the last S1: {f('apd90_s1'):.4g} ms at the site, {f('apd90_s1_centre'):.4g} ms mid-strand; "
              f"ERP - APD90 = {f('erp_minus_apd90'):.4g} ms",
+             *([f"wavelength: CV x ERP {f('wavelength_erp'):.4g} cm (wavelength_erp), CV x APD90 "
+                f"{f('wavelength_apd'):.4g} cm (wavelength_apd)"] if "wavelength_erp" in ds else []),
              "S1-S2_ms  captured  propagated"]
     for ci, c, p in zip(ds["coupling_interval"].values, ds["s2_captured"].values, ds["s2_propagated"].values):
         lines.append(f"{ci:8.5g}  {'yes' if c else 'no':>8}  {'yes' if p else 'no':>10}")

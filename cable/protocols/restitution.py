@@ -69,7 +69,7 @@ def restitution(case, intervals=None, protocol: str = "s1s2", *, cycle_length: f
     xarray.Dataset
         Per point (dimension ``point``): ``interval`` (coupling interval or cycle
         length), ``diastolic_interval``, ``apd90`` [ms], ``conduction_velocity``
-        [m/s], ``wavelength`` [cm], ``propagated``; scalars ``max_slope`` and
+        [m/s], ``wavelength_apd`` [cm] (CV x APD90), ``propagated``; scalars ``max_slope`` and
         ``max_slope_di`` [ms], ``apd90_s1`` [ms].
     """
     who = "restitution"
@@ -195,7 +195,7 @@ def _result(case, protocol, rows, apd1, n1, cl, beats, node, ref) -> xr.Dataset:
         "diastolic_interval": ("point", di, {"units": "ms", "long_name": "diastolic interval before the beat"}),
         "apd90": ("point", apd, {"units": "ms", "long_name": "APD90 of the beat"}),
         "conduction_velocity": ("point", cv, {"units": "m/s", "long_name": "conduction velocity of the beat"}),
-        "wavelength": ("point", wavelength, {"units": "cm", "long_name": "wavelength: CV x APD90"}),
+        "wavelength_apd": ("point", wavelength, {"units": "cm", "long_name": "wavelength: CV x APD90"}),
         "propagated": ("point", col("propagated").astype(np.int8),
                        {"long_name": "the beat propagated along the strand (a cell: captured)", **flag}),
         "max_slope": ((), slope, {"units": "1", "long_name": "maximal slope of APD90 against DI"}),
@@ -228,11 +228,11 @@ def summary(ds: xr.Dataset) -> str:
     head = "S1-S2_ms" if ds.attrs["protocol"] == "s1s2" else "CL_ms"
     lines = [f"restitution ({ds.attrs['protocol']}): {ds.attrs['model']}; basic cycle length "
              f"{ds.attrs['basic_cycle_length_ms']:g} ms, APD90 there {float(ds['apd90_s1']):.4g} ms",
-             f"{head:>9}  DI_ms    APD90_ms  CV_m/s   wavelength_cm  propagated"]
+             f"{head:>9}  DI_ms    APD90_ms  CV_m/s   wavelength_apd_cm  propagated"]
     for k in range(ds.sizes["point"]):
         p = ds.isel(point=k)
         lines.append(f"{float(p['interval']):9.5g}  {float(p['diastolic_interval']):7.4g}  {float(p['apd90']):8.4g}  "
-                     f"{float(p['conduction_velocity']):7.4g}  {float(p['wavelength']):13.4g}  "
+                     f"{float(p['conduction_velocity']):7.4g}  {float(p['wavelength_apd']):17.4g}  "
                      f"{'yes' if int(p['propagated']) else 'no'}")
     lines.append(f"maximal APD restitution slope {float(ds['max_slope']):.3g} at DI {float(ds['max_slope_di']):.4g} ms")
     return "\n".join(lines)

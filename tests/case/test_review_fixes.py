@@ -53,7 +53,7 @@ def test_apd_levels_given_twice_are_refused_and_90_is_always_measured():
     # wavelength = CV x APD90 at the centre of the CV window (issue definition)
     centre = float(ds.x.sel(x=0.5, method="nearest"))
     expected = float(ds.conduction_velocity[0]) / 10.0 * float(ds.apd.sel(level=90.0, beat=0, x=centre))
-    assert float(ds.wavelength[0]) == pytest.approx(expected, rel=1e-12)  # the same arithmetic
+    assert float(ds.wavelength_apd[0]) == pytest.approx(expected, rel=1e-12)  # the same arithmetic
     assert np.isfinite(float(ds.apd.sel(level=50.0, beat=0, x=centre)))
 
 

@@ -91,11 +91,11 @@ def test_run_summary_gives_rest_upstroke_and_wavelength_at_the_centre(files, cap
     assert main(["info", result]) == 0
     lines = capsys.readouterr().out.splitlines()
     header = next(line for line in lines if line.startswith("beat "))
-    assert header.split()[5:8] == ["rest_mV", "dVdt_V/s", "wavelength_cm"]
+    assert header.split()[5:8] == ["rest_mV", "dVdt_V/s", "wavelength_apd_cm"]
     row = lines[lines.index(header) + 1].split()
     with cable.open_result(result) as ds:
         centre = dict(x=float(ds.x.sel(x=0.5, method="nearest")), beat=0)
         expected = [float(ds.resting_potential.sel(centre)), float(ds.upstroke_velocity.sel(centre)),
-                    float(ds.wavelength[0])]
+                    float(ds.wavelength_apd[0])]
     # the table prints 4 significant figures
     assert [float(v) for v in row[5:8]] == pytest.approx(expected, rel=5e-4)

@@ -118,23 +118,38 @@ def test_two_sided_solve_matches_dense_solve(n, theta, rng):
 
 def test_block_probe_equals_plain_probe(rng):
     # common practice: the optimised pass must leave exactly the same probe state
+    # (activations, upstrokes, and the repolarisation probe: rest, peak, level crossings)
+    from cable.measure.apd import ApdProbe
+
     n, dt, thr = 300, 0.01, -20.0
     arrays = {}
     for name in ("plain", "block"):
         arrays[name] = dict(vprev=np.full(n, -70.0), act=np.full((n, 4), np.nan), nact=np.zeros(n, np.int64),
-                            pre=np.zeros(n), open_up=np.zeros(n, np.int64), ups=np.full((n, 4), np.nan))
-    v = np.full(n, -70.0)
-    for k in range(200):
-        # a front moving right, with noise: crossings and upstrokes in a few blocks only
-        front = 40 + k
-        v = np.where(np.arange(n) < front, 30.0, -70.0) + rng.normal(0.0, 0.5, n)
+                            pre=np.zeros(n), open_up=np.zeros(n, np.int64), ups=np.full((n, 4), np.nan),
+                            apd=ApdProbe(np.full(n, -70.0), 4, (90.0, 30.0, 50.0)))
+    i_stim = np.zeros(n)
+    x = np.arange(n)
+    grid = (np.r_[0.0, np.full(n - 1, 30.0)], np.r_[np.full(n - 1, 30.0), 0.0], 0.5 * dt, 1)
+    for k in range(250):
+        # a front moving right and a back following it, with noise: crossings, upstrokes
+        # and repolarisation crossings in a few blocks only
+        front, back = 40 + k, k - 60
+        v = np.where((x < front) & (x >= back), 30.0 - 0.5 * (front - x), -70.0) + rng.normal(0.0, 0.5, n)
         v[front:front + 3] = np.linspace(-10.0, -60.0, 3)
-        a = arrays["plain"]
-        integrate.probe(v, a["vprev"], k * dt, dt, thr, a["act"], a["nact"], a["pre"], a["open_up"], a["ups"])
-        b = arrays["block"]
-        fused.block_probe(v, b["vprev"], k * dt, dt, thr, b["act"], b["nact"], b["pre"], b["open_up"], b["ups"])
+        stim_on = k < 3
+        i_stim[:] = 50.0 if stim_on else 0.0
+        for name, probe in (("plain", integrate.probe), ("block", fused.block_probe)):
+            a = arrays[name]
+            extra = (stim_on,) if name == "block" else ()
+            probe(v, a["vprev"], k * dt, dt, thr, a["act"], a["nact"], a["pre"], a["open_up"], a["ups"],
+                  a["apd"].args(), i_stim, grid, *extra)
+    assert np.isfinite(arrays["plain"]["apd"].repol).sum() > 100   # the pattern does repolarise
     for key in arrays["plain"]:
-        np.testing.assert_array_equal(arrays["plain"][key], arrays["block"][key])
+        if key == "apd":
+            for got, want in zip(arrays["block"][key].args(), arrays["plain"][key].args()):
+                np.testing.assert_array_equal(got, want)
+        else:
+            np.testing.assert_array_equal(arrays["plain"][key], arrays["block"][key])
 
 
 def _random_state(model, n, rng, lo=-100.0, hi=60.0):

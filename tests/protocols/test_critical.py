@@ -206,3 +206,57 @@ def test_interrupted_search_resumes_with_the_same_result(tmp_path):
     assert again.attrs["failing_value"] == whole.attrs["failing_value"]
     np.testing.assert_array_equal(again["activation_time"].values, whole["activation_time"].values)
     assert not (tmp_path / "resumed.nc.runs").exists()
+
+
+def _hh(duration, length=2.0):
+    from tests.protocols.protocol_cases import hh_axon
+
+    return hh_axon(length=length, dx=0.02, duration=duration)
+
+
+def test_runs_that_time_out_are_extended_not_counted_as_block():
+    # Slowed by a lower g_Na, the HH wave needs longer than 1.4 ms to cross 2 cm (at 19 m/s
+    # it needs ~1.1 ms); runs that end first are run again longer, so the critical g_Na
+    # is that of a long run (within the bracket width: the same transition)
+    key = "membrane.scale.g_Na"
+    short = find_critical(_hh(1.4), key, 0.05, 1.0, tolerance=0.02)
+    long_ = find_critical(_hh(12.0), key, 0.05, 1.0, tolerance=0.02)
+    assert abs(short.attrs["critical_value"] - long_.attrs["critical_value"]) <= 0.02
+    assert long_.attrs["critical_value"] < 0.5        # the HH axon conducts far below its g_Na
+
+
+def test_a_run_still_timing_out_after_extensions_is_refused():
+    # 0.1 ms doubled three times is 0.8 ms, still short of the ~1.1 ms crossing
+    with pytest.raises(cable.CaseError, match="still travelling"):
+        find_critical(_hh(0.1), "membrane.scale.g_Na", 0.05, 1.0, tolerance=0.1)
+
+
+def _tp06(duration=150.0):
+    # a short TP06 strand (ten Tusscher et al. 2004 tissue settings, protocol_cases.py)
+    from tests.protocols.protocol_cases import cardiac_strand
+
+    case = cardiac_strand("ten-tusscher-panfilov-2006", length=0.5, count=1, duration=duration)
+    case["stimulus"][0].update(duration=2.0)
+    return case
+
+
+def test_slow_response_criterion_finds_the_sodium_limit():
+    # With G_Na = 0 the TP06 strand still conducts, by the L-type calcium current (a slow
+    # response: upstroke of a few V/s, Cranefield 1975); "block" finds no transition in
+    # [0, 1], "slow-response" finds where the upstroke falls below 10 V/s
+    key = "membrane.scale.G_Na"
+    with pytest.raises(NoBracketError):
+        find_critical(_tp06(), key, 0.0, 1.0, tolerance=0.1)
+    res = find_critical(_tp06(), key, 0.0, 1.0, tolerance=0.05, criterion="slow-response")
+    assert 0.0 < res.attrs["critical_value"] < 0.5
+    assert res.attrs["criterion"] == "slow-response"
+    assert int(res.slow_response.values[0]) == 1    # the run at G_Na = 0
+
+
+def test_cv_below_criterion_and_bad_criterion():
+    key = "membrane.scale.g_Na"
+    res = find_critical(_hh(12.0), key, 0.2, 1.0, tolerance=0.05, criterion="cv-below=15")
+    p = res.attrs["passing_value"]
+    assert float(res.conduction_velocity.values[res.value.values == p][-1]) >= 15.0
+    with pytest.raises(cable.CaseError, match="allowed are 'block', 'slow-response'"):
+        find_critical(_hh(12.0), key, 0.2, 1.0, criterion="slow")

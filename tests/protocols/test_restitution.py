@@ -58,7 +58,7 @@ def test_mitchell_schaeffer_dynamic_protocol():
                            protocol="dynamic", beats=4)
     assert ds["one_to_one"].values.all()
     assert_apd_shortens_with_di(ds)
-    cl, wl = ds["interval"].values, ds["wavelength"].values
+    cl, wl = ds["interval"].values, ds["wavelength_apd"].values
     assert np.all(np.diff(wl[np.argsort(cl)]) > 0), (cl, wl)
     np.testing.assert_allclose(wl, ds["conduction_velocity"].values / 10 * ds["apd90"].values)
 
