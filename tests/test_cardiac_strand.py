@@ -14,13 +14,24 @@ CM = 2.0                   # uF/cm^2
 G_NA = {"luo-rudy-1991": "G_Na", "ten-tusscher-panfilov-2006": "G_Na"}
 
 
+def tissue_capacitance(model):
+    """(C_m, chi, stimulus factor) for a model: per-capacitance models at TNNP's C_m = 2;
+    per-area models (LR1: currents per area at C_m = 1 uF/cm^2, Luo & Rudy 1991) at C_m = 1
+    with chi doubled, so that D = sigma/(chi C_m) = 0.00154 cm^2/ms is kept, and the
+    stimulus halved, so that its depolarising rate (amplitude/C_m) is kept."""
+    if cable.get_model(model).current_basis == "area":
+        return 1.0, CHI * CM, 1.0 / CM
+    return CM, CHI, 1.0
+
+
 def strand(model, dx=0.01, dt=0.01, length=1.0, duration=40.0, sigma=SIGMA, scale=None, parameters=None,
            **extra):
+    cm, chi, stim = tissue_capacitance(model)
     case = {
         "membrane": {"model": model},
-        "fiber": {"length": length, "dx": dx, "conductivity": sigma, "surface_to_volume": CHI,
-                  "capacitance": CM},
-        "stimulus": [{"amplitude": 200.0, "duration": 1.0, "width": 0.1}],
+        "fiber": {"length": length, "dx": dx, "conductivity": sigma, "surface_to_volume": chi,
+                  "capacitance": cm},
+        "stimulus": [{"amplitude": 200.0 * stim, "duration": 1.0, "width": 0.1}],
         "numerics": {"dt": dt},
         "run": {"duration": duration},
         "output": {"every": 1.0},
