@@ -251,8 +251,16 @@ def test_reversal_potentials_at_defaults():
     p = MODEL.default_parameters()
     e_na = lr.RT_F * np.log(p[lr.NA_O] / p[lr.NA_I])
     assert abs(e_na - 54.4) < 0.5
-    # G_K = 0.282 sqrt(K_o/5.4) (REFERENCES.md, F): the default K_o gives the stored value
-    assert p[lr.K_O] == 5.4 and p[lr.G_K] == 0.282
+    # I_K = 0.282 sqrt(K_o/5.4) X X_i (V - E_K) at the default K_o 5.4 mM, with the paper's
+    # X_i = 2.837 (exp(0.04 (V + 77)) - 1) / ((V + 77) exp(0.04 (V + 35))) (Luo & Rudy 1991,
+    # REFERENCES.md, F), written out here at V = 0 mV and X = 0.5
+    s = MODEL.initial_states()[None, :].copy()
+    s[0, lr.S_X] = 0.5
+    out = np.empty((1, len(MODEL.current_names)))
+    MODEL.currents(np.array([0.0]), s, p[None, :], out)
+    x_i = 2.837 * (np.exp(0.04 * 77.0) - 1.0) / (77.0 * np.exp(0.04 * 35.0))
+    e_k = lr.RT_F * np.log((5.4 + 0.01833 * 140.0) / (145.0 + 0.01833 * 18.0))
+    assert out[0, MODEL.current_names.index("I_K")] == pytest.approx(0.282 * 0.5 * x_i * (0.0 - e_k), rel=1e-9)
 
 
 def test_g_k_scales_with_sqrt_k_o():
