@@ -189,6 +189,12 @@ def prepare(case) -> Setup:
         if note:
             notes.append(note)
     pulses = stimulus_pulses(case, x, notes)
+    if x is not None:
+        from cable.grid_check import coarse_grid_note
+
+        note = coarse_grid_note(case, model, p[0])  # said before the run (simulate prints the notes first)
+        if note:
+            notes.append(note)
     spb = max(1, int(round(case.output_every / num.dt)))
     intervals = int(round(case.duration / (spb * num.dt)))
     if abs(intervals * spb * num.dt - case.duration) > 1e-9 * case.duration:
