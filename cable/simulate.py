@@ -205,6 +205,12 @@ def prepare(case) -> Setup:
         if note:
             notes.append(note)
     pulses = stimulus_pulses(case, x, notes)
+    if x is not None:
+        from cable.grid_check import coarse_grid_note
+
+        note = coarse_grid_note(case, model, p[0])  # said before the run (simulate prints the notes first)
+        if note:
+            notes.append(note)
     if case.fiber is not None and case.fiber.closed:
         v0, s0, pulses = _ring_start(case, model, grid, p, v0, s0, pulses, cm, notes)
     spb = max(1, int(round(case.output_every / num.dt)))

@@ -52,9 +52,14 @@ def test_junction_edges_and_factor():
     junction = RG / 1000.0               # cm^2/mS
     assert grid.edge[edges[0]] == pytest.approx(base * cyto / (cyto + junction), rel=1e-12)
     assert grid.edge[0] == pytest.approx(base, rel=1e-12)
-    # a junction resistance, an absolute conductance and a conductance per area agree
-    g_abs = 2.5e-3 / (np.pi * (11e-4) ** 2)  # 2.5 uS per junction at a = 11 um [mS/cm^2]
-    assert g_abs == pytest.approx(1000.0 / 1.52, rel=2e-3)
+    # the loader reads a junction resistance and a conductance per area alike: 2.5 uS per
+    # junction over the cross-section pi (11 um)^2 is 6.577e3 uS/cm^2 = 1/(1.520 ohm*cm^2)
+    as_resistance = cable.load_case(strand(gj="1/(1.52 ohm*cm^2)", length=0.1)).fiber.gap_junction_conductance
+    per_area = cable.load_case(strand(gj=f"{2.5 / (np.pi * (11e-4) ** 2)!r} uS/cm^2",
+                                      length=0.1)).fiber.gap_junction_conductance
+    assert as_resistance == pytest.approx(1000.0 / 1.52, rel=1e-12)  # mS/cm^2
+    assert per_area == pytest.approx(as_resistance, rel=2e-3)        # 1.52 is rounded to 3 digits
+    # homogenised resistivity R_i + R_g / cell length (series resistances; common practice)
     assert effective_resistivity(fib) == pytest.approx(RI + RG / 0.01)
 
 

@@ -9,11 +9,16 @@ Shaw & Rudy's fibre)::
     SF = (Q_c + Q_out) / Q_in,    each Q = integral over A of its current,
 
 * I_c: the capacitive current of W (C_m dV/dt summed over its nodes);
-* I_in: the axial current entering W through its two ends (from the upstream side);
-* I_out: the axial current leaving W through its ends (to the downstream side);
-* A: the interval in which the net charge W has received, Q_m = integral of
+* I_in: the axial current entering W through its upstream end, signed (positive into W);
+* I_out: the axial current leaving W through its downstream end, signed (positive out of
+  W, towards the next cell);
+* A: the whole interval in which the net charge W has received, Q_m = integral of
   (I_in - I_out) = integral of (I_c + I_ion), is positive: it opens when the net axial
-  current turns inward and closes when Q_m returns to zero.
+  current turns inward and closes when Q_m returns to zero (not earlier: with poor
+  coupling the potential has kinks while Q_m is still large).
+
+Upstream is the end through which W received more charge over A (for a wave crossing W,
+the end facing it; :func:`safety_factors`).
 
 Charge conservation gives I_in = I_c + I_out + I_ion, so SF = 1 - Q_ion / Q_in: SF > 1
 when W's membrane produced net inward charge, SF < 1 when it consumed what it received.
@@ -37,12 +42,9 @@ the same control volume.
 
 Rules at the edges of the definition (ours):
 
-* For an activated node (its upward threshold crossing falls in A), A also ends at the
-  node's peak if Q_m is still positive there (a sealed end or a block site may never
-  give the charge back); for uniform propagation Q_m returns to zero at the peak anyway
-  (Q_m is proportional to dV/dt for a travelling wave).
-* For a node that did not activate, A runs until the next stimulus onset (or the end),
-  so the charge its membrane lost is counted: SF < 1. Intervals whose Q_in would
+* An interval still open at the next stimulus onset (or the end of the run) closes
+  there: a node that did not activate, or a block site that never gives the charge back,
+  so the charge its membrane lost is counted: SF < 1 for a node that did not activate. Intervals whose Q_in would
   depolarise W by less than ``MIN_DEPOLARISATION`` are dropped (noise at rest); such a
   node gets NaN.
 * Nodes whose control volume holds a stimulated node get NaN (the stimulus is a third
@@ -84,30 +86,23 @@ def _prefix(v, volume, out):
 
 @jit
 def _flows(v, edge, a, b):
-    # axial inflow and outflow of the window [a, b] (in mV/ms times node volume)
+    # signed axial currents into the window [a, b] through its left and right ends (in mV/ms
+    # times node volume; positive: into W); a sealed fibre end carries none
     n = v.shape[0]
-    inflow = 0.0
-    outflow = 0.0
+    left = 0.0
+    right = 0.0
     if a > 0:
-        j = edge[a - 1] * (v[a - 1] - v[a])
-        if j > 0.0:
-            inflow += j
-        else:
-            outflow -= j
+        left = edge[a - 1] * (v[a - 1] - v[a])
     if b < n - 1:
-        j = edge[b] * (v[b + 1] - v[b])
-        if j > 0.0:
-            inflow += j
-        else:
-            outflow -= j
-    return inflow, outflow
+        right = edge[b] * (v[b + 1] - v[b])
+    return left, right
 
 
 @jit
 def _close(i, t, state, acc, t0, kopen, qmin, rec, rec_k, nrec, activated):
     # store the interval of node i if it counts; return 1 if it had to be dropped (full)
     state[i] = 0
-    if activated or acc[i, 2] >= qmin[i]:
+    if activated or max(acc[i, 2], acc[i, 3]) >= qmin[i]:
         k = nrec[i]
         if k < rec.shape[1]:
             rec[i, k, 0] = t0[i]
@@ -127,9 +122,9 @@ def track(v, vprev, t, tprev, nact, nact_prev, edge, volume, wlo, whi, force, st
           qmin, rec, rec_k, nrec, pre, pre_prev):
     """Advance the safety-factor intervals of every node by one sample (see module doc).
 
-    ``acc[i]`` holds Q_m, Q_c, Q_in, Q_out of node i's open interval; ``force`` closes
-    the open intervals without activation first (a stimulus onset passed). Returns the
-    number of intervals dropped for want of room.
+    ``acc[i]`` holds Q_m, Q_c and the signed axial charges through the left and right ends
+    of node i's open interval; ``force`` closes every open interval first (a stimulus
+    onset passed). Returns the number of intervals dropped for want of room.
     """
     n = v.shape[0]
     h = t - tprev
@@ -137,15 +132,15 @@ def track(v, vprev, t, tprev, nact, nact_prev, edge, volume, wlo, whi, force, st
     _prefix(v, volume, pre)
     _prefix(vprev, volume, pre_prev)
     for i in range(n):
-        if force and state[i] == 1 and nact[i] <= kopen[i]:
-            dropped += _close(i, tprev, state, acc, t0, kopen, qmin, rec, rec_k, nrec, False)
+        if force and state[i] == 1:
+            dropped += _close(i, tprev, state, acc, t0, kopen, qmin, rec, rec_k, nrec, nact_prev[i] > kopen[i])
         a = wlo[i]
         b = whi[i]
-        in1, out1 = _flows(v, edge, a, b)
-        in0, out0 = _flows(vprev, edge, a, b)
-        qin = 0.5 * (in0 + in1) * h
-        qout = 0.5 * (out0 + out1) * h
-        dqm = qin - qout
+        l1, r1 = _flows(v, edge, a, b)
+        l0, r0 = _flows(vprev, edge, a, b)
+        ql = 0.5 * (l0 + l1) * h
+        qr = 0.5 * (r0 + r1) * h
+        dqm = ql + qr
         if state[i] == 0:
             if dqm <= 0.0:
                 continue
@@ -156,12 +151,24 @@ def track(v, vprev, t, tprev, nact, nact_prev, edge, volume, wlo, whi, force, st
                 acc[i, j] = 0.0
         acc[i, 0] += dqm
         acc[i, 1] += (pre[b + 1] - pre[a]) - (pre_prev[b + 1] - pre_prev[a])
-        acc[i, 2] += qin
-        acc[i, 3] += qout
-        activated = nact[i] > kopen[i]
-        if acc[i, 0] <= 0.0 or (activated and v[i] < vprev[i]):
-            dropped += _close(i, t, state, acc, t0, kopen, qmin, rec, rec_k, nrec, activated)
+        acc[i, 2] += ql
+        acc[i, 3] += qr
+        if acc[i, 0] <= 0.0:
+            dropped += _close(i, t, state, acc, t0, kopen, qmin, rec, rec_k, nrec, nact[i] > kopen[i])
     return dropped
+
+
+def safety_factors(q_c, q_left, q_right):
+    """SF = (Q_c + Q_out) / Q_in from the signed end charges of intervals (arrays alike).
+
+    The upstream end is the one through which W received more charge over A (for a wave
+    travelling through W, the end facing the wave); Q_in is the signed charge entering
+    there and Q_out the signed charge leaving through the other end (Shaw & Rudy 1997).
+    """
+    q_in = np.maximum(q_left, q_right)
+    q_out = -np.minimum(q_left, q_right)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return (q_c + q_out) / q_in
 
 
 def control_volumes(grid, length: float) -> tuple[np.ndarray, np.ndarray]:
@@ -269,8 +276,7 @@ class SafetyTracker:
         out = np.full((nb, n), np.nan)
         ends = np.append(beats.onset[1:], np.inf)
         rec, rec_k, nrec = self.rec, self.rec_k, self.nrec
-        with np.errstate(divide="ignore", invalid="ignore"):
-            sf = (rec[:, :, 2] + rec[:, :, 4]) / rec[:, :, 3]
+        sf = safety_factors(rec[:, :, 2], rec[:, :, 3], rec[:, :, 4])
         valid = np.arange(rec.shape[1])[None, :] < nrec[:, None]
         for b in range(nb):
             k = beats.index[b]
@@ -281,7 +287,7 @@ class SafetyTracker:
             if beats.captured[b]:
                 free = valid & (rec_k < 0) & (rec[:, :, 0] >= beats.onset[b] - 1e-9) & (rec[:, :, 0] < ends[b])
                 missing = (k < 0) & free.any(axis=1)
-                qin = np.where(free, rec[:, :, 3], -np.inf)
+                qin = np.where(free, np.fmax(rec[:, :, 3], rec[:, :, 4]), -np.inf)
                 best = np.argmax(qin, axis=1)
                 out[b, missing] = sf[missing, best[missing]]
         out[:, self.excluded] = np.nan

@@ -3,7 +3,10 @@
 Luo CH, Rudy Y (1991) A model of the ventricular cardiac action potential.
 Depolarization, repolarization, and their interaction. Circ Res 68:1501-1526.
 
-Currents (uA/cm^2 with C_m = 1 uF/cm^2, so also uA/uF; inward negative)::
+Currents per membrane area (uA/cm^2; inward negative), as the paper gives them with
+C_m = 1 uF/cm^2: ``current_basis = "area"``, so dV/dt = -I_ion/C_m and conductances are
+in mS/cm^2. At another C_m the same currents charge a larger capacitance (the paper's
+per-area reading); the published single-cell values hold at C_m = 1 uF/cm^2::
 
     I_Na = G_Na m^3 h j (V - E_Na)              fast sodium
     I_si = G_si d f (V - E_si)                  slow inward (calcium)
@@ -362,7 +365,7 @@ MODEL = MembraneModel(
     ),
     parameters=PARAMETERS,
     conductances=("G_Na", "G_si", "G_K", "G_K1", "G_Kp", "G_b"),
-    current_basis="capacitance",
+    current_basis="area",
     threshold=-40.0,
     reaction=reaction,
     reference=reference,

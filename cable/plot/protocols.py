@@ -17,6 +17,7 @@ import numpy as np
 
 from cable.case import CaseError
 from cable.plot import _common
+from cable.protocols.threshold import law_threshold
 
 #: points on each drawn fitted curve (a smooth line on a log axis)
 CURVE_POINTS = 200
@@ -130,8 +131,9 @@ def strength_duration(ds, ax=None, *, logx: bool = True, logy: bool = True, fits
     logx, logy : bool
         Logarithmic duration and amplitude axes (default both).
     fits : bool
-        Draw both fitted laws, I = I_rh (1 + c/d) with each fit's rheobase I_rh
-        [uA/cm^2] and chronaxie c [ms]; each rheobase as a dotted horizontal line and
+        Draw both fitted laws (Lapicque I = I_rh / (1 - exp(-d ln2 / c)), Weiss
+        I = I_rh (1 + c/d)) with each fit's rheobase I_rh [uA/cm^2] and chronaxie c
+        [ms]; each rheobase as a dotted horizontal line and
         each chronaxie as an open mark at (c, 2 I_rh), where the threshold is twice the
         rheobase (Lapicque's definition).
     legend : bool
@@ -161,8 +163,8 @@ def strength_duration(ds, ax=None, *, logx: bool = True, logy: bool = True, fits
             text = f"{law} fit: I_rh {rh:.3g} {unit}, c {c:.3g} ms"
             if np.isfinite(rms):
                 text += f" (rms {100 * rms:.2g} %)"
-            ax.plot(dd, rh * (1.0 + c / dd), color=style["color"], linestyle=style["linestyle"], linewidth=1.3,
-                    label=text)
+            ax.plot(dd, law_threshold(key, rh, c, dd), color=style["color"], linestyle=style["linestyle"],
+                    linewidth=1.3, label=text)
             ax.axhline(rh, color=style["color"], linestyle=":", linewidth=0.9)
             _fit_mark(ax, c, 2.0 * rh, style["color"])
         # one legend entry each for the marks the two fits share
@@ -183,7 +185,7 @@ def strength_duration(ds, ax=None, *, logx: bool = True, logy: bool = True, fits
 
 
 def charge_duration(ds, ax=None, *, fits: bool = True, legend: bool = True):
-    """Threshold charge against pulse duration: Weiss's straight line Q = I_rh (d + c).
+    """Threshold charge against pulse duration, with each fitted law's charge (Weiss's a straight line).
 
     Parameters
     ----------
@@ -192,8 +194,9 @@ def charge_duration(ds, ax=None, *, fits: bool = True, legend: bool = True):
     ax : matplotlib.axes.Axes, optional
         Where to draw (the current pyplot Axes if omitted).
     fits : bool
-        Draw both fits as charge lines from zero duration: slope the rheobase
-        [uA/cm^2], intercept I_rh c [nC/cm^2] at d = 0 (marked).
+        Draw both fits' charges Q = d I(d) from zero duration: Weiss's line of slope
+        I_rh [uA/cm^2] and intercept I_rh c [nC/cm^2], Lapicque's curve from I_rh tau
+        (intercepts marked).
     legend : bool
         Name the curves.
 
@@ -215,11 +218,14 @@ def charge_duration(ds, ax=None, *, fits: bool = True, legend: bool = True):
     ax.plot(d[ok], q[ok], markersize=5, linewidth=1.2, label="computed threshold charge", zorder=3,
             **_common.look(0))
     if fits and d.size:
-        dd = np.linspace(0.0, d.max() * 1.05, 2)
-        for _key, law, rh, c, style in _fits(ds):
-            ax.plot(dd, rh * (dd + c), color=style["color"], linestyle=style["linestyle"], linewidth=1.3,
-                    label=f"{law} fit: Q = {rh:.3g} × (d + {c:.3g} ms)")
-            _fit_mark(ax, 0.0, rh * c, style["color"])
+        dd = np.linspace(0.0, d.max() * 1.05, CURVE_POINTS)[1:]
+        for key, law, rh, c, style in _fits(ds):
+            # Weiss: the straight line Q = I_rh (d + c); Lapicque: Q = I_rh d / (1 - exp(-d/tau)),
+            # which starts at I_rh tau (tau = c / ln 2) at d = 0 (marked)
+            q0 = rh * c if key == "weiss" else rh * c / np.log(2.0)
+            ax.plot(np.r_[0.0, dd], np.r_[q0, dd * law_threshold(key, rh, c, dd)], color=style["color"],
+                    linestyle=style["linestyle"], linewidth=1.3, label=f"{law} fit: I_rh {rh:.3g}, c {c:.3g} ms")
+            _fit_mark(ax, 0.0, q0, style["color"])
     ax.set_xlim(left=0.0)
     ax.set_ylim(bottom=0.0)
     ax.set_xlabel(f"stimulus duration [{_units(ds, 'duration', 'ms')}]")

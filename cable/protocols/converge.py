@@ -21,6 +21,15 @@ at each level, 8 instead of 64 times the work at the third level) leaves
 A dx^2 + B dx, of formal order 1 once the dt term dominates. The output interval is
 scaled like dt so that the APD (interpolated between samples) refines too.
 
+Separate series. Refined together, the dx and dt errors cannot be told apart, so two
+more series of ``SERIES_LEVELS`` runs each are made from the case's own grid: dx halved
+at the case's dt (the space error, order 2), and dt halved at the case's dx (the time
+error, order 1). Each gives its own Richardson estimate of the error of the case's dx
+(or dt) alone, and from the error law e(h) = e0 (h/h0)^p the dx and the dt at which each
+error is half the tolerance (``tolerance``, default 2 %), so that together they stay
+within it. The warning recommends those. With forward-Euler diffusion the dx series at
+fixed dt would leave the stability limit; it is not run.
+
 A grid too coarse for the model can block a wave that the continuum carries (discrete
 propagation failure; Keener 1987, SIAM J Appl Math 47:556; from memory): when the
 user's grid blocks and the finer grids conduct (every grid from some level on, the finest
@@ -42,8 +51,11 @@ RATIOS = ("dt/dx^2", "dt/dx")
 #: formal orders of the scheme in dx and in dt (see the module docstring)
 SPACE_ORDER = 2
 TIME_ORDER = 1
-#: relative error of the user's resolution above which a warning is given
+#: relative error of the user's resolution above which a warning is given (the default
+#: tolerance of the recommendation too)
 WARN_RELATIVE_ERROR = 0.02
+#: runs in each of the separate dx and dt series (the case's own run included)
+SERIES_LEVELS = 3
 #: observed orders outside this range are not used for extrapolation (the formal one is)
 ORDER_RANGE = (0.5, 4.0)
 
@@ -54,7 +66,7 @@ def formal_order(ratio: str) -> float:
 
 
 def convergence(case, levels: int = 3, *, ratio: str = "dt/dx^2", beat: int = -1, base=None,
-                info=None) -> xr.Dataset:
+                info=None, tolerance: float = WARN_RELATIVE_ERROR, separate: bool = True) -> xr.Dataset:
     """Rerun ``case`` at dx, dx/2, dx/4 ... and certify its CV (and APD90).
 
     Parameters
@@ -71,6 +83,10 @@ def convergence(case, levels: int = 3, *, ratio: str = "dt/dx^2", beat: int = -1
         The result of the case as given, when already computed (``cable run --certify``).
     info : callable, optional
         Receives one line per level.
+    tolerance : float
+        Relative error the recommended dx and dt should reach together (default 2 %).
+    separate : bool
+        Also run the separate dx series (fixed dt) and dt series (fixed dx).
 
     Returns
     -------
@@ -78,7 +94,10 @@ def convergence(case, levels: int = 3, *, ratio: str = "dt/dx^2", beat: int = -1
         Per ``level``: ``dx`` [cm], ``dt`` [ms], ``conduction_velocity`` [m/s],
         ``apd90`` [ms], ``propagated``; scalars ``cv_observed_order``,
         ``cv_extrapolated`` [m/s], ``cv_relative_error`` (of level 0), and the same
-        for APD90; attributes ``warning`` and ``numerical_block``.
+        for APD90; attributes ``warning`` and ``numerical_block``. With ``separate``:
+        ``cv_dx_series(dx_level)`` at the case's dt and ``cv_dt_series(dt_level)`` at
+        the case's dx (and the APD90 alike), ``cv_space_error``, ``cv_time_error`` and
+        ``dx_recommended`` [cm], ``dt_recommended`` [ms].
 
     Raises
     ------
@@ -102,31 +121,59 @@ def convergence(case, levels: int = 3, *, ratio: str = "dt/dx^2", beat: int = -1
     if ratio == "dt/dx" and case.numerics.diffusion == "forward-euler":
         raise CaseError(f"{who}: ratio = 'dt/dx' with numerics.diffusion = 'forward-euler' breaks the stability "
                         f"limit on the finer grids; use ratio = 'dt/dx^2' or diffusion = 'crank-nicolson'.")
+    tolerance = _pacing.positive(who, "tolerance", tolerance)
     site = _pacing.stimulus_site(case, who)
     say = info or (lambda msg: None)
     shrink = 4.0 if ratio == "dt/dx^2" else 2.0
     fib, num = case.fiber, case.numerics
+
+    def run(label, dx, dt):
+        # output.every stays: it is a multiple of every finer dt, CV comes from the kernel's
+        # interpolated crossings, and APD from interpolated samples (an error second order in
+        # output.every, the same at every level) -- while the stored field, and memory, stay
+        # the size of the case's own
+        refined = case.with_overrides({"fiber.dx": dx, "numerics.dt": dt})
+        try:
+            ds = simulate(refined)
+        except SimulationError as exc:
+            raise CaseError(f"{who}: {label} (dx = {dx:g} cm, dt = {dt:g} ms) failed numerically: {exc}") from None
+        r = _measure(ds, beat, site, case, dx, dt)
+        say(f"{label}: dx {dx:.6g} cm, dt {dt:.6g} ms: CV {r['cv']:.6g} m/s, APD90 {r['apd']:.6g} ms"
+            + ("" if r["propagated"] else " (no propagation)"))
+        return r
+
     rows = []
     for k in range(int(levels)):
         dx, dt = fib.dx / 2 ** k, num.dt / shrink ** k
         if k == 0 and base is not None:
-            ds = base
+            rows.append(_measure(base, beat, site, case, dx, dt))
         else:
-            # output.every stays: it is a multiple of every finer dt, CV comes from the kernel's
-            # interpolated crossings, and APD from interpolated samples (an error second order in
-            # output.every, the same at every level) -- while the stored field, and memory, stay
-            # the size of the case's own
-            refined = case.with_overrides({"fiber.dx": dx, "numerics.dt": dt})
-            try:
-                ds = simulate(refined)
-            except SimulationError as exc:
-                raise CaseError(f"{who}: level {k} (dx = {dx:g} cm, dt = {dt:g} ms) failed numerically: {exc}") \
-                    from None
-        rows.append(_measure(ds, beat, site, case, dx, dt))
-        r = rows[-1]
-        say(f"level {k}: dx {dx:.6g} cm, dt {dt:.6g} ms: CV {r['cv']:.6g} m/s, APD90 {r['apd']:.6g} ms"
-            + ("" if r["propagated"] else " (no propagation)"))
-    return _result(case, rows, ratio, beat, site)
+            rows.append(run(f"level {k}", dx, dt))
+    series = None
+    if separate:
+        series = {"dt": [rows[0]] + [run(f"dt series {k}", fib.dx, num.dt / 2 ** k) for k in range(1, SERIES_LEVELS)]}
+        if num.diffusion != "forward-euler":
+            series["dx"] = [rows[0]] + [run(f"dx series {k}", fib.dx / 2 ** k, num.dt)
+                                        for k in range(1, SERIES_LEVELS)]
+    return _result(case, rows, ratio, beat, site, series=series, tolerance=tolerance)
+
+
+def separate_errors(values, h0: float, order: float, tolerance: float):
+    """(error of the first value, observed order, step reaching ``tolerance``) of one series.
+
+    ``values`` come from steps h0, h0/2, h0/4...; the error of the first is estimated by
+    Richardson extrapolation (formal ``order`` where the observed one is unusable), and
+    the step at which e(h) = e0 (h/h0)^p equals ``tolerance`` is returned (h0 itself when
+    e0 is already below it).
+    """
+    p, used, ext, _note = richardson(values, formal=order)
+    f0 = float(np.asarray(values, dtype=float)[0])
+    if not (np.isfinite(ext) and ext != 0 and np.isfinite(f0)):
+        return np.nan, p, np.nan
+    err = abs(f0 - ext) / abs(ext)
+    if err <= tolerance or err == 0.0:
+        return err, p, h0
+    return err, p, h0 * (tolerance / err) ** (1.0 / used)
 
 
 def _measure(ds, beat, site, case, dx, dt):
@@ -140,10 +187,13 @@ def _measure(ds, beat, site, case, dx, dt):
     return {"dx": dx, "dt": dt, "cv": cv, "apd": apd, "propagated": prop}
 
 
-def richardson(values, ratio: str):
-    """(observed order, order used, extrapolated value, note) from a sequence on grids halved each time."""
+def richardson(values, ratio: str = "dt/dx^2", *, formal: float | None = None):
+    """(observed order, order used, extrapolated value, note) from a sequence on grids halved each time.
+
+    ``formal``: the order used where the observed one is unusable (default: that of ``ratio``).
+    """
     f = np.asarray(values, dtype=float)
-    formal = formal_order(ratio)
+    formal = formal_order(ratio) if formal is None else float(formal)
     if f.size < 3 or not np.all(np.isfinite(f[-3:])):
         return np.nan, np.nan, np.nan, "fewer than three finite values"
     f1, f2, f3 = f[-3:]
@@ -161,22 +211,67 @@ def richardson(values, ratio: str):
     return p, used, float(ext), note
 
 
-def _result(case, rows, ratio, beat, site) -> xr.Dataset:
+def _series_data(series, tolerance):
+    """Variables of the separate dx and dt series, and the recommended dx and dt."""
+    data, coords = {}, {}
+    rec = {"dx": np.nan, "dt": np.nan}
+    errors = {}
+    for axis, order, dim, unit in (("dx", SPACE_ORDER, "dx_level", "cm"), ("dt", TIME_ORDER, "dt_level", "ms")):
+        rows = series.get(axis)
+        if rows is None:
+            continue
+        coords[f"{axis}_series_{axis}"] = (dim, np.array([r[axis] for r in rows]),
+                                           {"units": unit, "long_name": f"{axis} of the separate {axis} series"})
+        steps = []
+        for name, key, vunit, long in (("cv", "cv", "m/s", "conduction velocity"), ("apd90", "apd", "ms", "APD90")):
+            f = np.array([r[key] for r in rows], dtype=float)
+            other = "dt" if axis == "dx" else "dx"
+            data[f"{name}_{axis}_series"] = (dim, f, {"units": vunit, "long_name": f"{long} with {axis} refined at "
+                                                                                   f"the case's {other}"})
+            err, p, h = separate_errors(f, rows[0][axis], order, 0.5 * tolerance)
+            kind = "space" if axis == "dx" else "time"
+            data[f"{name}_{kind}_error"] = ((), err, {"units": "1", "long_name": f"estimated relative {kind} error "
+                                                                                 f"of the {long} at the case's {axis}"})
+            data[f"{name}_{kind}_observed_order"] = ((), p, {"units": "1", "long_name": f"observed order of the "
+                                                                                      f"{long} in {axis}"})
+            errors[(name, axis)] = err
+            steps.append(h)
+        finite = [h for h in steps if np.isfinite(h)]
+        rec[axis] = min(finite) if finite else np.nan
+    data["dx_recommended"] = ((), rec["dx"], {"units": "cm", "long_name": "dx at which the space error is half "
+                                                                           "the tolerance (dx series)"})
+    data["dt_recommended"] = ((), rec["dt"], {"units": "ms", "long_name": "dt at which the time error is half "
+                                                                           "the tolerance (dt series)"})
+    return data, coords, rec, errors
+
+
+def _result(case, rows, ratio, beat, site, series=None, tolerance=WARN_RELATIVE_ERROR) -> xr.Dataset:
     col = lambda key: np.array([r[key] for r in rows], dtype=float)  # noqa: E731
     cv, apd, prop = col("cv"), col("apd"), col("propagated").astype(bool)
     notes, warnings = [], []
     out = {}
+    sdata, scoords, rec, serr = _series_data(series, tolerance) if series else ({}, {}, None, {})
     for name, f, unit in (("cv", cv, "m/s"), ("apd90", apd, "ms")):
         p, used, ext, note = richardson(f, ratio)
         err = abs(f[0] - ext) / abs(ext) if np.isfinite(ext) and ext != 0 and np.isfinite(f[0]) else np.nan
         out[name] = (p, used, ext, err)
         if note:
             notes.append(f"{name}: {note}")
-        if np.isfinite(err) and err > WARN_RELATIVE_ERROR:
+        if np.isfinite(err) and err > tolerance:
+            advice = "refine dx and dt"
+            if rec is not None:
+                parts = [f"space {100 * serr[(name, 'dx')]:.1f}%" if np.isfinite(serr.get((name, "dx"), np.nan))
+                         else None,
+                         f"time {100 * serr[(name, 'dt')]:.1f}%" if np.isfinite(serr.get((name, "dt"), np.nan))
+                         else None]
+                need = [f"dx <= {rec['dx']:.3g} cm" if np.isfinite(rec["dx"]) else None,
+                        f"dt <= {rec['dt']:.3g} ms" if np.isfinite(rec["dt"]) else None]
+                advice = (f"of which {', '.join(x for x in parts if x)} (separate series); for "
+                          f"{100 * tolerance:g}% use {' and '.join(x for x in need if x) or 'finer dx and dt'}")
             warnings.append(f"the {name.upper() if name == 'cv' else 'APD90'} at the case's resolution (dx = "
                             f"{rows[0]['dx']:g} cm, dt = {rows[0]['dt']:g} ms) is off by an estimated "
-                            f"{100 * err:.1f}% (> {100 * WARN_RELATIVE_ERROR:g}%): {f[0]:.5g} against "
-                            f"{ext:.5g} {unit} extrapolated; refine dx and dt.")
+                            f"{100 * err:.1f}% (> {100 * tolerance:g}%): {f[0]:.5g} against "
+                            f"{ext:.5g} {unit} extrapolated; {advice}.")
     # numerical block: the case's grid fails and the finest grid conducts (the finer grids
     # from the first conducting one on all conduct, so the outcome has settled with dx)
     first = int(np.argmax(prop)) if prop.any() else len(prop)
@@ -207,8 +302,9 @@ def _result(case, rows, ratio, beat, site) -> xr.Dataset:
         data[f"{name}_extrapolated"] = ((), ext, {"units": unit, "long_name": f"Richardson-extrapolated {long}"})
         data[f"{name}_relative_error"] = ((), err, {"units": "1", "long_name": f"estimated relative error of the "
                                                                               f"{long} at the case's resolution"})
+    data.update(sdata)
     coords = {"level": ("level", np.arange(len(rows)), {"units": "1", "long_name": "refinement level (0 = case)"}),
-              "dx": ("level", col("dx"), {"units": "cm", "long_name": "grid spacing"})}
+              "dx": ("level", col("dx"), {"units": "cm", "long_name": "grid spacing"}), **scoords}
     attrs = {
         "Conventions": CONVENTIONS,
         "title": f"convergence certificate: {case.membrane.model}",
@@ -225,6 +321,7 @@ def _result(case, rows, ratio, beat, site) -> xr.Dataset:
         "splitting": case.numerics.splitting,
         "diffusion": case.numerics.diffusion,
         "gating": case.numerics.gating,
+        "tolerance_relative": tolerance,
         "warning": "\n".join(warnings),
         "numerical_block": int(block),
         "notes": "\n".join(notes),
@@ -247,6 +344,12 @@ def summary(ds: xr.Dataset) -> str:
         lines.append(f"{'CV' if name == 'cv' else 'APD90'}: observed order {float(ds[f'{name}_observed_order']):.3g}, "
                      f"extrapolated {float(ds[f'{name}_extrapolated']):.6g} {unit}, estimated error at the case's "
                      f"resolution {100 * float(ds[f'{name}_relative_error']):.3g}%")
+    for axis, kind, unit in (("dx", "space", "cm"), ("dt", "time", "ms")):
+        if f"cv_{kind}_error" in ds:
+            lines.append(f"{axis} alone ({axis} series {', '.join(format(v, '.4g') for v in ds[f'{axis}_series_{axis}'].values)}"
+                         f" {unit}): CV {kind} error {100 * float(ds[f'cv_{kind}_error']):.3g}%, APD90 "
+                         f"{100 * float(ds[f'apd90_{kind}_error']):.3g}%; {axis} for half the tolerance: "
+                         f"{float(ds[f'{axis}_recommended']):.3g} {unit}")
     if ds.attrs.get("notes"):
         lines += [f"note: {n}" for n in ds.attrs["notes"].split("\n")]
     if ds.attrs.get("warning"):

@@ -7,19 +7,24 @@ the far end of the fibre (a local response that dies out is not a capture); in
 ``"cell"`` mode the fibre is removed and the cell's potential must cross the activation
 threshold (``measure.threshold`` or the model's).
 
-Two laws are fitted to the thresholds I(d):
+Two laws are fitted to the thresholds I(d), each in its own form:
 
-* Lapicque's hyperbola, I = I_rh (1 + c/d), least squares in current
-  (Lapicque 1907, J Physiol Pathol Gen 9:620; from memory);
-* Weiss's law, Q = I d = I_rh (d + c), least squares in charge
-  (Weiss 1901, Arch Ital Biol 35:413; from memory).
+* Lapicque's exponential law, I = I_rh / (1 - exp(-d/tau)), the threshold of a
+  membrane charged through its time constant tau to a fixed depolarisation (Lapicque
+  1907, J Physiol Pathol Gen 9:620; from memory); its chronaxie is tau ln 2;
+* Weiss's hyperbola, I = I_rh (1 + c/d), a constant charge plus a constant current
+  (Weiss 1901, Arch Ital Biol 35:413; from memory); its chronaxie is c.
 
-They are the same two-parameter law written for current and for charge, so the fits
-differ only through what the least squares weighs: Lapicque's fit is dominated by the
-short pulses' large currents, Weiss's by the long pulses' large charges. I_rh is the
-rheobase and c the chronaxie, the duration at which the threshold is twice the
-rheobase (Lapicque's definition); that duration is also read off the computed curve
-directly (``chronaxie_direct``, by log-log interpolation) to show how well each law fits.
+Both are fitted by least squares in the relative residual (I - fit)/I, so that each
+point weighs the same whatever its amplitude (the thresholds span decades). The
+chronaxie is the duration at which the threshold is twice the rheobase (Lapicque's
+definition).
+
+What is measured, not fitted: the rheobase is the plateau of the computed curve (the
+threshold at the longest duration; a note says when the last two durations still differ
+by more than the search tolerance, so the plateau is not reached), and the chronaxie
+the duration at which the computed curve crosses twice it (log-log interpolation).
+A fit that misses a point by more than ``FIT_TOLERANCE`` gets a warning in the notes.
 """
 
 from __future__ import annotations
@@ -39,6 +44,11 @@ MODES = ("strand", "cell")
 DEFAULT_TOLERANCE = 0.01
 #: the amplitude search gives up above this factor times the first guess
 MAX_GROWTH = 2.0 ** 16
+#: a fitted law that misses a computed threshold by more than this (relative) is warned
+#: about: the thresholds are exact to the search tolerance (1 % by default), so a law off by
+#: more than 5 % at some duration does not describe the curve there (common practice)
+FIT_TOLERANCE = 0.05
+LN2 = float(np.log(2.0))
 
 
 def strength_duration(case, durations, *, tolerance: float = DEFAULT_TOLERANCE, mode: str = "strand",
@@ -164,27 +174,76 @@ def _bisect(excites, d, lo, hi, tolerance):
     return hi, runs, ""
 
 
+def law_threshold(law: str, rheobase: float, chronaxie: float, d):
+    """The threshold [uA/cm^2] a fitted law gives at durations ``d`` [ms].
+
+    ``law`` is "lapicque" (I_rh / (1 - exp(-d ln2 / c))) or "weiss" (I_rh (1 + c/d)).
+    """
+    d = np.asarray(d, dtype=float)
+    if law == "lapicque":
+        return rheobase / -np.expm1(-d * LN2 / chronaxie)
+    if law == "weiss":
+        return rheobase * (1.0 + chronaxie / d)
+    raise ValueError(law)
+
+
+def _weighted_scale(shape, i):
+    # the I_rh minimising sum(((i - I_rh shape)/i)^2): linear in I_rh for a fixed shape
+    w = shape / i
+    return float(np.sum(w) / np.sum(w * w))
+
+
 def fit_lapicque(durations, thresholds):
-    """Least squares of I = a + b/d in current: (rheobase a, chronaxie b/a, residuals I - fit)."""
+    """Lapicque's I = I_rh / (1 - exp(-d/tau)), least squares in (I - fit)/I.
+
+    Returns (rheobase, chronaxie = tau ln 2, residuals I - fit) [uA/cm^2, ms, uA/cm^2].
+    """
+    from scipy.optimize import minimize_scalar
+
     d, i = np.asarray(durations, float), np.asarray(thresholds, float)
     ok = np.isfinite(i)
     if ok.sum() < 2:
         return np.nan, np.nan, np.full(d.size, np.nan)
-    a_mat = np.column_stack([np.ones(ok.sum()), 1.0 / d[ok]])
-    (a, b), *_ = np.linalg.lstsq(a_mat, i[ok], rcond=None)
-    return float(a), float(b / a), i - (a + b / d)
+    dk, ik = d[ok], i[ok]
+
+    def cost(log_tau):
+        shape = 1.0 / -np.expm1(-dk / np.exp(log_tau))
+        return float(np.sum((1.0 - _weighted_scale(shape, ik) * shape / ik) ** 2))
+
+    span = np.log([dk.min() * 1e-3, dk.max() * 1e3])
+    grid = np.linspace(span[0], span[1], 121)
+    k = int(np.argmin([cost(g) for g in grid]))
+    lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, grid.size - 1)]
+    log_tau = minimize_scalar(cost, bounds=(lo, hi), method="bounded", options={"xatol": 1e-10}).x
+    tau = float(np.exp(log_tau))
+    rh = _weighted_scale(1.0 / -np.expm1(-dk / tau), ik)
+    return rh, tau * LN2, i - law_threshold("lapicque", rh, tau * LN2, d)
 
 
 def fit_weiss(durations, thresholds):
-    """Least squares of Q = a d + b in charge: (rheobase a, chronaxie b/a, residuals Q - fit)."""
+    """Weiss's I = I_rh (1 + c/d), least squares in (I - fit)/I (linear in I_rh and I_rh c).
+
+    Returns (rheobase, chronaxie c, residuals I - fit) [uA/cm^2, ms, uA/cm^2].
+    """
     d, i = np.asarray(durations, float), np.asarray(thresholds, float)
-    q = i * d
-    ok = np.isfinite(q)
+    ok = np.isfinite(i)
     if ok.sum() < 2:
         return np.nan, np.nan, np.full(d.size, np.nan)
-    a_mat = np.column_stack([d[ok], np.ones(ok.sum())])
-    (a, b), *_ = np.linalg.lstsq(a_mat, q[ok], rcond=None)
-    return float(a), float(b / a), q - (a * d + b)
+    w = 1.0 / i[ok]
+    a_mat = np.column_stack([np.ones(ok.sum()), 1.0 / d[ok]]) * w[:, None]
+    (a, b), *_ = np.linalg.lstsq(a_mat, i[ok] * w, rcond=None)
+    return float(a), float(b / a), i - law_threshold("weiss", float(a), float(b / a), d)
+
+
+def measured_rheobase(durations, thresholds, tolerance):
+    """(plateau of the computed curve [uA/cm^2], whether it is reached) from the longest pulses."""
+    d, i = np.asarray(durations, float), np.asarray(thresholds, float)
+    ok = np.isfinite(i)
+    if not ok.any():
+        return np.nan, False
+    i = i[ok]
+    reached = i.size >= 2 and abs(i[-2] - i[-1]) <= 2.0 * tolerance * i[-1]
+    return float(i[-1]), bool(reached)
 
 
 def chronaxie_direct(durations, thresholds, rheobase):
@@ -210,11 +269,32 @@ def _rms_relative(residual, reference):
     return float(np.sqrt(np.mean((residual[ok] / reference[ok]) ** 2)))
 
 
+def _fit_notes(durs, thr, fits, rheobase, reached, tolerance):
+    """Warnings on the fits and on the measured rheobase (see the module docstring)."""
+    notes = []
+    if np.isfinite(rheobase) and not reached:
+        notes.append(f"warning: the computed thresholds still fall at the longest pulses ({durs[-1]:g} ms), so "
+                     f"the measured rheobase {rheobase:.4g} uA/cm^2 is an upper bound; add longer durations.")
+    for law, (rh, c, res) in fits.items():
+        rel = np.abs(res / thr)
+        if not np.any(np.isfinite(rel)):
+            continue
+        k = int(np.nanargmax(rel))
+        if rel[k] > FIT_TOLERANCE:
+            notes.append(f"warning: the {law.capitalize()} fit misses the computed threshold by {100 * rel[k]:.0f}% at "
+                         f"{durs[k]:g} ms (tolerance {100 * FIT_TOLERANCE:.0f}%); its rheobase {rh:.4g} uA/cm^2 "
+                         f"against the measured {rheobase:.4g}: read the measured values.")
+    return notes
+
+
 def _result(case, durs, thr, trials, tolerance, mode, watch, site, notes) -> xr.Dataset:
     charge = thr * durs
     rl, cl, res_l = fit_lapicque(durs, thr)
     rw, cw, res_w = fit_weiss(durs, thr)
-    direct = chronaxie_direct(durs, thr, rw)
+    rheobase, reached = measured_rheobase(durs, thr, tolerance)
+    direct = chronaxie_direct(durs, thr, rheobase)
+    notes = list(notes) + _fit_notes(durs, thr, {"lapicque": (rl, cl, res_l), "weiss": (rw, cw, res_w)},
+                                     rheobase, reached, tolerance)
     cur = {"units": "uA/cm^2"}
     data = {
         "threshold": ("duration", thr, {**cur, "long_name": "threshold stimulus amplitude (an amplitude that excited, "
@@ -222,17 +302,20 @@ def _result(case, durs, thr, trials, tolerance, mode, watch, site, notes) -> xr.
         "charge": ("duration", charge, {"units": "nC/cm^2", "long_name": "threshold charge (amplitude x duration)"}),
         "trials": ("duration", trials, {"units": "1", "long_name": "simulations run for this duration"}),
         "lapicque_residual": ("duration", res_l, {**cur, "long_name": "threshold minus Lapicque fit"}),
-        "weiss_residual": ("duration", res_w, {"units": "nC/cm^2", "long_name": "charge minus Weiss fit"}),
-        "rheobase_lapicque": ((), rl, {**cur, "long_name": "rheobase, Lapicque fit I = I_rh (1 + c/d)"}),
-        "chronaxie_lapicque": ((), cl, {"units": "ms", "long_name": "chronaxie, Lapicque fit"}),
-        "rheobase_weiss": ((), rw, {**cur, "long_name": "rheobase, Weiss fit Q = I_rh (d + c)"}),
-        "chronaxie_weiss": ((), cw, {"units": "ms", "long_name": "chronaxie, Weiss fit"}),
-        "chronaxie_direct": ((), direct, {"units": "ms", "long_name": "duration at which the computed threshold "
-                                                                       "is twice the Weiss rheobase"}),
+        "weiss_residual": ("duration", res_w, {**cur, "long_name": "threshold minus Weiss fit"}),
+        "rheobase_lapicque": ((), rl, {**cur, "long_name": "rheobase, Lapicque fit I = I_rh / (1 - exp(-d/tau))"}),
+        "chronaxie_lapicque": ((), cl, {"units": "ms", "long_name": "chronaxie tau ln 2, Lapicque fit"}),
+        "rheobase_weiss": ((), rw, {**cur, "long_name": "rheobase, Weiss fit I = I_rh (1 + c/d)"}),
+        "chronaxie_weiss": ((), cw, {"units": "ms", "long_name": "chronaxie c, Weiss fit"}),
+        "rheobase_measured": ((), rheobase, {**cur, "long_name": "rheobase measured: the computed threshold at the "
+                                                                  "longest duration (the curve's plateau)"}),
+        "chronaxie_direct": ((), direct, {"units": "ms", "long_name": "chronaxie measured: duration at which the "
+                                                                       "computed threshold is twice the measured "
+                                                                       "rheobase"}),
         "lapicque_rms_relative_residual": ((), _rms_relative(res_l, thr), {
             "units": "1", "long_name": "root-mean-square of the Lapicque residuals relative to the thresholds"}),
-        "weiss_rms_relative_residual": ((), _rms_relative(res_w, charge), {
-            "units": "1", "long_name": "root-mean-square of the Weiss residuals relative to the threshold charges"}),
+        "weiss_rms_relative_residual": ((), _rms_relative(res_w, thr), {
+            "units": "1", "long_name": "root-mean-square of the Weiss residuals relative to the thresholds"}),
     }
     coords = {"duration": ("duration", durs, {"units": "ms", "long_name": "stimulus pulse duration"})}
     if mode == "cell" and case.fiber is not None and case.fiber.capacitance != 1.0:
@@ -251,7 +334,8 @@ def _result(case, durs, thr, trials, tolerance, mode, watch, site, notes) -> xr.
         "observe_ms": watch,
         "stimulus_x_cm": site.x,
         "stimulus_width_cm": site.width,
-        "fits": "Lapicque I = I_rh (1 + c/d) fitted in current; Weiss Q = I_rh (d + c) fitted in charge",
+        "fits": "Lapicque I = I_rh / (1 - exp(-d/tau)), chronaxie tau ln 2; Weiss I = I_rh (1 + c/d); both by "
+                "least squares in the relative residual",
         "case": case.text,
         "notes": "\n".join(notes),
         "comment": "Research tool; not for clinical decisions.",
@@ -271,8 +355,8 @@ def summary(ds: xr.Dataset) -> str:
     lines.append(f"Weiss:    rheobase {float(ds['rheobase_weiss']):.5g} uA/cm^2, chronaxie "
                  f"{float(ds['chronaxie_weiss']):.4g} ms, rms relative residual "
                  f"{float(ds['weiss_rms_relative_residual']):.2%}")
-    lines.append(f"chronaxie read off the curve (threshold = 2 x Weiss rheobase): "
-                 f"{float(ds['chronaxie_direct']):.4g} ms")
+    lines.append(f"measured: rheobase {float(ds['rheobase_measured']):.5g} uA/cm^2 (the curve's plateau), "
+                 f"chronaxie {float(ds['chronaxie_direct']):.4g} ms (threshold = 2 x that rheobase)")
     if ds.attrs.get("notes"):
         lines.append("notes: " + ds.attrs["notes"])
     return "\n".join(lines)

@@ -50,11 +50,11 @@ def test_apd_levels_given_twice_are_refused_and_90_is_always_measured():
     case = load_case(AXON, ["measure.apd_levels=[50]"])
     assert case.apd_levels == (50.0, 90.0)
     ds = cable.simulate(case)
-    # wavelength = CV x APD90 at the centre of the CV window (issue definition)
+    # both levels measured, APD50 shorter than APD90 (definition); the wavelength is checked
+    # against the excited region in tests/test_cardiac_strand.py
     centre = float(ds.x.sel(x=0.5, method="nearest"))
-    expected = float(ds.conduction_velocity[0]) / 10.0 * float(ds.apd.sel(level=90.0, beat=0, x=centre))
-    assert float(ds.wavelength_apd[0]) == pytest.approx(expected, rel=1e-12)  # the same arithmetic
-    assert np.isfinite(float(ds.apd.sel(level=50.0, beat=0, x=centre)))
+    apd50 = float(ds.apd.sel(level=50.0, beat=0, x=centre))
+    assert 0.0 < apd50 < float(ds.apd.sel(level=90.0, beat=0, x=centre))
 
 
 def test_temperature_message_shows_the_value_as_given():

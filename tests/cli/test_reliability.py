@@ -70,7 +70,8 @@ def test_interrupt_leaves_a_complete_file_marked_partial(tmp_path, sig):
     assert not list(tmp_path.glob(".*.tmp"))
 
 
-def test_interrupt_with_existing_file_and_no_overwrite_leaves_it_untouched(tmp_path):
+def test_existing_file_without_overwrite_is_refused_and_left_untouched(tmp_path):
+    # refused before the run starts (exit 2), so no signal is needed to test it
     case = tmp_path / "long.toml"
     case.write_text(LONG_CASE)
     out = tmp_path / "long.nc"

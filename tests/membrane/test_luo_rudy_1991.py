@@ -251,8 +251,16 @@ def test_reversal_potentials_at_defaults():
     p = MODEL.default_parameters()
     e_na = lr.RT_F * np.log(p[lr.NA_O] / p[lr.NA_I])
     assert abs(e_na - 54.4) < 0.5
-    # G_K = 0.282 sqrt(K_o/5.4) (REFERENCES.md, F): the default K_o gives the stored value
-    assert p[lr.K_O] == 5.4 and p[lr.G_K] == 0.282
+    # I_K = 0.282 sqrt(K_o/5.4) X X_i (V - E_K) at the default K_o 5.4 mM, with the paper's
+    # X_i = 2.837 (exp(0.04 (V + 77)) - 1) / ((V + 77) exp(0.04 (V + 35))) (Luo & Rudy 1991,
+    # REFERENCES.md, F), written out here at V = 0 mV and X = 0.5
+    s = MODEL.initial_states()[None, :].copy()
+    s[0, lr.S_X] = 0.5
+    out = np.empty((1, len(MODEL.current_names)))
+    MODEL.currents(np.array([0.0]), s, p[None, :], out)
+    x_i = 2.837 * (np.exp(0.04 * 77.0) - 1.0) / (77.0 * np.exp(0.04 * 35.0))
+    e_k = lr.RT_F * np.log((5.4 + 0.01833 * 140.0) / (145.0 + 0.01833 * 18.0))
+    assert out[0, MODEL.current_names.index("I_K")] == pytest.approx(0.282 * 0.5 * x_i * (0.0 - e_k), rel=1e-9)
 
 
 def test_g_k_scales_with_sqrt_k_o():
@@ -274,3 +282,29 @@ def test_g_k_scales_with_sqrt_k_o():
     MODEL.currents(v, s, p1, out1)
     MODEL.currents(v, s, p2, out2)
     assert out2[0, 2] / out1[0, 2] == pytest.approx(2.0, rel=1e-12)
+
+
+def test_currents_are_per_area_at_both_capacitances():
+    # issue 13 item 4: Luo & Rudy (1991) give the currents per membrane area (uA/cm^2) with
+    # C_m = 1 uF/cm^2, so dV/dt = -I_ion/C_m. The same strand (D = 0.00154 cm^2/ms, as in
+    # ten Tusscher et al. 2004) at C_m = 1 and 2 uF/cm^2, with the stimulus scaled with C_m:
+    # at C_m = 2 the membrane charges at half the rate and the wave is slower. For a front
+    # whose speed goes as sqrt(D k) (k the membrane's rate; Nagumo front, closed form) halving
+    # k divides the speed by sqrt(2); we require a clear slowing (below 0.9 of the C_m = 1
+    # speed, where the per-capacitance reading would give exactly 1) and not beyond 1/sqrt(2)
+    # with a 10% margin for LR1's non-cubic kinetics.
+    import cable
+
+    def cv(cm):
+        case = {"membrane": {"model": "luo-rudy-1991"},
+                "fiber": {"length": 1.0, "dx": 0.01, "conductivity": 1000.0 / 162.0,
+                          "surface_to_volume": 4000.0 / cm, "capacitance": cm},
+                "stimulus": [{"amplitude": 100.0 * cm, "duration": 1.0, "width": 0.1}],
+                "numerics": {"dt": 0.01}, "run": {"duration": 40.0}, "output": {"every": 1.0}}
+        assert cable.load_case(case).fiber.diffusivity == pytest.approx(0.00154, rel=5e-3)  # 3 digits published
+        return float(cable.simulate(case).conduction_velocity[0])
+
+    assert MODEL.current_basis == "area" and MODEL.ion_scale(2.0) == 0.5
+    assert all(MODEL.parameter(g).units == "mS/cm^2" for g in MODEL.conductances)
+    ratio = cv(2.0) / cv(1.0)
+    assert 0.9 * 2 ** -0.5 < ratio < 0.9, ratio

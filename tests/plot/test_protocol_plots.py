@@ -102,8 +102,11 @@ def test_strength_duration_thresholds_fits_rheobase_and_chronaxie(sd):
         assert f"I_rh {rh:.3g} µA/cm², c {c:.3g} ms" in [t for t in texts if t.startswith(law)][0]
         (curve,) = lines_labelled(ax, f"{law} fit")
         d, i = np.asarray(curve.get_xdata()), np.asarray(curve.get_ydata())
-        # the fitted law I = I_rh (1 + c/d) (Lapicque 1907, J Physiol Pathol Gen 9:620; from memory)
-        assert np.allclose(i, rh * (1 + c / d), rtol=EXACT)
+        # each fitted law in its own form (from memory): Lapicque 1907 (J Physiol Pathol Gen 9:620)
+        # I = I_rh / (1 - exp(-d/tau)) with c = tau ln 2; Weiss 1901 (Arch Ital Biol 35:413)
+        # I = I_rh (1 + c/d)
+        law_curve = rh / (1 - np.exp(-d * np.log(2) / c)) if key == "lapicque" else rh * (1 + c / d)
+        assert np.allclose(i, law_curve, rtol=EXACT)
         # chronaxie: the duration at which the threshold is twice the rheobase (Lapicque's definition)
         assert np.interp(np.log(c), np.log(d), np.log(i)) == pytest.approx(np.log(2 * rh), abs=1e-3)
         colour = curve.get_color()

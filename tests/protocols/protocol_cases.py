@@ -11,11 +11,18 @@ CM = 2.0                   # uF/cm^2
 
 def cardiac_strand(model, *, scale=None, length=1.0, dx=0.025, dt=0.02, sigma=SIGMA, amplitude=100.0,
                    count=2, cycle_length=1000.0, duration=1000.0, width=0.1):
-    """A 1 cm strand paced ``count`` times at ``cycle_length`` from its left end (1 Hz by default)."""
+    """A 1 cm strand paced ``count`` times at ``cycle_length`` from its left end (1 Hz by default).
+
+    Per-area models (LR1: currents per area at C_m = 1 uF/cm^2, Luo & Rudy 1991) run at
+    C_m = 1 with chi doubled (the same D) and the stimulus halved (the same amplitude/C_m).
+    """
+    from cable.membrane import get_model
+
+    cm, chi, stim = (1.0, CHI * CM, 1.0 / CM) if get_model(model).current_basis == "area" else (CM, CHI, 1.0)
     case = {
         "membrane": {"model": model},
-        "fiber": {"length": length, "dx": dx, "conductivity": sigma, "surface_to_volume": CHI, "capacitance": CM},
-        "stimulus": [{"amplitude": amplitude, "duration": 1.0, "width": width, "count": count,
+        "fiber": {"length": length, "dx": dx, "conductivity": sigma, "surface_to_volume": chi, "capacitance": cm},
+        "stimulus": [{"amplitude": amplitude * stim, "duration": 1.0, "width": width, "count": count,
                       "cycle_length": cycle_length}],
         "numerics": {"dt": dt},
         "run": {"duration": duration},
