@@ -6,7 +6,10 @@
   advanced by the Rush-Larsen update y <- y + (dy/dt) (exp(b dt) - 1)/b, exact when a
   and b are constant over the step (Rush & Larsen 1978, IEEE Trans Biomed Eng 25:389;
   the same form covers gates written with rates or with y_inf and tau);
-* which intermediates each expression needs, and which depend on the states.
+* which intermediates each expression needs, and which depend on the states or on the
+  gates (the states advanced by Rush-Larsen; the ionic current is evaluated with the
+  updated gates and the other states as they were at the start of the step, so only the
+  intermediates that depend on a gate are evaluated twice).
 """
 
 from __future__ import annotations
@@ -23,6 +26,7 @@ class Analysis:
     parsed: Parsed
     linear: dict          # state name -> b (sympy expr over symbols) or None
     state_dependent: set  # intermediate names that depend on a state
+    gate_dependent: set   # intermediate names that depend on a gate (a state with a linear derivative)
     v_only: set           # intermediate names that depend on V (and constants) only
 
 
@@ -86,4 +90,6 @@ def analyse(parsed: Parsed) -> Analysis:
     state_dep = {n for n, d in deps.items() if d & states}
     v_only = {n for n, d in deps.items() if POTENTIAL in d and not (d & states)
               and not (d & {p.name for p in parsed.model.parameters})}
-    return Analysis(parsed, linear, state_dep, v_only)
+    gates = {n for n, b in linear.items() if b is not None}
+    gate_dep = {n for n, d in deps.items() if d & gates}
+    return Analysis(parsed, linear, state_dep, gate_dep, v_only)

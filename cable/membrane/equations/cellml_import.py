@@ -141,12 +141,14 @@ def build(path, potential: str | None = None, stimulus_current: str | None = Non
     notes.append(f"membrane potential: {names[vkey]} [{vinfo['units']}]")
     s_v = _factor(code.model, vinfo["units"], "voltage")
     if s_v is None:
+        _check_dimensionless(code, names[vkey], vinfo["units"], "mV")
         s_v = 1.0
-        notes.append(f"  units '{vinfo['units']}' are not a voltage: taken as mV")
+        notes.append("  dimensionless units: taken as mV")
     s_t = _factor(code.model, code.voi["units"], "time")
     if s_t is None:
+        _check_dimensionless(code, code.voi["name"], code.voi["units"], "ms")
         s_t = 1.0
-        notes.append(f"time: units '{code.voi['units']}' are not a time: taken as ms")
+        notes.append("time: dimensionless units, taken as ms")
     elif s_t != 1.0:
         notes.append(f"time: {code.voi['units']} converted to ms (x {s_t:g})")
 
@@ -180,6 +182,12 @@ def build(path, potential: str | None = None, stimulus_current: str | None = Non
     V = sympy.Symbol(POTENTIAL, real=True)
     to_file = {sym[vkey]: c0 + c1 * V}
     return _assemble(code, names, sym, eqs, values, vkey, (c0, c1, s_t), to_file, zero, voi, notes, name)
+
+
+def _check_dimensionless(code, variable, units, canonical):
+    if units != "dimensionless":
+        raise EquationError(f"CellML file '{code.path}': variable {variable} is in units '{units}', which "
+                            f"cannot be converted to {canonical}.")
 
 
 def _time_dependent(inter: dict, voi) -> set:

@@ -13,6 +13,7 @@ import json
 
 from sympy.printing.pycode import PythonCodePrinter
 
+from cable.membrane.equations import fastpath
 from cable.membrane.equations.analysis import Analysis, needed
 from cable.membrane.equations.description import POTENTIAL
 
@@ -78,11 +79,14 @@ def _body(an: Analysis, pr, names, indent, load_state, load_param, store_state):
                 lines.append(f"{indent}    b{k} = ({pr.doprint_np(rl[s.name])}) * dt")
                 # (exp(b dt) - 1)/(b dt) -> 1 as b dt -> 0 (no gate dynamics at all)
                 lines.append(f"{indent}    d{k} = d{k} * (np.expm1(b{k}) / b{k} if b{k} != 0.0 else 1.0)")
-    for k in range(nstate):
-        lines.append(f"{indent}y{k} = y{k} + dt * d{k}")
-        lines.append(f"{indent}{store_state(k)} = y{k}")
+    for k, s in enumerate(m.states):
+        if s.name in rl:  # a gate: I_ion below takes its new value
+            lines.append(f"{indent}y{k} = y{k} + dt * d{k}")
+            lines.append(f"{indent}{store_state(k)} = y{k}")
+        else:
+            lines.append(f"{indent}{store_state(k)} = y{k} + dt * d{k}")
     cur = list(parsed.currents.values())
-    after = [n for n in needed(parsed, cur) if n in an.state_dependent or n not in first]
+    after = [n for n in needed(parsed, cur) if n in an.gate_dependent or n not in first]
     lines += _assign(pr, names, parsed, after, indent)
     lines.append(f"{indent}ion = " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
     return lines
@@ -116,5 +120,6 @@ def module_source(an: Analysis, info: dict) -> str:
     out += _assign(pr, names, parsed, needed(parsed, list(parsed.derivatives.values()) + cur), "    ")
     out.append("    ds = [" + ", ".join(pr.doprint_np(parsed.derivatives[s.name]) for s in m.states) + "]")
     out.append("    return ds, " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
+    out += fastpath.kernel_lines(an, pr, names, fastpath.plan(an))
     text = "\n".join(out) + "\n"
     return text.replace('"""\n\nimport numpy', '"""\n\nimport json as _json\n\nimport numpy', 1)

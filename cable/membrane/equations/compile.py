@@ -23,8 +23,8 @@ from pathlib import Path
 import numpy as np
 import sympy
 
-from cable.membrane.base import MembraneModel, Parameter, State
-from cable.membrane.equations import analysis, codegen
+from cable.membrane.base import FastPath, MembraneModel, Parameter, State
+from cable.membrane.equations import analysis, codegen, fastpath
 from cable.membrane.equations.description import Equations, EqParameter, EqState, parse
 
 
@@ -59,7 +59,7 @@ def cache_dir() -> Path:
 
 def _compiler_hash() -> str:
     h = hashlib.sha256()
-    for mod in (analysis, codegen, sys.modules[__name__]):
+    for mod in (analysis, codegen, fastpath, sys.modules[__name__]):
         h.update(inspect.getsource(mod).encode())
     return h.hexdigest()[:12]
 
@@ -171,6 +171,9 @@ def model_from_module(module, name: str | None = None) -> GeneratedModel:
         reaction=module.reaction, reference=reference, currents=module.currents,
         current_names=tuple(n for n, _ in eq["currents"]),
         temperature_parameter=eq["temperature_parameter"],
+        fast=FastPath(kernel=module.reaction_fast, build_table=module.build_table,
+                      table_parameters=tuple(module.TABLE_PARAMETERS), v_lo=-150.0, v_hi=100.0, dv=0.05,
+                      by_state=False),
         integration=tuple(info["integration"]), notes=tuple(eq["notes"]),
         capacitance=eq["capacitance"], equations=info["equations"])
 
