@@ -15,11 +15,16 @@ def run(args):
     from cable.case.load import PREPACE_KEYS, _nearest
     from cable.case.schema import LIST_SECTIONS, SECTIONS
 
+    from cable.drugs import BLOCK_KEYS, DRUG_KEYS
+    from cable.electrodes import ELECTRODE_KEYS
     from cable.regions import REGION_KEYS
 
     sections = dict(SECTIONS)
     sections["membrane.prepace"] = PREPACE_KEYS
     sections["region"] = REGION_KEYS
+    sections["drug.NAME"] = DRUG_KEYS
+    sections["drug.NAME.block.CONDUCTANCE"] = BLOCK_KEYS
+    sections["electrode"] = ELECTRODE_KEYS
     if args.section and args.section not in sections and args.section != "sweep":
         raise CaseError(f"unknown section '{args.section}'.{_nearest(args.section, [*sections, 'sweep'])} "
                         f"Sections: {', '.join(sections)}, sweep.")
@@ -31,7 +36,7 @@ def run(args):
     for name, keys in sections.items():
         if args.section and name != args.section:
             continue
-        header = f"[[{name}]]" if name in LIST_SECTIONS or name == "region" else f"[{name}]"
+        header = f"[[{name}]]" if name in LIST_SECTIONS or name in ("region", "electrode") else f"[{name}]"
         print(header)
         for key, spec in keys.items():
             unit = units.CANONICAL.get(spec.quantity, "") if spec.kind in ("quantity", "list_quantity") else ""
