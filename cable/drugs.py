@@ -66,6 +66,9 @@ def validate(raw, case) -> tuple[Drug, ...]:
 
     if not isinstance(raw, dict) or not raw:
         raise CaseError(f"[drug] must hold one table per compound, e.g. [drug.compound_a], got {raw!r}.")
+    if "concentration" in raw or "block" in raw:
+        raise CaseError("[drug] holds one table per compound: write [drug.NAME] (e.g. [drug.compound_a]) "
+                        "with concentration and block inside it.")
     model = get_model(case.membrane.model)
     drugs = []
     for name, table in raw.items():

@@ -156,7 +156,7 @@ def test_wavelength_is_the_length_of_the_excited_region():
     front = x[f] + (v[f] - thr) / (v[f] - v[f + 1]) * (x[f + 1] - x[f])
     b = np.flatnonzero(v[:int(np.argmax(v))] < level).max()
     back = x[b] + (level - v[b]) / (v[b + 1] - v[b]) * (x[b + 1] - x[b])
-    assert float(ds.wavelength[0]) == pytest.approx(front - back, rel=WAVELENGTH_TOLERANCE)
+    assert float(ds.wavelength_apd[0]) == pytest.approx(front - back, rel=WAVELENGTH_TOLERANCE)
 
 
 def test_single_cell_case_has_apd_without_x():

@@ -80,3 +80,24 @@ def test_cli_bad_drug_exits_2(tmp_path, capsys):
     path.write_text(dumps_toml(_case({"a": {"concentration": "1 uM", "block": {"G_Kr": {"ic50": "3 uM"}}}})))
     assert main(["run", str(path), "-q"]) == 2
     assert "drug.a.block.G_Kr" in capsys.readouterr().err
+
+
+def test_critical_concentration_is_the_hill_inverse_of_the_critical_scale():
+    # The factor is the only way the concentration enters, so the concentration at which the
+    # wave fails is where 1 / (1 + (C/IC50)^h) equals the critical g_Na scale s*:
+    # C* = IC50 (1/s* - 1)^(1/h) (Hill 1910, inverted). Each bisection returns a bracket; the
+    # concentration bracket must overlap the image of the scale bracket.
+    ic50, hill = 3e-3, 1.5  # mM
+    base = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=6.0)
+    scale = cable.find_critical(base, "membrane.scale.g_Na", 0.05, 1.0, tolerance=0.002)
+    s_pass, s_fail = scale.attrs["passing_value"], scale.attrs["failing_value"]
+    drugged = _case({"a": {"concentration": ic50, "block": {"g_Na": {"ic50": ic50, "hill": hill}}}})
+    conc = cable.find_critical(drugged, "drug.a.concentration", 1e-4, 1.0, tolerance=0.005, log=True)
+    c_pass, c_fail = conc.attrs["passing_value"], conc.attrs["failing_value"]
+
+    def inverse(s):
+        return ic50 * (1 / s - 1) ** (1 / hill)
+
+    lo, hi = inverse(s_pass), inverse(s_fail)   # the scale bracket as concentrations
+    assert c_pass < c_fail and lo < hi
+    assert c_pass <= hi and c_fail >= lo          # the two brackets overlap

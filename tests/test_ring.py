@@ -84,3 +84,18 @@ def test_one_way_needs_a_stimulus_and_no_safety_factor():
     case["measure"] = {"safety_factor": True}
     with pytest.raises(cable.CaseError, match="not computed on a ring"):
         cable.prepare(case)
+
+
+@pytest.mark.slow
+def test_critical_ring_length_lies_between_wavelength_and_cv_times_erp(strand):
+    # Mines (1913) and later ring studies: reentry needs a path longer than the wavelength
+    # (CV x APD90), and it fails where the period L / CV falls below the refractory period
+    # (the issue's bounds; CV and ERP of a straight strand after one beat).
+    crit_tol, erp_tol = 0.05, 0.05  # cm, ms: the bisections' final brackets
+    ds = cable.find_critical(ring(4.0, 30.0), "fiber.length", 1.0, 8.0, tolerance=crit_tol)
+    critical = ds.attrs["critical_value"]
+    erp = float(cable.refractory_period(hh_axon_case(length=2.0, dx=DX, dt=DT, duration=10.0), s1_count=1,
+                                        tolerance=erp_tol).erp)
+    cv = float(strand.conduction_velocity[0]) / 10.0  # cm/ms
+    wavelength = float(strand.wavelength[0])
+    assert wavelength < critical <= cv * (erp + erp_tol) + crit_tol

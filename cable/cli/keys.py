@@ -65,11 +65,16 @@ def run(args):
     from cable.case.load import PREPACE_KEYS, _nearest
     from cable.case.schema import LIST_SECTIONS, SECTIONS
     from cable.cli.models import table
+    from cable.drugs import BLOCK_KEYS, DRUG_KEYS
+    from cable.electrodes import ELECTRODE_KEYS
     from cable.regions import REGION_KEYS
 
     sections = dict(SECTIONS)
     sections["membrane.prepace"] = PREPACE_KEYS
     sections["region"] = REGION_KEYS
+    sections["drug.NAME"] = DRUG_KEYS
+    sections["drug.NAME.block.CONDUCTANCE"] = BLOCK_KEYS
+    sections["electrode"] = ELECTRODE_KEYS
     if args.section and args.section not in sections and args.section != "sweep":
         raise CaseError(f"unknown section '{args.section}'.{_nearest(args.section, [*sections, 'sweep'])} "
                         f"Sections: {', '.join(sections)}, sweep.")
@@ -84,7 +89,7 @@ def run(args):
     widths = [max(len(r[k]) for r in [header, *body]) for k in range(4)]
     first = True
     for name, keys in chosen:
-        print(("" if first else "\n") + (f"[[{name}]]" if name in LIST_SECTIONS or name == "region" else f"[{name}]"))
+        print(("" if first else "\n") + (f"[[{name}]]" if name in LIST_SECTIONS or name in ("region", "electrode") else f"[{name}]"))
         lines = table(header, [tuple(f"{c:<{w}}" for c, w in zip(r[:4], widths)) + r[4:] for r in rows(name, keys)])
         print("\n".join(lines if first else lines[1:]))
         first = False

@@ -28,7 +28,8 @@ stored states, ion scale (capacitance), crossings stored per node, and the rate 
 (tabulated rates: the values of the table's parameters, ``FastPath.table_parameters``,
 so that the batch's one table is the table each case builds alone). Grids,
 conductances, region parameters, stimuli and initial states may all differ. A case
-that asks for what the batch does not do (``measure.safety_factor``) runs alone.
+that asks for what the batch does not do (``measure.safety_factor``, a ring, ``[[electrode]]``)
+runs alone.
 """
 
 from __future__ import annotations
@@ -72,8 +73,9 @@ def group_key(setup) -> tuple | None:
     setup : cable.simulate.Setup
         From :func:`cable.simulate.prepare`.
     """
-    if getattr(setup, "safety", None) is not None or getattr(setup.grid, "closed", False):
-        return None  # (a ring's cyclic solve and measurements are cable.simulate's alone)
+    if getattr(setup, "safety", None) is not None or getattr(setup.grid, "closed", False) \
+            or setup.case.extra.get("electrode"):
+        return None  # a ring's cyclic solve and the pseudo-ECG are cable.simulate's alone
     case = setup.case
     num = case.numerics
     return (setup.model.name, num.dt, num.splitting, num.diffusion, num.gating, num.reaction, num.merge_half_steps,

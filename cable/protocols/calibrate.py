@@ -91,9 +91,12 @@ def measure_of(ds: xr.Dataset, measure: str, beat: int, level: float | None) -> 
     if beat >= ds.sizes.get("beat", 0):
         return math.nan
     if measure == "apd":
+        apd = ds["apd"].sel(level=level).isel(beat=beat)
+        if "x" not in apd.dims:  # a single cell
+            return float(apd)
         window = ds.attrs.get("cv_window_cm")
         centre = float(np.mean(window)) if window is not None else float(ds["x"].mean())
-        return float(ds["apd"].sel(level=level).isel(beat=beat).sel(x=centre, method="nearest"))
+        return float(apd.sel(x=centre, method="nearest"))
     return float(ds[measure].values[beat])
 
 
@@ -255,22 +258,25 @@ def _seek(case, key, target, run):
         return (v0, v0)
     p = SEED_EXPONENT.get(key, 1.0)
     v_prev, m_prev = v0, m0
-    step = min(max((target / m0) ** (1.0 / p), 1 / 16), 16)  # the power-law prediction, as a factor
-    step = step * (1.0 + 0.02 * (1 if step >= 1 else -1))  # a little beyond it, so that it brackets
-    for _ in range(MAX_WIDENINGS + 1):
+    first = min(max((target / m0) ** (1.0 / p), 1 / 16), 16)  # the power-law prediction, as a factor
+    first = first * (1.0 + 0.02 * (1 if first >= 1 else -1))  # a little beyond it, so that it brackets
+    step, flipped = first, False
+    for _ in range(MAX_WIDENINGS + 2):
         v = v_prev * step
         m = run(v)
         if _straddles(m_prev, m, target):
             return (min(v_prev, v), max(v_prev, v))
         if not math.isfinite(m):
             return None  # block or no capture beyond: the target lies past what conducts
-        if m > 0 and m_prev > 0 and m != m_prev and v != v_prev:
-            p_local = math.log(m / m_prev) / math.log(v / v_prev)
-            if p_local != 0 and (target / m) ** (1.0 / p_local) > 0 and (m - m_prev) * (target - m) > 0:
-                step = (target / m) ** (1.0 / p_local)
-                step = min(max(step, 1 / 16), 16) ** 1.5  # widen: a bracket, not a guess
-            else:
-                return None  # moving away from the target: beyond a maximum, out of reach
+        toward = (m - m_prev) * (target - m) > 0
+        if not toward and not flipped and v_prev == v0:
+            # the measurement moved away: the key acts the other way round (a guessed exponent)
+            step, flipped = 1.0 / first, True
+            continue
+        if not toward or m <= 0 or m_prev <= 0 or m == m_prev:
+            return None  # moving away from the target both ways: beyond an extremum, out of reach
+        p_local = math.log(m / m_prev) / math.log(v / v_prev)
+        step = min(max((target / m) ** (1.0 / p_local), 1 / 16), 16) ** 1.5  # widen: a bracket, not a guess
         v_prev, m_prev = v, m
     return None
 

@@ -129,6 +129,8 @@ def _number(who, name, value) -> float:
 def _judge(ds: xr.Dataset, beat: int | None, criterion=("block", None)) -> dict:
     """The outcome of one run: passed (``conducted``, under ``criterion``), and what the
     judged beats did."""
+    if "reentry_sustained" in ds.variables:
+        return _judge_ring(ds)
     nb = ds.sizes.get("beat", 0)
     beats = list(range(nb)) if beat is None else [beat]
     conducted = ds["conducted"].values.astype(bool)
@@ -158,6 +160,16 @@ def _judge(ds: xr.Dataset, beat: int | None, criterion=("block", None)) -> dict:
         "activation": ds["activation_time"].values[beats[0]],
         "x": ds["x"].values,
     }
+
+
+def _judge_ring(ds: xr.Dataset) -> dict:
+    """A ring's outcome (cable.ring): "conducts" means the reentry was sustained to the end of the run."""
+    alive = bool(int(ds["reentry_sustained"].values))
+    cv = ds["revolution_cv"].values[1:]
+    return {"conducted": alive, "captured": True, "blocked": False, "block_x": math.nan,
+            "cv": float(np.nanmean(cv)) if np.isfinite(cv).any() else math.nan, "beats_conducted": int(alive),
+            "timed_out": False, "front_x": math.nan, "slow_response": False, "through": alive,
+            "activation": np.full(ds.sizes["x"], np.nan), "x": ds["x"].values}
 
 
 def describe(outcome: dict) -> str:

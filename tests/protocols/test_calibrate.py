@@ -95,3 +95,20 @@ def test_cli_last_line_is_key_value_unit_and_exit_2_out_of_reach(tmp_path, capsy
     assert main(["calibrate", str(path), "--vary", "fiber.conductivity", "--target", "conduction_velocity=100",
                  "--between", "20", "40", "-q"]) == 2
     assert "out of reach" in capsys.readouterr().err
+
+
+def test_key_acting_the_other_way_is_bracketed():
+    # CV falls as the membrane capacitance rises (D = sigma / (chi C_m) and a slower upstroke;
+    # cable theory): the guessed exponent (+1) first steps the wrong way, then the search turns
+    case = hh_tissue(0.05, length=1.0)
+    ds = calibrate(case, "fiber.capacitance", "conduction_velocity", 15.0)
+    assert float(ds.value) > 1.0 and abs(float(ds.residual)) < RERUN_RTOL * TARGET
+
+
+def test_single_cell_apd_target():
+    case = {"membrane": {"model": "hodgkin-huxley-1952", "temperature": 18.5},
+            "stimulus": [{"amplitude": 50.0, "duration": 0.5}], "numerics": {"dt": 0.005},
+            "run": {"duration": 8.0}, "output": {"every": 0.01}}
+    # a single HH cell's APD90 is 0.5-0.73 ms for g_K x 3 to x 0.8 here
+    ds = calibrate(case, "membrane.scale.g_K", "apd", 0.6, level=90, between=(0.8, 3.0))
+    assert abs(float(ds.residual)) < RERUN_RTOL * 0.6
