@@ -59,9 +59,12 @@ def _integrator(model_name: str, reaction: str = "rush-larsen"):
 
 
 @functools.lru_cache(maxsize=None)
-def _fast_integrator(model_name: str):
+def _fast_integrator(model_name: str, reaction: str = "rush-larsen"):
     model = get_model(model_name)
-    return specialise(fused.advance_fast, model.name, vector=True, fast_reaction=model.fast.kernel)
+    if reaction == schemes.DEFAULT:
+        return specialise(fused.advance_fast, model.name, vector=True, fast_reaction=model.fast.kernel)
+    return specialise(fused.advance_fast, f"{model.name}_{reaction}", vector=True,
+                      fast_reaction=schemes.fast_kernel(model_name, reaction), depends=(model.fast.kinetics,))
 
 
 def time_loop(model_name: str, rates: str = "tabulated", reaction: str = "rush-larsen"):
@@ -69,14 +72,15 @@ def time_loop(model_name: str, rates: str = "tabulated", reaction: str = "rush-l
 
     ``rates`` is ``numerics.rates``: models with a fast path
     (:class:`cable.membrane.base.FastPath`) use ``cable.kernels.fused.advance_fast``
-    unless it is ``"reference"`` or ``reaction`` (``numerics.reaction``) is not
-    ``"rush-larsen"``; the others use ``cable.kernels.integrate.advance``.
+    unless it is ``"reference"`` (for a ``reaction``, ``numerics.reaction``, other than
+    ``"rush-larsen"``: when the fast path supplies ``kinetics``); the others use
+    ``cable.kernels.integrate.advance``.
     Its ``signatures`` are non-empty once it is loaded in this process.
     """
     model = get_model(model_name)
-    if rates == "reference" or model.fast is None or reaction != schemes.DEFAULT:
+    if rates == "reference" or not schemes.has_fast(model, reaction):
         return _integrator(model_name, reaction)
-    return _fast_integrator(model_name)
+    return _fast_integrator(model_name, reaction)
 
 
 def is_compiled(model_name: str, rates: str = "tabulated", reaction: str = "rush-larsen") -> bool:
@@ -354,7 +358,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     if rates.note:
         say(rates.note)
     fast = rates.mode != "reference"
-    advance = _fast_integrator(model.name) if fast else _integrator(model.name, num.reaction)
+    advance = _fast_integrator(model.name, num.reaction) if fast else _integrator(model.name, num.reaction)
 
     state_names = list(case.output_states)
     state_idx = [model.state_names.index(s) for s in state_names]

@@ -129,3 +129,28 @@ def test_unknown_scheme_names_nearest():
             "numerics": {"reaction": "rk-4"}, "run": {"duration": 1.0}}
     with pytest.raises(CaseError, match="rk4"):
         cable.load_case(case)
+
+
+def test_dt_beyond_measured_limit_is_warned():
+    # the limit is the one measured here (cable/kernels/schemes.py, STABLE_DT); the warning names it
+    limit = schemes.STABLE_DT[("luo-rudy-1991", "heun")]
+    case = {"membrane": {"model": "luo-rudy-1991"}, "stimulus": [{"amplitude": 52.0, "duration": 1.0}],
+            "numerics": {"reaction": "heun", "dt": 2.0 * limit}, "run": {"duration": 10.0}}
+    notes = cable.load_case(case).notes
+    assert any(f"{limit:g} ms" in n and "heun" in n for n in notes), notes
+    case["numerics"]["dt"] = 0.5 * limit
+    assert not any("stable" in n for n in cable.load_case(case).notes)
+
+
+def test_fast_and_reference_paths_agree():
+    # the vectorised schemes (HH fast path) against the per-node ones: the same arithmetic up
+    # to the exponential (1 ulp, cable/kernels/elementary.py) and algebraically equal rates
+    base = {"membrane": {"model": "hodgkin-huxley-1952", "temperature": 18.5},
+            "fiber": {"length": 0.3, "dx": 0.01, "radius": "238 um", "axial_resistivity": "35.4 ohm*cm"},
+            "stimulus": [{"amplitude": 2000.0, "duration": 0.2, "width": 0.03}], "run": {"duration": 3.0}}
+    for scheme in ("rush-larsen-2", "heun", "rk4"):
+        fast = cable.simulate({**base, "numerics": {"dt": 0.005, "reaction": scheme}})
+        ref = cable.simulate({**base, "numerics": {"dt": 0.005, "reaction": scheme, "rates": "reference"}})
+        assert fast.attrs["rates"] == "exact" and ref.attrs["rates"] == "reference"
+        # rounding differences grow through the upstroke: 1e-9 mV is far below any error of the scheme
+        np.testing.assert_allclose(fast.vm.values, ref.vm.values, rtol=0, atol=1e-9)
