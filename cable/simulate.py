@@ -473,6 +473,9 @@ def _failure_message(setup: Setup, failure) -> str:
     if num.gating == "forward-euler":
         causes.append(f"numerics.gating = \"forward-euler\" with dt = {num.dt:g} ms is likely too coarse; "
                       "use \"rush-larsen\" or a smaller dt")
+    if num.reaction in ("heun", "rk4"):
+        causes.append(f"numerics.reaction = \"{num.reaction}\" is explicit in every gate and limited to small steps "
+                      "by the fastest one; use \"rush-larsen-2\" or a smaller dt")
     if num.diffusion == "forward-euler":
         causes.append("forward-Euler diffusion near its stability limit; use \"crank-nicolson\"")
     if setup.case.membrane.scale or setup.case.membrane.parameters:

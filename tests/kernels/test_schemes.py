@@ -154,3 +154,20 @@ def test_fast_and_reference_paths_agree():
         assert fast.attrs["rates"] == "exact" and ref.attrs["rates"] == "reference"
         # rounding differences grow through the upstroke: 1e-9 mV is far below any error of the scheme
         np.testing.assert_allclose(fast.vm.values, ref.vm.values, rtol=0, atol=1e-9)
+
+
+@pytest.mark.parametrize("scheme", ["rush-larsen", "rush-larsen-2"])
+def test_hh_strand_field_order(scheme):
+    # the potential along the strand at a fixed time (a wave in mid-strand): Strang splitting
+    # and Crank-Nicolson are second order (Strang 1968, SIAM J Numer Anal 5:506), so the run
+    # has the order of its reaction step; the max differences between dt levels give it
+    fields = []
+    for dt in (0.01, 0.005, 0.0025):
+        case = {"membrane": {"model": "hodgkin-huxley-1952", "temperature": 18.5},
+                "fiber": {"length": 0.5, "dx": 0.01, "radius": "238 um", "axial_resistivity": "35.4 ohm*cm"},
+                "stimulus": [{"amplitude": 2000.0, "duration": 0.2, "width": 0.05}],
+                "numerics": {"dt": dt, "reaction": scheme}, "run": {"duration": 2.0}, "output": {"every": 0.5}}
+        fields.append(cable.simulate(case).vm.values[-1])
+    d1 = np.max(np.abs(fields[0] - fields[1]))
+    d2 = np.max(np.abs(fields[1] - fields[2]))
+    assert abs(np.log2(d1 / d2) - schemes.ORDER[scheme]) < ORDER_TOL, (d1, d2)
