@@ -48,8 +48,14 @@ class SimulationError(RuntimeError):
         self.partial = partial
 
 
-@functools.lru_cache(maxsize=None)
 def _integrator(model_name: str, reaction: str = "rush-larsen"):
+    """The reference time loop of the model and reaction scheme (one dispatcher per pair,
+    however the arguments are spelled)."""
+    return _integrator_for(model_name, reaction)
+
+
+@functools.lru_cache(maxsize=None)
+def _integrator_for(model_name: str, reaction: str):
     model = get_model(model_name)
     if reaction == schemes.DEFAULT:
         return specialise(integrate.advance, model.name, reaction=model.reaction)
@@ -58,8 +64,13 @@ def _integrator(model_name: str, reaction: str = "rush-larsen"):
                       depends=(model.kinetics,))
 
 
-@functools.lru_cache(maxsize=None)
 def _fast_integrator(model_name: str, reaction: str = "rush-larsen"):
+    """The fast time loop of the model and reaction scheme (one dispatcher per pair)."""
+    return _fast_integrator_for(model_name, reaction)
+
+
+@functools.lru_cache(maxsize=None)
+def _fast_integrator_for(model_name: str, reaction: str):
     model = get_model(model_name)
     if reaction == schemes.DEFAULT:
         return specialise(fused.advance_fast, model.name, vector=True, fast_reaction=model.fast.kernel)

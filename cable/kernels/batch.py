@@ -214,10 +214,14 @@ def _pulses(setups, slices, n):
     return np.ascontiguousarray(pulses[np.argsort(pulses[:, 0], kind="stable")])
 
 
-@functools.lru_cache(maxsize=None)
 def _segments_integrator(model_name: str, fast: bool, reaction: str = "rush-larsen"):
     """The time loop of strands laid end to end (fast or reference path), per model and
-    reaction scheme (``numerics.reaction``; the fast path is "rush-larsen" only)."""
+    reaction scheme (``numerics.reaction``); one dispatcher per triple."""
+    return _segments_integrator_for(model_name, bool(fast), reaction)
+
+
+@functools.lru_cache(maxsize=None)
+def _segments_integrator_for(model_name: str, fast: bool, reaction: str):
     from cable.kernels import fused, schemes
     from cable.kernels.jit import specialise
     from cable.membrane import get_model
