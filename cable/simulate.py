@@ -49,8 +49,14 @@ class SimulationError(RuntimeError):
         self.partial = partial
 
 
-@functools.lru_cache(maxsize=None)
 def _integrator(model_name: str, reaction: str = "rush-larsen"):
+    """The reference time loop of the model and reaction scheme (one dispatcher per pair,
+    however the arguments are spelled)."""
+    return _integrator_for(model_name, reaction)
+
+
+@functools.lru_cache(maxsize=None)
+def _integrator_for(model_name: str, reaction: str):
     model = get_model(model_name)
     if reaction == schemes.DEFAULT:
         return specialise(integrate.advance, model.name, reaction=model.reaction)
@@ -59,10 +65,18 @@ def _integrator(model_name: str, reaction: str = "rush-larsen"):
                       depends=(model.kinetics,))
 
 
+def _fast_integrator(model_name: str, reaction: str = "rush-larsen"):
+    """The fast time loop of the model and reaction scheme (one dispatcher per pair)."""
+    return _fast_integrator_for(model_name, reaction)
+
+
 @functools.lru_cache(maxsize=None)
-def _fast_integrator(model_name: str):
+def _fast_integrator_for(model_name: str, reaction: str):
     model = get_model(model_name)
-    return specialise(fused.advance_fast, model.name, vector=True, fast_reaction=model.fast.kernel)
+    if reaction == schemes.DEFAULT:
+        return specialise(fused.advance_fast, model.name, vector=True, fast_reaction=model.fast.kernel)
+    return specialise(fused.advance_fast, f"{model.name}_{reaction}", vector=True,
+                      fast_reaction=schemes.fast_kernel(model_name, reaction), depends=(model.fast.kinetics,))
 
 
 def time_loop(model_name: str, rates: str = "tabulated", reaction: str = "rush-larsen"):
@@ -70,14 +84,15 @@ def time_loop(model_name: str, rates: str = "tabulated", reaction: str = "rush-l
 
     ``rates`` is ``numerics.rates``: models with a fast path
     (:class:`cable.membrane.base.FastPath`) use ``cable.kernels.fused.advance_fast``
-    unless it is ``"reference"`` or ``reaction`` (``numerics.reaction``) is not
-    ``"rush-larsen"``; the others use ``cable.kernels.integrate.advance``.
+    unless it is ``"reference"`` (for a ``reaction``, ``numerics.reaction``, other than
+    ``"rush-larsen"``: when the fast path supplies ``kinetics``); the others use
+    ``cable.kernels.integrate.advance``.
     Its ``signatures`` are non-empty once it is loaded in this process.
     """
     model = get_model(model_name)
-    if rates == "reference" or model.fast is None or reaction != schemes.DEFAULT:
+    if rates == "reference" or not schemes.has_fast(model, reaction):
         return _integrator(model_name, reaction)
-    return _fast_integrator(model_name)
+    return _fast_integrator(model_name, reaction)
 
 
 def is_compiled(model_name: str, rates: str = "tabulated", reaction: str = "rush-larsen") -> bool:
@@ -409,7 +424,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     if rates.note:
         say(rates.note)
     fast = rates.mode != "reference"
-    advance = _fast_integrator(model.name) if fast else _integrator(model.name, num.reaction)
+    advance = _fast_integrator(model.name, num.reaction) if fast else _integrator(model.name, num.reaction)
 
     state_names = list(case.output_states)
     state_idx = [model.state_names.index(s) for s in state_names]
@@ -548,6 +563,9 @@ def _failure_message(setup: Setup, failure) -> str:
     if num.gating == "forward-euler":
         causes.append(f"numerics.gating = \"forward-euler\" with dt = {num.dt:g} ms is likely too coarse; "
                       "use \"rush-larsen\" or a smaller dt")
+    if num.reaction in ("heun", "rk4"):
+        causes.append(f"numerics.reaction = \"{num.reaction}\" is explicit in every gate and limited to small steps "
+                      "by the fastest one; use \"rush-larsen-2\" or a smaller dt")
     if num.diffusion == "forward-euler":
         causes.append("forward-Euler diffusion near its stability limit; use \"crank-nicolson\"")
     if setup.case.membrane.scale or setup.case.membrane.parameters:

@@ -80,7 +80,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "splitting": Key("choice", default="strang", choices=("strang", "godunov"), meaning="operator splitting"),
         "diffusion": Key("choice", default="crank-nicolson", choices=("crank-nicolson", "backward-euler", "forward-euler"), meaning="diffusion step"),
         "gating": Key("choice", default="rush-larsen", choices=("rush-larsen", "forward-euler"), meaning="gate update of the reaction step"),
-        "reaction": Key("choice", default="rush-larsen", choices=("rush-larsen", "rush-larsen-2", "heun", "rk4"), meaning="integrator of the membrane equations in the reaction step: Rush-Larsen (first order), second-order Rush-Larsen, Heun or classical Runge-Kutta (orders 2, 4); the last three run on the reference loop; see cable/kernels/schemes.py"),
+        "reaction": Key("choice", default="rush-larsen", choices=("rush-larsen", "rush-larsen-2", "heun", "rk4"), meaning="integrator of the membrane equations in the reaction step: Rush-Larsen (first order), second-order Rush-Larsen, Heun or classical Runge-Kutta (orders 2, 4; second order in a strand with strang and crank-nicolson, first with godunov); the last three use exact rates; see cable/kernels/schemes.py"),
         "merge_half_steps": Key("bool", default=True, meaning="Strang: join the two diffusion half steps between outputs into one (same order, half the solves)"),
         "rates": Key("choice", default="tabulated", choices=("tabulated", "exact", "reference"), meaning="reaction kernel: gate rates tabulated in V (fast; CV and APD90 within 0.1% of exact), evaluated exactly (vectorised), or the model's reference kernel; see cable/kernels/tables.py"),
     },

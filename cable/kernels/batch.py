@@ -54,8 +54,10 @@ def _rates_key(setup) -> tuple:
     model = setup.model
     fast = model.fast
     rates = setup.case.numerics.rates
-    if rates == "reference" or fast is None or setup.case.numerics.reaction != "rush-larsen":
+    if rates == "reference" or fast is None:
         return ("reference",)
+    if setup.case.numerics.reaction != "rush-larsen":
+        return ("exact",) if fast.kinetics is not None else ("reference",)
     if rates == "exact" or fast.build_table is None:
         return ("exact",)
     columns = [model.parameter_names.index(name) for name in fast.table_parameters]
@@ -214,17 +216,24 @@ def _pulses(setups, slices, n):
     return np.ascontiguousarray(pulses[np.argsort(pulses[:, 0], kind="stable")])
 
 
-@functools.lru_cache(maxsize=None)
 def _segments_integrator(model_name: str, fast: bool, reaction: str = "rush-larsen"):
     """The time loop of strands laid end to end (fast or reference path), per model and
-    reaction scheme (``numerics.reaction``; the fast path is "rush-larsen" only)."""
+    reaction scheme (``numerics.reaction``); one dispatcher per triple."""
+    return _segments_integrator_for(model_name, bool(fast), reaction)
+
+
+@functools.lru_cache(maxsize=None)
+def _segments_integrator_for(model_name: str, fast: bool, reaction: str):
     from cable.kernels import fused, schemes
     from cable.kernels.jit import specialise
     from cable.membrane import get_model
 
     model = get_model(model_name)
-    if fast:
+    if fast and reaction == schemes.DEFAULT:
         return specialise(fused.advance_fast_segments, model.name, vector=True, fast_reaction=model.fast.kernel)
+    if fast:
+        return specialise(fused.advance_fast_segments, f"{model.name}_{reaction}", vector=True,
+                          fast_reaction=schemes.fast_kernel(model_name, reaction), depends=(model.fast.kinetics,))
     if reaction == schemes.DEFAULT:
         return specialise(fused.advance_segments, model.name, reaction=model.reaction)
     return specialise(fused.advance_segments, f"{model.name}_{reaction}", reaction=schemes.kernel(model_name, reaction),
@@ -256,7 +265,7 @@ def _run_batch(setups):
     interleaved, slices = _layout(setups, fast)
     grids = [(s.grid.lo, s.grid.up) for s in setups]
     if interleaved:
-        advance = _fast_integrator(model.name)
+        advance = _fast_integrator(model.name, num.reaction)
         factor, last = diffusion.factor_interleaved, (len(setups),)
     else:
         advance = _segments_integrator(model.name, fast, num.reaction)

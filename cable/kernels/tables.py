@@ -9,9 +9,10 @@
 * ``"reference"``: the model's contract kernel ``reaction`` and the original time loop
   (C library exponentials, states stored by node): the slowest, for checks.
 
-A model without a fast path always runs its ``reaction`` kernel, and a
-``numerics.reaction`` other than ``"rush-larsen"`` always the reference loop (the
-scheme applied to the model's ``kinetics``); a table is used only
+A model without a fast path always runs its ``reaction`` kernel; a
+``numerics.reaction`` other than ``"rush-larsen"`` runs with exact rates, on the fast
+loop where the model's fast path supplies ``kinetics``, else on the reference loop (the
+scheme applied to the model's per-node ``kinetics``); a table is used only
 when the parameters it depends on (``FastPath.table_parameters``) are the same at every
 node, otherwise the rates are evaluated exactly and the run says so.
 """
@@ -85,12 +86,16 @@ def plan(model, p: np.ndarray, dt: float, gating: int, rates: str = "tabulated",
     rates : {"tabulated", "exact", "reference"}
         What ``numerics.rates`` asks for.
     reaction : str
-        ``numerics.reaction``: the schemes other than ``"rush-larsen"`` run on the
-        reference loop (``cable.kernels.schemes``), with exact rates.
+        ``numerics.reaction``: the schemes other than ``"rush-larsen"`` run with exact
+        rates, vectorised where the model's fast path supplies ``kinetics``, else on the
+        reference loop (``cable.kernels.schemes``).
     """
     fast = model.fast
-    if rates == "reference" or reaction != "rush-larsen":
+    if rates == "reference":
         return Plan("reference", no_table())
+    if reaction != "rush-larsen":
+        return Plan("exact", no_table()) if fast is not None and fast.kinetics is not None \
+            else Plan("reference", no_table())
     if fast is None:
         # said once per run, so that a speed or accuracy comparison knows what ran
         return Plan("reference", no_table(), note=f"note: numerics.rates = \"{rates}\": {model.name} has no "

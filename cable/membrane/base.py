@@ -148,6 +148,21 @@ class FastPath:
         True: ``sT`` and ``pT`` as above. False: the kernel takes the states and
         parameters stored by node, ``s`` float64[n, nstate] and ``p`` float64[n, nparam],
         as ``reaction`` does (for large models whose node loop is scalar anyway).
+    kinetics : numba dispatcher or None
+        Optional (``by_state`` models only): the model's ``kinetics`` for every node at
+        once, for the vectorised loop of the reaction schemes other than
+        ``"rush-larsen"`` (:mod:`cable.kernels.schemes`)::
+
+            kinetics(v, sT, pT, a, b, ion)
+
+            v       float64[n]          potentials (any stage value) [mV]
+            sT, pT                      as for ``kernel`` (sT read only)
+            a, b    float64[nstate, n]  filled as ``MembraneModel.kinetics`` fills them
+            ion     float64[n]          filled with I_ion
+
+        equal to the per-node kernel to rounding (it may use
+        :func:`cable.kernels.elementary.exp`); the arithmetic of a node must not depend
+        on whether ``pT`` has one column or n (batches are bitwise their runs alone).
     """
 
     kernel: Callable
@@ -157,6 +172,7 @@ class FastPath:
     v_hi: float = 100.0
     dv: float = 0.05
     by_state: bool = True
+    kinetics: Callable | None = None
 
 
 @dataclass(frozen=True)

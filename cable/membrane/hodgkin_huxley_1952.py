@@ -369,3 +369,76 @@ def kinetics(V, y, p, i, a, b):
 
 
 MODEL = replace(MODEL, kinetics=kinetics)
+
+
+# ------------------------------------------------------------------- kinetics, fast path
+# The right-hand side of every node at once, states and parameters stored by state and
+# parameter (contract: cable.membrane.base.FastPath.kinetics), with the rates in the
+# vectorisable form of _exact_gates (the same formulae, repeated here so that the
+# default path's code stays as it is).
+
+@jit_inline
+def _gate_rates(V, phi):
+    """(y_inf, a + b) of m, h and n at the potential V (the rates of :func:`_rates`)."""
+    w = -(V + 65.0)
+    y = vexp(w * 0.0125)
+    z = vexp(w * (1.0 / 18.0))
+    y2 = y * y
+    y4 = y2 * y2
+    y8 = y4 * y4
+    u = -(V + 40.0) * 0.1
+    small = abs(u) < _SERIES
+    num = fma(u, fma(u, 1.0 / 12.0, -0.5), 1.0) if small else u
+    den = 1.0 if small else fma(y8, _E25, -1.0)
+    q = fma(4.0 * z, den, num)
+    r = 1.0 / (q * den)
+    m_inf = num * den * r
+    m_rate = phi * q * q * r
+    g = fma(y8, _E30, 1.0)
+    a = 0.07 * y4 * g
+    q = a + 1.0
+    r = 1.0 / (q * g)
+    h_inf = a * g * r
+    h_rate = phi * q * q * r
+    u = -(V + 55.0) * 0.1
+    small = abs(u) < _SERIES
+    num = 0.1 * (fma(u, fma(u, 1.0 / 12.0, -0.5), 1.0) if small else u)
+    den = 1.0 if small else fma(y8, _E10, -1.0)
+    q = fma(0.125 * y, den, num)
+    r = 1.0 / (q * den)
+    n_inf = num * den * r
+    n_rate = phi * q * q * r
+    return m_inf, m_rate, h_inf, h_rate, n_inf, n_rate
+
+
+@jit_inline
+def _node_kinetics(V, m, h, n, phi, g_na, g_k, g_l, e_na, e_k, e_l):
+    m_inf, m_rate, h_inf, h_rate, n_inf, n_rate = _gate_rates(V, phi)
+    return (m_inf * m_rate, m_rate, h_inf * h_rate, h_rate, n_inf * n_rate, n_rate,
+            _ionic(V, m, h, n, g_na, g_k, g_l, e_na, e_k, e_l))
+
+
+@jit_inline
+def kinetics_fast(v, sT, pT, a, b, ion):
+    """a, b (3, n) and I_ion (n) of every node (contract: cable.membrane.base.FastPath.kinetics)."""
+    nn = v.shape[0]
+    ms, hs, ns = sT[0], sT[1], sT[2]
+    am, ah, an = a[0], a[1], a[2]
+    bm, bh, bn = b[0], b[1], b[2]
+    if pT.shape[1] == 1:
+        # the same parameters at every node (the same arithmetic per node as below)
+        phi = _phi(pT[TEMPERATURE, 0])
+        g_na, g_k, g_l = pT[G_NA, 0], pT[G_K, 0], pT[G_L, 0]
+        e_na, e_k, e_l = pT[E_NA, 0], pT[E_K, 0], pT[E_L, 0]
+        for i in range(nn):
+            am[i], bm[i], ah[i], bh[i], an[i], bn[i], ion[i] = _node_kinetics(
+                v[i], ms[i], hs[i], ns[i], phi, g_na, g_k, g_l, e_na, e_k, e_l)
+        return
+    temp = pT[TEMPERATURE]
+    for i in range(nn):
+        am[i], bm[i], ah[i], bh[i], an[i], bn[i], ion[i] = _node_kinetics(
+            v[i], ms[i], hs[i], ns[i], _phi(temp[i]), pT[G_NA, i], pT[G_K, i], pT[G_L, i], pT[E_NA, i],
+            pT[E_K, i], pT[E_L, i])
+
+
+MODEL = replace(MODEL, fast=replace(MODEL.fast, kinetics=kinetics_fast))

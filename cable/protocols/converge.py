@@ -18,7 +18,12 @@ D dt / dx^2 fixed (``ratio="dt/dx^2"``, the default: dt divided by 4 at each lev
 makes both leading errors scale as dx^2, so the formal order in dx is 2 and the
 Richardson step rests on one error term. Keeping dt / dx fixed (``"dt/dx"``, dt halved
 at each level, 8 instead of 64 times the work at the third level) leaves
-A dx^2 + B dx, of formal order 1 once the dt term dominates. The output interval is
+A dx^2 + B dx, of formal order 1 once the dt term dominates. With a second-order
+reaction step (``numerics.reaction = "rush-larsen-2"``, ``"heun"``, ``"rk4"``; see
+:mod:`cable.kernels.schemes`), Strang splitting and Crank-Nicolson the scheme is second
+order in dt, and the formal order is 2 with either ratio (:func:`time_order`). In every
+case the order used in the extrapolation is the one observed from the data when it is
+in :data:`ORDER_RANGE` and the sequence is monotone; the formal one otherwise. The output interval is
 scaled like dt so that the APD (interpolated between samples) refines too.
 
 Separate series. Refined together, the dx and dt errors cannot be told apart, so two
@@ -60,9 +65,21 @@ SERIES_LEVELS = 3
 ORDER_RANGE = (0.5, 4.0)
 
 
-def formal_order(ratio: str) -> float:
-    """Formal order in dx of the scheme refined with ``ratio``."""
-    return float(min(SPACE_ORDER, TIME_ORDER * (2 if ratio == "dt/dx^2" else 1)))
+def time_order(numerics) -> int:
+    """Formal order in dt of a case's scheme: 2 with a second-order reaction step
+    (``numerics.reaction``, :data:`cable.kernels.schemes.ORDER`), Strang splitting and
+    Crank-Nicolson diffusion; 1 otherwise (Godunov, backward or forward Euler, or the
+    first-order Rush-Larsen step)."""
+    from cable.kernels.schemes import ORDER
+
+    if numerics.splitting == "strang" and numerics.diffusion == "crank-nicolson":
+        return min(2, ORDER[numerics.reaction])
+    return TIME_ORDER
+
+
+def formal_order(ratio: str, time: int = TIME_ORDER) -> float:
+    """Formal order in dx of the scheme refined with ``ratio``, for order ``time`` in dt."""
+    return float(min(SPACE_ORDER, time * (2 if ratio == "dt/dx^2" else 1)))
 
 
 def convergence(case, levels: int = 3, *, ratio: str = "dt/dx^2", beat: int = -1, base=None,
@@ -187,13 +204,13 @@ def _measure(ds, beat, site, case, dx, dt):
     return {"dx": dx, "dt": dt, "cv": cv, "apd": apd, "propagated": prop}
 
 
-def richardson(values, ratio: str = "dt/dx^2", *, formal: float | None = None):
-    """(observed order, order used, extrapolated value, note) from a sequence on grids halved each time.
-
-    ``formal``: the order used where the observed one is unusable (default: that of ``ratio``).
-    """
+def richardson(values, ratio: str = "dt/dx^2", time: int | None = None, *, formal: float | None = None):
+    """(observed order, order used, extrapolated value, note) from a sequence on grids halved each
+    time; the observed order is used unless it is out of range or the sequence oscillates, the formal
+    one then: ``formal`` if given, else that of ``ratio`` for order ``time`` in dt (default
+    :data:`TIME_ORDER`)."""
     f = np.asarray(values, dtype=float)
-    formal = formal_order(ratio) if formal is None else float(formal)
+    formal = formal_order(ratio, TIME_ORDER if time is None else time) if formal is None else float(formal)
     if f.size < 3 or not np.all(np.isfinite(f[-3:])):
         return np.nan, np.nan, np.nan, "fewer than three finite values"
     f1, f2, f3 = f[-3:]
@@ -252,7 +269,7 @@ def _result(case, rows, ratio, beat, site, series=None, tolerance=WARN_RELATIVE_
     out = {}
     sdata, scoords, rec, serr = _series_data(series, tolerance) if series else ({}, {}, None, {})
     for name, f, unit in (("cv", cv, "m/s"), ("apd90", apd, "ms")):
-        p, used, ext, note = richardson(f, ratio)
+        p, used, ext, note = richardson(f, ratio, time_order(case.numerics))
         err = abs(f[0] - ext) / abs(ext) if np.isfinite(ext) and ext != 0 and np.isfinite(f[0]) else np.nan
         out[name] = (p, used, ext, err)
         if note:
@@ -312,11 +329,12 @@ def _result(case, rows, ratio, beat, site, series=None, tolerance=WARN_RELATIVE_
         "source": f"cable {__version__}",
         "model": case.membrane.model,
         "ratio": ratio,
-        "formal_order": formal_order(ratio),
+        "formal_order": formal_order(ratio, time_order(case.numerics)),
         "refinement": "dx halved per level; "
                       + ("dt / 4 (D dt/dx^2 fixed)" if ratio == "dt/dx^2" else "dt / 2 (dt/dx fixed)")
                       + "; output interval kept",
-        "scheme_orders": f"space {SPACE_ORDER}, time {TIME_ORDER} (first-order reaction step)",
+        "scheme_orders": f"space {SPACE_ORDER}, time {time_order(case.numerics)} (reaction step "
+                         f"{case.numerics.reaction})",
         "beat": beat,
         "splitting": case.numerics.splitting,
         "diffusion": case.numerics.diffusion,

@@ -184,6 +184,8 @@ def _time_loops(models: set) -> list:
             loops += [_fast_integrator(name), _segments_integrator(name, True)]
     for name, _, reaction in sorted(key for key in models if key[2:] and key[2] != "rush-larsen"):
         loops += [_integrator(name, reaction), _segments_integrator(name, False, reaction)]
+        if get_model(name).fast is not None and get_model(name).fast.kinetics is not None:
+            loops += [_fast_integrator(name, reaction), _segments_integrator(name, True, reaction)]
     return loops
 
 

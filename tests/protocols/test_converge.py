@@ -174,3 +174,20 @@ def test_numerical_block_on_the_two_coarsest_grids_is_reported():
     rows[1].update(cv=18.9, apd=0.74, propagated=True)
     ds = _result(case, rows, "dt/dx^2", -1, site)
     assert ds.attrs["numerical_block"] == 0 and "propagation differs" in ds.attrs["notes"]
+
+
+def test_time_order_follows_the_reaction_scheme():
+    # Strang + Crank-Nicolson are second order (Strang 1968, SIAM J Numer Anal 5:506): the
+    # scheme's order in dt is that of the reaction step, at most 2; Godunov stays first order
+    from cable.case.load import Numerics
+    from cable.protocols.converge import time_order
+
+    assert time_order(Numerics()) == 1
+    assert time_order(Numerics(reaction="rush-larsen-2")) == 2
+    assert time_order(Numerics(reaction="rk4")) == 2
+    assert time_order(Numerics(reaction="heun", splitting="godunov")) == 1
+    assert time_order(Numerics(reaction="heun", diffusion="backward-euler")) == 1
+    assert formal_order("dt/dx", time_order(Numerics(reaction="rush-larsen-2"))) == 2.0
+    # the observed order is the one used (a sequence converging at order 2)
+    p, used, ext, _ = richardson([1.0 + 0.16, 1.0 + 0.04, 1.0 + 0.01], "dt/dx", 2)
+    assert p == pytest.approx(2.0) and used == p and ext == pytest.approx(1.0)

@@ -82,8 +82,8 @@ def measure(cases, repeat: int) -> tuple:
         run()                                   # warm
         for _ in range(repeat):
             clock, clock_segments = _KernelClock(fast), _KernelClock(segments)
-            sim._fast_integrator = lambda _name, c=clock: c
-            bat._segments_integrator = lambda _name, _fast, c=clock_segments: c
+            sim._fast_integrator = lambda _name, *_, c=clock: c
+            bat._segments_integrator = lambda _name, _fast, *_, c=clock_segments: c
             try:
                 t = time.perf_counter()
                 results = run()
