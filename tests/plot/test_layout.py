@@ -134,7 +134,7 @@ def check_units(labels):
 @pytest.mark.parametrize("name", list(COMMANDS))
 def test_figure_command_writes_a_readable_png(name, results, drawn, tmp_path, capsys):
     out = tmp_path / "figure.png"
-    args = [a.format(d=results) for a in COMMANDS[name]] + ["-o", str(out), "--dpi", "150"]
+    args = [a.format(d=results) for a in COMMANDS[name]] + ["-o", str(out), "--dpi", "100"]
     assert main(args) == EXIT_OK
     (fig,) = drawn
     check_png(out, fig)
