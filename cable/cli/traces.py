@@ -17,7 +17,7 @@ def add_arguments(p):
                    help="ionic currents to draw below the states, e.g. I_Na I_K (`cable models MODEL` lists them); "
                         "recomputed from the stored states, so the run must store all of them (output.states)")
     p.add_argument("--t-window", nargs=2, metavar=("A", "B"), help="time range; bare numbers in ms")
-    _figures.add_figure_options(p, ".traces.png")
+    _figures.add_figure_options(p, ".traces.png", stacked=True)
 
 
 def run(args):
