@@ -22,7 +22,7 @@ from pathlib import Path
 import xarray as xr
 
 import cable
-from cable.plot import _common
+from cable.plot import _common, layout
 
 ROOT = Path(__file__).resolve().parents[1]
 MAP_CASE = ROOT / "cases" / "ischaemic_zone.toml"
@@ -39,8 +39,7 @@ def space_time_figure(out: Path) -> Path:
     fig = _common.new_figure(size=SIZE, dpi=DPI)
     ax = fig.add_subplot()
     cable.plot.space_time(ds, ax)
-    fig.suptitle("ischaemic zone, 2 Hz pacing: 2:1 block (cases/ischaemic_zone.toml)", fontsize="medium")
-    return _common.save(fig, out / "space_time_map.png")
+    return _checked(fig, out / "space_time_map.png")
 
 
 def cv_sweep_dataset() -> xr.Dataset:
@@ -53,8 +52,15 @@ def sweep_figure(out: Path) -> Path:
     fig = _common.new_figure(size=SIZE, dpi=DPI)
     ax = fig.add_subplot()
     cable.plot.sweep(ds, "conduction_velocity", "g_Na", ax, hue="temperature")
-    ax.set_title("squid giant axon: CV against sodium conductance", fontsize="medium")
-    return _common.save(fig, out / "cv_sweep.png")
+    return _checked(fig, out / "cv_sweep.png")
+
+
+def _checked(fig, path: Path) -> Path:
+    """Save ``fig`` once it passes the layout check (cable.plot.layout); the captions are in the README."""
+    found = layout.problems(fig)
+    if found:
+        raise SystemExit(f"{path.name}: " + "; ".join(found))
+    return _common.save(fig, path)
 
 
 def main(argv=None) -> int:

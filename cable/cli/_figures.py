@@ -16,13 +16,14 @@ DEFAULT_DPI = 300
 MAX_PIXELS = 2 ** 14
 
 
-def add_figure_options(p, default_suffix: str) -> None:
+def add_figure_options(p, default_suffix: str, *, stacked: bool = False) -> None:
     p.add_argument("-o", "--output", metavar="FIGURE",
                    help=f"figure file: .png, .pdf or .svg (default: the input's name + '{default_suffix}')")
     p.add_argument("--size", nargs=2, metavar=("W", "H"),
                    help=f"figure width and height; bare numbers in cm, or with a unit (85mm, 3.5in); "
-                        f"default {DEFAULT_SIZE_CM[0]:g} x {DEFAULT_SIZE_CM[1]:g} cm (stacked traces: "
-                        f"{STACKED_EACH_CM:g} cm taller per panel)")
+                        f"default {DEFAULT_SIZE_CM[0]:g} x {DEFAULT_SIZE_CM[1]:g} cm"
+                        + (f"; stacked panels: {STACKED_FIRST_CM:g} cm plus {STACKED_EACH_CM:g} cm per panel "
+                           f"after the first, at least {DEFAULT_SIZE_CM[1]:g} cm" if stacked else ""))
     p.add_argument("--dpi", type=int, default=DEFAULT_DPI, help=f"resolution of PNG output (default {DEFAULT_DPI})")
     p.add_argument("--title", help="a title above the figure (none by default)")
 

@@ -18,7 +18,7 @@ def add_arguments(p):
                         "recomputed from the stored states, so the run must store all of them (output.states)")
     p.add_argument("--t-window", nargs=2, metavar=("A", "B"), help="time range; bare numbers in ms")
     p.add_argument("--ecg", action="store_true", help="add a panel of the pseudo-ECG (a case with [[electrode]])")
-    _figures.add_figure_options(p, ".traces.png")
+    _figures.add_figure_options(p, ".traces.png", stacked=True)
 
 
 def run(args):

@@ -171,7 +171,7 @@ def strength_duration(ds, ax=None, *, logx: bool = True, logy: bool = True, fits
         ax.plot([], [], color="0.35", linestyle=":", linewidth=0.9, label="rheobase I_rh of each fit")
         ax.plot([], [], marker=_FIT_MARK, markersize=6, markerfacecolor="white", markeredgecolor="0.35",
                 linestyle="none", label="chronaxie c: threshold 2 I_rh")
-    ax.set_ylabel(f"threshold amplitude [{unit}]")
+    ax.set_ylabel(f"threshold [{unit}]")
     if logx:
         ax.set_xscale("log")
         _plain_log(ax.xaxis)
@@ -215,8 +215,9 @@ def charge_duration(ds, ax=None, *, fits: bool = True, legend: bool = True):
     q = np.asarray(ds["charge"].values, dtype=float)
     unit = _units(ds, "charge", "nC/cm^2")
     ok = np.isfinite(q)
+    # not clipped: the axis starts at d = 0, where the shortest pulse's mark may reach over it
     ax.plot(d[ok], q[ok], markersize=5, linewidth=1.2, label="computed threshold charge", zorder=3,
-            **_common.look(0))
+            clip_on=False, **_common.look(0))
     if fits and d.size:
         dd = np.linspace(0.0, d.max() * 1.05, CURVE_POINTS)[1:]
         for key, law, rh, c, style in _fits(ds):
@@ -229,7 +230,7 @@ def charge_duration(ds, ax=None, *, fits: bool = True, legend: bool = True):
     ax.set_xlim(left=0.0)
     ax.set_ylim(bottom=0.0)
     ax.set_xlabel(f"stimulus duration [{_units(ds, 'duration', 'ms')}]")
-    ax.set_ylabel(f"threshold charge [{unit}]")
+    ax.set_ylabel(f"charge [{unit}]")
     _legend(ax, legend, loc="upper left")
     return ax
 
@@ -478,14 +479,16 @@ def convergence(ds, ax=None, *, quantity: str = "cv", error: bool = False, legen
         order += f" (formal {float(formal):g})"
     ok = np.isfinite(f)
     rel_err = _scalar(ds, f"{quantity}_relative_error")
-    case_text = f"the case's grid, dx = {dx[0]:.3g} {dx_unit}" if dx.size else "the case's grid"
+    # grid spacings read best in µm (a cardiac or axon grid is 10-500 µm): short tick labels
+    scale, dx_unit = (1e4, "µm") if dx_unit == "cm" else (1.0, dx_unit)
+    case_text = f"the case's grid, dx = {dx[0] * scale:.3g} {dx_unit}" if dx.size else "the case's grid"
     if np.isfinite(rel_err):
         case_text += f": error {100 * rel_err:.2g} %"
     if error:
         err = 100.0 * np.abs(f - ext) / abs(ext) if np.isfinite(ext) and ext != 0 else np.full(f.size, np.nan)
         good = np.isfinite(err) & (err > 0)
         ax.plot(dx[good], err[good], markersize=5, linewidth=1.3, label=f"{name}: {order}", zorder=3,
-                **_common.look(0))
+                clip_on=False, **_common.look(0))
         if good.any() and formal is not None:
             fine = int(np.flatnonzero(good)[np.argmin(dx[good])])
             ref = err[fine] * (dx / dx[fine]) ** float(formal)
@@ -494,9 +497,11 @@ def convergence(ds, ax=None, *, quantity: str = "cv", error: bool = False, legen
             ax.plot(dx[:1], err[:1], label=case_text, zorder=4, **_CASE_GRID)
         ax.set_yscale("log")
         _plain_log(ax.yaxis)
-        ax.set_ylabel(f"relative error of the {name} [%]")
+        ax.set_ylabel(f"{name} error [%]")
     else:
-        ax.plot(dx[ok], f[ok], markersize=5, linewidth=1.3, label=f"{name}: {order}", zorder=3, **_common.look(0))
+        # not clipped: on a short panel the margin of the limits is less than a marker
+        ax.plot(dx[ok], f[ok], markersize=5, linewidth=1.3, label=f"{name}: {order}", zorder=3, clip_on=False,
+                **_common.look(0))
         if np.isfinite(ext):
             text = f"Richardson extrapolation {ext:.4g} {unit}"
             if np.isfinite(used) and np.isfinite(p) and used != p:
@@ -504,41 +509,50 @@ def convergence(ds, ax=None, *, quantity: str = "cv", error: bool = False, legen
             ax.axhline(ext, color=_common.look(1)["color"], linestyle="--", linewidth=1.3, label=text)
         if ok.size and ok[0]:
             ax.plot(dx[:1], f[:1], label=case_text, zorder=4, **_CASE_GRID)
-        ax.set_ylabel(f"{'conduction velocity' if quantity == 'cv' else 'APD90'} [{unit}]")
+        ax.set_ylabel(f"{name} [{unit}]")
     block = " (numerical block)" if int(ds.attrs.get("numerical_block", 0) or 0) else ""
     ax.set_xscale("log")
-    ax.set_xticks(dx, [f"{v:.3g}" for v in dx])      # one tick per grid
+    ax.set_xticks(dx, [f"{v * scale:.3g}" for v in dx])      # one tick per grid
     ax.xaxis.set_minor_formatter(NullFormatter())
     if ok.size:    # a little room beyond the coarsest and finest grids, so that no mark is cut
         ax.set_xlim(dx.min() / CONVERGENCE_MARGIN, dx.max() * CONVERGENCE_MARGIN)
-    _at_foot(ax, dx[~prop], _FAIL, f"no propagation{block}", f"grid spacing dx [{dx_unit}]")
+    _at_foot(ax, dx[~prop], _FAIL, f"no propagation{block}", f"dx [{dx_unit}]")
     _legend(ax, legend)
     return ax
 
 
 # --------------------------------------------------------------------------- whole figures
 
+#: narrowest panel of :func:`protocol_figure` side by side [cm]: its tick and axis labels fit
+MIN_PANEL_CM = 5.0
 #: most columns of the legend under the panels of :func:`protocol_figure`
 LEGEND_COLUMNS = 2
 
 
 def _side_by_side(fig, draws):
-    """Panels side by side, and one legend of all their entries below them (no entry twice)."""
-    axes = fig.subplots(1, len(draws), squeeze=False)[0]
-    handles, labels = [], []
-    for ax, draw in zip(axes, draws):
+    """Panels side by side, each in its own part of the figure with its legend below it.
+
+    Panels narrower than :data:`MIN_PANEL_CM` go on further rows instead. Each legend is
+    as wide as its panel (in up to :data:`LEGEND_COLUMNS` columns, long
+    entries wrapped), so that no legend takes the height or the width of the others.
+    """
+    width_cm = fig.get_size_inches()[0] * 2.54
+    cols = max(1, min(len(draws), int(width_cm // MIN_PANEL_CM)))
+    rows = -(-len(draws) // cols)
+    parts = list(fig.subfigures(rows, cols, squeeze=False).ravel())[:len(draws)] if len(draws) > 1 else [fig]
+    axes = []
+    for part, draw in zip(parts, draws):
+        ax = part.add_subplot()
         draw(ax)
-        for h, text in zip(*ax.get_legend_handles_labels()):
-            if text not in labels:
-                handles.append(h)
-                labels.append(text)
-    if handles:
-        _legend_below(fig, handles, labels)
-    return list(axes)
+        handles, labels = ax.get_legend_handles_labels()
+        if handles:
+            _legend_below(part, handles, labels)
+        axes.append(ax)
+    return axes
 
 
 def _legend_below(fig, handles, labels):
-    """One legend under the panels, in as many columns (up to :data:`LEGEND_COLUMNS`) as fit the figure."""
+    """A legend under the panel of ``fig`` (a figure or subfigure), in as many columns as fit it."""
     import textwrap
 
     def make(ncols, texts):
@@ -546,7 +560,7 @@ def _legend_below(fig, handles, labels):
 
     ncols = min(LEGEND_COLUMNS, len(handles))
     leg = make(ncols, labels)
-    renderer = _common._renderer(fig)
+    renderer = _common._renderer(fig.figure)
     if renderer is None:
         return leg
     room = 0.98 * fig.bbox.width

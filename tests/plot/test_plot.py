@@ -329,3 +329,19 @@ def test_sweep_outcomes_without_a_value_sit_in_a_strip_below_the_axes():
     assert strip.get_xlabel() == "g_Na" and ax.get_ylabel() == "CV [m/s]"
     assert ax.get_legend().get_title().get_text() == "temperature [°C]"
     assert layout.problems(fig) == []
+
+
+@pytest.mark.parametrize("ascii_unit, typeset", [("uA/cm^2", "µA/cm²"), ("degC", "°C"), ("ohm*cm", "Ω·cm"),
+                                                 ("cm^2/ms", "cm²/ms"), ("uA/uF", "µA/µF"), ("um", "µm"),
+                                                 ("cm^-1", "cm⁻¹"), ("percent", "%"), ("mmol/L", "mM"),
+                                                 ("m/s", "m/s"), ("1", ""), (None, "")])
+def test_units_are_typeset_for_print(ascii_unit, typeset):
+    # SI brochure (BIPM 2019, 5.4): the prefix micro is µ, powers are superscripts, degree Celsius °C
+    assert _common.unit_text(ascii_unit) == typeset
+
+
+def test_short_names_of_swept_keys_and_measurements():
+    assert _common.short_name("membrane.scale.g_Na") == "g_Na scale"
+    assert _common.short_name("region.0.parameters.K_o") == "K_o"
+    assert _common.short_name("g_Na", "swept case key membrane.scale.g_Na") == "g_Na scale"
+    assert _common.short_name("conduction_velocity") == "CV"

@@ -88,7 +88,7 @@ def changed(a, b):
 def test_strength_duration_thresholds_fits_rheobase_and_chronaxie(sd):
     ax, _ = render(lambda ax: cable.plot.strength_duration(sd, ax))
     assert ax.get_xlabel() == "stimulus duration [ms]"          # house style: quantity [unit]
-    assert ax.get_ylabel() == "threshold amplitude [µA/cm²]"   # units typeset
+    assert ax.get_ylabel() == "threshold [µA/cm²]"   # units typeset
     assert ax.get_xscale() == "log" and ax.get_yscale() == "log"
     texts = legend_texts(ax)
     assert texts[0] == "computed threshold"
@@ -139,7 +139,7 @@ def test_strength_duration_linear_axes_when_asked(sd):
 def test_charge_duration_is_weiss_line(sd):
     # Weiss 1901 (Arch Ital Biol 35:413; from memory): Q = I_rh (d + c), a line of slope I_rh
     ax, _ = render(lambda ax: cable.plot.charge_duration(sd, ax))
-    assert ax.get_ylabel() == "threshold charge [nC/cm²]"
+    assert ax.get_ylabel() == "charge [nC/cm²]"
     (points,) = lines_labelled(ax, "computed threshold charge")
     assert np.array_equal(points.get_ydata(), sd["charge"].values)
     rh, c = float(sd["rheobase_weiss"]), float(sd["chronaxie_weiss"])
@@ -238,7 +238,7 @@ def test_dynamic_train_not_one_to_one_is_ringed(rest):
 def test_convergence_values_extrapolation_and_case_grid(conv):
     ax, _ = render(lambda ax: cable.plot.convergence(conv, ax))
     assert ax.get_xscale() == "log"
-    assert ax.get_xlabel() == "grid spacing dx [cm]" and ax.get_ylabel() == "conduction velocity [m/s]"
+    assert ax.get_xlabel() == "dx [µm]" and ax.get_ylabel() == "CV [m/s]"
     p = float(conv["cv_observed_order"])
     texts = legend_texts(ax)
     assert texts[0] == f"CV: observed order {p:.2f} (formal {conv.attrs['formal_order']:g})"
@@ -250,13 +250,13 @@ def test_convergence_values_extrapolation_and_case_grid(conv):
     (mine,) = lines_labelled(ax, "the case's grid")
     assert float(mine.get_xdata()[0]) == float(conv["dx"][0])
     assert f"error {100 * float(conv['cv_relative_error']):.2g} %" in mine.get_label()
-    assert [t.get_text() for t in ax.get_xticklabels()] == [f"{v:.3g}" for v in conv["dx"].values]
+    assert [t.get_text() for t in ax.get_xticklabels()] == [f"{v * 1e4:.3g}" for v in conv["dx"].values]  # µm
 
 
 def test_convergence_error_panel_has_the_formal_slope(conv):
     ax, _ = render(lambda ax: cable.plot.convergence(conv, ax, error=True))
     assert ax.get_xscale() == "log" and ax.get_yscale() == "log"
-    assert ax.get_ylabel() == "relative error of the CV [%]"
+    assert ax.get_ylabel() == "CV error [%]"
     (ref,) = lines_labelled(ax, "slope")
     x, y = np.asarray(ref.get_xdata()), np.asarray(ref.get_ydata())
     slope = np.log(y[0] / y[-1]) / np.log(x[0] / x[-1])
@@ -302,15 +302,17 @@ def test_protocol_figure_panels(sd, erp, rest, conv):
         drawn = [ax for ax in fig.axes if ax.axison]
         panels[name] = [ax.get_ylabel() for ax in drawn]
         assert fig.get_suptitle() == ""          # no title built from the command's tokens
-        # one legend below the panels names every entry once
-        (legend,) = fig.legends
-        names = [t.get_text() for t in legend.get_texts()]
-        assert len(names) == len(set(names)) and names
+        # a legend below each panel names each of its entries once
+        legends = fig.legends + [leg for sub in fig.subfigs for leg in sub.legends]
+        assert len(legends) == len(drawn)
+        for legend in legends:
+            names = [t.get_text() for t in legend.get_texts()]
+            assert len(names) == len(set(names)) and names
         assert layout.problems(fig) == []
-    assert panels == {"sd": ["threshold amplitude [µA/cm²]", "threshold charge [nC/cm²]"],
+    assert panels == {"sd": ["threshold [µA/cm²]", "charge [nC/cm²]"],
                       "erp": ["S2 outcome"],
                       "rest": ["APD90 [ms]", "conduction velocity [m/s]"],
-                      "conv": ["conduction velocity [m/s]", "relative error of the CV [%]", "APD90 [ms]"]}
+                      "conv": ["CV [m/s]", "CV error [%]", "APD90 [ms]"]}
     titled = cable.plot.protocol_figure(sd, Figure(layout="constrained"), title="HH membrane")
     assert titled.get_suptitle() == "HH membrane"
 
@@ -369,3 +371,19 @@ def test_protocol_command_writes_figure(tmp_path, capsys):
     assert "does not exist" in capsys.readouterr().err
     assert main(["converge", str(case), "--figure", str(out), "--figure-size", "0", "5"]) == 2
     assert "--figure-size" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("size", [None, ("8.5", "12")])
+def test_protocol_figures_at_the_command_sizes_pass_the_layout_check(size, sd, erp, rest, conv):
+    # what --figure writes (default 16 x 10 cm, and a single journal column, panels stacked): checked with the
+    # renderer's extents (cable.plot.layout) and every value axis labelled with its unit
+    from types import SimpleNamespace
+
+    from cable.cli import _figures
+
+    for ds in (sd, erp, rest, conv):
+        with _figures.drawing(SimpleNamespace(size=size, dpi=100, title=None)) as fig:
+            cable.plot.protocol_figure(ds, fig)
+            assert layout.problems(fig) == []
+            for text in layout.axis_labels(fig):
+                assert text == "S2 outcome" or text.endswith("]"), text
