@@ -228,12 +228,12 @@ def richardson(values, ratio: str = "dt/dx^2", time: int | None = None, *, forma
     return p, used, float(ext), note
 
 
-def _series_data(series, tolerance):
+def _series_data(series, tolerance, time: int = TIME_ORDER):
     """Variables of the separate dx and dt series, and the recommended dx and dt."""
     data, coords = {}, {}
     rec = {"dx": np.nan, "dt": np.nan}
     errors = {}
-    for axis, order, dim, unit in (("dx", SPACE_ORDER, "dx_level", "cm"), ("dt", TIME_ORDER, "dt_level", "ms")):
+    for axis, order, dim, unit in (("dx", SPACE_ORDER, "dx_level", "cm"), ("dt", time, "dt_level", "ms")):
         rows = series.get(axis)
         if rows is None:
             continue
@@ -267,7 +267,7 @@ def _result(case, rows, ratio, beat, site, series=None, tolerance=WARN_RELATIVE_
     cv, apd, prop = col("cv"), col("apd"), col("propagated").astype(bool)
     notes, warnings = [], []
     out = {}
-    sdata, scoords, rec, serr = _series_data(series, tolerance) if series else ({}, {}, None, {})
+    sdata, scoords, rec, serr = _series_data(series, tolerance, time_order(case.numerics)) if series else ({}, {}, None, {})
     for name, f, unit in (("cv", cv, "m/s"), ("apd90", apd, "ms")):
         p, used, ext, note = richardson(f, ratio, time_order(case.numerics))
         err = abs(f[0] - ext) / abs(ext) if np.isfinite(ext) and ext != 0 and np.isfinite(f[0]) else np.nan
