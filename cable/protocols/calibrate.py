@@ -188,8 +188,8 @@ def calibrate(case, key: str, measure: str, target: float, *, level: float | Non
             case = case.with_overrides({"measure.apd_levels": [*case.apd_levels, level]})
     if not (math.isfinite(target) and target > 0):
         raise CaseError(f"{who}: target = {target!r} must be a positive finite number in {MEASURES[measure]}.")
-    if not 0 < rtol < 0.1:
-        raise CaseError(f"{who}: rtol = {rtol:g} must lie between 0 and 0.1.")
+    if not 1e-12 <= rtol < 0.1:
+        raise CaseError(f"{who}: rtol = {rtol:g} must lie between 1e-12 and 0.1 (default {DEFAULT_RTOL:g}).")
     unit = unit_of(case, key)
     say = info or (lambda msg: None)
     runs: list[tuple[float, float]] = []
