@@ -22,9 +22,10 @@ DT = 0.02  # [ms] (common practice; TNNP 2004 used 0.01-0.02 ms in tissue, REFER
 BCL = 1000.0  # [ms] 1 Hz pacing, the condition of the published values
 STIM = 52.0  # [mV/ms] = -52 pA/pF ...
 STIM_DURATION = 1.0  # [ms] ... for 1 ms (TNNP 2004 single-cell protocol; from memory)
-# From the epi 1 Hz steady state (the model's initial state), endo and mid are within ~1%
-# of their own steady APD90 after 15 beats (measured: mid 395 ms vs 399 ms after 1000).
-BEATS = 15
+# 30 beats at 1 Hz from the epi steady state (the model's initial state): the condition of
+# the separate implementation's values below. The M cell is still drifting then (mid
+# 396.7 ms after 30 beats, 398.9 after 300: issue 13 audit, same equations).
+BEATS = 30
 
 # TNNP 2004 (ten Tusscher, Noble, Noble & Panfilov 2004, Am J Physiol 286:H1573), 1 Hz
 # single cell, REFERENCES.md row "TNNP 2004" (read in the source).
@@ -32,20 +33,23 @@ PUBLISHED_APD90 = {"epi": 276.0, "endo": 282.0, "mid": 336.0}  # [ms]
 PUBLISHED_REST = -87.3  # [mV]
 PUBLISHED_UPSTROKE = 288.0  # [V/s] epi
 
-# The 2006 model is "similar but not identical" (REFERENCES.md row "TP06", from memory):
-# with its new I_Ks time constant (tau_xs + 80 ms), I_CaL and calcium handling this
-# implementation gives 301/300/395 ms, longest relative to 2004 in the M cell, whose I_Ks
-# is a quarter of epi's and which is most sensitive to I_Ks. We accept 12% for epi and endo and
-# 20% for the M cell, which still catches a missing repolarising current (measured:
-# G_Kr = 0 gives APD90 346/345/482 ms, G_Ks = 0 475/485/475 ms for epi/endo/mid).
-APD_RTOL = {"epi": 0.12, "endo": 0.12, "mid": 0.20}
+# The 2004 values above do not apply to TP06 (other I_Ks kinetics, I_CaL and calcium
+# handling; REFERENCES.md row "TP06"). The reference on the same equations: a separate
+# implementation of TP06 (issue 13 audit) gives APD90 300.9 (epi), 300.5 (endo) and
+# 396.7 ms (mid) after 30 beats at 1 Hz, 52 pA/pF x 1 ms. Two codes of the same equations at
+# dt 0.02 ms differ by the time-step error of APD90 (1e-4 relative: solve_ivp test below)
+# and by how each places activation and the 90% level between samples (< 1 sample at each
+# end, 0.04 ms): 0.5% (1.5-2 ms) holds both with room, and catches a missing current
+# (G_Kr = 0 lengthens APD90 by 15%, G_Ks = 0 by 20-60%: measured here).
+SAME_EQUATIONS_APD90 = {"epi": 300.9, "endo": 300.5, "mid": 396.7}  # [ms]
+SAME_EQUATIONS_RTOL = 0.005
 # Rest sits ~1 mV above E_K, and E_K depends on the model's own K_i (2004 and 2006 differ
 # by a few mM): 3 mV (measured -85.4 mV).
 REST_ATOL = 3.0  # [mV]
-# Max dV/dt falls while the stimulus is still on (so it includes the 52 mV/ms) and depends
-# on the stimulus and on dt: measured 384 V/s at dt 0.02 ms (376 V/s as dt -> 0), a third
-# above the 2004 value with the same I_Na; 40% holds the order of magnitude only.
-UPSTROKE_RTOL = 0.40
+# Max dV/dt: the upstroke is checked against solve_ivp on the same equations (below); the
+# 2004 value (288 V/s) is only an order of magnitude for TP06 (same I_Na, but the maximum
+# falls while the 52 mV/ms stimulus is on), so only a factor of two is asked of it.
+UPSTROKE_FACTOR = 2.0
 # Overshoot of a human ventricular AP: +20 to +50 mV (from memory; common practice).
 PEAK_RANGE = (20.0, 50.0)  # [mV]
 # endo and epi APD90 within 5% of each other (TNNP 2004: 282 vs 276 ms, 2%).
@@ -62,7 +66,7 @@ def _parameters(cells=CELLS, **values):
     return MODEL.fill_labelled_defaults(p, given=values)
 
 
-def _pace(p, beats, dt=DT, bcl=BCL, stim=STIM, record_states=()):
+def _pace(p, beats, dt=DT, bcl=BCL, stim=STIM, record_states=(), start=None):
     """Pace independent cells (one per row of ``p``) with the model's own kernel.
 
     Returns the potential of the last beat, shape (steps, n), and the states at the
@@ -72,6 +76,8 @@ def _pace(p, beats, dt=DT, bcl=BCL, stim=STIM, record_states=()):
     n = p.shape[0]
     v = np.full(n, MODEL.resting_potential)
     s = np.tile(MODEL.initial_states(), (n, 1))
+    if start is not None:
+        v, s = (np.array(a, dtype=float) for a in start)
     steps = int(round(bcl / dt))
     on = int(round(STIM_DURATION / dt))
     stim_on, stim_off = np.full(n, stim), np.zeros(n)
@@ -106,20 +112,37 @@ def _measure(t, V):
     return rest, peak, slope[k_up], t90 - t[k_up]
 
 
+def _prepaced(cells, beats):
+    """(v, s) of each cell type after ``beats`` beats of the same protocol, paced by the
+    package's compiled single-cell loop (``[membrane.prepace]``; the same kernel and pulse)."""
+    from cable.simulate import prepare
+
+    v, s = [], []
+    for cell in cells:
+        setup = prepare({"membrane": {"model": MODEL.name, "parameters": {"cell_type": cell},
+                                      "prepace": {"beats": beats, "cycle_length": BCL}},
+                         "stimulus": [{"amplitude": STIM, "duration": STIM_DURATION}],
+                         "numerics": {"dt": DT}, "run": {"duration": 1.0}, "output": {"every": 0.5}})
+        v.append(setup.v0[0])
+        s.append(setup.s0[0])
+    return np.array(v), np.array(s)
+
+
 @pytest.fixture(scope="module")
 def paced():
     p = _parameters()
-    trace, v_saved, s_saved = _pace(p, BEATS, record_states=(0, 40, 100, 2500, 12500))
+    trace, v_saved, s_saved = _pace(p, 1, record_states=(0, 40, 100, 2500, 12500),
+                                    start=_prepaced(CELLS, BEATS - 1))
     t = np.arange(trace.shape[0]) * DT
     return {c: _measure(t, trace[:, i]) for i, c in enumerate(CELLS)}, v_saved, s_saved
 
 
 @pytest.mark.parametrize("cell", CELLS)
-def test_apd90_matches_published(paced, cell):
-    # TNNP 2004 APD90 at 1 Hz (ten Tusscher et al. 2004, Am J Physiol 286:H1573); TP06
-    # similar (ten Tusscher & Panfilov 2006, Am J Physiol 291:H1088; from memory)
+def test_apd90_matches_a_separate_implementation(paced, cell):
+    # same equations, separate code (see SAME_EQUATIONS_APD90); the 2004 values stay below
+    # for the ordering only
     apd = paced[0][cell][3]
-    assert apd == pytest.approx(PUBLISHED_APD90[cell], rel=APD_RTOL[cell])
+    assert apd == pytest.approx(SAME_EQUATIONS_APD90[cell], rel=SAME_EQUATIONS_RTOL)
 
 
 @pytest.mark.parametrize("cell", CELLS)
@@ -130,7 +153,7 @@ def test_rest_peak_upstroke(paced, cell):
     # overshoot range: from memory (common practice)
     assert PEAK_RANGE[0] < peak < PEAK_RANGE[1]
     # 288 V/s (epi; the upstroke does not depend on cell type): ten Tusscher et al. 2004
-    assert upstroke == pytest.approx(PUBLISHED_UPSTROKE, rel=UPSTROKE_RTOL)
+    assert PUBLISHED_UPSTROKE / UPSTROKE_FACTOR < upstroke < PUBLISHED_UPSTROKE * UPSTROKE_FACTOR
 
 
 def test_apd_ordering(paced):
@@ -177,6 +200,11 @@ def test_kernel_matches_solve_ivp_over_one_beat():
     exact = _measure(t, V)
     assert kernel[3] == pytest.approx(exact[3], rel=IVP_APD_RTOL)
     assert kernel[1] == pytest.approx(exact[1], abs=1.0)  # peak [mV], first order in dt
+    # upstroke velocity (both from the same samples): the kernel is explicit in V, whose
+    # relative error over an upstroke of duration t_up = (peak - rest)/(dV/dt) ~ 0.3 ms is
+    # about dt/(2 t_up) = 1.7% at dt 0.01 ms (Euler's method, derived); twice that allowed
+    t_up = (kernel[1] - kernel[0]) / kernel[2]  # [mV] / [V/s = mV/ms] = ms
+    assert kernel[2] == pytest.approx(exact[2], rel=IVP_DT / t_up)
 
 
 # forward Euler with a tiny step against the reference derivatives. The kernel evaluates
