@@ -44,6 +44,8 @@ def case(model: str, rates: str, gating: str) -> dict:
         "numerics": {"dt": DT, "gating": gating, "rates": rates},
         "run": {"duration": STEPS * DT},
         "output": {"every": 0.1},
+        # the driver's CV: -20 mV crossings at nodes int(0.3 (n-1)) and int(0.7 (n-1))
+        "measure": {"threshold": -20.0, "cv_window": [int(0.3 * (NODES - 1)) * DX, int(0.7 * (NODES - 1)) * DX]},
     }
 
 

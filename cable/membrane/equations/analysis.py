@@ -73,8 +73,20 @@ def _substitute_dependent(parsed: Parsed, expr, y: str, deps: dict):
 
 
 def analyse(parsed: Parsed) -> Analysis:
+    linear = _linear(parsed, _depends(parsed))
+    _hoist_v_only(parsed, linear)
     deps = _depends(parsed)
     states = {s.name for s in parsed.model.states}
+    state_dep = {n for n, d in deps.items() if d & states}
+    v_only = {n for n, d in deps.items() if POTENTIAL in d and not (d & states)
+              and not (d & {p.name for p in parsed.model.parameters})}
+    gates = {n for n, b in linear.items() if b is not None}
+    gate_dep = {n for n, d in deps.items() if d & gates}
+    return Analysis(parsed, linear, state_dep, gate_dep, v_only)
+
+
+def _linear(parsed: Parsed, deps: dict) -> dict:
+    """State name -> b of dy/dt = a + b y (b free of y), or None."""
     linear = {}
     for name, f in parsed.derivatives.items():
         y = parsed.sym[name]
@@ -87,9 +99,70 @@ def analyse(parsed: Parsed) -> Analysis:
             linear[name] = None
         else:
             linear[name] = b
-    state_dep = {n for n, d in deps.items() if d & states}
-    v_only = {n for n, d in deps.items() if POTENTIAL in d and not (d & states)
-              and not (d & {p.name for p in parsed.model.parameters})}
-    gates = {n for n, b in linear.items() if b is not None}
-    gate_dep = {n for n, d in deps.items() if d & gates}
-    return Analysis(parsed, linear, state_dep, gate_dep, v_only)
+    return linear
+
+
+def _costly(e) -> bool:
+    """Whether evaluating ``e`` takes a function call or a division (worth a table column)."""
+    for a in sympy.preorder_traversal(e):
+        if isinstance(a, (sympy.Function, sympy.Piecewise)):
+            return True
+        if a.is_Pow and not (a.exp.is_Integer and a.exp > 0):
+            return True
+    return False
+
+
+def _hoist_v_only(parsed: Parsed, linear: dict) -> None:
+    """Subexpressions of the potential alone (and parameters) inside expressions that depend on
+    states become intermediates of their own, so that the fast path can tabulate them; the same
+    subexpression met twice becomes one intermediate (in place: ``parsed`` and ``linear``)."""
+    deps = _depends(parsed)
+    params = {p.name for p in parsed.model.parameters}
+    states = {s.name for s in parsed.model.states}
+    v_dep = {POTENTIAL} | {n for n, d in deps.items() if POTENTIAL in d and not (d & states)}
+    allowed = v_dep | params | {n for n, d in deps.items() if not (d & states)}
+    found: dict = {}
+
+    def v_only(e):
+        fs = {str(s) for s in e.free_symbols}
+        return bool(fs) and fs <= allowed and bool(fs & v_dep)
+
+    def name_of(e):
+        if e not in found:
+            found[e] = sympy.Symbol(f"_v{len(found)}", real=True)
+        return found[e]
+
+    def constant(e):  # parameters only: hoisted too, so that a repeated division is done once
+        fs = {str(s) for s in e.free_symbols}
+        return bool(fs) and fs <= allowed and not (fs & v_dep)
+
+    def hoist(e):
+        if e.is_Atom or not isinstance(e, sympy.Expr):
+            return e.func(*[hoist(a) for a in e.args]) if e.args else e
+        if v_only(e) or constant(e):
+            return name_of(e) if _costly(e) else e
+        if e.is_Mul or e.is_Add:
+            for kind in (v_only, constant):
+                group = [a for a in e.args if isinstance(a, sympy.Expr) and kind(a)]
+                if group and _costly(e.func(*group)):
+                    rest = [a for a in e.args if a not in group]
+                    return e.func(name_of(e.func(*group)), *[hoist(a) for a in rest])
+        return e.func(*[hoist(a) for a in e.args])
+
+    inter = parsed.intermediates
+    for n in list(inter):
+        if deps[n] & states:
+            inter[n] = hoist(inter[n])
+    for n in parsed.derivatives:
+        parsed.derivatives[n] = hoist(parsed.derivatives[n])
+    for n in parsed.currents:
+        parsed.currents[n] = hoist(parsed.currents[n])
+    for n, b in linear.items():
+        if b is not None:
+            linear[n] = hoist(b)
+    if found:
+        for e, sym in found.items():
+            inter[str(sym)] = e
+            parsed.sym[str(sym)] = sym
+        from cable.membrane.equations.description import _sorted
+        parsed.intermediates = _sorted(parsed.model.name, inter, parsed.sym)

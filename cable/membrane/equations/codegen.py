@@ -35,10 +35,12 @@ class _Printer(PythonCodePrinter):
 
     def _print_Pow(self, expr, rational=False):
         base, exp = expr.as_base_exp()
-        if exp.is_Integer and 1 < int(exp) <= 4:
-            # small integer powers as products (exact, and cheaper than pow)
+        k = int(exp) if (exp.is_Integer or (exp.is_Float and float(exp).is_integer())) else None
+        if k is not None and 1 < abs(k) <= 4:
+            # small integer powers as products (cheaper than pow; one rounding per product)
             b = self.parenthesize(base, 100)
-            return "(" + "*".join([b] * int(exp)) + ")"
+            prod = "(" + "*".join([b] * abs(k)) + ")"
+            return prod if k > 0 else f"(1.0/{prod})"
         return super()._print_Pow(expr, rational=rational)
 
     def doprint_np(self, expr) -> str:

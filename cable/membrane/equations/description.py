@@ -151,8 +151,9 @@ def _sorted(model_name: str, inter: dict, sym: dict) -> dict:
         if n in done:
             return
         if n in visiting:
-            raise EquationError(f"model {model_name}: the intermediate '{n}' depends on itself "
-                                f"(an algebraic loop); write it as a state or solve it by hand.")
+            raise EquationError(f"model {model_name}: the variable '{n}' depends on itself "
+                                f"(an algebraic loop); only ordinary differential equations with explicit "
+                                f"variables can be simulated: write it as a state or solve it by hand.")
         visiting.add(n)
         for s in inter[n].free_symbols:
             if str(s) in inter:

@@ -116,8 +116,9 @@ def kernel_lines(an: Analysis, pr, names, fp: dict) -> list:
     out += [f"        {names[n]} = {pr.doprint_np(inter[n])}" for n in after]
     out.append("        ion = " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
     out.append("        v[i] = V + dt * (i_stim[i] - ion_scale * ion)")
-    # the table: one row per potential; a row that is not finite (a removable singularity such
-    # as x/(exp(x) - 1) at x = 0 falling on a row) is the mean of the rows 1e-6 mV either side
+    # the table: row j is the mean of the values at V_j -+ dv/1000 (a removable singularity such
+    # as x/(exp(x) - 1) at x = 0 falling on a row would give 0/0, or a wrong finite value when
+    # rounding leaves the denominator a few ulps from zero; the mean is off by ~1e-7 dv^2 f'')
     out += ["", "", "@jit", "def table_row(V, prow, dt, gating, row):"]
     out += [f"    p{k} = prow[{k}]" for k in range(len(m.parameters))]
     out += [f"    {names[n]} = {pr.doprint_np(inter[n])}" for n in all_tab]
@@ -132,11 +133,9 @@ def kernel_lines(an: Analysis, pr, names, fp: dict) -> list:
             "    side = np.empty(table.shape[1])",
             "    for j in range(table.shape[0]):",
             "        V = v_lo + dv * j",
-            "        table_row(V, prow, dt, gating, table[j])",
-            "        if not np.all(np.isfinite(table[j])):",
-            "            table_row(V - 1e-6, prow, dt, gating, side)",
-            "            table_row(V + 1e-6, prow, dt, gating, table[j])",
-            "            table[j] = 0.5 * (table[j] + side)"]
+            "        table_row(V - 1e-3 * dv, prow, dt, gating, side)",
+            "        table_row(V + 1e-3 * dv, prow, dt, gating, table[j])",
+            "        table[j] = 0.5 * (table[j] + side)"]
     out += ["", "", f"TABLE_COLUMNS = {max(ncol, 1)}", f"TABLE_PARAMETERS = {tuple(fp['parameters'])!r}", "",
             "", "def build_table(p_row, dt, gating, v_lo, v_hi, dv):",
             '    """The table of the tabulated subexpressions (contract: cable.membrane.base.FastPath)."""',

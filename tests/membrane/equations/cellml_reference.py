@@ -9,6 +9,7 @@ conversion to the package's units written out here by hand: V_modern = c0 + c1 V
 
 from pathlib import Path
 
+import numba
 import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
@@ -77,7 +78,47 @@ def apd90(t, v, level=-20.0):
 
 
 def period(t, v, level=-20.0):
-    """Mean interval between the upward crossings of ``level`` after the first [ms]."""
+    """Mean interval between the upward crossings of ``level`` [ms], and the crossings."""
     k = np.nonzero((v[:-1] < level) & (v[1:] >= level))[0]
     tc = t[k] + (level - v[k]) * (t[k + 1] - t[k]) / (v[k + 1] - v[k])
-    return float(np.mean(np.diff(tc[1:]))), tc
+    return float(np.mean(np.diff(tc))), tc
+
+
+
+@numba.njit
+def _drive(kernel, v, s, p, dt, nsteps, stride, start, dur, amp, cycle, ion_scale, table, v_lo, inv_dv, out):
+    i_stim = np.zeros(1)
+    out[0] = v[0]
+    for k in range(nsteps):
+        t = k * dt
+        tc = (t - start) % cycle if cycle > 0.0 and t >= start else t - start
+        i_stim[0] = amp if 0.0 <= tc < dur - 1e-9 else 0.0
+        kernel(v, s, p, i_stim, dt, ion_scale, 0, table, v_lo, inv_dv)
+        if (k + 1) % stride == 0:
+            out[(k + 1) // stride] = v[0]
+
+
+def cell_run(model, t_end, dt, stimulus=(0.0, 0.0, 0.0), every=0.01, parameters=None, rates="tabulated"):
+    """V(t) [mV] of one cell: the model's fast kernel stepped as ``cable.simulate`` steps a single
+    cell (Rush-Larsen gates; tabulated rates by default), in a small numba loop of its own, so that
+    a test does not compile the solver's time loop for each model.
+
+    ``stimulus`` = (start, duration, amplitude [mV/ms] (the stimulus divided by C_m), cycle length
+    or 0); ``parameters``: {name: value}.
+    """
+    from cable.kernels import tables
+
+    start, dur, amp, *rest = stimulus
+    v = np.array([model.resting_potential])
+    s = np.ascontiguousarray(model.initial_states()[None, :])
+    p = model.default_parameters()[None, :].copy()
+    for name, value in (parameters or {}).items():
+        p[0, model.parameter_names.index(name)] = value
+    plan = tables.plan(model, p, dt, 0, rates)
+    nsteps = int(round(t_end / dt))
+    stride = max(1, int(round(every / dt)))
+    out = np.full(nsteps // stride + 1, np.nan)
+    ion_scale = model.ion_scale(model.capacitance or 1.0)
+    _drive(model.fast.kernel, v, s, p, dt, nsteps, stride, float(start), float(dur), float(amp),
+           float(rest[0] if rest else 0.0), ion_scale, plan.table, plan.v_lo, plan.inv_dv, out)
+    return np.arange(out.size) * stride * dt, out

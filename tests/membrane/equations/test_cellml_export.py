@@ -1,0 +1,64 @@
+"""CellML export: a model with equations written as CellML 2.0 (accepted by the libcellml validator,
+checked inside the export) and imported again gives the same results (round trip)."""
+
+import numpy as np
+import pytest
+
+import cable
+from cable.cli import main
+from cable.membrane.equations import EquationError
+from cable.membrane.equations.cellml_export import equations_of, export
+from cable.membrane.equations.registry import cellml_model_name
+from cellml_reference import needs_files, path
+
+
+def axon(model):
+    ds = cable.simulate({
+        "membrane": {"model": model},
+        "fiber": {"length": 2.0, "dx": 0.01, "radius": "238 um", "axial_resistivity": "35.4 ohm*cm"},
+        "stimulus": [{"amplitude": 1000.0, "duration": 0.2, "width": 0.1}],
+        "numerics": {"dt": 0.01, "rates": "exact"}, "run": {"duration": 8.0}, "output": {"every": 0.05}})
+    return float(ds.conduction_velocity[0]), float(ds.apd.values.ravel()[0])
+
+
+@pytest.mark.slow
+def test_round_trip_of_the_hh_description(tmp_path):
+    out = tmp_path / "hh.cellml"
+    assert main(["models", "hodgkin-huxley-1952", "--cellml", str(out)]) == 0
+    back = cable.get_model(cellml_model_name(out))
+    gen = cable.get_model("equations:hodgkin_huxley_1952")
+    assert back.state_names == gen.state_names
+    np.testing.assert_allclose(back.initial_states(), gen.initial_states(), rtol=1e-15)
+    # the same equations, rewritten by libcellml: CV and APD90 to 1e-6 (the issue's bound)
+    for a, b in zip(axon(back.name), axon("equations:hodgkin_huxley_1952")):
+        assert a == pytest.approx(b, rel=1e-6)
+
+
+@needs_files
+@pytest.mark.parametrize("name", ["noble_1962"])
+def test_imported_models_export_and_read_back(tmp_path, name):
+    # derivatives at the initial state agree after export and import (1e-12 relative: rounding);
+    # names are CellML identifiers in the export (component.variable -> component_variable).
+    # (ORd and Fabbri export too, checked by hand with `cable models FILE --cellml OUT`: 40 s each here)
+    m = cable.get_model(cellml_model_name(path(name)))
+    out = tmp_path / f"{name}.cellml"
+    out.write_text(export(equations_of(m)))
+    back = cable.get_model(cellml_model_name(out))
+    ident = [n.replace(".", "_") for n in m.state_names]
+    assert sorted(back.state_names) == sorted(ident) and back.current_basis == m.current_basis
+    order = [back.state_names.index(n) for n in ident]  # libcellml orders states its own way
+    v = np.array([m.resting_potential])
+    given = {n.replace(".", "_"): d for n, d in zip(m.parameter_names, m.default_parameters())}
+    p_back = np.array([[given.get(n, d) for n, d in zip(back.parameter_names, back.default_parameters())]])
+    _, ds1, ion1 = m.reference(v, m.initial_states()[None, :], m.default_parameters()[None, :])
+    _, ds2, ion2 = back.reference(v, back.initial_states()[None, :], p_back)
+    np.testing.assert_allclose(back.initial_states()[order], m.initial_states(), rtol=1e-15)
+    np.testing.assert_allclose(ds2[:, order], ds1, rtol=1e-12, atol=1e-300)
+    np.testing.assert_allclose(ion2, ion1, rtol=1e-12)
+
+
+def test_builtin_without_equations_is_refused(capsys):
+    assert main(["models", "luo-rudy-1991", "--cellml", "/tmp/never-written.cellml"]) == 2
+    assert "no description as equations" in capsys.readouterr().err
+    with pytest.raises(EquationError):
+        equations_of(cable.get_model("mitchell-schaeffer-2003"))
