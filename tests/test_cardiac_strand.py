@@ -106,11 +106,16 @@ def test_reducing_g_na_slows_conduction_down_to_block(model):
         cvs.append(float(ds.conduction_velocity[0]))
         ups.append(centre(ds, "upstroke_velocity"))
     assert np.all(np.diff(cvs) < 0) and np.all(np.diff(ups) < 0)
+    # at 2% G_Na the wave does not get through in the run: it blocks (LR1), or, TP06,
+    # crawls on as a calcium-driven slow response still travelling at 40 ms (timed out)
     ds = cable.simulate(strand(model, scale={G_NA[model]: 0.02}))
-    # captured at the stimulus, then blocked before the middle of the strand (a failure, not
-    # a stimulus that did nothing)
-    assert bool(ds.captured[0]) and bool(ds.blocked[0]) and not bool(ds.conducted[0])
-    assert 0.1 <= float(ds.block_x[0]) < 0.5
+    # captured at the stimulus (a failure, not a stimulus that did nothing), then either
+    # blocked before the middle of the strand or still crawling when the run ends
+    assert bool(ds.captured[0]) and not bool(ds.conducted[0])
+    if bool(ds.blocked[0]):
+        assert 0.1 <= float(ds.block_x[0]) < 0.5
+    else:
+        assert bool(ds.timed_out[0])
 
 
 def test_prepacing_reports_settling_and_starts_every_node():
