@@ -350,6 +350,9 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     from cable.io import netcdf
 
     check_call("simulate", output=output, overwrite=overwrite, progress=progress, command=command, info=info)
+    if not isinstance(case, (Case, dict, str, os.PathLike)):
+        raise CaseError(f"simulate(case={case!r}): give a case file path (str or pathlib.Path), a dict, a Case, or "
+                        f"TOML text as cable.load_case(text=...); not {type(case).__name__}.")
     say = info or (lambda msg: None)
     case = case if isinstance(case, Case) else load_case(case)
     if output is not None:

@@ -351,8 +351,8 @@ def load_case(source=None, overrides=(), *, text: str | None = None) -> Case:
         With a message naming the key, the value and what is allowed.
     """
     if (source is None) == (text is None):
-        raise CaseError("load_case: give the case as source (a file path, a dict or a Case) or as text=TOML text, "
-                        f"not {'both' if text is not None else 'neither'}.")
+        raise CaseError("load_case: give the case as source (a file path, a dict or a Case) or as text=TOML text "
+                        f"({'not both' if text is not None else 'neither was given'}).")
     try:
         if text is not None:
             if not isinstance(text, str):
