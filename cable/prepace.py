@@ -154,8 +154,12 @@ def settle_nodes(case, model, p, v0, s0):
             if result is not None:
                 break
         else:
-            raise CaseError("the membrane with the given parameters has no stable rest (the unstimulated cell "
-                            "diverged); check membrane.parameters and membrane.scale.")
+            names = model.parameter_names
+            which = ", ".join(f"{names[i]} = {rows[r][i]:.6g} (default {default[i]:.6g})"
+                              for i in np.flatnonzero(rows[r] != default))
+            raise CaseError(f"the membrane has no stable rest with {which} (the unstimulated cell diverged); "
+                            f"change that in membrane.parameters, membrane.scale, membrane.temperature or the "
+                            f"[[region]] that sets it.")
         v_end, s_end, t, rate = result
         worst = max(worst, rate)
         longest = max(longest, t)

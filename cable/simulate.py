@@ -20,6 +20,7 @@ import xarray as xr
 
 from cable import __version__
 from cable.arguments import check_call
+from cable.units import format_bytes
 from cable.case import Case, CaseError, load_case
 from cable.fiber import Grid, build_grid, node_positions
 from cable.io import schema
@@ -234,7 +235,12 @@ def prepare(case) -> Setup:
         intervals = int(np.ceil(case.duration / (spb * num.dt)))
         notes.append(f"run.duration rounded up to {intervals * spb * num.dt:g} ms, a whole number of output intervals.")
     # pulses starting after the run's end change nothing (a train may be longer than the run)
-    pulses = pulses[pulses[:, 0] < intervals * spb * num.dt]
+    t_end = intervals * spb * num.dt
+    if case.stimuli and pulses.shape[0] and not np.any(pulses[:, 0] < t_end):
+        first = float(np.min(pulses[:, 0]))
+        notes.append(f"warning: no stimulus starts before the run ends (the first at {first:g} ms, the run ends at "
+                     f"{t_end:g} ms): nothing is stimulated; lengthen run.duration or move stimulus.N.start.")
+    pulses = pulses[pulses[:, 0] < t_end]
     cv_window = None
     if x is not None:
         cv_window = case.cv_window or default_window(case.fiber.length)
@@ -332,8 +338,8 @@ def _check_bytes(case: Case, n: int, n_samples: int, n_pulses: int, output) -> N
         folder = os.path.dirname(os.path.abspath(output))
         free = shutil.disk_usage(folder).free
         if on_disk > free:
-            raise CaseError(f"the stored fields need up to {on_disk / 2**30:.1f} GiB (before compression) but "
-                            f"{free / 2**30:.1f} GiB is free on disk at '{folder}': {hint}.")
+            raise CaseError(f"the stored fields need up to {format_bytes(on_disk)} (before compression) but "
+                            f"{format_bytes(free)} is free on disk at '{folder}': {hint}.")
     try:
         avail = os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
     except (ValueError, OSError, AttributeError):
@@ -341,10 +347,10 @@ def _check_bytes(case: Case, n: int, n_samples: int, n_pulses: int, output) -> N
     need = probes + (0 if output is not None else fields)
     if need > 0.8 * avail:
         if output is None and fields > probes:
-            raise CaseError(f"the stored fields need {need / 2**30:.1f} GiB but {avail / 2**30:.1f} GiB of memory "
+            raise CaseError(f"the stored fields need {format_bytes(need)} but {format_bytes(avail)} of memory "
                             f"is free: {hint}; or give an output file, to which the fields are streamed.")
         raise CaseError(f"the activation probes of {n} nodes x up to {2 * n_pulses + 8} threshold crossings need "
-                        f"{need / 2**30:.1f} GiB but {avail / 2**30:.1f} GiB of memory is free: use fewer pulses "
+                        f"{format_bytes(need)} but {format_bytes(avail)} of memory is free: use fewer pulses "
                         f"(stimulus count), a coarser fiber.dx or a shorter fibre.")
 
 
@@ -398,6 +404,9 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     from cable.io import netcdf
 
     check_call("simulate", output=output, overwrite=overwrite, progress=progress, command=command, info=info)
+    if not isinstance(case, (Case, dict, str, os.PathLike)):
+        raise CaseError(f"simulate(case={case!r}): give a case file path (str or pathlib.Path), a dict, a Case, or "
+                        f"TOML text as cable.load_case(text=...); not {type(case).__name__}.")
     say = info or (lambda msg: None)
     case = case if isinstance(case, Case) else load_case(case)
     if output is not None:

@@ -382,8 +382,8 @@ def load_case(source=None, overrides=(), *, text: str | None = None) -> Case:
         With a message naming the key, the value and what is allowed.
     """
     if (source is None) == (text is None):
-        raise CaseError("load_case: give the case as source (a file path, a dict or a Case) or as text=TOML text, "
-                        f"not {'both' if text is not None else 'neither'}.")
+        raise CaseError("load_case: give the case as source (a file path, a dict or a Case) or as text=TOML text "
+                        f"({'not both' if text is not None else 'neither was given'}).")
     try:
         if text is not None:
             if not isinstance(text, str):
@@ -576,8 +576,8 @@ def from_dict(raw: dict) -> Case:
                             f"{prepace['cycle_length']:g} ms with dt = {pdt:g} ms gives {psteps:.3g} steps per cell; "
                             f"at most {MAX_STEPS:.0e} are allowed. Use fewer beats or a larger membrane.prepace.dt.")
     if fiber is not None and steps * fiber.n_nodes > MAX_NODE_STEPS:
-        raise CaseError(f"the run needs {steps * fiber.n_nodes:.3g} node-steps ({fiber.n_nodes} nodes x {steps:.3g} "
-                        f"steps); at most {MAX_NODE_STEPS:.0e} are allowed. Increase fiber.dx or numerics.dt, or "
+        raise CaseError(f"the run needs {steps * fiber.n_nodes:.6g} node-steps ({fiber.n_nodes} nodes x {steps:.6g} "
+                        f"steps); at most {MAX_NODE_STEPS:.6g} are allowed. Increase fiber.dx or numerics.dt, or "
                         f"shorten the fibre or the run.")
     every = out["every"]
     ratio = every / num.dt

@@ -99,7 +99,7 @@ def summarise(ds, path=None) -> str:
     lines.extend(ecg_lines(ds))
     nb = ds.sizes.get("beat", 0)
     if not nb:
-        lines.append("beats: none (no stimulus)")
+        lines.append("beats: none (no stimulus starts before the run ends)")
         return "\n".join(lines)
     captured = np.asarray(ds["captured"].values).astype(bool)
     blocked = np.asarray(ds["blocked"].values).astype(bool)

@@ -30,8 +30,9 @@ def add_arguments(p):
     p.add_argument("--batch", type=int, metavar="N",
                    help="most points per task (default 16): points that share a time loop run as the strands of "
                         "one kernel call, with the same results bit for bit; 1 runs each point alone")
-    p.add_argument("--overwrite", action="store_true", help="discard an existing result and points of a different sweep (the finished points of this same "
-                        "sweep are always kept and reused)")
+    p.add_argument("--overwrite", action="store_true",
+                   help="discard an existing result and points of a different sweep (the finished points of this "
+                        "same sweep are always kept and reused)")
     add_set_option(p)
     p.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors (no progress bar)")
 

@@ -63,6 +63,7 @@ def wait_for(predicate, proc=None, timeout=120.0, what="the condition"):
         if predicate():
             return
         if proc is not None and proc.poll() is not None:
-            raise AssertionError(f"the process ended (rc {proc.returncode}) before {what}: {proc.stderr.read() if proc.stderr else ''}")
+            said = proc.stderr.read() if proc.stderr else ""
+            raise AssertionError(f"the process ended (rc {proc.returncode}) before {what}: {said}")
         time.sleep(0.02)
     raise AssertionError(f"timed out waiting for {what}")

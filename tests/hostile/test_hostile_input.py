@@ -151,3 +151,21 @@ def test_messages_name_the_option_and_the_unit(tmp_path, capsys):
     err = capsys.readouterr().err
     assert "--vary 'membrane.scale.g_Na'" in err and "--set" not in err
     assert units.format_bytes(3 * 2 ** 20) == "3 MiB" and units.format_bytes(512) == "512 B"
+
+
+def test_no_stable_rest_names_the_parameter_and_a_late_stimulus_is_said():
+    # item 16: K_o = 0 got "no stable rest" without naming what caused it; a stimulus
+    # starting after the run's end got "(no stimulus)"
+    cell = {"membrane": {"model": "luo-rudy-1991", "parameters": {"K_o": 0}},
+            "stimulus": [{"amplitude": 50, "duration": 1}], "numerics": {"dt": 0.01}, "run": {"duration": 5},
+            "output": {"every": 1}}
+    with pytest.raises(cable.CaseError, match=r"no stable rest with K_o = 0 \(default 5.4\)"):
+        cable.simulate(cell)
+    late = copy.deepcopy(BASE)
+    late["stimulus"][0]["start"] = 10.0
+    said = []
+    ds = cable.simulate(late, info=said.append)
+    assert any("no stimulus starts before the run ends (the first at 10 ms" in s for s in said)
+    from cable.cli.summary import summarise
+
+    assert "no stimulus starts before the run ends" in summarise(ds)

@@ -158,8 +158,10 @@ def test_broken_pipe_does_not_lose_the_run(tmp_path):
 @pytest.mark.parametrize("call, message", [
     (lambda: cable.simulate(small_case_dict(), output=5), r"simulate\(output=5\): output must be"),
     (lambda: cable.simulate(small_case_dict(), progress=3), r"simulate\(progress=3\): progress must be"),
-    (lambda: cable.simulate(None), r"neither"),
-    (lambda: cable.simulate(42), r"case = 42: give a path"),
+    (lambda: cable.simulate(None), r"simulate\(case=None\): give a case file path"),
+    (lambda: cable.simulate(42), r"simulate\(case=42\): give a case file path"),
+    (lambda: cable.load_case(42), r"case = 42: give a path"),
+    (lambda: cable.load_case(), r"neither was given"),
     (lambda: netcdf.rerun(None), r"rerun\(path=None\)"),
     (lambda: cable.load_case(text=5), r"text must be a string"),
 ])
