@@ -110,15 +110,14 @@ def to_unit(value, unit: str, quantity: str | None = None) -> float:
         return float(value)
     if not isinstance(value, str):
         raise UnitError(f"expected a number or a string with a unit, got {value!r}")
-    return _text_to_canonical(value, quantity)
+    return _text_to_unit(value, unit, quantity)
 
 
 @functools.lru_cache(maxsize=4096)
-def _text_to_canonical(value: str, quantity: str) -> float:
-    """:func:`to_canonical` of a string, remembered: pint takes about 2.7 ms to read one
+def _text_to_unit(value: str, unit: str, quantity: str) -> float:
+    """:func:`to_unit` of a string, remembered: pint takes about 2.7 ms to read one
     (measured here with cProfile on a loaded 2-core machine), and every point of a sweep
     repeats the texts of its case."""
-    unit = CANONICAL[quantity]
     q = parse(value)
     if not hasattr(q, "to"):  # pint returns a plain number for unitless text
         return float(q)

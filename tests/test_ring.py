@@ -39,7 +39,7 @@ def test_long_ring_period_is_circumference_over_strand_cv(strand):
 
 def test_ring_shorter_than_the_wavelength_does_not_sustain_reentry(strand):
     # Mines (1913), J Physiol 46:349: reentry needs a path longer than the wavelength
-    wavelength = float(strand.wavelength[0])  # cm, CV x APD90
+    wavelength = float(strand.wavelength_apd[0])  # cm, CV x APD90
     short = cable.simulate(ring(round(0.8 * wavelength / DX) * DX, 20.0))
     assert int(short.reentry_sustained) == 0
     assert np.isfinite(float(short.reentry_end)) and float(short.reentry_end) < 20.0
@@ -97,5 +97,5 @@ def test_critical_ring_length_lies_between_wavelength_and_cv_times_erp(strand):
     erp = float(cable.refractory_period(hh_axon_case(length=2.0, dx=DX, dt=DT, duration=10.0), s1_count=1,
                                         tolerance=erp_tol).erp)
     cv = float(strand.conduction_velocity[0]) / 10.0  # cm/ms
-    wavelength = float(strand.wavelength[0])
+    wavelength = float(strand.wavelength_apd[0])
     assert wavelength < critical <= cv * (erp + erp_tol) + crit_tol

@@ -62,7 +62,8 @@ def label(obj, fallback: str, *, short: bool = False) -> str:
 
 
 #: short axis names of measurements, as a paper writes them
-SHORT_NAMES = {"conduction_velocity": "CV", "wavelength": "wavelength", "apd": "APD",
+SHORT_NAMES = {"conduction_velocity": "CV", "wavelength": "wavelength", "wavelength_apd": "wavelength",
+               "wavelength_erp": "wavelength (ERP)", "apd": "APD",
                "upstroke_velocity": "dV/dt max", "resting_potential": "resting potential",
                "peak_potential": "peak potential", "block_x": "block site", "safety_factor": "safety factor",
                "activation_time": "activation time", "vm": "V"}

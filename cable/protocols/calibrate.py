@@ -97,6 +97,8 @@ def measure_of(ds: xr.Dataset, measure: str, beat: int, level: float | None) -> 
         window = ds.attrs.get("cv_window_cm")
         centre = float(np.mean(window)) if window is not None else float(ds["x"].mean())
         return float(apd.sel(x=centre, method="nearest"))
+    if measure == "wavelength":  # CV x APD90 at the CV window's centre, as simulate stores it
+        measure = "wavelength_apd"
     return float(ds[measure].values[beat])
 
 

@@ -25,7 +25,7 @@ def _tamper(path, how):
 
 @pytest.mark.parametrize("name, how", [
     ("apd", lambda nc: nc.variables["apd"].__setitem__(slice(None), nc.variables["apd"][:] * 2)),
-    ("wavelength", lambda nc: nc.variables["wavelength"].__setitem__(slice(None), 99.0)),
+    ("wavelength_apd", lambda nc: nc.variables["wavelength_apd"].__setitem__(slice(None), 99.0)),
     ("threshold_mV", lambda nc: nc.setncattr("threshold_mV", 0.0)),
 ])
 def test_rerun_finds_a_changed_variable_or_attribute(original, capsys, name, how):
