@@ -2,7 +2,8 @@
 
 :func:`calibrate` finds the value of any numeric key (``fiber.conductivity``,
 ``membrane.scale.G_Na``, ``drug.a.concentration`` ...) for which a measurement of the
-run — conduction velocity, APD at a level, wavelength — equals a target. It runs the
+run — conduction velocity, APD at a level, wavelength, effective refractory period —
+equals a target. It runs the
 case as given (its own dx and dt: the conductivity that gives a measured CV at dx 250 um
 is not the converged one, and a study run at that dx needs the former; common practice),
 so the value found belongs to that grid.
@@ -31,7 +32,13 @@ from cable.io import schema
 from cable.simulate import SimulationError, simulate
 
 #: the measurements a target may name -> unit
-MEASURES = {"conduction_velocity": "m/s", "wavelength": "cm", "apd": "ms"}
+MEASURES = {"conduction_velocity": "m/s", "wavelength": "cm", "apd": "ms", "erp": "ms"}
+#: an ERP target: each evaluation is an S1-S2 search (:func:`cable.refractory_period`) resolved
+#: to this fraction of the target, and the value is sought to ERP_RTOL; the residual is
+#: then bounded by the search's resolution, not by brentq's (the ERP is a step function
+#: of the key at that resolution)
+ERP_RESOLUTION = 1e-3
+ERP_RTOL = 1e-3
 #: seed exponent of the measurement in the key, m ~ value^p (cable-equation scaling of CV)
 SEED_EXPONENT = {"fiber.conductivity": 0.5, "fiber.radius": 0.5, "fiber.axial_resistivity": -0.5,
                  "fiber.surface_to_volume": -0.5, "fiber.gap_junction_conductance": 0.5}
@@ -72,10 +79,11 @@ def parse_target(text: str) -> tuple[str, float, float | None]:
     if name not in MEASURES or (name == "apd" and level is None):
         import difflib
 
-        names = ["conduction_velocity", "wavelength", "apd90", "apd50"]
+        names = ["conduction_velocity", "wavelength", "erp", "apd90", "apd50"]
         near = difflib.get_close_matches(name, names, n=1, cutoff=0.5)
         raise CaseError(f"--target {text!r}: '{name}' is not a measure; allowed: conduction_velocity [m/s], "
-                        f"wavelength [cm], apdNN [ms] (APD at NN% repolarisation, e.g. apd90)."
+                        f"wavelength [cm], erp [ms] (effective refractory period, S1-S2), "
+                        f"apdNN [ms] (APD at NN% repolarisation, e.g. apd90)."
                         + (f" Did you mean '{near[0]}'?" if near else ""))
     try:
         target = float(value)
@@ -136,7 +144,7 @@ def unit_of(case: Case, key: str) -> str:
 
 
 def calibrate(case, key: str, measure: str, target: float, *, level: float | None = None, beat: int = 0,
-              between=None, rtol: float = DEFAULT_RTOL, info=None) -> xr.Dataset:
+              between=None, rtol: float | None = None, info=None) -> xr.Dataset:
     """Find the value of ``key`` at which ``measure`` of the run equals ``target``.
 
     Parameters
@@ -145,9 +153,11 @@ def calibrate(case, key: str, measure: str, target: float, *, level: float | Non
         The case, on the grid the value is wanted for.
     key : str
         Dotted numeric case key (``fiber.conductivity``, ``membrane.scale.G_Na`` ...).
-    measure : {"conduction_velocity", "wavelength", "apd"}
+    measure : {"conduction_velocity", "wavelength", "apd", "erp"}
         What is matched; ``apd`` needs ``level`` (percent repolarisation) and is read at
-        the centre of the CV window.
+        the centre of the CV window; ``erp`` is the effective refractory period of
+        :func:`cable.refractory_period` with its defaults (S1 train of the case's first
+        stimulus), each evaluation an S1-S2 search resolved to ``ERP_RESOLUTION`` x target.
     target : float
         The target, in m/s, cm or ms.
     level : float, optional
@@ -156,8 +166,8 @@ def calibrate(case, key: str, measure: str, target: float, *, level: float | Non
         The beat measured (default the first).
     between : (float, float), optional
         The bracket, in the key's canonical unit; default: found from the current value.
-    rtol : float
-        Relative tolerance of the value (brentq).
+    rtol : float, optional
+        Relative tolerance of the value (brentq); default 1e-5, for ``erp`` 1e-3.
     info : callable, optional
         Receives one line per run.
 
@@ -190,6 +200,7 @@ def calibrate(case, key: str, measure: str, target: float, *, level: float | Non
             case = case.with_overrides({"measure.apd_levels": [*case.apd_levels, level]})
     if not (math.isfinite(target) and target > 0):
         raise CaseError(f"{who}: target = {target!r} must be a positive finite number in {MEASURES[measure]}.")
+    rtol = (ERP_RTOL if measure == "erp" else DEFAULT_RTOL) if rtol is None else float(rtol)
     if not 1e-12 <= rtol < 0.1:
         raise CaseError(f"{who}: rtol = {rtol:g} must lie between 1e-12 and 0.1 (default {DEFAULT_RTOL:g}).")
     unit = unit_of(case, key)
@@ -205,7 +216,7 @@ def calibrate(case, key: str, measure: str, target: float, *, level: float | Non
             raise CaseError(f"{who}: no convergence within {MAX_RUNS} runs; give a bracket with between.")
         variant = case.with_overrides({key: value})  # an invalid key or value fails here, nothing run
         try:
-            m = measure_of(simulate(variant), measure, beat, level)
+            m = _erp(variant, target) if measure == "erp" else measure_of(simulate(variant), measure, beat, level)
         except SimulationError as exc:
             raise SimulationError(f"{who}: the run at {key} = {value:g} failed: {exc}", time=exc.time,
                                   position=exc.position, partial=exc.partial) from None
@@ -240,6 +251,20 @@ def calibrate(case, key: str, measure: str, target: float, *, level: float | Non
     found = brentq(lambda v: run(v) - target, lo, hi, rtol=rtol, xtol=1e-300, maxiter=MAX_RUNS)
     residual = run(found) - target
     return _result(case, key, unit, measure, level, target, runs, found, residual, bracket)
+
+
+def _erp(case: Case, target: float) -> float:
+    """The effective refractory period [ms] of ``case``; NaN when no S2 propagates."""
+    from cable.protocols.refractory import refractory_period
+
+    try:
+        return float(refractory_period(case, tolerance=ERP_RESOLUTION * target).erp)
+    except SimulationError:
+        raise
+    except CaseError as exc:
+        if "not propagate" in str(exc):  # the S1 train or every S2 fails (refractory_period's refusals)
+            return math.nan  # no S2 gets through (nor the S1 train): nothing to match here
+        raise
 
 
 def _straddles(a: float, b: float, target: float) -> bool:

@@ -112,3 +112,40 @@ def test_single_cell_apd_target():
     # a single HH cell's APD90 is 0.5-0.73 ms for g_K x 3 to x 0.8 here
     ds = calibrate(case, "membrane.scale.g_K", "apd", 0.6, level=90, between=(0.8, 3.0))
     assert abs(float(ds.residual)) < RERUN_RTOL * 0.6
+
+
+def test_wavelength_target_rerun_gives_it():
+    # the wavelength CV x APD90 (as simulate stores it, wavelength_apd) grows as sqrt(sigma)
+    case = hh_tissue(0.05, length=1.0)
+    case["run"]["duration"] = 6.0
+    target = 1.1  # cm, below the axon's own (about 1.3 cm at this grid, measured here)
+    ds = calibrate(case, "fiber.conductivity", "wavelength", target)
+    rerun = cable.simulate(cable.load_case(case, [f"fiber.conductivity={float(ds.value)!r}"]))
+    assert float(rerun.wavelength_apd[0]) == pytest.approx(target, rel=RERUN_RTOL)
+    assert ds.attrs["measure_units"] == "cm"
+
+
+def test_erp_target_rerun_gives_it_within_the_search_resolution():
+    # The ERP of the HH axon lengthens as it cools (the rates' Q10 of 3, Hodgkin & Huxley 1952):
+    # 1.79 ms at 18.5 degC, 2.60 at 14 degC on this strand (measured here).
+    from cable.protocols.calibrate import ERP_RESOLUTION
+
+    case = hh_axon_case(length=2.0, dx=0.05, dt=0.005, duration=10.0)
+    target = 2.2  # ms
+    ds = calibrate(case, "membrane.temperature", "erp", target, between=(14.0, 18.5))
+    found = float(ds.value)
+    assert 14.0 < found < 18.5 and ds.attrs["measure_units"] == "ms"
+    erp = float(cable.refractory_period(cable.load_case(case, [f"membrane.temperature={found!r}"]),
+                                        tolerance=ERP_RESOLUTION * target).erp)
+    # Bound: each ERP is resolved to ERP_RESOLUTION x target by its bisection; brentq's value
+    # tolerance (rtol 1e-3 for an ERP target) adds at most |dERP/dT| x rtol x T (the slope
+    # read from the bracket's two end runs).
+    v, m = ds.run_value.values, ds.run_measure.values
+    slope = abs((m[1] - m[0]) / (v[1] - v[0]))
+    bound = 2 * ERP_RESOLUTION * target + slope * 1e-3 * found
+    assert abs(erp - target) <= bound
+    assert abs(float(ds.residual)) <= bound
+
+
+def test_erp_is_a_target_name():
+    assert parse_target("erp=250") == ("erp", 250.0, None)
