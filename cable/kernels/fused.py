@@ -8,10 +8,10 @@ splitting, stimuli, probes and status codes; see that module for the scheme), wi
   parameters stored by state and by parameter (``sT`` (nstate, n), ``pT``) so that the
   node loops vectorise, or by node for models that say so (``FastPath.by_state``);
   the rates exact (``table`` with no rows) or tabulated;
-* the probe block by block: a vectorised pass over a block of nodes of which none
-  crosses the threshold, is in an upstroke or crosses a repolarisation level (almost
-  every block, almost always), the full per-node pass (the same as
-  ``integrate.probe``) over the others and over every block while a stimulus is on;
+* the probe in one vectorised pass over the nodes that neither cross the threshold,
+  nor are in an upstroke, nor cross a repolarisation level (almost every node, almost
+  always), and the full per-node pass (the same as ``integrate.probe``) over the runs
+  of the others, and over every node while a stimulus is on;
 * for batches of strands of one length (:mod:`cable.kernels.batch`), the strands
   stored interleaved and their diffusion solves run side by side (``strands`` > 1),
   each strand with its own factors and its own operations: bitwise its run alone;
@@ -44,53 +44,61 @@ def reaction(v, s, p, i_stim, dt, ion_scale, gating):  # bound by specialise() (
     raise NotImplementedError
 
 
-#: nodes per block of the probe: a block with no node crossing the threshold, none in an
-#: upstroke and none crossing a repolarisation level (almost all blocks, almost always)
-#: takes the vectorised pass
-PROBE_BLOCK = 64
-
-
 @jit_inline
-def quiet(v, vprev, threshold, open_up, vpeak, lin, off):
-    """True when no node crosses ``threshold`` upwards, none is in an upstroke and none
-    falls below its next repolarisation level (``lin * peak + off``; -inf when none)."""
-    busy = False
-    for i in range(v.shape[0]):
-        vi = v[i]
-        level = lin[i] * max(vpeak[i], vi) + off[i]
-        busy = busy | (open_up[i] != 0) | ((vprev[i] < threshold) & (vi >= threshold)) | (vi < level)
-    return not busy
+def quiet_pass(v, vprev, dt, threshold, pre_rate, open_up, vmin, vpeak, lin, off, busy):
+    """The probe of quiet nodes, in one vectorised pass over all nodes; the others are
+    marked in ``busy`` and left as they were, for :func:`probe_nodes`.
 
-
-@jit_inline
-def quiet_probe(v, vprev, dt, pre_rate, vmin, vpeak):
-    """The probe of quiet nodes: the rise rate kept for the next upstroke, the running
-    lowest and highest potentials."""
-    for i in range(v.shape[0]):
+    A node is quiet when it does not cross ``threshold`` upwards, is not in an upstroke
+    and does not fall below its next repolarisation level (``lin * peak + off``; -inf
+    when none is pending). Its probe is then the rise rate kept for the next upstroke
+    and the running lowest and highest potentials (what ``probe_nodes`` does for it,
+    bit for bit). Returns (first, last + 1) of the busy nodes ((n, 0) when none).
+    """
+    n = v.shape[0]
+    first, end = n, 0
+    for i in range(n):
         vi = v[i]
-        rate = (vi - vprev[i]) / dt
+        vp = vprev[i]
+        pk = vpeak[i]
+        level = lin[i] * (pk if pk > vi else vi) + off[i]
+        b = (open_up[i] != 0) | ((vp < threshold) & (vi >= threshold)) | (vi < level)
+        rate = (vi - vp) / dt
         pr = pre_rate[i]
-        pre_rate[i] = (rate if rate > pr else pr) if rate > 0.0 else 0.0
+        grown = (rate if rate > pr else pr) if rate > 0.0 else 0.0
+        pre_rate[i] = pr if b else grown
         lo = vmin[i]
-        vmin[i] = vi if vi < lo else lo
-        hi = vpeak[i]
-        vpeak[i] = vi if vi > hi else hi
+        vmin[i] = lo if (b | (lo <= vi)) else vi
+        vpeak[i] = pk if (b | (pk >= vi)) else vi
+        busy[i] = b
+        first = min(first, i if b else n)
+        end = max(end, i + 1 if b else 0)
+    return first, end
 
 
 @jit_inline
 def block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on):
-    """The probe of :func:`cable.kernels.integrate.probe`, block by block (every block
-    takes the full pass while a stimulus is on: its current is taken out of the rates)."""
+    """The probe of :func:`cable.kernels.integrate.probe`: the quiet nodes in one
+    vectorised pass (:func:`quiet_pass`), the runs of busy nodes by ``probe_nodes``
+    (every node while a stimulus is on: its current is taken out of the rates)."""
     vmin, vpeak, lin, off = apd[3], apd[4], apd[5], apd[6]
     n = v.shape[0]
-    for i0 in range(0, n, PROBE_BLOCK):
-        i1 = min(i0 + PROBE_BLOCK, n)
-        vb = v[i0:i1]
-        pb = vprev[i0:i1]
-        if not stim_on and quiet(vb, pb, threshold, open_up[i0:i1], vpeak[i0:i1], lin[i0:i1], off[i0:i1]):
-            quiet_probe(vb, pb, dt, pre_rate[i0:i1], vmin[i0:i1], vpeak[i0:i1])
-        else:
-            probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, i0, i1)
+    if stim_on:
+        probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, 0, n)
+    else:
+        busy = np.empty(n, np.bool_)
+        first, end = quiet_pass(v, vprev, dt, threshold, pre_rate, open_up, vmin, vpeak, lin, off, busy)
+        i = first
+        while i < end:
+            if busy[i]:
+                j = i + 1
+                while j < end and busy[j]:
+                    j += 1
+                probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid,
+                            i, j)
+                i = j
+            else:
+                i += 1
     close(v, vprev, apd[0])
 
 
