@@ -181,14 +181,21 @@ def beat_measures(t: np.ndarray, phi: np.ndarray, onsets: np.ndarray, activation
     return out
 
 
-def outputs(case, t: np.ndarray, phi: np.ndarray, onsets: np.ndarray, activation: np.ndarray) -> dict:
-    """The pseudo-ECG variables as ``{name: (dims, array)}``."""
+def outputs(case, t: np.ndarray, phi: np.ndarray, onsets: np.ndarray, activation: np.ndarray, *,
+            t_steps: np.ndarray | None = None, phi_steps: np.ndarray | None = None) -> dict:
+    """The pseudo-ECG variables as ``{name: (dims, array)}``.
+
+    ``phi`` is stored at the output times ``t``; the beat measures (QRS onset, T peak,
+    QT) are read from ``phi_steps`` at every step (``t_steps``) when given.
+    """
     electrodes = case.extra["electrode"]
     out = {
         "pseudo_ecg": (("electrode", "t"), phi),
         "electrode_x": (("electrode",), np.array([e.x for e in electrodes])),
         "electrode_distance": (("electrode",), np.array([e.distance for e in electrodes])),
     }
+    if phi_steps is not None:
+        t, phi = t_steps, phi_steps
     n = min(t.size, phi.shape[1])
     for name, arr in beat_measures(t[:n], phi[:, :n], onsets, activation).items():
         out[name] = (("electrode", "beat"), arr)

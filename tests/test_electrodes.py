@@ -56,13 +56,13 @@ def test_uniform_potential_gives_no_signal():
     assert abs(_phi(x, np.full(x.size, -85.0), e)) < ROUNDING * K * 85
 
 
-def transmural(heterogeneous: bool):
+def transmural(heterogeneous: bool, every: float = 1.0):
     case = {
         "membrane": {"model": "ten-tusscher-panfilov-2006", "parameters": {"cell_type": "endo"}},
         "fiber": {"length": "1.5 cm", "dx": "200 um", "conductivity": "6.17 mS/cm", "surface_to_volume": "0.2 /um",
                   "capacitance": "2 uF/cm^2"},
         "stimulus": [{"x": 0, "width": "0.4 mm", "amplitude": 100.0, "duration": 2.0}],
-        "numerics": {"dt": 0.02}, "run": {"duration": 450.0}, "output": {"every": 1.0},
+        "numerics": {"dt": 0.02}, "run": {"duration": 450.0}, "output": {"every": every},
         "electrode": [{"x": "3.5 cm", "radius": "11 um"}],   # 2 cm beyond the epicardial end, on the axis
     }
     if heterogeneous:  # endo, M and epi thirds (Gima & Rudy 2002)
@@ -92,6 +92,16 @@ def test_transmural_strand_upright_t_wave_and_qt():
     homo = transmural(False)
     assert float(homo.t_amplitude[0, 0]) < 0
     assert homo.pseudo_ecg.dims == ("electrode", "t") and homo.pseudo_ecg.sizes["t"] == homo.vm.sizes["t"]
+
+
+def test_beat_measures_come_from_every_step_not_the_samples():
+    # the issue: the pseudo-ECG is computed from every step's profile, so QRS onset, T peak and
+    # QT do not depend on output.every (here 1 ms against 25 ms: the T peak would otherwise
+    # move to a sample, up to 12.5 ms away); allowed: one step (0.02 ms), the resolution
+    fine, coarse = transmural(True, every=1.0), transmural(True, every=25.0)
+    for name in ("qrs_onset", "t_peak", "qt_interval"):
+        assert float(coarse[name][0, 0]) == pytest.approx(float(fine[name][0, 0]), abs=0.02), name
+    assert coarse.attrs["merge_half_steps"] == 0   # the loop returns every step: unmerged
 
 
 @pytest.mark.parametrize("entry, message", [
