@@ -204,8 +204,7 @@ def effective_resistivity(fiber: Fiber) -> float:
     return 1000.0 * r
 
 
-def build_grid(fiber: Fiber, coupling_factor: np.ndarray | None = None,
-               edge_factor: np.ndarray | None = None) -> Grid:
+def build_grid(fiber: Fiber, coupling_factor: np.ndarray | None = None) -> Grid:
     """Build the grid of ``fiber``.
 
     Parameters
@@ -216,11 +215,9 @@ def build_grid(fiber: Fiber, coupling_factor: np.ndarray | None = None,
     coupling_factor : ndarray, optional
         Factor on the conductivity at each node (regions), on the junction conductance
         for discrete cells; edges take the harmonic mean.
-    edge_factor : ndarray, optional
-        A further factor per edge, length n-1.
     """
     if fiber.closed:
-        return _ring_grid(fiber, coupling_factor, edge_factor)
+        return _ring_grid(fiber, coupling_factor)
     x = node_positions(fiber)
     n = x.size
     d_edge = np.full(n - 1, fiber.diffusivity / fiber.dx**2)
@@ -229,8 +226,6 @@ def build_grid(fiber: Fiber, coupling_factor: np.ndarray | None = None,
         d_edge = d_edge * junction_factor(fiber, per_edge)
     elif per_edge is not None:
         d_edge = d_edge * per_edge
-    if edge_factor is not None:
-        d_edge = d_edge * edge_factor
     volume = np.ones(n)
     volume[0] = volume[-1] = 0.5
     lo = np.zeros(n)
@@ -240,7 +235,7 @@ def build_grid(fiber: Fiber, coupling_factor: np.ndarray | None = None,
     return Grid(x=x, lo=lo, up=up, edge=d_edge, volume=volume, cell=cell_index(fiber))
 
 
-def _ring_grid(fiber: Fiber, coupling_factor=None, edge_factor=None) -> Grid:
+def _ring_grid(fiber: Fiber, coupling_factor=None) -> Grid:
     """A ring (``fiber.closed``): n edges, the last one (n-1, 0) closing it; every node owns a whole dx.
 
     ``lo[0]`` and ``up[n-1]`` carry the closing edge (zero on an open fibre), which is
@@ -252,8 +247,6 @@ def _ring_grid(fiber: Fiber, coupling_factor=None, edge_factor=None) -> Grid:
     if coupling_factor is not None:
         f = np.asarray(coupling_factor, dtype=float)
         d_edge = d_edge * edge_conductance(np.append(f, f[0]))  # edge (n-1, 0) between the last node and the first
-    if edge_factor is not None:
-        d_edge = d_edge * edge_factor
     lo = np.roll(d_edge, 1)   # lo_i: edge (i-1, i); lo_0 the closing edge
     up = d_edge.copy()        # up_i: edge (i, i+1); up_{n-1} the closing edge
     return Grid(x=x, lo=lo, up=up, edge=d_edge, volume=np.ones(n), cell=None, closed=True)

@@ -26,7 +26,7 @@ from cable.fiber import Grid, build_grid, node_positions
 from cable.io import schema
 from cable.kernels import diffusion, fused, integrate, schemes, tables
 from cable.kernels.jit import specialise
-from cable.kernels.state import CHECK_EVERY, MAX_CROSSINGS, crossing_cap, loop_arrays, scheme_codes  # noqa: F401
+from cable.kernels.state import crossing_cap, loop_arrays, scheme_codes
 from cable.measure.activation import assign_beats, per_beat
 from cable.measure.apd import ApdProbe
 from cable.measure.velocity import conduction_velocity, default_window, window_nodes
@@ -75,8 +75,8 @@ def _fast_integrator(model_name: str, reaction: str = "rush-larsen"):
 def _fast_integrator_for(model_name: str, reaction: str):
     model = get_model(model_name)
     if reaction == schemes.DEFAULT:
-        return specialise(fused.advance_fast, model.name, vector=True, fast_reaction=model.fast.kernel)
-    return specialise(fused.advance_fast, f"{model.name}_{reaction}", vector=True,
+        return specialise(fused.advance_fast, model.name, fast_reaction=model.fast.kernel)
+    return specialise(fused.advance_fast, f"{model.name}_{reaction}",
                       fast_reaction=schemes.fast_kernel(model_name, reaction), depends=(model.fast.kinetics,))
 
 
@@ -299,11 +299,6 @@ def check_threshold(setup: Setup) -> None:
         raise CaseError(f"measure.threshold = {th:g} mV is beyond +/-{integrate.RUNAWAY_MV:g} mV, where a run "
                         f"stops as a runaway; give a level between rest ({rest:.4g} mV) and the action "
                         f"potential's peak (the model's default is {setup.model.threshold:g} mV).")
-
-
-def stored_bytes(setup: Setup) -> int:
-    """Bytes of the stored fields (vm and extra states, float32 on file, float64 in memory)."""
-    return setup.n_samples * setup.n * (1 + len(setup.case.output_states)) * 8
 
 
 def probe_bytes(n: int, n_pulses: int, n_levels: int) -> int:

@@ -47,7 +47,6 @@ CANONICAL = {
     "concentration": "mM",
     "temperature": "degC",
     "rate": "1/ms",
-    "conductance_abs": "uS",
     "dimensionless": "1",
     "percent": "percent",
 }

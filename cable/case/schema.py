@@ -103,6 +103,3 @@ SECTIONS: dict[str, dict[str, Key]] = {
 
 #: sections that are lists of tables in TOML ([[stimulus]])
 LIST_SECTIONS = {"stimulus"}
-
-#: sections other modules own (validated there)
-EXTERNAL_SECTIONS: set[str] = set()

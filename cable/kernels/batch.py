@@ -230,9 +230,9 @@ def _segments_integrator_for(model_name: str, fast: bool, reaction: str):
 
     model = get_model(model_name)
     if fast and reaction == schemes.DEFAULT:
-        return specialise(fused.advance_fast_segments, model.name, vector=True, fast_reaction=model.fast.kernel)
+        return specialise(fused.advance_fast_segments, model.name, fast_reaction=model.fast.kernel)
     if fast:
-        return specialise(fused.advance_fast_segments, f"{model.name}_{reaction}", vector=True,
+        return specialise(fused.advance_fast_segments, f"{model.name}_{reaction}",
                           fast_reaction=schemes.fast_kernel(model_name, reaction), depends=(model.fast.kinetics,))
     if reaction == schemes.DEFAULT:
         return specialise(fused.advance_segments, model.name, reaction=model.reaction)

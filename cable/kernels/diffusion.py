@@ -21,14 +21,9 @@ step stays O(n): the same two sweeps, then one pass adding a multiple of a fixed
 
 import numpy as np
 
-from cable.kernels.jit import jit, jit_inline, jit_vector
+from cable.kernels.jit import jit, jit_inline
 
 THETA = {"crank-nicolson": 0.5, "backward-euler": 1.0, "forward-euler": 0.0}
-
-
-def middle(n: int) -> int:
-    """The row where the two eliminations meet: as many rows above as below (+-1)."""
-    return (n - 1) // 2
 
 
 @jit
@@ -147,7 +142,7 @@ def ring_correction(v, back):
         v[i] -= s * back[n + i]
 
 
-@jit_vector
+@jit
 def explicit_part(v, lo, up, e, pivot, work):
     """work = (v + e L v) * pivot: the right-hand side, already scaled by the pivots.
 
@@ -162,7 +157,7 @@ def explicit_part(v, lo, up, e, pivot, work):
     work[n - 1] = (v[n - 1] + e * (lo[n - 1] * (v[n - 2] - v[n - 1]) + up[n - 1] * (v[0] - v[n - 1]))) * pivot[n - 1]
 
 
-@jit_vector
+@jit
 def scaled_copy(v, pivot, work):
     """work = v * pivot (backward Euler: no explicit part)."""
     for i in range(v.shape[0]):
@@ -321,7 +316,7 @@ def _row_substitute(x, w, bk, x_next):
         x[j] = w[j] - bk[j] * x_next[j]
 
 
-@jit_vector
+@jit
 def diffuse_interleaved(v, lo, up, h, theta, pivot, elim, back, work, strands):
     """One theta-scheme sub-step of ``strands`` interleaved strands of one length, in place.
 

@@ -33,7 +33,7 @@ import numpy as np
 from cable.kernels.diffusion import diffuse, diffuse_interleaved, diffuse_segments
 from cable.kernels.integrate import (GODUNOV, NONFINITE, OK, RUNAWAY, RUNAWAY_MV, STRANG, probe, probe_nodes,
                                      stimulus_current)
-from cable.kernels.jit import jit_inline, jit_vector
+from cable.kernels.jit import jit, jit_inline
 
 
 def fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):  # bound by specialise()
@@ -111,7 +111,7 @@ def close(v, vprev, dlast):
         vprev[i] = vi
 
 
-@jit_vector
+@jit
 def check(v):
     """(status, node) of the first non-finite or runaway potential; (OK, -1) if none."""
     bad = False

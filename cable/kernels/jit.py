@@ -6,9 +6,6 @@ reordering of floating-point sums) and with numpy's error model: a division by z
 gives inf or NaN (as in numpy) instead of a per-division test that raises, which also
 lets LLVM turn a loop into SIMD code.
 
-``jit_vector`` (the same options) marks the loops written to be vectorised, the fast
-paths of the membrane models (see :class:`cable.membrane.base.FastPath`).
-
 ``jit_inline`` marks the small functions a vectorised loop calls per node: they are
 inlined into the caller's numba IR (``inline="always"``), so the loop body is one
 piece of code for the vectoriser. (A compiled callee loaded from numba's cache comes
@@ -32,7 +29,6 @@ import numba
 
 jit = numba.njit(cache=True, nogil=True, error_model="numpy")
 
-jit_vector = numba.njit(cache=True, nogil=True, error_model="numpy")
 
 jit_inline = numba.njit(cache=True, nogil=True, error_model="numpy", inline="always")
 
@@ -69,7 +65,7 @@ def _source_hash(*objects) -> str:
     return h.hexdigest()[:12]
 
 
-def specialise(template, tag: str, *, vector: bool = False, depends=(), **bindings):
+def specialise(template, tag: str, *, depends=(), **bindings):
     """Compile ``template`` with its globals ``bindings`` replaced.
 
     Parameters
@@ -78,8 +74,6 @@ def specialise(template, tag: str, *, vector: bool = False, depends=(), **bindin
         A plain Python function written for numba.
     tag : str
         A readable name for the specialisation (the model name).
-    vector : bool
-        Compile with numpy's error model, as :data:`jit_vector`.
     depends : sequence
         Further functions whose modules' sources go into the name's hash (the model
         kernel inside a bound kernel that was itself specialised).

@@ -296,7 +296,7 @@ def fast_kernel(model_name: str, scheme: str):
     model = get_model(model_name)
     if scheme == DEFAULT:
         return model.fast.kernel
-    return specialise(_FAST_TEMPLATES[scheme], model.name, vector=True, fast_kinetics=model.fast.kinetics)
+    return specialise(_FAST_TEMPLATES[scheme], model.name, fast_kinetics=model.fast.kinetics)
 
 
 def has_fast(model, scheme: str) -> bool:

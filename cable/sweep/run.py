@@ -152,11 +152,6 @@ def run_chunk(raws: list, keep_fields: bool) -> list[tuple[xr.Dataset, dict]]:
             for ds, size in zip(data, sizes)]
 
 
-def run_point(raw: dict, keep_fields: bool) -> tuple[xr.Dataset, dict]:
-    """Run one point (on a worker): :func:`run_chunk` of a chunk of one."""
-    return run_chunk([raw], keep_fields)[0]
-
-
 def _outcome(result, keep_fields: bool) -> tuple[xr.Dataset, int]:
     """A point's Dataset and batch size from what ``simulate_batch`` returned for it."""
     from cable.simulate import SimulationError
