@@ -191,7 +191,8 @@ def test_hh_strand_cv_order(scheme, merge):
     # interpolation (at smaller dt the CV differences fall to a few thousandths of a m/s and
     # stop showing an order). The order is read from the finer pair (20/10 us): heun at 40 us
     # is near its stability limit (70 us) and not yet asymptotic. Measured here (40/20 and
-    # 20/10 us): rush-larsen about 1.1 and 1.2, rush-larsen-2 2.0 and 2.1, heun 1.6 and 2.1.
+    # 20/10 us): rush-larsen 0.93-0.98 and 0.99-1.00, rush-larsen-2 1.99 and 2.05-2.06,
+    # heun 1.61-1.65 and 2.06-2.09.
     ref = _hh_strand_cv(0.0025, "rk4", False)
     errors = [abs(_hh_strand_cv(dt, scheme, merge) - ref) for dt in (0.04, 0.02, 0.01)]
     assert errors[0] > errors[1] > errors[2], errors
