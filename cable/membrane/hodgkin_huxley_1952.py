@@ -140,15 +140,14 @@ def _phi(temperature):
 
 
 @jit_inline
-def _exact_gates(V, phi, m, h, n, dt, gating):
-    """Gates advanced over dt at the potential V (the rates of :func:`_rates`)."""
+def _gate_rates(V, phi):
+    """(y_inf, a + b) of m, h and n at the potential V (the rates of :func:`_rates`)."""
     w = -(V + 65.0)
     y = vexp(w * 0.0125)
     z = vexp(w * (1.0 / 18.0))
     y2 = y * y
     y4 = y2 * y2
     y8 = y4 * y4
-    # m: a = phi u/(exp(u)-1), u = -(V+40)/10; b = 4 phi z
     u = -(V + 40.0) * 0.1
     small = abs(u) < _SERIES
     num = fma(u, fma(u, 1.0 / 12.0, -0.5), 1.0) if small else u
@@ -157,14 +156,12 @@ def _exact_gates(V, phi, m, h, n, dt, gating):
     r = 1.0 / (q * den)
     m_inf = num * den * r
     m_rate = phi * q * q * r
-    # h: a = 0.07 phi Y^4, b = phi/(1 + exp(-(V+35)/10))
     g = fma(y8, _E30, 1.0)
     a = 0.07 * y4 * g
     q = a + 1.0
     r = 1.0 / (q * g)
     h_inf = a * g * r
     h_rate = phi * q * q * r
-    # n: a = 0.1 phi u/(exp(u)-1), u = -(V+55)/10; b = 0.125 phi Y
     u = -(V + 55.0) * 0.1
     small = abs(u) < _SERIES
     num = 0.1 * (fma(u, fma(u, 1.0 / 12.0, -0.5), 1.0) if small else u)
@@ -173,6 +170,13 @@ def _exact_gates(V, phi, m, h, n, dt, gating):
     r = 1.0 / (q * den)
     n_inf = num * den * r
     n_rate = phi * q * q * r
+    return m_inf, m_rate, h_inf, h_rate, n_inf, n_rate
+
+
+@jit_inline
+def _exact_gates(V, phi, m, h, n, dt, gating):
+    """Gates advanced over dt at the potential V (the rates of :func:`_rates`)."""
+    m_inf, m_rate, h_inf, h_rate, n_inf, n_rate = _gate_rates(V, phi)
     if gating == 0:
         m = fma(m - m_inf, exp_nonpositive(-dt * m_rate), m_inf)
         h = fma(h - h_inf, exp_nonpositive(-dt * h_rate), h_inf)
@@ -373,43 +377,8 @@ MODEL = replace(MODEL, kinetics=kinetics)
 
 # ------------------------------------------------------------------- kinetics, fast path
 # The right-hand side of every node at once, states and parameters stored by state and
-# parameter (contract: cable.membrane.base.FastPath.kinetics), with the rates in the
-# vectorisable form of _exact_gates (the same formulae, repeated here so that the
-# default path's code stays as it is).
-
-@jit_inline
-def _gate_rates(V, phi):
-    """(y_inf, a + b) of m, h and n at the potential V (the rates of :func:`_rates`)."""
-    w = -(V + 65.0)
-    y = vexp(w * 0.0125)
-    z = vexp(w * (1.0 / 18.0))
-    y2 = y * y
-    y4 = y2 * y2
-    y8 = y4 * y4
-    u = -(V + 40.0) * 0.1
-    small = abs(u) < _SERIES
-    num = fma(u, fma(u, 1.0 / 12.0, -0.5), 1.0) if small else u
-    den = 1.0 if small else fma(y8, _E25, -1.0)
-    q = fma(4.0 * z, den, num)
-    r = 1.0 / (q * den)
-    m_inf = num * den * r
-    m_rate = phi * q * q * r
-    g = fma(y8, _E30, 1.0)
-    a = 0.07 * y4 * g
-    q = a + 1.0
-    r = 1.0 / (q * g)
-    h_inf = a * g * r
-    h_rate = phi * q * q * r
-    u = -(V + 55.0) * 0.1
-    small = abs(u) < _SERIES
-    num = 0.1 * (fma(u, fma(u, 1.0 / 12.0, -0.5), 1.0) if small else u)
-    den = 1.0 if small else fma(y8, _E10, -1.0)
-    q = fma(0.125 * y, den, num)
-    r = 1.0 / (q * den)
-    n_inf = num * den * r
-    n_rate = phi * q * q * r
-    return m_inf, m_rate, h_inf, h_rate, n_inf, n_rate
-
+# parameter (contract: cable.membrane.base.FastPath.kinetics), with the rates of
+# _gate_rates (the vectorisable form that _exact_gates also uses).
 
 @jit_inline
 def _node_kinetics(V, m, h, n, phi, g_na, g_k, g_l, e_na, e_k, e_l):
