@@ -18,7 +18,6 @@ from dataclasses import dataclass, field
 import numpy as np
 import xarray as xr
 
-from cable import __version__
 from cable.arguments import check_call
 from cable.units import format_bytes
 from cable.case import Case, CaseError, load_case
@@ -658,20 +657,10 @@ def grid_closed(setup: Setup) -> bool:
 
 def provenance(setup: Setup, command: str | None) -> dict:
     """Run facts recorded with the result (CF global attributes)."""
-    import numba
-
     case = setup.case
     num = case.numerics
     attrs = {
-        "Conventions": schema.CONVENTIONS,
-        "title": f"cable run: {setup.model.name}",
-        "source": f"cable {__version__}",
-        "model": setup.model.name,
-        "model_citation": setup.model.citation,
-        "case": case.text,
-        "cable_version": __version__,
-        "numpy_version": np.__version__,
-        "numba_version": numba.__version__,
+        **schema.provenance(f"cable run: {setup.model.name}", case, model=setup.model),
         "command": command or "",
         "dt_ms": num.dt,
         "splitting": num.splitting,
@@ -682,7 +671,6 @@ def provenance(setup: Setup, command: str | None) -> dict:
         "threshold_mV": setup.threshold,
         "notes": "\n".join(setup.notes),
         "drug_block": _drug_text(case),
-        "comment": "Research tool; not for clinical decisions.",
     }
     if setup.x is not None:
         attrs.update(dx_cm=float(case.fiber.dx), diffusivity_cm2_per_ms=case.fiber.diffusivity,

@@ -113,3 +113,46 @@ UDUNITS_SPELLING = {"mM": "mmol/L", "uM": "umol/L", "nM": "nmol/L", "M": "mol/L"
 def cf_units(units: str) -> str:
     """The udunits spelling of a unit string (``"mM"`` -> ``"mmol/L"``); others unchanged."""
     return UDUNITS_SPELLING.get(units.strip(), units.strip())
+
+
+#: the caution every result file carries
+CAUTION = "Research tool; not for clinical decisions."
+
+
+def provenance(title: str, case, *, model=None, protocol: str | None = None) -> dict:
+    """The global attributes every result file starts with (CF ``Conventions``, title,
+    source, the model and its citation, the full case text, library versions, the caution).
+
+    Parameters
+    ----------
+    title : str
+        The file's CF ``title``.
+    case : cable.case.Case
+        The validated case the result comes from (its text is stored).
+    model : str or cable.membrane.base.MembraneModel, optional
+        The model (or its name); default the case's.
+    protocol : str, optional
+        The protocol's name (absent for plain runs and sweeps).
+    """
+    import numba
+    import numpy as np
+
+    from cable import __version__
+
+    if model is None or isinstance(model, str):
+        name = model or case.membrane.model
+        try:
+            from cable.membrane import get_model
+
+            citation = get_model(name).citation
+        except Exception:  # an unresolvable name is the caller's error, said there; provenance does not raise
+            citation = ""
+    else:
+        name, citation = model.name, model.citation
+    out = {"Conventions": CONVENTIONS, "title": title}
+    if protocol is not None:
+        out["protocol"] = protocol
+    out.update({"source": f"cable {__version__}", "model": name, "model_citation": citation, "case": case.text,
+                "cable_version": __version__, "numpy_version": np.__version__,
+                "numba_version": numba.__version__, "comment": CAUTION})
+    return out

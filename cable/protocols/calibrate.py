@@ -26,7 +26,6 @@ import math
 import numpy as np
 import xarray as xr
 
-from cable import __version__
 from cable.case import Case, CaseError, load_case
 from cable.io import schema
 from cable.simulate import SimulationError, simulate
@@ -324,10 +323,7 @@ def _result(case, key, unit, measure, level, target, runs, value, residual, brac
     }
     coords = {"run": ("run", np.arange(len(runs)), schema.attrs("run"))}
     attrs = {
-        "Conventions": schema.CONVENTIONS,
-        "title": f"cable calibration: {key}",
-        "protocol": "calibration",
-        "source": f"cable {__version__}",
+        **schema.provenance(f"cable calibration: {key}", case, protocol="calibration"),
         "key": key,
         "units": unit,
         "measure": _name(measure, level),
@@ -336,8 +332,6 @@ def _result(case, key, unit, measure, level, target, runs, value, residual, brac
         "runs": len(runs),
         "dx_cm": float(case.fiber.dx) if case.fiber is not None else math.nan,
         "dt_ms": float(case.numerics.dt),
-        "case": case.text,
-        "comment": "Research tool; not for clinical decisions.",
     }
     if bracket is not None:
         attrs.update(low=float(bracket[0]), high=float(bracket[1]))

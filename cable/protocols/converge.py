@@ -46,9 +46,8 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-from cable import __version__
 from cable.case import CaseError
-from cable.io.schema import CONVENTIONS
+from cable.io.schema import provenance
 from cable.protocols import _pacing
 from cable.simulate import SimulationError, simulate
 
@@ -323,11 +322,7 @@ def _result(case, rows, ratio, beat, site, series=None, tolerance=WARN_RELATIVE_
     coords = {"level": ("level", np.arange(len(rows)), {"units": "1", "long_name": "refinement level (0 = case)"}),
               "dx": ("level", col("dx"), {"units": "cm", "long_name": "grid spacing"}), **scoords}
     attrs = {
-        "Conventions": CONVENTIONS,
-        "title": f"convergence certificate: {case.membrane.model}",
-        "protocol": "grid convergence",
-        "source": f"cable {__version__}",
-        "model": case.membrane.model,
+        **provenance(f"convergence certificate: {case.membrane.model}", case, protocol="grid convergence"),
         "ratio": ratio,
         "formal_order": formal_order(ratio, time_order(case.numerics)),
         "refinement": "dx halved per level; "
@@ -343,8 +338,6 @@ def _result(case, rows, ratio, beat, site, series=None, tolerance=WARN_RELATIVE_
         "warning": "\n".join(warnings),
         "numerical_block": int(block),
         "notes": "\n".join(notes),
-        "case": case.text,
-        "comment": "Research tool; not for clinical decisions.",
     }
     return xr.Dataset(data, coords=coords, attrs=attrs)
 

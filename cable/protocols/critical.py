@@ -39,9 +39,9 @@ import math
 import numpy as np
 import xarray as xr
 
-from cable import __version__, units
+from cable import units
 from cable.case import Case, CaseError, load_case
-from cable.io.schema import CONVENTIONS
+from cable.io.schema import provenance
 from cable.simulate import SimulationError, simulate
 
 #: default final bracket width, as a fraction of |high - low| (7 bisections)
@@ -447,10 +447,7 @@ def _result(case, key, unit, lo, hi, tol, runs, passing, failing, log=False, cri
         data["activation_time"] = (("run", "x"), np.array([o["activation"] for o in out]),
                                    {"units": "ms", "long_name": "activation time of the first judged beat"})
     attrs = {
-        "Conventions": CONVENTIONS,
-        "title": f"cable critical-value search: {key}",
-        "protocol": "critical-value search",
-        "source": f"cable {__version__}",
+        **provenance(f"cable critical-value search: {key}", case, protocol="critical-value search"),
         "key": key,
         "units": unit,
         "low": lo,
@@ -459,9 +456,7 @@ def _result(case, key, unit, lo, hi, tol, runs, passing, failing, log=False, cri
         "scale": "log" if log else "linear",
         "runs": len(runs),
         "straddles": int(passing is not None),
-        "case": case.text,
         "criterion": criterion,
-        "comment": "Research tool; not for clinical decisions.",
     }
     if passing is not None:
         k_pass = int(np.flatnonzero(values == passing)[-1])

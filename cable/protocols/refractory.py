@@ -31,9 +31,8 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-from cable import __version__
 from cable.case import CaseError
-from cable.io.schema import CONVENTIONS, STATE_PREFIX
+from cable.io.schema import STATE_PREFIX, provenance
 from cable.measure.activation import CAPTURE_LATENCY
 from cable.membrane import get_model
 from cable.protocols import _pacing
@@ -172,11 +171,7 @@ def refractory_period(case, *, cycle_length: float | None = None, s1_count: int 
     }
     coords = {"coupling_interval": ("trial", cis, {"units": "ms", "long_name": "S1-S2 coupling interval"})}
     attrs = {
-        "Conventions": CONVENTIONS,
-        "title": f"refractory periods: {case.membrane.model}",
-        "protocol": "S1-S2 refractory period",
-        "source": f"cable {__version__}",
-        "model": case.membrane.model,
+        **provenance(f"refractory periods: {case.membrane.model}", case, protocol="S1-S2 refractory period"),
         "s1_count": n1,
         "s1_cycle_length_ms": cl if n1 > 1 else np.nan,
         "s1_amplitude": site.amplitude,
@@ -185,8 +180,6 @@ def refractory_period(case, *, cycle_length: float | None = None, s1_count: int 
         "tolerance_ms": tol,
         "search_start_ms": start,
         "observe_ms": watch,
-        "case": case.text,
-        "comment": "Research tool; not for clinical decisions.",
     }
     return xr.Dataset(data, coords=coords, attrs=attrs)
 

@@ -21,9 +21,8 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-from cable import __version__
 from cable.case import CaseError
-from cable.io.schema import CONVENTIONS
+from cable.io.schema import provenance
 from cable.measure.activation import CAPTURE_LATENCY
 from cable.protocols import _pacing
 from cable.protocols.refractory import TRANSIT_FACTOR, s1_train
@@ -208,17 +207,11 @@ def _result(case, protocol, rows, apd1, n1, cl, beats, node, ref) -> xr.Dataset:
     coords = {"interval": ("point", col("interval"), {"units": "ms", "long_name": name})}
     x = ref["x"].values[node] if "x" in ref.dims else np.nan
     attrs = {
-        "Conventions": CONVENTIONS,
-        "title": f"restitution ({protocol}): {case.membrane.model}",
-        "protocol": protocol,
-        "source": f"cable {__version__}",
-        "model": case.membrane.model,
+        **provenance(f"restitution ({protocol}): {case.membrane.model}", case, protocol=protocol),
         "s1_count": n1,
         "basic_cycle_length_ms": cl,
         "beats_per_cycle_length": beats if protocol == "dynamic" else 0,
         "measurement_x_cm": float(x),
-        "case": case.text,
-        "comment": "Research tool; not for clinical decisions.",
     }
     return xr.Dataset(data, coords=coords, attrs=attrs)
 

@@ -32,9 +32,8 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-from cable import __version__
 from cable.case import CaseError
-from cable.io.schema import CONVENTIONS
+from cable.io.schema import provenance
 from cable.protocols import _pacing
 from cable.simulate import SimulationError, simulate
 
@@ -322,11 +321,7 @@ def _result(case, durs, thr, trials, tolerance, mode, watch, site, notes) -> xr.
         notes.append(f"cell mode runs one cell with C_m = 1 uF/cm^2 (the case's fibre has "
                      f"{case.fiber.capacitance:g} uF/cm^2).")
     attrs = {
-        "Conventions": CONVENTIONS,
-        "title": f"strength-duration: {case.membrane.model}",
-        "protocol": "strength-duration",
-        "source": f"cable {__version__}",
-        "model": case.membrane.model,
+        **provenance(f"strength-duration: {case.membrane.model}", case, protocol="strength-duration"),
         "mode": mode,
         "capture_criterion": ("the wave reaches the far end of the fibre" if mode == "strand"
                               else "the cell crosses the activation threshold"),
@@ -336,9 +331,7 @@ def _result(case, durs, thr, trials, tolerance, mode, watch, site, notes) -> xr.
         "stimulus_width_cm": site.width,
         "fits": "Lapicque I = I_rh / (1 - exp(-d/tau)), chronaxie tau ln 2; Weiss I = I_rh (1 + c/d); both by "
                 "least squares in the relative residual",
-        "case": case.text,
         "notes": "\n".join(notes),
-        "comment": "Research tool; not for clinical decisions.",
     }
     return xr.Dataset(data, coords=coords, attrs=attrs)
 

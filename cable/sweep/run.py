@@ -45,7 +45,6 @@ import uuid
 import numpy as np
 import xarray as xr
 
-from cable import __version__
 from cable.case import CaseError, load_case
 from cable.io import schema
 from cable.sweep import store as _store
@@ -562,26 +561,16 @@ def _compute(spec, raw, todo, points, store, keep_fields, client, scheduler, wor
 def result_attrs(case, spec, ident: str) -> dict:
     """Global attributes of a sweep's result (nothing that changes from run to run)."""
     import dask
-    import numba
 
     from cable.membrane import get_model
 
     model = get_model(case.membrane.model)
     return {
-        "Conventions": schema.CONVENTIONS,
-        "title": f"cable sweep: {model.name}",
-        "source": f"cable {__version__}",
-        "model": model.name,
-        "model_citation": model.citation,
-        "case": case.text,
-        "cable_version": __version__,
-        "numpy_version": np.__version__,
-        "numba_version": numba.__version__,
+        **schema.provenance(f"cable sweep: {model.name}", case, model=model),
         "dask_version": dask.__version__,
         "sweep_id": ident,
         "sweep_mode": spec.mode,
         "sweep_keys": ", ".join(a.key for a in spec.axes),
         "n_points": len(spec),
-        "comment": "Research tool; not for clinical decisions. Per-point run records (worker, wall time) are "
-                   "in the point files.",
+        "comment": schema.CAUTION + " Per-point run records (worker, wall time) are in the point files.",
     }

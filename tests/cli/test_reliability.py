@@ -39,7 +39,7 @@ def start(case_path, out, *extra):
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=ROOT)
 
 
-def wait_for_tmp(folder, proc, timeout=120):
+def wait_for_tmp(folder, proc, timeout=300):
     t0 = time.time()
     while time.time() - t0 < timeout:
         if list(folder.glob(".*.tmp")):
@@ -59,7 +59,7 @@ def test_interrupt_leaves_a_complete_file_marked_partial(tmp_path, sig):
     proc = start(case, out)
     wait_for_tmp(tmp_path, proc)
     proc.send_signal(sig)
-    rc = proc.wait(timeout=120)
+    rc = proc.wait(timeout=300)
     assert rc == 130
     with netCDF4.Dataset(out) as nc:      # opens: not corrupt
         assert nc.getncattr("status") == "partial"
@@ -77,7 +77,7 @@ def test_existing_file_without_overwrite_is_refused_and_left_untouched(tmp_path)
     out = tmp_path / "long.nc"
     out.write_bytes(b"previous result")
     proc = start(case, out)
-    rc = proc.wait(timeout=120)
+    rc = proc.wait(timeout=300)
     assert rc == 2
     assert out.read_bytes() == b"previous result"
 
@@ -129,7 +129,7 @@ def test_second_signal_while_the_result_is_completed_still_leaves_a_partial_file
         assert line or proc.poll() is None, "the run ended before measuring"
     proc.send_signal(signal.SIGTERM)         # the second lands inside the held window
     proc.send_signal(signal.SIGINT)
-    rc = proc.wait(timeout=120)
+    rc = proc.wait(timeout=300)
     assert rc == 130
     with netCDF4.Dataset(out) as nc:
         assert nc.getncattr("status") == "partial"
@@ -178,7 +178,7 @@ def test_sweep_stopped_by_sigterm_resumes_to_the_uninterrupted_result(tmp_path):
         assert time.time() - t0 < 180, "no point was stored"
         time.sleep(0.05)
     proc.send_signal(signal.SIGTERM)
-    assert proc.wait(timeout=120) == 130
+    assert proc.wait(timeout=300) == 130
     assert not out.exists()                   # no result file until every point is in
     stored = len(list(points.glob("point-*.nc")))
     assert 0 < stored < 24, stored            # some points kept, some left for the resume
