@@ -90,6 +90,8 @@ def kernel_lines(an: Analysis, pr, names, fp: dict) -> list:
         k = sidx[n]
         out.append(f"            b{k} = ({pr.doprint_np(rl[n])}) * dt")
         out.append(f"            e{k} = np.expm1(b{k}) / b{k} if b{k} != 0.0 else 1.0")
+    if not exact_tab and not factors:
+        out.append("            pass")  # nothing tabulated (a model without rate functions)
     # the rest as in the reaction kernel, with the tabulated names available
     first = [n for n in needed(parsed, list(parsed.derivatives.values()) +
                                [b for n, b in rl.items() if n not in factors]) if n not in tabset and n not in pre]
@@ -129,6 +131,7 @@ def kernel_lines(an: Analysis, pr, names, fp: dict) -> list:
         out.append(f"    b{k} = ({pr.doprint_np(rl[n])}) * dt")
         out.append(f"    row[{len(frontier) + c}] = (np.expm1(b{k}) / b{k} if b{k} != 0.0 else 1.0) "
                    f"if gating == 0 else 1.0")
+    out.append("    return")
     out += ["", "", "@jit", "def fill_table(table, prow, dt, gating, v_lo, dv):",
             "    side = np.empty(table.shape[1])",
             "    for j in range(table.shape[0]):",
