@@ -106,8 +106,9 @@ def kernel_lines(an: Analysis, pr, names, fp: dict) -> list:
             elif s.name in rl:
                 out.append(f"            b{k} = ({pr.doprint_np(rl[s.name])}) * dt")
                 out.append(f"            d{k} = d{k} * (np.expm1(b{k}) / b{k} if b{k} != 0.0 else 1.0)")
+    every = m.current_states == "all"
     for k, s in enumerate(m.states):
-        if s.name in rl:  # a gate: I_ion below takes its new value
+        if s.name in rl or every:  # I_ion below takes its new value
             out.append(f"        y{k} = y{k} + dt * d{k}")
             out.append(f"        s[i, {k}] = y{k}")
         else:
