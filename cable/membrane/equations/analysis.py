@@ -26,7 +26,8 @@ class Analysis:
     parsed: Parsed
     linear: dict          # state name -> b (sympy expr over symbols) or None
     state_dependent: set  # intermediate names that depend on a state
-    gate_dependent: set   # intermediate names that depend on a gate (a state with a linear derivative)
+    gate_dependent: set   # intermediate names that depend on a state updated before I_ion: a gate
+    #                       (a state with a linear derivative), or any state with current_states "all"
     v_only: set           # intermediate names that depend on V (and constants) only
 
 
@@ -81,6 +82,8 @@ def analyse(parsed: Parsed) -> Analysis:
     v_only = {n for n, d in deps.items() if POTENTIAL in d and not (d & states)
               and not (d & {p.name for p in parsed.model.parameters})}
     gates = {n for n, b in linear.items() if b is not None}
+    if parsed.model.current_states == "all":
+        gates = states
     gate_dep = {n for n, d in deps.items() if d & gates}
     return Analysis(parsed, linear, state_dep, gate_dep, v_only)
 

@@ -170,6 +170,6 @@ def equations_of(model) -> Equations:
         module = importlib.import_module(f"cable.membrane.equations.{model.name.replace('-', '_')}")
         return module.EQUATIONS
     except (ImportError, AttributeError):
-        raise EquationError(f"model '{model.name}' has no description as equations yet (the built-in models "
-                            f"other than hodgkin-huxley-1952 are hand-written kernels), so it cannot be "
+        raise EquationError(f"model '{model.name}' has no description as equations yet (no file "
+                            f"cable/membrane/equations/{model.name.replace('-', '_')}.py), so it cannot be "
                             f"exported to CellML.") from None

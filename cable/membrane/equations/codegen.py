@@ -81,8 +81,9 @@ def _body(an: Analysis, pr, names, indent, load_state, load_param, store_state):
                 lines.append(f"{indent}    b{k} = ({pr.doprint_np(rl[s.name])}) * dt")
                 # (exp(b dt) - 1)/(b dt) -> 1 as b dt -> 0 (no gate dynamics at all)
                 lines.append(f"{indent}    d{k} = d{k} * (np.expm1(b{k}) / b{k} if b{k} != 0.0 else 1.0)")
+    every = m.current_states == "all"
     for k, s in enumerate(m.states):
-        if s.name in rl:  # a gate: I_ion below takes its new value
+        if s.name in rl or every:  # I_ion below takes its new value
             lines.append(f"{indent}y{k} = y{k} + dt * d{k}")
             lines.append(f"{indent}{store_state(k)} = y{k}")
         else:

@@ -76,7 +76,7 @@ def equations_to_json(eq: Equations) -> str:
         "name": eq.name, "citation": eq.citation, "summary": eq.summary,
         "resting_potential": eq.resting_potential, "current_basis": eq.current_basis,
         "threshold": eq.threshold, "temperature_parameter": eq.temperature_parameter,
-        "capacitance": eq.capacitance, "notes": list(eq.notes),
+        "capacitance": eq.capacitance, "notes": list(eq.notes), "current_states": eq.current_states,
         "states": [vars(s) for s in eq.states], "parameters": [vars(p) for p in eq.parameters],
         "intermediates": [[n, text(inter[n])] for n, _ in eq.intermediates],
         "derivatives": [[n, text(parsed.derivatives[n])] for n, _ in eq.derivatives],
@@ -101,7 +101,7 @@ def equations_from_json(text: str) -> Equations:
         currents=tuple((n, expr(e)) for n, e in d["currents"]),
         current_basis=d["current_basis"], threshold=d["threshold"],
         temperature_parameter=d["temperature_parameter"], capacitance=d["capacitance"],
-        notes=tuple(d["notes"]))
+        notes=tuple(d["notes"]), current_states=d.get("current_states", "gates"))
 
 
 def generate_source(eq: Equations) -> str:

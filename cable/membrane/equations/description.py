@@ -31,6 +31,9 @@ from cable.membrane.equations.errors import EquationError
 #: the name of the membrane potential in every description [mV]
 POTENTIAL = "V"
 
+#: the values of ``Equations.current_states``
+CURRENT_STATES = ("gates", "all")
+
 
 @dataclass(frozen=True)
 class EqState:
@@ -64,7 +67,10 @@ class Equations:
     pairs; intermediates may be given in any order (they are sorted by dependency).
     ``notes`` are lines shown by ``cable models NAME`` (what an import recognised).
     ``capacitance`` [uF/cm^2] is the model's own membrane capacitance where it has one
-    (used when the case gives none).
+    (used when the case gives none). ``current_states`` says which states the ionic current
+    of a step takes at their updated value: ``"gates"`` (the states advanced by Rush-Larsen;
+    the others as they were at the start of the step) or ``"all"`` (every state updated
+    first, as the hand-written Luo-Rudy 1991 kernel does with Ca_i).
     """
 
     name: str
@@ -81,6 +87,7 @@ class Equations:
     temperature_parameter: str | None = None
     capacitance: float | None = None
     notes: tuple[str, ...] = ()
+    current_states: str = "gates"
     meanings: dict = field(default_factory=dict)  # intermediate name -> meaning (optional)
 
     def symbols(self) -> dict[str, sympy.Symbol]:
@@ -98,6 +105,9 @@ class Equations:
 def parse(model: Equations) -> "Parsed":
     """Parse every expression of ``model`` into sympy, checking the names it uses."""
     sym = model.symbols()
+    if model.current_states not in CURRENT_STATES:
+        raise EquationError(f"model {model.name}: current_states = {model.current_states!r}; "
+                            f"allowed: {', '.join(CURRENT_STATES)}.")
     local = dict(sym)
     # sympy would read these names as its own objects (the imaginary unit, a beta function...)
     for name in ("E", "I", "N", "O", "Q", "S", "beta", "gamma", "zeta", "lambda"):

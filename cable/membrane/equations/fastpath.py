@@ -90,6 +90,8 @@ def kernel_lines(an: Analysis, pr, names, fp: dict) -> list:
         k = sidx[n]
         out.append(f"            b{k} = ({pr.doprint_np(rl[n])}) * dt")
         out.append(f"            e{k} = np.expm1(b{k}) / b{k} if b{k} != 0.0 else 1.0")
+    if not exact_tab and not factors:
+        out.append("            pass")  # nothing tabulated (a model without rate functions)
     # the rest as in the reaction kernel, with the tabulated names available
     first = [n for n in needed(parsed, list(parsed.derivatives.values()) +
                                [b for n, b in rl.items() if n not in factors]) if n not in tabset and n not in pre]
@@ -104,8 +106,9 @@ def kernel_lines(an: Analysis, pr, names, fp: dict) -> list:
             elif s.name in rl:
                 out.append(f"            b{k} = ({pr.doprint_np(rl[s.name])}) * dt")
                 out.append(f"            d{k} = d{k} * (np.expm1(b{k}) / b{k} if b{k} != 0.0 else 1.0)")
+    every = m.current_states == "all"
     for k, s in enumerate(m.states):
-        if s.name in rl:  # a gate: I_ion below takes its new value
+        if s.name in rl or every:  # I_ion below takes its new value
             out.append(f"        y{k} = y{k} + dt * d{k}")
             out.append(f"        s[i, {k}] = y{k}")
         else:
@@ -129,6 +132,7 @@ def kernel_lines(an: Analysis, pr, names, fp: dict) -> list:
         out.append(f"    b{k} = ({pr.doprint_np(rl[n])}) * dt")
         out.append(f"    row[{len(frontier) + c}] = (np.expm1(b{k}) / b{k} if b{k} != 0.0 else 1.0) "
                    f"if gating == 0 else 1.0")
+    out.append("    return")
     out += ["", "", "@jit", "def fill_table(table, prow, dt, gating, v_lo, dv):",
             "    side = np.empty(table.shape[1])",
             "    for j in range(table.shape[0]):",

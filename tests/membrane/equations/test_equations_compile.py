@@ -45,6 +45,7 @@ def test_rush_larsen_where_the_derivative_is_linear_in_the_state(tmp_path, monke
     (dict(currents=(("I", "g*zz"),)), "unknown names zz"),
     (dict(intermediates=(("a", "b + 1"), ("b", "a*2"), ("w_inf", "1"), ("tau", "1"), ("I_w", "1"))), "depends on itself"),
     (dict(derivatives=(("w", "0"),)), "no derivative for states c, q"),
+    (dict(current_states="new"), "current_states = 'new'; allowed: gates, all"),
 ])
 def test_bad_descriptions_are_refused(bad, message):
     with pytest.raises(EquationError, match=message):
