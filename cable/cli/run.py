@@ -4,6 +4,7 @@ import shlex
 import sys
 
 from cable.cli import add_set_option, say
+from cable.cli.check import SWEEP_NOTE
 
 NAME = "run"
 HELP = "simulate a case file and write the result to netCDF"
@@ -16,6 +17,8 @@ def add_arguments(p):
     p.add_argument("--overwrite", action="store_true", help="replace an existing result file")
     add_set_option(p)
     p.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+    p.add_argument("--dry-run", action="store_true",
+                   help="check the case and print what the run implies (as `cable check`), without running it")
     p.add_argument("--certify", action="store_true",
                    help="then rerun at dx/2 and dx/4 and print a convergence certificate (see `cable converge`)")
 
@@ -31,12 +34,17 @@ def run(args):
     case = load_case(Path(args.case), args.overrides)
     if args.output:
         check_target(args.output, args.overwrite, inputs=(args.case,))
-    if "sweep" in case.raw:
-        say(args, "note: `cable run` runs the case as given and ignores its [sweep]; `cable sweep` runs the points.")
     if args.certify:
         from cable.cli.converge import preflight
 
         preflight(case, 3, "dt/dx^2", -1, option="--certify")  # the refined grids must fit before the first run starts
+    if args.dry_run:
+        from cable.cli.check import report_text
+
+        print(report_text(case, args.output))
+        return 0
+    if "sweep" in case.raw:
+        say(args, SWEEP_NOTE)
     command = "cable " + " ".join(shlex.quote(a) for a in sys.argv[1:])
     ds = simulate(case, output=args.output, overwrite=args.overwrite, command=command,
                   info=lambda m: say(args, m))
