@@ -24,7 +24,7 @@ def add_arguments(p):
 
 
 def run(args):
-    from cable import load_case, simulate
+    from cable import load_case
     from cable.cli.summary import summarise
 
     from pathlib import Path
@@ -46,8 +46,7 @@ def run(args):
     if "sweep" in case.raw:
         say(args, SWEEP_NOTE)
     command = "cable " + " ".join(shlex.quote(a) for a in sys.argv[1:])
-    ds = simulate(case, output=args.output, overwrite=args.overwrite, command=command,
-                  info=lambda m: say(args, m))
+    ds = _simulate(args, case, command)
     if not args.quiet:
         print(summarise(ds))
         if args.output:
@@ -57,3 +56,28 @@ def run(args):
 
         certify(args, case, ds)
     return 0
+
+
+def _simulate(args, case, command):
+    """Run with the progress line on a terminal (not with -q) and say how long compiling took."""
+    from cable import simulate
+    from cable.cli._progress import RunProgress
+    from cable.kernels.jit import compile_timer
+
+    progress = None if args.quiet else RunProgress(sys.stderr)
+
+    def info(msg):
+        if progress is not None:
+            progress.clear()
+        say(args, msg)
+
+    with compile_timer() as compiled:
+        try:
+            return simulate(case, output=args.output, overwrite=args.overwrite, command=command, info=info,
+                            progress=progress if progress is not None and progress.tty else None)
+        finally:
+            if progress is not None:
+                progress.clear()
+            if compiled.seconds is not None:
+                say(args, f"compiling the kernels took {compiled.seconds:.1f} s of this run's time (first run "
+                          f"of the model only; later runs load them from the cache)")
