@@ -128,7 +128,7 @@ def test_info_summarises_model_fibre_beats_and_cv(result, capsys):
     assert "model: hodgkin-huxley-1952" in out
     assert f"{n} nodes" in out
     assert "beats: 1 (1 captured, 0 blocked)" in out
-    assert f"{cv:.4g}" in out
+    assert f"{cv:.3f}" in out     # CV printed with 3 decimals
     assert "status: complete" in out
 
 
