@@ -284,12 +284,10 @@ def _sweep_lines(ds, swept) -> list:
         shown = ", ".join(str(v) if not isinstance(v, float) else f"{v:g}" for v in values.tolist()[:8])
         more = ", ..." if values.size > 8 else ""
         lines.append(f"  {key}: {shown}{more}" + (f" [{units}]" if units not in ("", "1") else ""))
-    if "status" in ds and "flag_meanings" in ds["status"].attrs:
-        names = str(ds["status"].attrs["flag_meanings"]).split()
-        codes = list(np.asarray(ds["status"].attrs["flag_values"]).ravel())
-        counts = {names[codes.index(c)] if c in codes else str(c): int(n)
-                  for c, n in zip(*np.unique(ds["status"].values, return_counts=True))}
-        lines.append("points: " + ", ".join(f"{n} {name}" for name, n in counts.items()))
+    if "status" in ds:
+        from cable.cli.sweep import counts_line
+
+        lines.append(counts_line(ds["status"].values))
     # flags are 1/0, and -1 where a point has no result (failed, not computed): count only 1
     blocked = int(np.sum(np.asarray(ds["blocked"].values) == 1)) if "blocked" in ds else 0
     flags = np.asarray(ds["captured"].values)
@@ -301,6 +299,10 @@ def _sweep_lines(ds, swept) -> list:
         if np.isfinite(cv).any():
             lines.append(f"CV: {np.nanmin(cv):.4g} to {np.nanmax(cv):.4g} m/s "
                          f"(plot with: cable plot-sweep FILE --y conduction_velocity --x {swept[0]})")
+    if "status" in ds and "captured" in ds:
+        from cable.cli.sweep import summarise as point_table
+
+        lines.extend(point_table(ds).splitlines()[1:])  # one line per point of a small sweep, blocked ones named
     return lines
 
 
