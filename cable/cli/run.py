@@ -16,7 +16,8 @@ def add_arguments(p):
     p.add_argument("-o", "--output", help="result file (.nc); without it only the summary is printed")
     p.add_argument("--overwrite", action="store_true", help="replace an existing result file")
     add_set_option(p)
-    p.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+    p.add_argument("-q", "--quiet", action="store_true",
+                   help="print nothing but errors (no progress line; without -q it is drawn on a terminal only)")
     p.add_argument("--dry-run", action="store_true",
                    help="check the case and print what the run implies (as `cable check`), without running it")
     p.add_argument("--certify", action="store_true",

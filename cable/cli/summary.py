@@ -1,10 +1,15 @@
 """``cable info OUT.nc``: a short human summary of a result (also printed by ``cable run``).
 
-Model, status, fibre, run settings, then one line per beat: onset, capture, conduction
+Model, status, fibre (dx in um), what the case changed from the model's defaults (the
+``[membrane]`` scales, parameters and temperature, each region and stimulus, echoed as
+the case gives them), run settings, then one line per beat: onset, capture, conduction
 velocity, and at the centre of the CV window APD90, resting potential, maximal upstroke
-velocity and the wavelength; where it blocked. A sweep result gets its swept keys and point
-counts; a protocol result (threshold, erp, restitution, converge, critical) the table its
-command printed.
+velocity and the wavelength, where it blocked; then where each number was measured (the
+threshold, the CV window's positions and nodes, the node of the other columns). Columns
+have fixed decimals; a blocked beat shows "-" for CV and wavelength; a single cell has
+no CV, wavelength or block columns. A sweep result gets its swept keys, its points'
+outcomes apart from failures and, when small, one line per point; a protocol result
+(threshold, erp, restitution, converge, critical) the table its command printed.
 """
 
 import numpy as np

@@ -89,3 +89,20 @@ def test_compile_timer_counts_compilation_only():
         fresh(2.0)
     assert first.seconds is not None and first.seconds > 0
     assert again.seconds is None
+
+
+def test_run_says_how_long_compiling_took(case_file, capsys, monkeypatch):
+    # what numba's compile events measured is said after the run; nothing when nothing compiled
+    import contextlib
+
+    import cable.kernels.jit as jit
+
+    class Timed:
+        seconds = 12.3
+
+    monkeypatch.setattr(jit, "compile_timer", lambda: contextlib.nullcontext(Timed()))
+    assert main(["run", str(case_file)]) == 0
+    assert "compiling the kernels took 12.3 s of this run's time" in capsys.readouterr().err
+    Timed.seconds = None
+    assert main(["run", str(case_file)]) == 0
+    assert "compiling the kernels took" not in capsys.readouterr().err
