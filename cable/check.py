@@ -22,6 +22,8 @@ import numpy as np
 
 #: steps of the timed run from which the run's time is estimated
 TIMED_STEPS = 300
+#: output intervals of the timed run, at least: the first loads the kernel, the others give the rate
+MIN_INTERVALS = 4
 #: a region weight this close to 0 or 1 counts as 0 or 1 (a node at the ramp's end, to rounding of x)
 WEIGHT_TOL = 1e-9
 
@@ -159,16 +161,20 @@ def check_case(case, *, output=None, timed_steps: int = TIMED_STEPS) -> CheckRep
     from cable.case import Case, load_case
     from cable.simulate import check_size, check_threshold, needs_compiling, prepare
 
+    from cable.kernels.jit import compile_timer
+
     case = case if isinstance(case, Case) else load_case(case)
     compiles = needs_compiling(case)
-    setup = prepare(case)
-    check_threshold(setup)
-    check_size(setup, output)
-    report = _derived(setup, output)
-    report.compiles = compiles
-    report.warnings, report.notes = _messages(setup)
-    if timed_steps > 0:
-        _time_kernel(case, report, timed_steps, setup.steps_per_sample)
+    with compile_timer() as compiled:
+        setup = prepare(case)
+        check_threshold(setup)
+        check_size(setup, output)
+        report = _derived(setup, output)
+        report.compiles = compiles
+        report.warnings, report.notes = _messages(setup)
+        if timed_steps > 0:
+            _time_kernel(case, report, timed_steps, setup.steps_per_sample)
+    report.compile_seconds = compiled.seconds
     return report
 
 
@@ -270,36 +276,33 @@ def _messages(setup) -> tuple[list, list]:
 
 
 def _time_kernel(case, report: CheckReport, steps: int, spb: int) -> None:
-    """Time a short run of the case (about its first ``steps`` steps, sampled as the run samples, from
-    rest, no pre-pacing) twice and scale the second: the first call of a kernel in a process loads
-    (or compiles) it, which the estimate adds once."""
+    """Time a short run of the case (about its first ``steps`` steps, from rest, no pre-pacing) and
+    scale it. Its first output interval also loads (or compiles) the kernel, which the estimate
+    adds once; the rate comes from the intervals after it, sampled as the run samples where they
+    fit (at least ``MIN_INTERVALS``)."""
     from cable.case import CaseError
     from cable.case.load import from_dict, set_key
     from cable.simulate import SimulationError, simulate
 
     dt = case.numerics.dt
-    steps = max(1, min(steps, report.n_steps))
-    intervals = max(1, steps // spb)
-    every = spb if spb <= steps else steps
+    steps = max(MIN_INTERVALS, min(steps, report.n_steps))
+    every = spb if steps // spb >= MIN_INTERVALS else steps // MIN_INTERVALS
+    intervals = steps // every
     steps = intervals * every
     raw = copy.deepcopy(case.raw)
     set_key(raw, "run.duration", steps * dt)
     set_key(raw, "output.every", every * dt)
     raw.get("membrane", {}).pop("prepace", None)  # the kernel's cost does not depend on the start
     raw.pop("sweep", None)
+    stamps = []
     try:
-        short = from_dict(raw)
-        walls = []
-        for _ in range(2):
-            start = time.perf_counter()
-            ds = simulate(short)
-            walls.append((time.perf_counter() - start, float(ds.attrs["wall_time_s"])))
+        ds = simulate(from_dict(raw), progress=lambda done, total: stamps.append(time.perf_counter()))
     except (CaseError, SimulationError) as exc:
         report.warnings.append(f"warning: the timed run of the first {steps} steps failed ({exc}); no time "
                                f"estimate. The run may fail the same way.")
         return
-    (first_total, first_loop), (second_total, second_loop) = walls
+    loop = float(ds.attrs["wall_time_s"])
+    per_interval = (stamps[-1] - stamps[0]) / (len(stamps) - 1)
+    first_call = max(0.0, loop - (stamps[-1] - stamps[0]) - per_interval)  # loading or compiling the loop
     report.timed_steps = steps
-    report.seconds = max(0.0, first_loop - second_loop) + second_loop / steps * report.n_steps
-    if report.compiles:
-        report.compile_seconds = max(0.0, first_total - second_total)
+    report.seconds = first_call + per_interval / every * report.n_steps
