@@ -115,8 +115,8 @@ def needs_compiling(case: Case) -> bool:
     that settling and pre-pacing use, is not in numba's cache yet)."""
     name = case.membrane.model
     mem = case.membrane
-    settles = mem.prepace is not None or bool(mem.parameters or mem.scale or case.raw.get("region") or case.raw.get("drug")) \
-        or mem.temperature is not None
+    settles = mem.prepace is not None or mem.temperature is not None or \
+        bool(mem.parameters or mem.scale or case.raw.get("region") or case.raw.get("drug"))
     return not is_compiled(name, case.numerics.rates, case.numerics.reaction) or \
         (settles and not _in_cache(_integrator(name)))
 

@@ -13,8 +13,9 @@ from tests.conftest import hh_axon_case
 
 @pytest.fixture(scope="module")
 def blocked_run():
-    # the HH axon with g_Na removed beyond 0.6 cm (1.4 cm, twice its space constant): the wave cannot enter the segment and blocks
-    # there (an inexcitable membrane carries no action potential: Hodgkin & Huxley 1952)
+    # the HH axon with g_Na removed beyond 0.6 cm (1.4 cm, twice its space constant of 0.70 cm, measured
+    # here by `cable check`): the wave cannot cross the segment and blocks in it (an inexcitable
+    # membrane carries no action potential: Hodgkin & Huxley 1952)
     case = hh_axon_case(length=2.0, dx=0.02, dt=0.01, duration=6.0,
                         membrane={"scale": {"g_K": 1.0}}, measure={"threshold": -30.0, "cv_window": [0.1, 0.4]})
     case["region"] = [{"start": 0.6, "end": 2.0, "scale": {"g_Na": 0.0}}]
