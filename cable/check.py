@@ -96,7 +96,8 @@ class CheckReport:
             if self.upstroke_extent is not None:
                 up = self.upstroke_extent
                 out.append(f"upstroke extent: about {up:.3g} cm ({up / self.dx:.3g} nodes); estimated CV error "
-                           f"of this dx {100 * self.cv_error:.2g}%, dx <= {self.dx_needed * 1e4:.3g} um for ~2% (check with `cable converge`)")
+                           f"of this dx {100 * self.cv_error:.2g}%, dx <= {_short_length(self.dx_needed)} for ~2% "
+                           f"(check with `cable converge`)")
             if self.diffusion == "forward-euler":
                 out.append(f"stability: forward-Euler diffusion needs dt <= {self.dt_limit:.4g} ms (dt is "
                            f"{self.dt / self.dt_limit:.0%} of it)")
@@ -126,6 +127,10 @@ class CheckReport:
         if not self.warnings:
             out.append("warnings: none")
         return out
+
+
+def _short_length(cm: float) -> str:
+    return f"{cm:.3g} cm" if cm >= 0.1 else f"{cm * 1e4:.3g} um"
 
 
 def _duration(seconds: float) -> str:
