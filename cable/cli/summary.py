@@ -192,7 +192,7 @@ def _where_measured(ds, raw) -> list:
         if inside.size:
             lines.append(f"CV: straight-line fit of activation time against position over x = {_num(lo)}-"
                          f"{_num(hi)} cm (nodes {inside[0]}-{inside[-1]}, the CV window); '-' for a beat that "
-                         f"blocked or did not cross the window")
+                         f"blocked (its CV upstream of the block is in the file) or did not cross the window")
     centre = float(np.mean(window)) if window is not None and np.size(window) == 2 else float(np.mean(x))
     node = int(np.argmin(np.abs(x - centre)))
     lines.append(f"APD90, rest, dVdt and wavelength_apd at x = {_num(x[node])} cm (node {node}, the centre of the "
