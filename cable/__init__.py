@@ -6,6 +6,7 @@ Public API (everything a command does is one of these):
 
 * :func:`simulate` — run a case, get an ``xarray.Dataset``;
 * :func:`load_case` — read and validate a case (TOML path, text or dict);
+* :func:`check_case` — what a run of a case implies (grid, stability, memory, time), without running it;
 * :func:`get_model`, :func:`model_names` — the membrane-model registry;
 * :func:`find_critical` — bisection for the severity at which conduction blocks;
 * :func:`calibrate` — the value of a key at which CV, APD or wavelength hits a target;
@@ -27,6 +28,7 @@ from cable.sweep import sweep  # noqa: E402  (the function; dask is imported on 
 
 # Imported on first use: they pull in dask, matplotlib or scipy, which a plain run does not need.
 _LAZY = {
+    "check_case": "cable.check",
     "find_critical": "cable.protocols.critical",
     "strength_duration": "cable.protocols.threshold",
     "refractory_period": "cable.protocols.refractory",

@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import functools
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -81,8 +82,30 @@ def _upstroke_time(key) -> float:
     return (peak - rest) / rate
 
 
-def coarse_grid_note(case, model, p_row) -> str | None:
-    """One line warning when fiber.dx is too coarse for the upstroke, else None."""
+@dataclass(frozen=True)
+class UpstrokeGrid:
+    """What the upstroke asks of the grid (see the module docstring).
+
+    Attributes
+    ----------
+    t_up : float
+        Upstroke time [ms] of one space-clamped cell.
+    extent : float
+        Spatial extent of the upstroke, sqrt(D t_up) [cm].
+    error : float
+        Estimated relative CV error at the case's dx [1].
+    dx_needed : float
+        The dx [cm] whose estimated error is ``TARGET_ERROR``.
+    """
+
+    t_up: float
+    extent: float
+    error: float
+    dx_needed: float
+
+
+def upstroke_grid(case, model, p_row) -> UpstrokeGrid | None:
+    """The upstroke's extent and the grid it needs, or None (a single cell, no stimulus, no upstroke)."""
     if case.fiber is None or not case.stimuli:
         return None
     stim = case.stimuli[0]
@@ -90,11 +113,16 @@ def coarse_grid_note(case, model, p_row) -> str | None:
     if not math.isfinite(t_up):
         return None
     extent = math.sqrt(case.fiber.diffusivity * t_up)
-    dx = case.fiber.dx
-    error = ERROR_CONSTANT * (dx / extent) ** 2
-    if error <= WARN_ERROR:
+    return UpstrokeGrid(t_up=t_up, extent=extent, error=ERROR_CONSTANT * (case.fiber.dx / extent) ** 2,
+                        dx_needed=extent * math.sqrt(TARGET_ERROR / ERROR_CONSTANT))
+
+
+def coarse_grid_note(case, model, p_row) -> str | None:
+    """One line warning when fiber.dx is too coarse for the upstroke, else None."""
+    up = upstroke_grid(case, model, p_row)
+    if up is None or up.error <= WARN_ERROR:
         return None
-    good = extent * math.sqrt(TARGET_ERROR / ERROR_CONSTANT)
+    dx, extent = case.fiber.dx, up.extent
     return (f"warning: fiber.dx = {dx:g} cm is coarse for this upstroke (it spans about {extent:.3g} cm, "
-            f"{extent / dx:.3g} nodes): the conduction velocity may be about {100 * error:.0f}% off. "
-            f"dx <= {good:.2g} cm should reach ~{100 * TARGET_ERROR:.0f}%; check with `cable converge`.")
+            f"{extent / dx:.3g} nodes): the conduction velocity may be about {100 * up.error:.0f}% off. "
+            f"dx <= {up.dx_needed:.2g} cm should reach ~{100 * TARGET_ERROR:.0f}%; check with `cable converge`.")

@@ -109,6 +109,17 @@ def _in_cache(fn) -> bool:
         return False
 
 
+def needs_compiling(case: Case) -> bool:
+    """Whether a run of ``case`` compiles kernels first (its time loop, or the reference loop
+    that settling and pre-pacing use, is not in numba's cache yet)."""
+    name = case.membrane.model
+    mem = case.membrane
+    settles = mem.prepace is not None or mem.temperature is not None or \
+        bool(mem.parameters or mem.scale or case.raw.get("region") or case.raw.get("drug"))
+    return not is_compiled(name, case.numerics.rates, case.numerics.reaction) or \
+        (settles and not _in_cache(_integrator(name)))
+
+
 @dataclass
 class Setup:
     """Everything the time loop needs, in canonical units (see :func:`prepare`)."""
@@ -247,11 +258,10 @@ def prepare(case) -> Setup:
             raise CaseError(f"measure.cv_window = {list(cv_window)} cm holds fewer than 3 nodes at dx = "
                             f"{case.fiber.dx:g} cm; widen it or refine dx.")
         if num.diffusion == "forward-euler":
-            h = num.dt if (num.splitting == "godunov" or num.merge_half_steps) else 0.5 * num.dt
-            rate = float(np.max(grid.lo + grid.up))
-            if h * rate > 1.0:
+            limit = forward_euler_dt_limit(grid, num)
+            if num.dt > limit:
                 raise CaseError(f"numerics.dt = {num.dt:g} ms exceeds the stability limit of forward-Euler diffusion "
-                                f"on this grid ({(1.0 / rate) * num.dt / h:.4g} ms); reduce dt or use "
+                                f"on this grid ({limit:.4g} ms); reduce dt or use "
                                 f"diffusion = \"crank-nicolson\".")
     setup = Setup(case=case, model=model, x=x, grid=grid, v0=v0, s0=s0, p=p, pulses=pulses,
                   threshold=case.threshold if case.threshold is not None else model.threshold,
@@ -265,6 +275,17 @@ def prepare(case) -> Setup:
 
             setup.safety = tracker_for(case, grid, v0, pulses, notes)
     return setup
+
+
+def forward_euler_dt_limit(grid: Grid, num) -> float:
+    """Largest stable dt [ms] of forward-Euler diffusion on this grid (region coupling included).
+
+    The explicit step v + h L v is stable when h max_i (lo_i + up_i) <= 1, with h = dt, or
+    dt/2 for Strang splitting with its half steps unmerged; inf for a grid without coupling.
+    """
+    rate = float(np.max(grid.lo + grid.up)) if grid.lo.size else 0.0
+    per_dt = 1.0 if (num.splitting == "godunov" or num.merge_half_steps) else 0.5
+    return 1.0 / (rate * per_dt) if rate > 0.0 else float("inf")
 
 
 def _ring_start(case, model, grid, p, v0, s0, pulses, cm, notes):
@@ -407,10 +428,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
         netcdf.check_target(output, overwrite)
     # prepare() may already run the reference loop (settling, pre-pacing): say so before it
     name = case.membrane.model
-    mem = case.membrane
-    settles = mem.prepace is not None or bool(mem.parameters or mem.scale or case.raw.get("region") or case.raw.get("drug")) \
-        or mem.temperature is not None
-    if not is_compiled(name, case.numerics.rates, case.numerics.reaction) or (settles and not _in_cache(_integrator(name))):
+    if needs_compiling(case):
         say(f"compiling the '{name}' kernels (first run only; later runs use the cache)...")
     setup = prepare(case)
     check_threshold(setup)

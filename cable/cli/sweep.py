@@ -98,6 +98,31 @@ def _drop_nested(table: dict, key: str) -> None:
         node.pop(parts[-1], None)
 
 
+def counts_line(status) -> str:
+    """``N points: a ok, b blocked, c no_capture; d failed (...)``: outcomes apart from failures."""
+    from cable.sweep.store import FAILURES, OUTCOMES, STATUS
+
+    status = np.asarray(status).ravel()
+    count = {name: int(np.sum(status == code)) for name, code in STATUS.items()}
+    outcomes = [f"{count[name]} {name}" for name in OUTCOMES if count[name] or name == "ok"]
+    failed = sum(count[name] for name in FAILURES)
+    text = f"{status.size} points: " + ", ".join(outcomes)
+    text += (f"; {failed} failed (" + ", ".join(f"{count[n]} {n}" for n in FAILURES if count[n]) + ")") if failed \
+        else "; none failed"
+    if count["not_computed"]:
+        text += f"; {count['not_computed']} not computed"
+    return text
+
+
+def column_label(ds, coord: str) -> str:
+    """A swept coordinate's column heading with its unit: "g_Na scale", "temperature [degC]"."""
+    attrs = ds[coord].attrs
+    units = str(attrs.get("units", ""))
+    if ".scale." in str(attrs.get("case_key", "")):
+        return f"{coord} scale"
+    return coord if units in ("", "1") else f"{coord} [{units}]"
+
+
 def summarise(ds) -> str:
     """Counts of the sweep's outcomes and, for small sweeps, one line per point."""
     from cable.sweep.store import STATUS
@@ -105,23 +130,24 @@ def summarise(ds) -> str:
     names = {v: k for k, v in STATUS.items()}
     status = ds["status"].values.ravel()
     n = status.size
-    counts = {names[c]: int(np.sum(status == c)) for c in np.unique(status)}
-    lines = [f"{n} points: " + ", ".join(f"{v} {k}" for k, v in counts.items())]
+    lines = [counts_line(status)]
     if n > LIST_MAX:
         return "\n".join(lines)
     dims = list(ds["status"].dims)
     coords = [c for c in ds.coords if "case_key" in ds[c].attrs]
-    header = "  ".join(f"{c:>12}" for c in coords) + "  " + f"{'CV_m/s':>9}  status"
-    lines.append(header)
+    labels = [column_label(ds, c) for c in coords]
+    widths = [max(12, len(label)) for label in labels]
+    lines.append("  ".join(f"{label:>{w}}" for label, w in zip(labels, widths)) + "  " + f"{'CV [m/s]':>9}  outcome")
     for i in range(n):
         sel = {d: int(j) for d, j in zip(dims, np.unravel_index(i, ds["status"].shape))}
         point = ds.isel(sel)
-        vals = "  ".join(f"{_fmt(point[c].values):>12}" for c in coords)
+        vals = "  ".join(f"{_fmt(point[c].values):>{w}}" for c, w in zip(coords, widths))
+        code = int(point["status"])
         cv = float(point["conduction_velocity"].isel(beat=0)) if "conduction_velocity" in ds and "beat" in ds.dims \
             else np.nan
-        code = int(point["status"])
+        shown = f"{cv:9.3f}" if code == STATUS["ok"] and np.isfinite(cv) else f"{'-':>9}"
         text = names[code] + ("" if code == STATUS["ok"] else f": {point['failure_reason'].values}")
-        lines.append(f"{vals}  {cv:9.4g}  {text}")
+        lines.append(f"{vals}  {shown}  {text}")
     return "\n".join(lines)
 
 

@@ -90,3 +90,33 @@ def specialise(template, tag: str, *, depends=(), **bindings):
     fn.__module__ = template.__module__
     fn.__doc__ = template.__doc__
     return numba.njit(cache=True, nogil=True, error_model="numpy")(fn)
+
+
+class CompileTimer:
+    """Seconds numba spent compiling inside a ``with compile_timer()`` block (``seconds`` None: nothing compiled)."""
+
+    def __init__(self, listener):
+        self._listener = listener
+
+    @property
+    def seconds(self) -> float | None:
+        return self._listener.duration if self._listener.done else None
+
+
+def compile_timer():
+    """A context manager timing numba's compilations inside it (loads from the cache are not compilations).
+
+    Uses numba's event API (``numba.core.event``, the ``"numba:compile"`` event, outermost
+    compilation only, so nested compilations count once).
+    """
+    import contextlib
+
+    from numba.core import event
+
+    @contextlib.contextmanager
+    def timed():
+        listener = event.TimingListener()
+        with event.install_listener("numba:compile", listener):
+            yield CompileTimer(listener)
+
+    return timed()

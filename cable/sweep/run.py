@@ -351,7 +351,9 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     xarray.Dataset
         Dimensions: the swept keys (named after their last part; the full key in the
         coordinate's ``case_key`` attribute; ``point`` for ``mode = "zip"``), then
-        ``beat`` and ``level``. Variables: ``status`` (flags), ``failure_reason``,
+        ``beat`` and ``level``. Variables: ``status`` (flags: the outcomes ``ok``,
+        ``no_capture`` and ``blocked`` of a point that ran, its first beat's; the failures
+        ``numerical_failure``, ``invalid_case``, ``error``; ``not_computed``), ``failure_reason``,
         ``sample_x`` and every per-beat scalar measurement of :func:`cable.simulate`
         (x-resolved ones at ``sample_x``).
 
@@ -410,7 +412,7 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     check_sweep_size(case, n, len(todo), output, keep_fields)
     for k in done:
         points[k] = store.read(k)
-    failed_before = sum(_store.status_of(points[k]) != _store.STATUS["ok"] for k in done)
+    failed_before = sum(_store.is_failure(_store.status_of(points[k])) for k in done)
     if todo:
         _compute(spec, case.raw, todo, points, store, keep_fields, client, scheduler, workers, progress,
                  len(done), failed_before, n, say, int(batch))
@@ -428,7 +430,9 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
             say(f"{left} of {n} points not computed yet; run the sweep again with the same output to continue.")
         else:
             _store.write_result(result, output)
-            say(f"wrote {output} ({n} points, {result.attrs['n_failed']} failed)")
+            a = result.attrs
+            say(f"wrote {output} ({n} points: {a['n_failed']} failed; of those that ran, {a['n_blocked']} blocked, "
+                f"{a['n_no_capture']} not captured)")
             with xr.open_dataset(output) as ds:  # what the file holds, exactly
                 result = ds.load()
     return result
@@ -494,7 +498,7 @@ def _compute(spec, raw, todo, points, store, keep_fields, client, scheduler, wor
             store.write(k, labelled, _store.point_attrs(meta))
         else:
             points[k] = labelled
-        bad = _store.status_of(data) != _store.STATUS["ok"]
+        bad = _store.is_failure(_store.status_of(data))  # no capture and block are outcomes, not failures
         done, failed = done + 1, failed + bad
         if bar is not None:
             bar.update(bad)

@@ -38,11 +38,26 @@ from cable.io import schema
 from cable.io.netcdf import chunk_shape, variable_attrs, write_dataset
 from cable.sweep.spec import SweepSpec
 
-#: status of a point (stored as int8 with CF flag attributes)
-STATUS = {"ok": 0, "no_capture": 1, "numerical_failure": 2, "invalid_case": 3, "error": 4, "not_computed": 5}
+#: status of a point (stored as int8 with CF flag attributes); "blocked" came last, so that the
+#: codes of files written before it keep their meaning
+STATUS = {"ok": 0, "no_capture": 1, "numerical_failure": 2, "invalid_case": 3, "error": 4, "not_computed": 5,
+          "blocked": 6}
+
+#: statuses of a point that ran: outcomes of the model (its measurements are stored), not failures
+OUTCOMES = ("ok", "no_capture", "blocked")
+#: statuses of a point that has no result because its run failed
+FAILURES = ("numerical_failure", "invalid_case", "error")
+
+
+def is_failure(code: int) -> bool:
+    """Whether a status code is a failed run (not an outcome such as no capture or block, nor not computed)."""
+    return int(code) in {STATUS[name] for name in FAILURES}
 
 #: int8 value of a flag (captured, blocked) where a point has no result
 NO_RESULT = np.int8(-1)
+
+#: attributes of ``failure_reason``
+REASON_ATTRS = {"long_name": "why the point failed, did not capture or blocked (empty if ok)"}
 
 PER_POINT = ("status", "failure_reason", "sample_x")
 
@@ -103,9 +118,13 @@ def point_dataset(ds: xr.Dataset, keep_fields: bool) -> xr.Dataset:
     used = {d for dims, _, _ in data.values() for d in dims}
     coords = {c: ds[c].variable for c in ("beat", "level", "t", "x") if c in used and c in ds.coords}
     captured = ds["captured"].values if "captured" in ds else np.array([])
+    blocked = ds["blocked"].values if "blocked" in ds else np.zeros(captured.size)
     if captured.size == 0 or not captured[0]:
         onset = float(ds["beat_onset"][0]) if captured.size else float("nan")
         code, reason = "no_capture", f"the first stimulus (t = {onset:g} ms) did not excite the fibre"
+    elif blocked[0]:
+        where = float(ds["block_x"][0]) if "block_x" in ds else float("nan")
+        code, reason = "blocked", f"the first beat blocked at x = {where:.4g} cm"
     else:
         code, reason = "ok", ""
     return _with_status(data, coords, code, reason, float(ds["x"][centre]) if centre is not None else float("nan"))
@@ -119,7 +138,7 @@ def failed_dataset(code: str, reason: str) -> xr.Dataset:
 def _with_status(data: dict, coords: dict, code: str, reason: str, sample_x: float) -> xr.Dataset:
     head = {
         "status": ((), np.int8(STATUS[code]), status_attrs()),
-        "failure_reason": ((), np.array(reason, dtype=object), {"long_name": "why the point failed (empty if ok)"}),
+        "failure_reason": ((), np.array(reason, dtype=object), REASON_ATTRS),
         "sample_x": ((), sample_x, {"units": "cm", "long_name": "position where x-resolved measurements "
                                                                 "were sampled (centre of the CV window)"}),
     }
@@ -411,7 +430,7 @@ def assemble(spec: SweepSpec, points: list, attrs: dict) -> xr.Dataset:
     dims = spec.dims
     data = {
         "status": (dims, status, status_attrs()),
-        "failure_reason": (dims, reason, {"long_name": "why the point failed (empty if ok)"}),
+        "failure_reason": (dims, reason, REASON_ATTRS),
         "sample_x": (dims, sample_x, _attrs_of(pts, "sample_x")),
     }
     for name in names:
@@ -436,7 +455,9 @@ def assemble(spec: SweepSpec, points: list, attrs: dict) -> xr.Dataset:
     if levels:
         coords["level"] = ("level", np.array(levels), schema.attrs("level"))
     out = xr.Dataset(data, coords=coords, attrs=dict(attrs))
-    out.attrs["n_failed"] = int(np.sum((status != STATUS["ok"]) & (status != STATUS["not_computed"])))
+    out.attrs["n_failed"] = int(np.sum(np.isin(status, [STATUS[name] for name in FAILURES])))
+    out.attrs["n_no_capture"] = int(np.sum(status == STATUS["no_capture"]))
+    out.attrs["n_blocked"] = int(np.sum(status == STATUS["blocked"]))
     out.attrs["n_not_computed"] = int(np.sum(status == STATUS["not_computed"]))
     return out
 

@@ -128,7 +128,7 @@ def test_info_summarises_model_fibre_beats_and_cv(result, capsys):
     assert "model: hodgkin-huxley-1952" in out
     assert f"{n} nodes" in out
     assert "beats: 1 (1 captured, 0 blocked)" in out
-    assert f"{cv:.4g}" in out
+    assert f"{cv:.3f}" in out     # CV printed with 3 decimals
     assert "status: complete" in out
 
 
@@ -191,7 +191,7 @@ def test_info_of_a_sweep_counts_only_real_flags(tmp_path, capsys):
     assert main(["info", str(path)]) == EXIT_OK
     out = capsys.readouterr().out
     assert "beats: 1 of 1 captured, 0 blocked (1 without a result)" in out
-    assert "1 ok, 1 numerical_failure" in out
+    assert "2 points: 1 ok; 1 failed (1 numerical_failure)" in out
 
 
 def test_info_names_the_conduction_pattern_of_a_train(tmp_path, capsys):

@@ -46,3 +46,35 @@ def test_no_result_code_lies_outside_the_codes():
     assert store.no_result_code([0, 1]) == store.NO_RESULT
     assert store.no_result_code(None) == store.NO_RESULT
     assert store.no_result_code([-1, 0, 1, 2]) == -2
+
+
+def test_no_capture_and_block_are_outcomes_counted_apart_from_failures():
+    # issue 16, item 4: a point whose stimulus did not capture, or whose wave blocked, ran and has
+    # its measurements; only a point whose run failed counts as failed
+    from cable.cli.sweep import counts_line, summarise
+
+    base = hh_axon_case(length=2.0, dx=0.02, dt=0.01, duration=4.0)
+    # g_Na removed beyond 0.8 cm: an inexcitable segment the wave cannot cross (Hodgkin & Huxley 1952)
+    blocked_case = dict(base, region=[{"start": 0.8, "end": 2.0, "scale": {"g_Na": 0.0}}])
+    # 20 uA/cm^2 for 0.2 ms lies far below the HH axon's threshold charge (tests/sweep/test_run.py)
+    quiet_case = dict(base, stimulus=[{"amplitude": 20.0, "duration": 0.2, "width": 0.1}])
+    runs = [cable.simulate(c) for c in (base, blocked_case, quiet_case)]
+    case = dict(base, sweep={"membrane.scale.g_Na": [1.0, 0.9, 0.8, 0.7]})
+    spec = cable.load_case(case).extra["sweep"]
+    points = [store.label(store.point_dataset(ds, False), spec, k) for k, ds in enumerate(runs)]
+    points.append(store.label(store.failed_dataset("numerical_failure", "NaN at t = 1 ms"), spec, 3))
+    ds = store.assemble(spec, points, {})
+    assert list(ds["status"].values) == [store.STATUS[s] for s in ("ok", "blocked", "no_capture",
+                                                                      "numerical_failure")]
+    block_x = float(ds["block_x"].isel(beat=0).values[1])
+    # the passive segment carries the depolarisation on for less than its space constant (0.70 cm at
+    # rest, measured here by `cable check`), so the last node above threshold lies within 0.8-1.5 cm
+    assert 0.8 <= block_x < 1.5 and f"blocked at x = {block_x:.4g} cm" in str(ds["failure_reason"].values[1])
+    assert (ds.attrs["n_failed"], ds.attrs["n_blocked"], ds.attrs["n_no_capture"]) == (1, 1, 1)
+    assert [store.is_failure(c) for c in ds["status"].values] == [False, False, False, True]
+    assert counts_line(ds["status"].values) == ("4 points: 1 ok, 1 no_capture, 1 blocked; "
+                                                "1 failed (1 numerical_failure)")
+    table = summarise(ds).splitlines()
+    assert table[1].split()[:4] == ["g_Na", "scale", "CV", "[m/s]"]
+    blocked_row = table[3].split()
+    assert blocked_row[1] == "-" and blocked_row[2] == "blocked:"
