@@ -40,7 +40,7 @@ REACH_MV = 15.0
 #: a forward-Euler state may change by at most this fraction of its magnitude per step
 REL_STEP = 0.02
 #: the level is chosen again after at most this many steps of a block
-BLOCK_STEPS = 8
+BLOCK_STEPS = 16
 #: the magnitude of a forward-Euler state is at least this fraction of its largest
 #: magnitude over the nodes (a state near zero is judged on its scale, not on zero)
 FLOOR_FRACTION = 1e-3
@@ -165,9 +165,12 @@ class Stepper:
         self.factors = [(diffusion.factor(lo, up, 0.5 * h, self.theta), diffusion.factor(lo, up, h, self.theta))
                         for h in self.levels]
         self.tables = [() if r is None else (r.table, r.v_lo, r.inv_dv, 1) for r in rates]
-        self.zones = stimulus_zones(setup.pulses, self.dt, n_end)
+        self.zone_list = [(int(a), int(b)) for a, b in stimulus_zones(setup.pulses, self.dt, n_end)]
+        self.zone_at = 0
+        self.args = None
         self.fe = euler_states(setup.model, setup.v0[0], setup.s0[0], setup.p, self.gating)
         self.s_before = arrays.s.copy()
+        self.track_states = bool(np.any(self.fe))
         self.t_block = 0.0
         self.current = 0                      # the level of the last block
         self.counts = np.zeros(len(self.levels), dtype=np.int64)
@@ -175,19 +178,21 @@ class Stepper:
 
     def _zone(self, n: int) -> tuple[bool, int]:
         """(inside a stimulus zone, fine index where that zone ends or the next begins)."""
-        z = self.zones
-        k = int(np.searchsorted(z[:, 1], n, side="right")) if z.shape[0] else 0
-        if k < z.shape[0]:
-            if z[k, 0] <= n:
-                return True, int(z[k, 1])
-            return False, int(z[k, 0])
-        return False, np.iinfo(np.int64).max
+        z = self.zone_list
+        k = self.zone_at
+        while k < len(z) and z[k][1] <= n:     # the run only moves forward
+            k += 1
+        self.zone_at = k
+        if k < len(z):
+            if z[k][0] <= n:
+                return True, z[k][1]
+            return False, z[k][0]
+        return False, 1 << 62
 
     def _level(self, v) -> int:
         a = self.arrays
-        top = self.levels[-1]
-        step = allowed_step(v, a.apd.dlast, self.levels[self.current], self.setup.threshold, a.s,
-                            self.s_before, self.fe, self.t_block, a.by_state, top, self.dv_step, self.reach,
+        step = allowed_step(v, a.apd.dlast, self.levels[self.current], self.setup.threshold, a.s, self.s_before,
+                            self.fe, self.t_block, a.by_state, self.levels[-1], self.dv_step, self.reach,
                             self.rel_step)
         k = 0
         while k + 1 < len(self.levels) and self.levels[k + 1] <= step:
@@ -199,28 +204,30 @@ class Stepper:
         counted in fine steps from ``n0`` (the failure lies in the fine step ending at ``n0 + step + 1``)."""
         a = self.arrays
         s = self.setup
+        if self.args is None:        # the loop's arguments after (v, s, p, t0, nsteps, dt), per level
+            head = (s.pulses, s.grid.lo, s.grid.up, self.theta)
+            tail = (self.splitting, self.merge, self.gating, s.ion_scale, s.threshold, *a.probes())
+            self.args = [head + self.factors[k] + tail + self.tables[k] for k in range(len(self.levels))]
+        advance, sv, pv, dt = self.advance, a.s, a.p, self.dt
         n = n0
         while n < n1:
             inside, edge = self._zone(n)
             if inside:
-                k, stop = 0, min(edge, n1)
+                k = 0
             else:
                 k = self._level(v)
-                stop = min(edge, n1)
-            span = stop - n
+            span = min(edge, n1) - n
             while (1 << k) > span:
                 k -= 1
             width = 1 << k
-            m = min(span // width, BLOCK_STEPS if k > 0 else BLOCK_STEPS * 4)
+            m = min(span // width, BLOCK_STEPS)
             h = self.levels[k]
             if k != self.current:                 # the probe's last difference, per step of the new level
                 a.apd.dlast *= h / self.levels[self.current]
                 self.current = k
-            np.copyto(self.s_before, a.s)
-            half, full = self.factors[k]
-            status, step, node = self.advance(v, a.s, a.p, n * self.dt, m, h, s.pulses, s.grid.lo, s.grid.up,
-                                              self.theta, half, full, self.splitting, self.merge, self.gating,
-                                              s.ion_scale, s.threshold, *a.probes(), *self.tables[k])
+            if self.track_states:
+                np.copyto(self.s_before, sv)
+            status, step, node = advance(v, sv, pv, n * dt, m, h, *self.args[k])
             if status != 0:
                 self.counts[k] += step + 1
                 return status, n - n0 + (step + 1) * width - 1, node
@@ -228,7 +235,6 @@ class Stepper:
             self.t_block = m * h
             n += m * width
         return 0, n1 - n0, -1
-
 
     def outputs(self) -> dict:
         """The steps taken per level, as measurements (``step_dt``, ``steps_taken``)."""
