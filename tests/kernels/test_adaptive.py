@@ -144,6 +144,9 @@ def test_steps_are_written_to_the_result_file(tmp_path):
         assert ds.steps_taken.attrs["long_name"].startswith("steps taken")
         assert float((ds.steps_taken * ds.step_dt).sum()) == pytest.approx(1000.0)
         assert ds.attrs["dt_max_ms"] == 0.5
+        from cable.cli.summary import summarise
+
+        assert "adaptive steps up to 0.5 ms" in summarise(ds)
 
 
 def test_batch_runs_adaptive_cases_alone_with_the_same_result():
