@@ -586,6 +586,12 @@ def from_dict(raw: dict) -> Case:
     num = Numerics(**_read_section("numerics", raw.get("numerics", {}), SECTIONS["numerics"]))
     notes.extend(_reaction_notes(num, model, raw.get("numerics", {})))
     _check_dt_max(num)
+    if num.adaptive:
+        from cable.kernels.adaptive import stability_note
+
+        note = stability_note(model.name, num.dt, num.dt_max)
+        if note:
+            notes.append(note)
     run = _read_section("run", raw["run"], SECTIONS["run"])
     out = _read_section("output", raw.get("output", {}), SECTIONS["output"])
     meas = _read_section("measure", raw.get("measure", {}), SECTIONS["measure"])

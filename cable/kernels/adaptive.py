@@ -47,6 +47,22 @@ BLOCK_STEPS = 16
 FLOOR_FRACTION = 1e-3
 
 
+#: the largest Rush-Larsen step measured stable for a whole action potential of a cell
+#: (``cable/kernels/schemes.py``, note above ``STABLE_DT``; measured there) [ms]
+RUSH_LARSEN_STABLE = {"hodgkin-huxley-1952": 0.0445, "luo-rudy-1991": 0.464, "ten-tusscher-panfilov-2006": 0.470}
+
+
+def stability_note(model_name: str, dt: float, dt_max: float) -> str | None:
+    """A warning when the longest level exceeds the Rush-Larsen step measured stable on the model."""
+    top = step_levels(dt, dt_max)[-1]
+    limit = RUSH_LARSEN_STABLE.get(model_name)
+    if limit is None or top <= limit:
+        return None
+    return (f"warning: numerics.dt_max = {dt_max:g} ms allows steps of {top:g} ms, beyond the largest Rush-Larsen "
+            f"step measured stable on {model_name} ({limit:g} ms); a long step that sets off an oscillation is "
+            f"cut back only once the potential moves: give dt_max <= {limit:g} ms.")
+
+
 def step_levels(dt: float, dt_max: float | None) -> tuple[float, ...]:
     """The steps dt x 2^k up to ``dt_max`` [ms]; (dt,) when adaptive stepping is off."""
     if dt_max is None:

@@ -178,3 +178,13 @@ def test_step_levels():
     assert adaptive.step_levels(0.02, 0.5) == (0.02, 0.04, 0.08, 0.16, 0.32)
     assert adaptive.step_levels(0.02, None) == (0.02,)
     assert adaptive.step_levels(0.1, 0.4) == (0.1, 0.2, 0.4)
+
+
+def test_levels_beyond_the_measured_rush_larsen_limit_are_warned():
+    # HH: Rush-Larsen measured stable to 44.5 us for a whole action potential (DEVELOPERS.md,
+    # "Reaction schemes", stability table); levels 5-80 us exceed it, 5-40 us do not
+    case = {"membrane": {"model": "hodgkin-huxley-1952"}, "stimulus": [{"amplitude": 40.0, "duration": 0.5}],
+            "numerics": {"dt": 0.005, "dt_max": 0.1}, "run": {"duration": 10.0}}
+    assert any("dt_max = 0.1 ms allows steps of 0.08 ms" in n for n in cable.load_case(case).notes)
+    case["numerics"]["dt_max"] = 0.05
+    assert not any("dt_max" in n for n in cable.load_case(case).notes)
