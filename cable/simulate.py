@@ -551,7 +551,8 @@ def _stepper(setup: Setup, advance, arrays, plan, codes):
     levels = adaptive.step_levels(num.dt, num.dt_max)
     plans = [None] * len(levels) if plan is None else \
         [plan] + adaptive.level_plans(setup.model, setup.p, levels[1:], codes[0], plan.mode, num.reaction)
-    return adaptive.Stepper(advance, setup, arrays, levels, plans, codes, (setup.n_samples - 1) * setup.steps_per_sample)
+    n_end = (setup.n_samples - 1) * setup.steps_per_sample
+    return adaptive.Stepper(advance, setup, arrays, levels, plans, codes, n_end)
 
 
 @contextlib.contextmanager
