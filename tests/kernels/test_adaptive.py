@@ -124,6 +124,7 @@ def test_blocks_never_cross_an_output_time_or_a_stimulus_edge(monkeypatch):
             assert not any(t0 - 1e-9 < e < t1 + 1e-9 for e in edges), (t0, m, h)
         t = t1
     assert t == pytest.approx(2000.0)
+    assert max(h for _, _, h in blocks) == pytest.approx(0.32)   # the long steps were used
 
 
 def test_dt_max_equal_to_dt_is_the_fixed_step_bit_for_bit():
