@@ -498,6 +498,10 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
         sink.write(k, vals)
 
     table_args = (rates.table, rates.v_lo, rates.inv_dv, 1) if fast else ()
+    stepper = _stepper(setup, advance, arrays, rates if fast else None, (gating, theta, splitting,
+                                                                         num.merge_half_steps))
+    if stepper is not None:
+        attrs["dt_max_ms"] = num.dt_max
     sample(0)
     failure = None
     interrupted = False
@@ -507,7 +511,9 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     try:
         for k in range(1, setup.n_samples):
             t0 = (k - 1) * spb * dt
-            if ecg_w is None:
+            if stepper is not None:
+                status, step, node = stepper.run(v, (k - 1) * spb, k * spb)
+            elif ecg_w is None:
                 status, step, node = advance(v, arrays.s, arrays.p, t0, spb, dt, setup.pulses, grid.lo, grid.up,
                                              theta, half, full, splitting, merge, gating, setup.ion_scale,
                                              setup.threshold, *arrays.probes(), *table_args)
@@ -541,6 +547,8 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
         try:
             arrays.apd.finish(nact)
             meas = measurements(setup, act, nact, upstroke, arrays.apd, t_end=(n_done - 1) * spb * dt)
+            if stepper is not None:
+                meas.update(stepper.outputs())
             if ecg_w is not None:
                 n_steps_done = (n_done - 1) * spb + 1
                 meas.update(electrodes.outputs(case, setup.t[:n_done], ecg if output is not None else ecg[:, :n_done],
@@ -566,6 +574,23 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
         pos = None if setup.x is None else float(setup.x[failure[2]])
         raise SimulationError(attrs["partial_reason"], time=failure[1], position=pos, partial=ds)
     return ds
+
+
+def _stepper(setup: Setup, advance, arrays, plan, codes):
+    """The adaptive stepper of the run (``numerics.dt_max``), or None for fixed steps."""
+    num = setup.case.numerics
+    if not num.adaptive:
+        return None
+    if setup.x is not None and setup.case.extra.get("electrode"):
+        raise CaseError(f"numerics.dt_max = {num.dt_max:g} ms: adaptive steps are not available with [[electrode]] "
+                        f"(the pseudo-ECG is taken at every fixed step); remove numerics.dt_max or the electrodes.")
+    from cable.kernels import adaptive
+
+    levels = adaptive.step_levels(num.dt, num.dt_max)
+    plans = [None] * len(levels) if plan is None else \
+        [plan] + adaptive.level_plans(setup.model, setup.p, levels[1:], codes[0], plan.mode, num.reaction)
+    n_end = (setup.n_samples - 1) * setup.steps_per_sample
+    return adaptive.Stepper(advance, setup, arrays, levels, plans, codes, n_end)
 
 
 @contextlib.contextmanager

@@ -132,3 +132,13 @@ def test_tissue_form_needs_a_radius_and_stream_writes_it(tmp_path):
     disk = cable.simulate(case, output=tmp_path / "e.nc")
     np.testing.assert_allclose(disk.pseudo_ecg.values, mem.pseudo_ecg.values, rtol=1e-12)
     assert disk.sizes["electrode"] == 2 and np.isfinite(mem.pseudo_ecg.values).all()
+
+
+def test_adaptive_steps_with_electrodes_are_refused_naming_the_key():
+    case = {"membrane": {"model": "hodgkin-huxley-1952"},
+            "fiber": {"length": 1.0, "dx": 0.02, "radius": "238 um", "axial_resistivity": "35.4 ohm*cm"},
+            "stimulus": [{"amplitude": 1000.0, "duration": 0.2, "width": 0.1}],
+            "numerics": {"dt": 0.01, "dt_max": 0.04}, "run": {"duration": 2.0},
+            "electrode": [{"x": "2 cm"}]}
+    with pytest.raises(cable.CaseError, match=r"numerics.dt_max .* \[\[electrode\]\]"):
+        cable.simulate(case)

@@ -98,6 +98,12 @@ class Numerics:
     merge_half_steps: bool = True
     reaction: str = "rush-larsen"
     rates: str = "tabulated"
+    dt_max: float | None = None
+
+    @property
+    def adaptive(self) -> bool:
+        """Whether the steps are chosen between dt and ``dt_max`` (at least two levels)."""
+        return self.dt_max is not None and self.dt_max >= 2.0 * self.dt * (1.0 - 1e-9)
 
 
 @dataclass(frozen=True)
@@ -264,6 +270,31 @@ def _reaction_notes(num, model, given: dict) -> list[str]:
                         f"\"rush-larsen\" only; with reaction = \"{num.reaction}\" leave gating out.")
     note = schemes.stability_note(model.name, num.reaction, num.dt)
     return [note] if note else []
+
+
+def _check_dt_max(num) -> None:
+    """Refuse ``numerics.dt_max`` below dt, and with the schemes adaptive steps are not safe with."""
+    if num.dt_max is None:
+        return
+    if num.dt_max < num.dt * (1.0 - 1e-9):
+        raise CaseError(f"numerics.dt_max = {num.dt_max:g} ms is shorter than numerics.dt = {num.dt:g} ms: dt is "
+                        f"the finest step and dt_max the longest; give dt_max >= dt (at least 2 dt to adapt), or "
+                        f"leave it out for fixed steps.")
+    if not num.adaptive:
+        return
+    unsafe = []
+    if num.gating != "rush-larsen":
+        unsafe.append(f"numerics.gating = \"{num.gating}\" (a forward-Euler gate is unstable beyond twice its "
+                      f"time constant, far below dt_max for the fast gates; use \"rush-larsen\")")
+    if num.reaction != "rush-larsen":
+        unsafe.append(f"numerics.reaction = \"{num.reaction}\" (adaptive steps use the model's own Rush-Larsen "
+                      f"step; use \"rush-larsen\")")
+    if num.diffusion == "forward-euler":
+        unsafe.append("numerics.diffusion = \"forward-euler\" (its stability limit holds for dt, not for the long "
+                      "steps; use \"crank-nicolson\")")
+    if unsafe:
+        raise CaseError(f"numerics.dt_max = {num.dt_max:g} ms: adaptive time steps are not available with "
+                        + "; nor with ".join(unsafe) + ". Or leave numerics.dt_max out.")
 
 
 # ----------------------------------------------------------------------------- --set
@@ -554,6 +585,13 @@ def from_dict(raw: dict) -> Case:
 
     num = Numerics(**_read_section("numerics", raw.get("numerics", {}), SECTIONS["numerics"]))
     notes.extend(_reaction_notes(num, model, raw.get("numerics", {})))
+    _check_dt_max(num)
+    if num.adaptive:
+        from cable.kernels.adaptive import stability_note
+
+        note = stability_note(model.name, num.dt, num.dt_max)
+        if note:
+            notes.append(note)
     run = _read_section("run", raw["run"], SECTIONS["run"])
     out = _read_section("output", raw.get("output", {}), SECTIONS["output"])
     meas = _read_section("measure", raw.get("measure", {}), SECTIONS["measure"])

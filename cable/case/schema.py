@@ -77,6 +77,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
     },
     "numerics": {
         "dt": _q("time", 0.01, positive=True, meaning="time step [ms]"),
+        "dt_max": _q("time", positive=True, meaning="adaptive time steps: the longest step [ms]; steps dt x 2^k up to it, the fine step dt kept through stimuli, upstrokes and arriving waves (off when absent or equal to dt); see cable/kernels/adaptive.py"),
         "splitting": Key("choice", default="strang", choices=("strang", "godunov"), meaning="operator splitting"),
         "diffusion": Key("choice", default="crank-nicolson", choices=("crank-nicolson", "backward-euler", "forward-euler"), meaning="diffusion step"),
         "gating": Key("choice", default="rush-larsen", choices=("rush-larsen", "forward-euler"), meaning="gate update of the reaction step"),

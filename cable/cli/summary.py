@@ -98,6 +98,10 @@ def summarise(ds, path=None) -> str:
     if attrs.get("wall_time_s") is not None:
         run += f"; took {_num(attrs['wall_time_s'], '.3g')} s"
     lines.append(run)
+    if "steps_taken" in ds:   # adaptive steps (numerics.dt_max)
+        counts = [f"{_num(float(h))} ms x {int(n)}" for h, n in zip(ds["step_dt"].values, ds["steps_taken"].values)]
+        lines.append(f"adaptive steps up to {_num(attrs.get('dt_max_ms'))} ms: {int(ds['steps_taken'].sum())} "
+                     f"steps ({', '.join(counts)})")
     if attrs.get("drug_block"):
         lines.extend(str(attrs["drug_block"]).splitlines())
     from cable.electrodes import summary_lines as ecg_lines

@@ -64,6 +64,9 @@ VARIABLES = {
     "excitable_gap": (("revolution",), "ms", "period minus APD90 at the reference node (time excitable)", None),
     "reentry_sustained": ((), "1", "the wave still circulated at the end of the run (1 yes, 0 no)", None),
     "reentry_end": ((), "ms", "last pass at the reference node of a wave that stopped (NaN while it goes on)", None),
+    # adaptive time steps (numerics.dt_max; cable.kernels.adaptive): present only then
+    "step_dt": (("step_level",), "ms", "time step of the level (adaptive steps: dt x 2^k)", None),
+    "steps_taken": (("step_level",), "1", "steps taken at the level (adaptive steps)", None),
     # pseudo-ECG (cable.measure.ecg)
     "pseudo_ecg": (("electrode", "t"), "mV", "extracellular potential at the electrode (far-field, 1D strand)", None),
     "electrode_x": (("electrode",), "cm", "electrode position along the strand axis", None),

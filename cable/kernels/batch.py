@@ -28,8 +28,8 @@ stored states, ion scale (capacitance), crossings stored per node, and the rate 
 (tabulated rates: the values of the table's parameters, ``FastPath.table_parameters``,
 so that the batch's one table is the table each case builds alone). Grids,
 conductances, region parameters, stimuli and initial states may all differ. A case
-that asks for what the batch does not do (``measure.safety_factor``, a ring, ``[[electrode]]``)
-runs alone.
+that asks for what the batch does not do (``measure.safety_factor``, a ring, ``[[electrode]]``,
+adaptive steps ``numerics.dt_max``) runs alone.
 """
 
 from __future__ import annotations
@@ -78,6 +78,8 @@ def group_key(setup) -> tuple | None:
     if getattr(setup, "safety", None) is not None or getattr(setup.grid, "closed", False) \
             or setup.case.extra.get("electrode"):
         return None  # a ring's cyclic solve and the pseudo-ECG are cable.simulate's alone
+    if setup.case.numerics.adaptive:
+        return None  # adaptive steps (numerics.dt_max): each strand chooses its own steps, in cable.simulate
     case = setup.case
     num = case.numerics
     return (setup.model.name, num.dt, num.splitting, num.diffusion, num.gating, num.reaction, num.merge_half_steps,
@@ -103,7 +105,7 @@ def loop_key(case) -> tuple:
     alone = bool(case.raw.get("measure", {}).get("safety_factor", False)) and case.fiber is not None
     return (case.membrane.model, num.dt, num.splitting, num.diffusion, num.gating, num.reaction, num.merge_half_steps,
             num.rates, case.output_every, case.duration, case.threshold, tuple(case.apd_levels),
-            tuple(case.output_states), cm, alone)
+            tuple(case.output_states), cm, alone, num.dt_max if num.adaptive else None)
 
 
 def simulate_batch(cases, *, errors: str = "raise") -> list:

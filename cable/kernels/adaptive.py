@@ -1,0 +1,264 @@
+"""Adaptive time steps (``numerics.dt_max``): the compiled loops driven in blocks.
+
+The steps are chosen from the levels dt x 2^k (k = 0, 1, ... while dt x 2^k <= dt_max),
+so that the Crank-Nicolson factors and the rate tables of each level are computed once.
+Each block is one call of the run's compiled loop (``integrate.advance``,
+``fused.advance_fast``) at one level: a complete Strang sequence, D(h/2) S D(h) ... S
+D(h/2), so a change of level between blocks keeps the splitting's order. Between blocks
+the level is chosen from the state (:func:`allowed_step`):
+
+* the fine step wherever a stimulus is on (a block never crosses a pulse's start or
+  end: blocks end at the fine step holding it), wherever a node below the activation
+  threshold rises within ``REACH_MV`` of it (a wave arriving, a slow depolarisation), and
+  wherever the potential changes fast (an upstroke): the step is at most
+  ``DV_STEP_MV`` / max |dV/dt|;
+* the states that the reaction integrates by forward Euler (those whose ``kinetics``
+  rate b is 0: concentrations) bound the step so that each changes by at most
+  ``REL_STEP`` of its magnitude per step (the rate measured over the last block);
+  Rush-Larsen gates are exact for a constant potential and allow any step.
+
+Blocks end at every output time (samples stay on the output grid), at stimulus edges,
+and after at most ``BLOCK_STEPS`` steps, when the level is chosen again. Activation
+times, repolarisation crossings and the upstroke rate are interpolated within the step
+where they occur by the loop's own probes; the probe's last-step difference (``dlast``,
+used by :func:`cable.kernels.integrate.step_rate`) is rescaled to the new step when the
+level changes.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from cable.kernels import diffusion, tables
+from cable.kernels.jit import jit
+
+#: the potential may change by at most this much per step [mV]: the APD90 error of the
+#: long steps grows with it (TP06 cell, measured here: 0.45 ms at 0.5 mV, 0.13 at 0.05;
+#: DEVELOPERS.md, "Adaptive time steps"); checked by the accuracy tests
+DV_STEP_MV = 0.05
+#: a node below the threshold and rising, closer to it than this, keeps the fine step [mV]
+REACH_MV = 15.0
+#: a forward-Euler state may change by at most this fraction of its magnitude per step
+REL_STEP = 0.02
+#: the level is chosen again after at most this many steps of a block
+BLOCK_STEPS = 16
+#: the magnitude of a forward-Euler state is at least this fraction of its largest
+#: magnitude over the nodes (a state near zero is judged on its scale, not on zero)
+FLOOR_FRACTION = 1e-3
+
+
+#: the largest Rush-Larsen step measured stable for a whole action potential of a cell
+#: (``cable/kernels/schemes.py``, note above ``STABLE_DT``; measured there) [ms]
+RUSH_LARSEN_STABLE = {"hodgkin-huxley-1952": 0.0445, "luo-rudy-1991": 0.464, "ten-tusscher-panfilov-2006": 0.470}
+
+
+def stability_note(model_name: str, dt: float, dt_max: float) -> str | None:
+    """A warning when the longest level exceeds the Rush-Larsen step measured stable on the model."""
+    top = step_levels(dt, dt_max)[-1]
+    limit = RUSH_LARSEN_STABLE.get(model_name)
+    if limit is None or top <= limit:
+        return None
+    return (f"warning: numerics.dt_max = {dt_max:g} ms allows steps of {top:g} ms, beyond the largest Rush-Larsen "
+            f"step measured stable on {model_name} ({limit:g} ms); a long step that sets off an oscillation is "
+            f"cut back only once the potential moves: give dt_max <= {limit:g} ms.")
+
+
+def step_levels(dt: float, dt_max: float | None) -> tuple[float, ...]:
+    """The steps dt x 2^k up to ``dt_max`` [ms]; (dt,) when adaptive stepping is off."""
+    if dt_max is None:
+        return (dt,)
+    out = [dt]
+    while 2.0 * out[-1] <= dt_max * (1.0 + 1e-9):
+        out.append(2.0 * out[-1])
+    return tuple(out)
+
+
+def stimulus_zones(pulses: np.ndarray, dt: float, n_end: int) -> np.ndarray:
+    """Fine-step index ranges [start, stop) whose steps overlap a pulse, merged, (m, 2)."""
+    spans = []
+    for on, off in pulses[:, :2]:
+        j0 = int(np.floor(on / dt + 1e-9))
+        j1 = int(np.ceil(off / dt - 1e-9))
+        if j1 <= j0:
+            j1 = j0 + 1
+        if j0 < n_end:
+            spans.append((j0, min(j1, n_end)))
+    spans.sort()
+    merged = []
+    for j0, j1 in spans:
+        if merged and j0 <= merged[-1][1]:
+            merged[-1][1] = max(merged[-1][1], j1)
+        else:
+            merged.append([j0, j1])
+    return np.array(merged, dtype=np.int64).reshape(-1, 2)
+
+
+@jit
+def allowed_step(v, dlast, dt_last, threshold, s, s_before, fe, t_block, by_state, dt_max, dv_step, reach, rel_step):
+    """The longest step the state allows [ms] (0: the fine step).
+
+    ``dlast``: each node's change of potential over the last step of ``dt_last``;
+    ``s``, ``s_before``: the states now and at the start of the last block (of
+    ``t_block`` ms; 0: no block yet); ``fe``: 1 for the states integrated by forward
+    Euler; ``by_state``: states stored (nstate, n), else (n, nstate); ``dv_step``,
+    ``reach``, ``rel_step``: the bounds (``DV_STEP_MV``, ``REACH_MV``, ``REL_STEP``).
+    """
+    n = v.shape[0]
+    rate = 0.0
+    for i in range(n):
+        vi = v[i]
+        d = dlast[i]
+        if vi < threshold and vi > threshold - reach and d > 0.0:
+            return 0.0
+        a = abs(d)
+        if a > rate:
+            rate = a
+    rate /= dt_last
+    step = dt_max if rate * dt_max <= dv_step else dv_step / rate
+    if t_block <= 0.0:
+        return step
+    nstate = fe.shape[0]
+    for j in range(nstate):
+        if fe[j] == 0:
+            continue
+        big = 0.0
+        for i in range(n):
+            y = abs(s[j, i]) if by_state else abs(s[i, j])
+            if y > big:
+                big = y
+        floor = FLOOR_FRACTION * big + 1e-300
+        for i in range(n):
+            if by_state:
+                y, y0 = s[j, i], s_before[j, i]
+            else:
+                y, y0 = s[i, j], s_before[i, j]
+            change = abs(y - y0)
+            if change > 0.0:
+                limit = rel_step * max(abs(y), floor) * t_block / change
+                if limit < step:
+                    step = limit
+    return step
+
+
+def euler_states(model, v0: float, s0: np.ndarray, p: np.ndarray, gating: int) -> np.ndarray:
+    """1 for each state the reaction integrates by forward Euler (every state with
+    forward-Euler gating; else those whose ``kinetics`` gate rate b is 0)."""
+    nstate = len(model.states)
+    if gating != 0 or model.kinetics is None:
+        return np.ones(nstate, dtype=np.int64)
+    a = np.zeros(nstate)
+    b = np.zeros(nstate)
+    model.kinetics(float(v0), np.ascontiguousarray(s0, dtype=np.float64), np.ascontiguousarray(p, dtype=np.float64),
+                   0, a, b)
+    return (b == 0.0).astype(np.int64)
+
+
+class Stepper:
+    """Runs output intervals as blocks of steps at the levels (see the module docstring).
+
+    Parameters
+    ----------
+    advance : numba dispatcher
+        The run's compiled loop.
+    setup : cable.simulate.Setup
+    arrays : cable.kernels.state.LoopArrays
+    levels : sequence of float
+        From :func:`step_levels`.
+    rates : list of cable.kernels.tables.Plan or None
+        The fast path's plan per level (None: the reference loop).
+    codes : (gating, theta, splitting, merge)
+    n_end : int
+        Fine steps of the whole run.
+    """
+
+    def __init__(self, advance, setup, arrays, levels, rates, codes, n_end):
+        self.advance = advance
+        self.setup = setup
+        self.arrays = arrays
+        self.levels = tuple(levels)
+        self.dt = self.levels[0]
+        self.gating, self.theta, self.splitting, self.merge = codes
+        lo, up = setup.grid.lo, setup.grid.up
+        self.factors = [(diffusion.factor(lo, up, 0.5 * h, self.theta), diffusion.factor(lo, up, h, self.theta))
+                        for h in self.levels]
+        self.tables = [() if r is None else (r.table, r.v_lo, r.inv_dv, 1) for r in rates]
+        self.zone_list = [(int(a), int(b)) for a, b in stimulus_zones(setup.pulses, self.dt, n_end)]
+        self.zone_at = 0
+        self.args = None
+        self.fe = euler_states(setup.model, setup.v0[0], setup.s0[0], setup.p, self.gating)
+        self.s_before = arrays.s.copy()
+        self.track_states = bool(np.any(self.fe))
+        self.t_block = 0.0
+        self.current = 0                      # the level of the last block
+        self.counts = np.zeros(len(self.levels), dtype=np.int64)
+        self.dv_step, self.reach, self.rel_step = DV_STEP_MV, REACH_MV, REL_STEP
+
+    def _zone(self, n: int) -> tuple[bool, int]:
+        """(inside a stimulus zone, fine index where that zone ends or the next begins)."""
+        z = self.zone_list
+        k = self.zone_at
+        while k < len(z) and z[k][1] <= n:     # the run only moves forward
+            k += 1
+        self.zone_at = k
+        if k < len(z):
+            if z[k][0] <= n:
+                return True, z[k][1]
+            return False, z[k][0]
+        return False, 1 << 62
+
+    def _level(self, v) -> int:
+        a = self.arrays
+        step = allowed_step(v, a.apd.dlast, self.levels[self.current], self.setup.threshold, a.s, self.s_before,
+                            self.fe, self.t_block, a.by_state, self.levels[-1], self.dv_step, self.reach,
+                            self.rel_step)
+        k = 0
+        while k + 1 < len(self.levels) and self.levels[k + 1] <= step:
+            k += 1
+        return k
+
+    def run(self, v, n0: int, n1: int) -> tuple[int, int, int]:
+        """Advance from fine step ``n0`` to ``n1``; (status, step, node) as the loop returns, ``step``
+        counted in fine steps from ``n0`` (the failure lies in the fine step ending at ``n0 + step + 1``)."""
+        a = self.arrays
+        s = self.setup
+        if self.args is None:        # the loop's arguments after (v, s, p, t0, nsteps, dt), per level
+            head = (s.pulses, s.grid.lo, s.grid.up, self.theta)
+            tail = (self.splitting, self.merge, self.gating, s.ion_scale, s.threshold, *a.probes())
+            self.args = [head + self.factors[k] + tail + self.tables[k] for k in range(len(self.levels))]
+        advance, sv, pv, dt = self.advance, a.s, a.p, self.dt
+        n = n0
+        while n < n1:
+            inside, edge = self._zone(n)
+            if inside:
+                k = 0
+            else:
+                k = self._level(v)
+            span = min(edge, n1) - n
+            while (1 << k) > span:
+                k -= 1
+            width = 1 << k
+            m = min(span // width, BLOCK_STEPS)
+            h = self.levels[k]
+            if k != self.current:                 # the probe's last difference, per step of the new level
+                a.apd.dlast *= h / self.levels[self.current]
+                self.current = k
+            if self.track_states:
+                np.copyto(self.s_before, sv)
+            status, step, node = advance(v, sv, pv, n * dt, m, h, *self.args[k])
+            if status != 0:
+                self.counts[k] += step + 1
+                return status, n - n0 + (step + 1) * width - 1, node
+            self.counts[k] += m
+            self.t_block = m * h
+            n += m * width
+        return 0, n1 - n0, -1
+
+    def outputs(self) -> dict:
+        """The steps taken per level, as measurements (``step_dt``, ``steps_taken``)."""
+        return {"step_dt": (("step_level",), np.array(self.levels)),
+                "steps_taken": (("step_level",), self.counts.copy())}
+
+
+def level_plans(model, p, levels, gating, rates: str, reaction: str) -> list:
+    """The fast path's plan (rate table) per level, as ``tables.plan`` makes it for one dt."""
+    return [tables.plan(model, p, h, gating, rates, reaction=reaction) for h in levels]

@@ -1,0 +1,90 @@
+"""Adaptive time steps (``numerics.dt_max``) against the fixed step: wall time and error.
+
+The strand of issue 15: TP06 epicardial, 2 cm, dx 100 um, tissue D 0.00154 cm^2/ms
+(sigma 1000/162 mS/cm, chi 2000 /cm, C_m 2 uF/cm^2), paced at 1 Hz from its left end
+(200 uA/cm^2 for 1 ms over 1 mm), output every 1 ms. Runs, in the same process:
+
+* fixed dt 20 us (the step users take), the yardstick of the speed ratio;
+* adaptive, fine step 5 us, longest 0.5 ms (levels 5 us x 2^k up to 0.32 ms);
+* adaptive, fine step 20 us, longest 0.5 ms (levels up to 0.32 ms);
+* with ``--reference``: fixed dt 5 us, for the errors of each run (slow: ~4x the first).
+
+Each run's wall time is that of the whole ``cable.simulate`` call, best of
+``--rounds`` (after one warm-up run that loads the compiled kernels). The errors are the
+largest differences over beats and nodes: activation time, CV, APD90, rest, upstroke
+velocity (nodes 5 from each end excluded).
+
+Run::
+
+    python tools/bench/adaptive.py                       # the issue's 5 beats
+    python tools/bench/adaptive.py --beats 2 --reference # shorter, with errors
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+
+import numpy as np
+
+import cable
+
+
+def case(beats: int, length: float, dt: float, dt_max: float | None = None) -> dict:
+    c = {"membrane": {"model": "ten-tusscher-panfilov-2006"},
+         "fiber": {"length": length, "dx": 0.01, "conductivity": 1000.0 / 162.0, "surface_to_volume": 2000.0,
+                   "capacitance": 2.0},
+         "stimulus": [{"amplitude": 200.0, "duration": 1.0, "width": 0.1, "count": beats, "cycle_length": 1000.0}],
+         "numerics": {"dt": dt}, "run": {"duration": 1000.0 * beats}, "output": {"every": 1.0}}
+    if dt_max is not None:
+        c["numerics"]["dt_max"] = dt_max
+    return c
+
+
+def errors(ds, ref) -> dict:
+    inner = slice(5, -5)
+    return {"activation_ms": float(np.nanmax(np.abs(ds.activation_time - ref.activation_time))),
+            "cv_%": 100 * float(np.max(np.abs(ds.conduction_velocity / ref.conduction_velocity - 1.0))),
+            "apd90_ms": float(np.nanmax(np.abs(ds.apd.sel(level=90.0) - ref.apd.sel(level=90.0)))),
+            "rest_mV": float(np.nanmax(np.abs(ds.resting_potential - ref.resting_potential))),
+            "upstroke_%": 100 * float(np.nanmax(np.abs(ds.upstroke_velocity.isel(x=inner)
+                                                        / ref.upstroke_velocity.isel(x=inner) - 1.0)))}
+
+
+def timed(c: dict, rounds: int):
+    best, ds = np.inf, None
+    for _ in range(rounds):
+        t = time.perf_counter()
+        ds = cable.simulate(c)
+        best = min(best, time.perf_counter() - t)
+    return best, ds
+
+
+def main(argv=None) -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--beats", type=int, default=5)
+    ap.add_argument("--length", type=float, default=2.0, help="strand length [cm]")
+    ap.add_argument("--rounds", type=int, default=1)
+    ap.add_argument("--reference", action="store_true", help="also run the fixed 5 us step, for the errors")
+    args = ap.parse_args(argv)
+    runs = [("fixed 20 us", case(args.beats, args.length, 0.02)),
+            ("adaptive 5 us - 0.5 ms", case(args.beats, args.length, 0.005, 0.5)),
+            ("adaptive 20 us - 0.5 ms", case(args.beats, args.length, 0.02, 0.5))]
+    for _, c in runs:                  # warm-up: the compiled kernels loaded once
+        warm = dict(c, run={"duration": 20.0}, stimulus=[dict(c["stimulus"][0], count=1)])
+        cable.simulate(warm)
+    ref = timed(case(args.beats, args.length, 0.005), 1)[1] if args.reference else None
+    base = None
+    print(f"TP06 strand {args.length:g} cm, dx 100 um, {args.beats} beats at 1 Hz, output every 1 ms")
+    for name, c in runs:
+        wall, ds = timed(c, args.rounds)
+        base = wall if base is None else base
+        steps = "" if "steps_taken" not in ds else \
+            "  steps " + " ".join(f"{h:g}:{int(n)}" for h, n in zip(ds.step_dt.values, ds.steps_taken.values))
+        print(f"{name:24s} wall {wall:7.2f} s  fixed/this {base / wall:5.2f}{steps}")
+        if ref is not None:
+            print(" " * 26 + "  ".join(f"{k} {v:.3g}" for k, v in errors(ds, ref).items()))
+
+
+if __name__ == "__main__":
+    main()
