@@ -79,7 +79,9 @@ def run(args):
         rl = [s.name for s, k in zip(m.states, schemes) if k == "rush-larsen"]
         extra.append(f"  Rush-Larsen (derivative linear in the state; numerics.gating): {', '.join(rl) or '(none)'}; "
                      f"forward Euler: {', '.join(s.name for s in m.states if s.name not in rl) or '(none)'}")
-        extra.append("  rates: evaluated exactly (no tabulated fast path for generated models yet)")
+        tabulated = ", ".join(getattr(m.fast, "table_parameters", ()) or ()) if m.fast is not None else ""
+        extra.append("  rates: the potential-only subexpressions tabulated (numerics.rates = \"tabulated\", the default; "
+                     "\"exact\" evaluates them)" + (f"; the table depends on {tabulated}" if tabulated else ""))
     print("\n".join(lines[:3] + extra + lines[3:]))
     return 0
 
