@@ -321,6 +321,11 @@ def check_threshold(setup: Setup) -> None:
                         f"potential's peak (the model's default is {setup.model.threshold:g} mV).")
 
 
+def stored_bytes(setup: Setup) -> int:
+    """Bytes of the stored fields (vm and extra states, float32 on file, float64 in memory)."""
+    return setup.n_samples * setup.n * (1 + len(setup.case.output_states)) * 8
+
+
 def probe_bytes(n: int, n_pulses: int, n_levels: int) -> int:
     """Bytes of the per-crossing probes (activation, upstroke, rest, peak, APD levels) of n nodes."""
     cap = crossing_cap(n_pulses)  # as simulate() sizes them
