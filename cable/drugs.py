@@ -9,7 +9,7 @@ safety pharmacology)::
 
 Several compounds multiply their factors (independent binding, common practice), and
 the product multiplies the conductance as set by ``[membrane]`` (its ``parameters`` and
-``scale``), before any ``[[region]]``. Example::
+``scale``), before any ``[region.NAME]``. Example::
 
     [drug.compound_a]
     concentration = "1 uM"

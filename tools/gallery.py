@@ -28,7 +28,7 @@ length = "2 cm"
 dx = "100 um"
 radius = "238 um"
 axial_resistivity = "35.4 ohm*cm"
-[[stimulus]]
+[stimulus.S1]
 width = "1 mm"
 amplitude = "500 uA/cm^2"
 duration = "0.5 ms"
@@ -57,7 +57,7 @@ dx = "250 um"
 conductivity = 6.17
 surface_to_volume = 2000
 capacitance = 2
-[[stimulus]]
+[stimulus.S1]
 width = "1 mm"
 amplitude = 100
 duration = 1

@@ -16,6 +16,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from cable import units
+from cable.case import names
 from cable.case.schema import LIST_SECTIONS, SECTIONS, Key
 
 
@@ -33,20 +34,26 @@ PHYSIOLOGICAL_TEMPERATURE = (0.0, 42.0)
 # ----------------------------------------------------------------------------- dataclasses
 @dataclass(frozen=True)
 class Stimulus:
-    """A current pulse train over a zone ``[x, x + width]`` (canonical units)."""
+    """A named current pulse train over a zone ``[x, x + width]`` (canonical units)."""
 
     x: float
     width: float
     amplitude: float
     duration: float
-    start: float = 0.0
+    onset: float = 0.0
     count: int = 1
     cycle_length: float | None = None
+    name: str = ""
+
+    @property
+    def start(self) -> float:
+        """The first pulse's onset [ms] (the old name of :attr:`onset`)."""
+        return self.onset
 
     def onsets(self) -> list[float]:
         """Pulse onset times [ms]."""
         cl = self.cycle_length or 0.0
-        return [self.start + k * cl for k in range(self.count)]
+        return [self.onset + k * cl for k in range(self.count)]
 
 
 @dataclass(frozen=True)
@@ -286,11 +293,17 @@ def parse_assignment(text: str, option: str = "--set") -> tuple[str, object]:
     return key, parsed
 
 
-def set_key(raw: dict, dotted: str, value) -> None:
-    """Set ``section.key`` (list entries by index: ``stimulus.0.amplitude``) in a raw case."""
+def set_key(raw: dict, dotted: str, value, notes: list | None = None) -> None:
+    """Set ``section.key`` (named entries: ``stimulus.S1.amplitude``) in a raw case.
+
+    The key may use the other spellings of :mod:`cable.case.names` (``fibre.dx``, an
+    index ``stimulus.0.start``); a note on each old one is appended to ``notes``.
+    """
     parts = dotted.split(".")
     if not all(parts):
         raise CaseError(f"key {dotted!r} is not a dotted case key such as membrane.scale.g_Na.")
+    dotted = names.canonical_key(dotted, raw, notes)
+    parts = dotted.split(".")
     node = raw
     for depth, part in enumerate(parts[:-1]):
         nxt = parts[depth + 1]
@@ -397,12 +410,13 @@ def load_case(source=None, overrides=(), *, text: str | None = None) -> Case:
         else:
             raw = _read_toml(source)
             _anchor_cellml_path(raw, source)
+        notes = names.canonical_raw(raw) if isinstance(raw, dict) else []
         if isinstance(overrides, (str, bytes)):
             overrides = [overrides]
         items = overrides.items() if isinstance(overrides, dict) else (parse_assignment(o) for o in overrides)
         for key, value in items:
-            set_key(raw, key, value)
-        return from_dict(raw)
+            set_key(raw, key, value, notes)
+        return from_dict(raw, notes=notes)
     except RecursionError:
         raise CaseError(f"the case is nested too deeply (tables or lists within lists more than "
                         f"{_MAX_DEPTH} levels); a case has sections of keys and short lists.") from None
@@ -483,12 +497,14 @@ def _parse_toml(text: str, path) -> dict:
     return raw
 
 
-def from_dict(raw: dict) -> Case:
-    """Validate a raw case dict (see :func:`load_case`)."""
+def from_dict(raw: dict, *, notes=()) -> Case:
+    """Validate a raw case dict (see :func:`load_case`); ``notes`` are added to the case's."""
     from cable.membrane import UnknownModelError, get_model
 
     if not isinstance(raw, dict):
         raise CaseError(f"a case must be a table of sections, got {_fmt(raw)}.")
+    raw = copy.deepcopy(raw)
+    notes = list(dict.fromkeys([*notes, *names.canonical_raw(raw)]))
     for name in raw:
         if name not in _all_sections():
             raise CaseError(f"unknown section [{name}].{_nearest(name, _all_sections())} "
@@ -497,7 +513,6 @@ def from_dict(raw: dict) -> Case:
         raise CaseError("missing section [membrane] (at least: model = \"hodgkin-huxley-1952\"; see `cable models`).")
     if "run" not in raw:
         raise CaseError("missing section [run] (duration = ... ms).")
-    notes: list[str] = []
 
     mem = _read_section("membrane", raw["membrane"], SECTIONS["membrane"])
     mem["model"] = _model_name(mem)
@@ -542,15 +557,14 @@ def from_dict(raw: dict) -> Case:
                                 f"{given!r} differ; give C_m once (either key).")
             fiber = replace(fiber, capacitance=mem["capacitance"])
 
-    stim_raw = raw.get("stimulus", [])
-    if isinstance(stim_raw, dict):
-        stim_raw = [stim_raw]
-    if not isinstance(stim_raw, list):
-        raise CaseError("[[stimulus]] must be a list of tables.")
-    stimuli = tuple(_read_stimulus(k, s, fiber) for k, s in enumerate(stim_raw))
+    stim_raw = raw.get("stimulus", {})
+    if not isinstance(stim_raw, dict):
+        raise CaseError("[stimulus] must hold named tables of keys, e.g. [stimulus.S1] with amplitude = ... and "
+                        "duration = ....")
+    stimuli = tuple(_read_stimulus(name, s, fiber) for name, s in stim_raw.items())
     if fiber is not None and fiber.initial == "one-way" and not stimuli:
-        raise CaseError("fiber.initial = \"one-way\" needs a [[stimulus]]: stimulus 0 starts the wave in the open "
-                        "strand whose state begins the ring.")
+        raise CaseError("fiber.initial = \"one-way\" needs a [stimulus.S1]: the first stimulus starts the wave in "
+                        "the open strand whose state begins the ring.")
 
     num = Numerics(**_read_section("numerics", raw.get("numerics", {}), SECTIONS["numerics"]))
     notes.extend(_reaction_notes(num, model, raw.get("numerics", {})))
@@ -693,8 +707,8 @@ PREPACE_KEYS = {
     "beats": Key("int", default=10, minimum=0, maximum=100000, meaning="number of paced beats (0: no pre-pacing)"),
     "cycle_length": Key("quantity", "time", default=1000.0, minimum=0.0, exclusive_minimum=True, meaning="pacing interval [ms]"),
     "amplitude": Key("quantity", "current_density", minimum=0.0, exclusive_minimum=True,
-                     meaning="stimulus per area [uA/cm^2]; default: the first [[stimulus]]'s"),
-    "duration": Key("quantity", "time", minimum=0.0, exclusive_minimum=True, meaning="pulse duration [ms]; default: the first [[stimulus]]'s"),
+                     meaning="stimulus per area [uA/cm^2]; default: the first stimulus's"),
+    "duration": Key("quantity", "time", minimum=0.0, exclusive_minimum=True, meaning="pulse duration [ms]; default: the first stimulus's"),
     "dt": Key("quantity", "time", minimum=0.0, exclusive_minimum=True, meaning="time step [ms]; default: numerics.dt"),
 }
 
@@ -752,7 +766,7 @@ def _grid_pairs(length: float, dx: float) -> str:
     return "; ".join(out)
 
 
-def _read_stimulus(k: int, table, fiber: Fiber | None) -> Stimulus:
+def _read_stimulus(k: str, table, fiber: Fiber | None) -> Stimulus:
     s = _read_section(f"stimulus.{k}", table, SECTIONS["stimulus"])
     if s["count"] > 1 and s["cycle_length"] is None:
         raise CaseError(f"stimulus.{k}.count = {s['count']} needs stimulus.{k}.cycle_length.")
@@ -765,7 +779,7 @@ def _read_stimulus(k: int, table, fiber: Fiber | None) -> Stimulus:
         if s["x"] + s["width"] > fiber.length + 1e-9:
             raise CaseError(f"stimulus.{k}: zone {s['x']:g} to {s['x'] + s['width']:g} cm extends beyond the fibre "
                             f"end at {fiber.length:g} cm.")
-    return Stimulus(**s)
+    return Stimulus(**s, name=str(k))
 
 
 # ----------------------------------------------------------------------------- TOML out
@@ -792,6 +806,8 @@ def dumps_toml(raw: dict) -> str:
         scalars = {k: v for k, v in d.items() if not isinstance(v, dict) and not _is_table_list(v)}
         subs = {k: v for k, v in d.items() if isinstance(v, dict)}
         lists = {k: v for k, v in d.items() if _is_table_list(v)}
+        # a table of named tables only ([stimulus] holding [stimulus.S1]) needs no header of its own
+        header = header if scalars or lists or not subs else None
         if header:
             lines.append(header)
         for k, v in scalars.items():

@@ -173,8 +173,8 @@ def _main(argv) -> int:
 def add_set_option(parser) -> None:
     """The ``--set KEY=VALUE`` option shared by commands that read a case."""
     parser.add_argument("--set", dest="overrides", action="append", default=[], metavar="KEY=VALUE",
-                        help="override a case key, e.g. --set membrane.scale.g_Na=0.5 or stimulus.0.start=10 "
-                             "(repeatable)")
+                        help="override a case key, e.g. --set membrane.scale.g_Na=0.5 or stimulus.S1.onset=10 "
+                             "(repeatable; default: the case as written)")
 
 
 def say(args, msg: str) -> None:

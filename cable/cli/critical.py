@@ -12,8 +12,8 @@ ORDER = 6
 def add_arguments(p):
     p.add_argument("case", help="case file (TOML)")
     p.add_argument("--vary", required=True, metavar="KEY",
-                   help="the case key to bisect, list entries by index, e.g. region.0.scale.g_Na, "
-                        "region.0.parameters.K_o, region.0.coupling, region.0.end, stimulus.1.start")
+                   help="the case key to bisect, named tables by name, e.g. region.zone.scale.g_Na, "
+                        "region.zone.parameters.K_o, region.zone.coupling, region.zone.end, stimulus.S2.onset")
     p.add_argument("--between", required=True, nargs=2, type=float, metavar=("LOW", "HIGH"),
                    help="the interval, in the key's canonical unit (see `cable keys`); one end must conduct "
                         "and the other block")

@@ -16,7 +16,7 @@ dx = "100 um"
 radius = "238 um"
 axial_resistivity = "35.4 ohm*cm"
 
-[[stimulus]]
+[stimulus.S1]
 amplitude = 500
 duration = "0.5 ms"
 
@@ -66,13 +66,14 @@ def test_case_text_round_trips():
     ("membrane.model='hodgkin-huxley'", "membrane.model"),
     ("membrane.scale.gNa=0.5", "membrane.scale.gNa"),
     ("membrane.parameters.E_NA=50", "membrane.parameters.E_NA"),
-    ("stimulus.0.x=5", "stimulus.0.x"),
+    ("stimulus.S1.x=5", "stimulus.S1.x"),
+    ("stimulus.0.x=5", "stimulus.S1.x"),                        # the old index form names the entry
     ("stimulus.3.x=0", "stimulus.3.x"),
     ("numerics.splitting='strange'", "numerics.splitting"),
     ("output.states=['q']", "output.states"),
     ("measure.cv_window=[0.5, 9]", "measure.cv_window"),
     ("numerics.dt=10", "numerics.dt"),
-    ("stimulus.0.amplitude=1e7", "stimulus.0.amplitude"),   # a unit slip (100 A/cm^2)
+    ("stimulus.S1.amplitude=1e7", "stimulus.S1.amplitude"),   # a unit slip (100 A/cm^2)
 ])
 def test_bad_input_names_the_key(override, key):
     with pytest.raises(CaseError, match=key.replace(".", r"\.")):
