@@ -36,12 +36,12 @@ Example::
 
 from __future__ import annotations
 
-import difflib
 from dataclasses import dataclass, field
 
 import numpy as np
 
-from cable.case.load import CaseError, Key, _param_value, _read_section, convert, register_section
+from cable.case.load import (CaseError, Key, _param_value, _read_section, _resolved_table, convert,
+                             register_section)
 
 #: the keys of one [region.NAME] table
 REGION_KEYS = {
@@ -81,11 +81,6 @@ class Region:
         if self.border > 0.0:
             return np.clip(1.0 - dist / self.border, 0.0, 1.0)
         return (dist == 0.0).astype(float)
-
-
-def _nearest(name, candidates) -> str:
-    near = difflib.get_close_matches(str(name), list(candidates), n=1, cutoff=0.4)
-    return f" Did you mean '{near[0]}'?" if near else ""
 
 
 def validate(raw, case) -> tuple[Region, ...]:
@@ -128,18 +123,10 @@ def validate(raw, case) -> tuple[Region, ...]:
             raise CaseError(f"{where}.end = {table['end']!r}: lies outside the fibre (0 to {length:g} cm).")
         if not r["start"] < r["end"]:
             raise CaseError(f"{where}: start = {table['start']!r} must be less than end = {table['end']!r}.")
-        scale = {}
-        for name, value in (r["scale"] or {}).items():
-            if name not in model.conductances:
-                raise CaseError(f"{where}.scale.{name}: '{name}' is not a scalable conductance of '{model.name}'."
-                                f"{_nearest(name, model.conductances)} Scalable: {', '.join(model.conductances)}.")
-            scale[name] = convert(f"{where}.scale.{name}", value, Key("quantity", minimum=0.0))
+        scale = {name: convert(f"{where}.scale.{name}", value, Key("quantity", minimum=0.0)) for name, value
+                 in _resolved_table(r["scale"] or {}, model, "conductance", f"{where}.scale").items()}
         params = {}
-        for name, value in (r["parameters"] or {}).items():
-            if name not in model.parameter_names:
-                raise CaseError(f"{where}.parameters.{name}: '{name}' is not a parameter of '{model.name}'."
-                                f"{_nearest(name, model.parameter_names)} Parameters: "
-                                f"{', '.join(model.parameter_names)}.")
+        for name, value in _resolved_table(r["parameters"] or {}, model, "parameter", f"{where}.parameters").items():
             par = model.parameter(name)
             params[name] = par.encode(_param_value(f"{where}.parameters.{name}", value, par))
         if not scale and not params and r["coupling"] is None:

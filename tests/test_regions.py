@@ -41,7 +41,7 @@ def lr1_strand(length=1.0, dx=0.01, duration=40.0, regions=(), window=None, **ex
     ({"start": 0.4, "end": 1.5, "scale": {"G_Na": 0.1}},
      r"region\.R1\.end = 1\.5: lies outside the fibre \(0 to 1 cm\)"),
     ({"start": -0.1, "end": 0.5, "scale": {"G_Na": 0.1}}, r"region\.R1\.start = -0\.1: must be at least 0"),
-    ({"start": 0.4, "end": 0.5, "scale": {"g_Na": 0.1}}, r"'g_Na' is not a scalable conductance.*Did you mean 'G_Na'"),
+    ({"start": 0.4, "end": 0.5, "scale": {"gNa": 0.1}}, r"'gNa' is not a scalable conductance.*Did you mean 'G_Na'"),
     ({"start": 0.4, "end": 0.5, "parameters": {"K_0": 8}}, r"region\.R1\.parameters\.K_0.*Did you mean 'K_o'"),
     ({"start": 0.4, "end": 0.5, "coupling": 0.0}, r"region\.R1\.coupling = 0\.0: must be greater than 0"),
     ({"start": 0.4, "end": 0.5, "coupling": 0.5, "border": -0.1}, r"region\.R1\.border = -0\.1: must be at least 0"),

@@ -313,6 +313,7 @@ def set_key(raw: dict, dotted: str, value, notes: list | None = None) -> None:
             index = _index(dotted, part, node)
             node = node[index]
             continue
+        part = _spelt_as(node, part, parts[depth - 1] if depth else "")
         if part not in node:
             if depth == 0 and part not in SECTIONS and part not in _extra_sections():
                 raise CaseError(f"unknown section '{part}' in key {dotted!r}.{_nearest(part, _all_sections())}")
@@ -324,9 +325,22 @@ def set_key(raw: dict, dotted: str, value, notes: list | None = None) -> None:
     if isinstance(node, list):
         node[_index(dotted, last, node)] = value
     elif isinstance(node, dict):
-        node[last] = value
+        node[_spelt_as(node, last, parts[-2] if len(parts) > 1 else "")] = value
     else:
         _not_a_table(dotted, parts[:-1], node)
+
+
+#: tables keyed by a model's names (conductances, parameters), where case is not significant
+_NAME_TABLES = {"scale", "parameters", "block"}
+
+
+def _spelt_as(node: dict, part: str, parent: str) -> str:
+    """``part`` as the table already spells it: ``--set membrane.scale.g_Na`` replaces a
+    case's ``G_Na`` rather than adding a second entry (model names ignore case)."""
+    if parent not in _NAME_TABLES or part in node:
+        return part
+    same = [k for k in node if str(k).casefold() == part.casefold()]
+    return same[0] if len(same) == 1 else part
 
 
 def _not_a_table(dotted, head, node):
@@ -524,14 +538,15 @@ def from_dict(raw: dict, *, notes=()) -> Case:
     if own_cm is not None and mem["capacitance"] is None and "capacitance" not in raw.get("fiber", {}):
         mem["capacitance"] = own_cm
         notes.append(f"membrane.capacitance = {own_cm:g} uF/cm^2, the model's own (give the key to change it).")
-    scale = _read_scale(mem["scale"] or {}, model)
-    params = _read_parameters(mem["parameters"] or {}, model)
+    scale = _read_scale(mem["scale"] or {}, model, notes)
+    params = _read_parameters(mem["parameters"] or {}, model, notes)
     if mem["temperature"] is not None:
         if model.temperature_parameter is None:
             raise CaseError(f"membrane.temperature: model '{model.name}' has no temperature dependence; remove the key.")
-        if model.temperature_parameter in (mem["parameters"] or {}):
+        if model.temperature_parameter in params:
             # one quantity, two keys: refuse rather than let one of them win silently
-            given = raw["membrane"]["parameters"][model.temperature_parameter]
+            given = next(v for k, v in raw["membrane"]["parameters"].items()
+                         if model.resolve(k)[0] == model.temperature_parameter)
             raise CaseError(f"membrane.temperature = {raw['membrane']['temperature']!r} and "
                             f"membrane.parameters.{model.temperature_parameter} = {given!r} both set the "
                             f"temperature; give it once (either key).")
@@ -572,10 +587,7 @@ def from_dict(raw: dict, *, notes=()) -> Case:
     out = _read_section("output", raw.get("output", {}), SECTIONS["output"])
     meas = _read_section("measure", raw.get("measure", {}), SECTIONS["measure"])
 
-    for name in out["states"]:
-        if name not in model.state_names:
-            raise CaseError(f"output.states: '{name}' is not a state of '{model.name}'.{_nearest(name, model.state_names)} "
-                            f"States: {', '.join(model.state_names) or '(none)'}.")
+    out["states"] = tuple(resolve_name(model, name, "state", "output.states", notes) for name in out["states"])
     if num.dt > run["duration"]:
         raise CaseError(f"numerics.dt = {num.dt:g} ms is longer than run.duration = {run['duration']:g} ms.")
     steps = run["duration"] / num.dt
@@ -683,24 +695,52 @@ def _model_name(mem: dict) -> str:
     return mem["model"]
 
 
-def _read_scale(table: dict, model) -> dict:
-    out = {}
+_KINDS = {"conductance": ("a scalable conductance", "Scalable", "conductances"),
+          "parameter": ("a parameter", "Parameters", "parameter_names"),
+          "state": ("a state", "States", "state_names")}
+
+
+def resolve_name(model, name, kind: str, where: str, notes: list | None = None) -> str:
+    """The model's name for a conductance, parameter or state as a case writes it.
+
+    Accepts what :meth:`cable.membrane.base.MembraneModel.resolve` accepts (``g_Na`` for
+    ``G_Na``; an earlier name, whose note is appended to ``notes``); anything else is a
+    CaseError naming ``where``, with the nearest name and the list of valid ones.
+    """
+    found, note = model.resolve(name, kind)
+    if found is None:
+        what, label, attr = _KINDS[kind]
+        valid = getattr(model, attr)
+        raise CaseError(f"{where}: '{name}' is not {what} of '{model.name}'.{_nearest(name, valid)} "
+                        f"{label}: {', '.join(valid) or '(none)'}.")
+    if note and notes is not None and note not in notes:
+        notes.append(note)
+    return found
+
+
+def _resolved_table(table: dict, model, kind: str, section: str, notes=None) -> dict:
+    """``{model's name: value}`` of a table keyed by names; a name given twice is refused."""
+    out, given = {}, {}
     for name, value in table.items():
-        if name not in model.conductances:
-            raise CaseError(f"membrane.scale.{name}: '{name}' is not a scalable conductance of '{model.name}'."
-                            f"{_nearest(name, model.conductances)} Scalable: {', '.join(model.conductances)}.")
-        out[name] = convert(f"membrane.scale.{name}", value, Key("quantity", minimum=0.0))
+        found = resolve_name(model, name, kind, f"{section}.{name}", notes)
+        if found in given:
+            raise CaseError(f"{section}: '{given[found]}' and '{name}' both name {model.name}'s '{found}'; "
+                            f"give it once.")
+        given[found] = name
+        out[found] = value
     return out
 
 
-def _read_parameters(table: dict, model) -> dict:
-    out = {}
-    for name, value in table.items():
-        if name not in model.parameter_names:
-            raise CaseError(f"membrane.parameters.{name}: '{name}' is not a parameter of '{model.name}'."
-                            f"{_nearest(name, model.parameter_names)} Parameters: {', '.join(model.parameter_names)}.")
-        out[name] = _param_value(f"membrane.parameters.{name}", value, model.parameter(name))
-    return out
+def _read_scale(table: dict, model, notes=None) -> dict:
+    table = _resolved_table(table, model, "conductance", "membrane.scale", notes)
+    return {name: convert(f"membrane.scale.{name}", value, Key("quantity", minimum=0.0))
+            for name, value in table.items()}
+
+
+def _read_parameters(table: dict, model, notes=None) -> dict:
+    table = _resolved_table(table, model, "parameter", "membrane.parameters", notes)
+    return {name: _param_value(f"membrane.parameters.{name}", value, model.parameter(name))
+            for name, value in table.items()}
 
 
 PREPACE_KEYS = {

@@ -113,6 +113,11 @@ def current_value(case: Case, key: str) -> float | None:
     parts = key.split(".")
     if parts[0] == "fiber" and len(parts) == 2 and case.fiber is not None:
         return getattr(case.fiber, parts[1], None)
+    if parts[:2] in (["membrane", "scale"], ["membrane", "parameters"]) and len(parts) == 3:
+        from cable.membrane import get_model
+
+        kind = "conductance" if parts[1] == "scale" else "parameter"
+        parts[2] = get_model(case.membrane.model).resolve(parts[2], kind)[0] or parts[2]  # g_Na: G_Na
     if parts[:2] == ["membrane", "scale"] and len(parts) == 3:
         return case.membrane.scale.get(parts[2], 1.0)
     if parts[:2] == ["membrane", "parameters"] and len(parts) == 3:
