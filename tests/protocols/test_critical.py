@@ -81,7 +81,7 @@ def test_ends_that_do_not_straddle_block_are_refused():
 
 
 @pytest.mark.parametrize("kwargs, message", [
-    ({"key": "region.0.scale.G_Nx", "low": 0.0, "high": 1.0}, r"region\.0\.scale\.G_Nx.*Did you mean 'G_Na'"),
+    ({"key": "region.0.scale.G_Nx", "low": 0.0, "high": 1.0}, r"region\.R1\.scale\.G_Nx.*Did you mean 'G_Na'"),
     ({"key": "region.3.coupling", "low": 0.1, "high": 1.0}, r"index 3 is out of range"),
     ({"key": "region.0.scale.G_Na", "low": 1.0, "high": 0.0}, r"low = 1 must be less than high = 0"),
     ({"key": "region.0.scale.G_Na", "low": 0.0, "high": 1.0, "log": True}, r"log = true needs low > 0"),
