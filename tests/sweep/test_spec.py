@@ -90,7 +90,7 @@ def test_sweep_and_keep_fields_do_not_change_a_plain_run():
 
 
 @pytest.mark.parametrize("sweep, message", [
-    ({"membrane.scale.g_NA": [1.0]}, r"membrane\.scale\.g_NA.*Did you mean 'g_Na'"),
+    ({"membrane.scale.gNA": [1.0]}, r"membrane\.scale\.gNA.*Did you mean 'g_Na'"),
     ({"membrane.scael.g_Na": [1.0]}, r"unknown key 'membrane\.scael'.*Did you mean 'scale'"),
     ({"fibr.dx": [0.01]}, r"unknown section 'fibr'.*Did you mean 'fiber'"),
     ({"membrane.scale.g_Na": [-1.0]}, r"membrane\.scale\.g_Na = -1.*at least 0"),
