@@ -280,7 +280,7 @@ def parse_assignment(text: str, option: str = "--set") -> tuple[str, object]:
     ``option`` names the command-line option in messages (``--set``, ``--vary``).
     """
     if not isinstance(text, str) or "=" not in text:
-        example = "membrane.scale.g_Na=[1,0.5]" if option == "--vary" else "membrane.scale.g_Na=0.5"
+        example = "membrane.scale.g_Na=[1,0.5]" if option in ("--over", "--vary") else "membrane.scale.g_Na=0.5"
         raise CaseError(f"{option} {text!r}: expected KEY=VALUE, e.g. {example}.")
     key, value = text.split("=", 1)
     key, value = key.strip(), value.strip()

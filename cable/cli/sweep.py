@@ -30,7 +30,7 @@ def add_arguments(p):
                         "or a range, e.g. --over 'stimulus.S1.amplitude={start=\"100 uA/cm^2\", stop=\"500 uA/cm^2\", "
                         "num=3}' (repeatable; adds to or replaces the case's [sweep]; default: the case's [sweep])")
     # --vary KEY=VALUES, the earlier spelling (critical and calibrate's --vary takes one KEY)
-    p.add_argument("--vary", dest="vary", action="append", help=argparse.SUPPRESS)
+    p.add_argument("--vary", dest="vary_earlier", action="append", default=[], help=argparse.SUPPRESS)
     p.add_argument("--batch", type=int, metavar="N",
                    help="most points per task (default 16): points that share a time loop run as the strands of "
                         "one kernel call, with the same results bit for bit; 1 runs each point alone")
@@ -56,11 +56,12 @@ def run(args):
     from pathlib import Path
 
     case = load_case(Path(args.case), args.overrides)
-    if args.vary:
+    swept = [(text, "--over") for text in args.vary] + [(text, "--vary") for text in args.vary_earlier]
+    if swept:
         raw = case.raw
         table = dict(raw.get("sweep", {}))
-        for text in args.vary:
-            key, value = parse_assignment(text, option="--over")
+        for text, option in swept:
+            key, value = parse_assignment(text, option=option)  # the message names the option given
             _drop_nested(table, key)
             table[key] = value
         raw = dict(raw, sweep=table)

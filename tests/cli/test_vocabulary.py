@@ -74,7 +74,7 @@ def test_sweep_values_and_a_bisected_key_have_different_names():
     parser = build_parser()
     assert parser.parse_args(["sweep", "c.toml", "--over", "membrane.scale.g_Na=[1,0.5]"]).vary == \
         ["membrane.scale.g_Na=[1,0.5]"]
-    assert parser.parse_args(["sweep", "c.toml", "--vary", "membrane.scale.g_Na=[1,0.5]"]).vary == \
+    assert parser.parse_args(["sweep", "c.toml", "--vary", "membrane.scale.g_Na=[1,0.5]"]).vary_earlier == \
         ["membrane.scale.g_Na=[1,0.5]"]                        # the earlier spelling, hidden
     _, commands = _commands()
     sweep_opts = {o for a in _visible(commands["sweep"]) for o in a.option_strings}
@@ -139,3 +139,11 @@ def test_keys_critical_example_names_work_on_the_zone_case(capsys):
         assert case.with_overrides({key: 0.5 if "end" not in key and "dx" not in key else 0.4 if "end" in key
                                     else 0.005}) is not None
     assert main(["keys", "fibre"]) == 0
+
+
+def test_a_bad_swept_value_names_the_option_given(capsys):
+    case = str(ROOT / "cases" / "squid_axon.toml")
+    assert main(["sweep", case, "--over", "membrane.scale.g_Na", "-q"]) == 2
+    assert "--over 'membrane.scale.g_Na': expected KEY=VALUE" in capsys.readouterr().err
+    assert main(["sweep", case, "--vary", "membrane.scale.g_Na", "-q"]) == 2
+    assert "--vary 'membrane.scale.g_Na': expected KEY=VALUE" in capsys.readouterr().err
