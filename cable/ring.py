@@ -39,8 +39,8 @@ CHECK_STEPS = 20
 
 
 def ring_cases(case):
-    """(ring case, strand case): the stimuli of the ring run, and the one pulse of stimulus 0."""
-    first = replace(case.stimuli[0], count=1, start=0.0)
+    """(ring case, strand case): the stimuli of the ring run, and the one pulse of the first stimulus."""
+    first = replace(case.stimuli[0], count=1, onset=0.0)
     return replace(case, stimuli=case.stimuli[1:]), replace(case, stimuli=(first,))
 
 
