@@ -9,7 +9,7 @@ safety pharmacology)::
 
 Several compounds multiply their factors (independent binding, common practice), and
 the product multiplies the conductance as set by ``[membrane]`` (its ``parameters`` and
-``scale``), before any ``[[region]]``. Example::
+``scale``), before any ``[region.NAME]``. Example::
 
     [drug.compound_a]
     concentration = "1 uM"
@@ -23,7 +23,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from cable.case.load import CaseError, Key, _nearest, _read_section, register_section
+from cable.case.load import CaseError, Key, _read_section, _resolved_table, register_section
 
 #: the keys of one [drug.NAME] entry
 DRUG_KEYS = {
@@ -79,11 +79,8 @@ def validate(raw, case) -> tuple[Drug, ...]:
             raise CaseError(f"drug.{name}.block is empty; give at least one conductance, e.g. "
                             f"{{{model.conductances[0]} = {{ic50 = \"1 uM\", hill = 1}}}}.")
         block = {}
-        for g, spec in d["block"].items():
+        for g, spec in _resolved_table(d["block"], model, "conductance", f"drug.{name}.block").items():
             where = f"drug.{name}.block.{g}"
-            if g not in model.conductances:
-                raise CaseError(f"{where}: '{g}' is not a scalable conductance of '{model.name}'."
-                                f"{_nearest(g, model.conductances)} Scalable: {', '.join(model.conductances)}.")
             if not isinstance(spec, dict):
                 raise CaseError(f"{where} = {spec!r}: must be a table {{ic50 = ..., hill = ...}}.")
             b = _read_section(where, spec, BLOCK_KEYS)

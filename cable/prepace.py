@@ -50,7 +50,7 @@ def prepace_nodes(case, model, p, v0, s0):
 
     cfg = case.membrane.prepace
     if not case.stimuli and (cfg["amplitude"] is None or cfg["duration"] is None):
-        raise CaseError("membrane.prepace needs amplitude and duration (or a [[stimulus]] to take them from).")
+        raise CaseError("membrane.prepace needs amplitude and duration (or a stimulus table to take them from).")
     amp = cfg["amplitude"] if cfg["amplitude"] is not None else case.stimuli[0].amplitude
     dur = cfg["duration"] if cfg["duration"] is not None else case.stimuli[0].duration
     dt = cfg["dt"] if cfg["dt"] is not None else case.numerics.dt
@@ -159,7 +159,7 @@ def settle_nodes(case, model, p, v0, s0):
                               for i in np.flatnonzero(rows[r] != default))
             raise CaseError(f"the membrane has no stable rest with {which} (the unstimulated cell diverged); "
                             f"change that in membrane.parameters, membrane.scale, membrane.temperature or the "
-                            f"[[region]] that sets it.")
+                            f"[region.NAME] that sets it.")
         v_end, s_end, t, rate = result
         worst = max(worst, rate)
         longest = max(longest, t)

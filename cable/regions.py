@@ -1,6 +1,6 @@
-"""Regions of the fibre whose membrane or coupling differ: the ``[[region]]`` case section.
+"""Regions of the fibre whose membrane or coupling differ: the ``[region.NAME]`` case tables.
 
-A region is a stretch ``[start, end]`` of the fibre with any of:
+A region is a named stretch ``[start, end]`` of the fibre with any of:
 
 * ``scale``: factors on the model's scalable conductances (``g_Na = 0.2``), relative to
   the strand's value set by ``[membrane]`` (its ``parameters`` and ``scale``);
@@ -15,15 +15,18 @@ A region is a stretch ``[start, end]`` of the fibre with any of:
   ``border = 0`` (the default) is an abrupt change.
 
 The weight of a region at position x is 1 inside ``[start, end]`` and falls linearly to
-0 at a distance ``border`` outside it. Regions are applied in the order given and each
-blends the values left by the earlier ones toward its own: **where regions overlap,
+0 at a distance ``border`` outside it. Regions are applied in the order of the file and
+each blends the values left by the earlier ones toward its own: **where regions overlap,
 the later entry wins** (its weight-1 core takes its values exactly, its border blends
 with whatever lies beneath). A labelled parameter (a cell type) cannot be blended: it
 takes the region's label where the weight is at least one half.
 
+The old list form ``[[region]]`` is read for one more release, its entries named R1,
+R2, ... (see :mod:`cable.case.names`).
+
 Example::
 
-    [[region]]                 # an ischaemic zone with a 1 mm border
+    [region.ischaemic]         # an ischaemic zone with a 1 mm border
     start = "8 mm"
     end = "12 mm"
     border = "1 mm"
@@ -33,14 +36,14 @@ Example::
 
 from __future__ import annotations
 
-import difflib
 from dataclasses import dataclass, field
 
 import numpy as np
 
-from cable.case.load import CaseError, Key, _param_value, _read_section, convert, register_section
+from cable.case.load import (CaseError, Key, _param_value, _read_section, _resolved_table, convert,
+                             register_section)
 
-#: the keys of one [[region]] entry
+#: the keys of one [region.NAME] table
 REGION_KEYS = {
     "start": Key("quantity", "length", required=True, minimum=0.0, meaning="left end of the region [cm]"),
     "end": Key("quantity", "length", required=True, minimum=0.0, meaning="right end of the region [cm]"),
@@ -67,6 +70,7 @@ class Region:
     scale: dict = field(default_factory=dict)
     parameters: dict = field(default_factory=dict)
     coupling: float | None = None
+    name: str = ""
 
     def weight(self, x: np.ndarray) -> np.ndarray:
         """Weight of the region at positions ``x`` [cm]: 1 inside, linear ramp over the border, else 0."""
@@ -79,18 +83,14 @@ class Region:
         return (dist == 0.0).astype(float)
 
 
-def _nearest(name, candidates) -> str:
-    near = difflib.get_close_matches(str(name), list(candidates), n=1, cutoff=0.4)
-    return f" Did you mean '{near[0]}'?" if near else ""
-
-
 def validate(raw, case) -> tuple[Region, ...]:
-    """Validate the ``[[region]]`` entries of a case (registered with the case loader).
+    """Validate the ``[region.NAME]`` tables of a case (registered with the case loader).
 
     Parameters
     ----------
-    raw : list of dict or dict
-        The section as read from TOML.
+    raw : dict
+        The section as read from TOML, in the loader's spelling (named tables; the old
+        list form is renamed by :func:`cable.case.names.canonical_raw`).
     case : Case
         The case validated so far (its fibre and membrane model).
 
@@ -106,17 +106,16 @@ def validate(raw, case) -> tuple[Region, ...]:
     from cable.fiber import node_positions
     from cable.membrane import get_model
 
-    if isinstance(raw, dict):
-        raw = [raw]
-    if not isinstance(raw, list) or not all(isinstance(r, dict) for r in raw):
-        raise CaseError("[[region]] must be a list of tables (write each entry as [[region]]).")
+    if not isinstance(raw, dict) or not all(isinstance(r, dict) for r in raw.values()):
+        raise CaseError("[region] must hold named tables of keys, e.g. [region.zone] with start, end and scale.")
     if raw and case.fiber is None:
-        raise CaseError("[[region]] needs a [fiber]: a single cell has no regions (use [membrane] scale/parameters).")
+        raise CaseError("[region.NAME] needs a [fiber]: a single cell has no regions (use [membrane] "
+                        "scale/parameters).")
     model = get_model(case.membrane.model)
     length = case.fiber.length if case.fiber is not None else 0.0
     x = node_positions(case.fiber) if case.fiber is not None else np.zeros(0)
     out = []
-    for k, table in enumerate(raw):
+    for k, table in raw.items():
         where = f"region.{k}"
         r = _read_section(where, table, REGION_KEYS)
         tol = EDGE_TOLERANCE * max(1.0, length)
@@ -124,25 +123,17 @@ def validate(raw, case) -> tuple[Region, ...]:
             raise CaseError(f"{where}.end = {table['end']!r}: lies outside the fibre (0 to {length:g} cm).")
         if not r["start"] < r["end"]:
             raise CaseError(f"{where}: start = {table['start']!r} must be less than end = {table['end']!r}.")
-        scale = {}
-        for name, value in (r["scale"] or {}).items():
-            if name not in model.conductances:
-                raise CaseError(f"{where}.scale.{name}: '{name}' is not a scalable conductance of '{model.name}'."
-                                f"{_nearest(name, model.conductances)} Scalable: {', '.join(model.conductances)}.")
-            scale[name] = convert(f"{where}.scale.{name}", value, Key("quantity", minimum=0.0))
+        scale = {name: convert(f"{where}.scale.{name}", value, Key("quantity", minimum=0.0)) for name, value
+                 in _resolved_table(r["scale"] or {}, model, "conductance", f"{where}.scale").items()}
         params = {}
-        for name, value in (r["parameters"] or {}).items():
-            if name not in model.parameter_names:
-                raise CaseError(f"{where}.parameters.{name}: '{name}' is not a parameter of '{model.name}'."
-                                f"{_nearest(name, model.parameter_names)} Parameters: "
-                                f"{', '.join(model.parameter_names)}.")
+        for name, value in _resolved_table(r["parameters"] or {}, model, "parameter", f"{where}.parameters").items():
             par = model.parameter(name)
             params[name] = par.encode(_param_value(f"{where}.parameters.{name}", value, par))
         if not scale and not params and r["coupling"] is None:
             raise CaseError(f"{where} changes nothing: give scale (e.g. {{{model.conductances[0]} = 0.5}}), "
                             f"parameters or coupling.")
         region = Region(start=r["start"], end=r["end"], border=r["border"], scale=scale, parameters=params,
-                        coupling=r["coupling"])
+                        coupling=r["coupling"], name=str(k))
         if x.size and not np.any(region.weight(x) > 0.0):
             raise CaseError(f"{where}: {r['start']:g} to {r['end']:g} cm holds no node at fiber.dx = "
                             f"{case.fiber.dx:g} cm; widen the region, give it a border, or refine dx.")
@@ -244,4 +235,4 @@ def node_fields(case, model, x: np.ndarray, p: np.ndarray) -> tuple[np.ndarray, 
             coupling_factors(x, regions))
 
 
-register_section("region", is_list=True, validate=validate)
+register_section("region", is_list=False, validate=validate)

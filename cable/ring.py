@@ -39,8 +39,8 @@ CHECK_STEPS = 20
 
 
 def ring_cases(case):
-    """(ring case, strand case): the stimuli of the ring run, and the one pulse of stimulus 0."""
-    first = replace(case.stimuli[0], count=1, start=0.0)
+    """(ring case, strand case): the stimuli of the ring run, and the one pulse of the first stimulus."""
+    first = replace(case.stimuli[0], count=1, onset=0.0)
     return replace(case, stimuli=case.stimuli[1:]), replace(case, stimuli=(first,))
 
 
@@ -75,10 +75,10 @@ def one_way_start(case, model, grid, p, v0, s0, threshold, ion_scale):
         t += CHECK_STEPS * dt
         if status != integrate.OK:
             raise CaseError("fiber.initial = \"one-way\": the open strand run that starts the ring failed "
-                            "numerically; check stimulus 0 and numerics.dt.")
+                            "numerically; check the first stimulus and numerics.dt.")
         if arrays.nact[n - 1] > 0:
             return v, np.ascontiguousarray(arrays.s), t
-    raise CaseError(f"fiber.initial = \"one-way\": the wave of stimulus 0 did not reach the far end of the open "
+    raise CaseError(f"fiber.initial = \"one-way\": the wave of the first stimulus did not reach the far end of the open "
                     f"strand within run.duration = {case.duration:g} ms (no capture, or block); raise the stimulus "
                     f"or lengthen the run.")
 

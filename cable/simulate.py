@@ -170,6 +170,7 @@ def stimulus_pulses(case: Case, x: np.ndarray | None, notes: list) -> np.ndarray
     cm = case.capacitance
     rows = []
     for k, s in enumerate(case.stimuli):
+        label = s.name or k
         if x is None:
             i0, i1 = 0, 1
         else:
@@ -178,7 +179,7 @@ def stimulus_pulses(case: Case, x: np.ndarray | None, notes: list) -> np.ndarray
             if inside.size == 0:
                 near = int(np.argmin(np.abs(x - (s.x + 0.5 * s.width))))
                 inside = np.array([near])
-                notes.append(f"stimulus.{k}: zone narrower than dx; applied at the nearest node x = {x[near]:g} cm.")
+                notes.append(f"stimulus.{label}: zone narrower than dx; applied at the nearest node x = {x[near]:g} cm.")
             i0, i1 = int(inside[0]), int(inside[-1]) + 1
         for onset in s.onsets():
             rows.append((onset, onset + s.duration, i0, i1, s.amplitude / cm))
@@ -249,7 +250,7 @@ def prepare(case) -> Setup:
     if case.stimuli and pulses.shape[0] and not np.any(pulses[:, 0] < t_end):
         first = float(np.min(pulses[:, 0]))
         notes.append(f"warning: no stimulus starts before the run ends (the first at {first:g} ms, the run ends at "
-                     f"{t_end:g} ms): nothing is stimulated; lengthen run.duration or move stimulus.N.start.")
+                     f"{t_end:g} ms): nothing is stimulated; lengthen run.duration or move stimulus.NAME.onset.")
     pulses = pulses[pulses[:, 0] < t_end]
     cv_window = None
     if x is not None:
@@ -298,8 +299,8 @@ def _ring_start(case, model, grid, p, v0, s0, pulses, cm, notes):
 
     threshold = case.threshold if case.threshold is not None else model.threshold
     v0, s0, t_start = one_way_start(case, model, grid, p, v0, s0, threshold, model.ion_scale(cm))
-    notes.append(f"ring: started one-way from an open strand {t_start:g} ms after stimulus 0, its wave at the far "
-                 f"end; stimulus 0 is not applied on the ring.")
+    notes.append(f"ring: started one-way from an open strand {t_start:g} ms after the first stimulus, its wave at the far "
+                 f"end; the first stimulus is not applied on the ring.")
     return v0, s0, stimulus_pulses(ring_cases(case)[0], grid.x, notes)
 
 

@@ -25,7 +25,7 @@ def lr1_strand(length=1.0, dx=0.01, duration=40.0, regions=(), window=None, **ex
         "numerics": {"dt": 0.01},
         "run": {"duration": duration},
         "output": {"every": 0.5},
-        "region": [dict(r) for r in regions],
+        "region": {f"R{k + 1}": dict(r) for k, r in enumerate(regions)},
     }
     if window is not None:
         case["measure"] = {"cv_window": list(window)}
@@ -37,19 +37,19 @@ def lr1_strand(length=1.0, dx=0.01, duration=40.0, regions=(), window=None, **ex
 
 # ----------------------------------------------------------------------------- validation
 @pytest.mark.parametrize("region, message", [
-    ({"start": 0.6, "end": 0.4, "scale": {"G_Na": 0.1}}, r"region\.0: start = 0\.6 must be less than end = 0\.4"),
+    ({"start": 0.6, "end": 0.4, "scale": {"G_Na": 0.1}}, r"region\.R1: start = 0\.6 must be less than end = 0\.4"),
     ({"start": 0.4, "end": 1.5, "scale": {"G_Na": 0.1}},
-     r"region\.0\.end = 1\.5: lies outside the fibre \(0 to 1 cm\)"),
-    ({"start": -0.1, "end": 0.5, "scale": {"G_Na": 0.1}}, r"region\.0\.start = -0\.1: must be at least 0"),
-    ({"start": 0.4, "end": 0.5, "scale": {"g_Na": 0.1}}, r"'g_Na' is not a scalable conductance.*Did you mean 'G_Na'"),
-    ({"start": 0.4, "end": 0.5, "parameters": {"K_0": 8}}, r"region\.0\.parameters\.K_0.*Did you mean 'K_o'"),
-    ({"start": 0.4, "end": 0.5, "coupling": 0.0}, r"region\.0\.coupling = 0\.0: must be greater than 0"),
-    ({"start": 0.4, "end": 0.5, "coupling": 0.5, "border": -0.1}, r"region\.0\.border = -0\.1: must be at least 0"),
+     r"region\.R1\.end = 1\.5: lies outside the fibre \(0 to 1 cm\)"),
+    ({"start": -0.1, "end": 0.5, "scale": {"G_Na": 0.1}}, r"region\.R1\.start = -0\.1: must be at least 0"),
+    ({"start": 0.4, "end": 0.5, "scale": {"gNa": 0.1}}, r"'gNa' is not a scalable conductance.*Did you mean 'G_Na'"),
+    ({"start": 0.4, "end": 0.5, "parameters": {"K_0": 8}}, r"region\.R1\.parameters\.K_0.*Did you mean 'K_o'"),
+    ({"start": 0.4, "end": 0.5, "coupling": 0.0}, r"region\.R1\.coupling = 0\.0: must be greater than 0"),
+    ({"start": 0.4, "end": 0.5, "coupling": 0.5, "border": -0.1}, r"region\.R1\.border = -0\.1: must be at least 0"),
     ({"start": 0.4, "end": 0.5, "coupling": 0.5, "bordr": 0.1},
-     r"unknown key 'region\.0\.bordr'\. Did you mean 'border'"),
-    ({"start": 0.4, "end": 0.5}, r"region\.0 changes nothing"),
+     r"unknown key 'region\.R1\.bordr'\. Did you mean 'border'"),
+    ({"start": 0.4, "end": 0.5}, r"region\.R1 changes nothing"),
     ({"start": 0.401, "end": 0.404, "coupling": 0.5}, r"holds no node at fiber\.dx = 0\.01 cm"),
-    ({"start": 0.4, "end": 0.5, "parameters": {"K_o": "8 mV"}}, r"region\.0\.parameters\.K_o"),
+    ({"start": 0.4, "end": 0.5, "parameters": {"K_o": "8 mV"}}, r"region\.R1\.parameters\.K_o"),
 ])
 def test_invalid_region_names_key_and_value(region, message):
     with pytest.raises(cable.CaseError, match=message):
@@ -60,18 +60,19 @@ def test_region_needs_a_fibre():
     case = lr1_strand(regions=[{"start": 0.1, "end": 0.2, "coupling": 0.5}])
     del case["fiber"]
     case["measure"] = {}
-    with pytest.raises(cable.CaseError, match=r"\[\[region\]\] needs a \[fiber\]"):
+    with pytest.raises(cable.CaseError, match=r"\[region\.NAME\] needs a \[fiber\]"):
         cable.load_case(case)
 
 
-def test_keys_address_region_entries_by_index():
+def test_keys_address_region_entries_by_name_and_by_their_old_index():
     case = cable.load_case(lr1_strand(regions=[{"start": 0.1, "end": 0.2, "scale": {"G_Na": 0.5}},
                                                {"start": 0.5, "end": 0.6, "coupling": 0.3}]))
     changed = case.with_overrides({"region.1.coupling": 0.1, "region.0.scale.G_Na": 0.2})
     assert changed.extra["region"][0].scale["G_Na"] == 0.2
     assert changed.extra["region"][1].coupling == 0.1
     assert cable.load_case(case, ["region.0.end=0.3"]).extra["region"][0].end == 0.3
-    with pytest.raises(cable.CaseError, match=r"index 2 is out of range; the case has 2 entries"):
+    assert changed == case.with_overrides({"region.R2.coupling": 0.1, "region.R1.scale.G_Na": 0.2})
+    with pytest.raises(cable.CaseError, match=r"index 2 is out of range; the case has 2 region entries \(R1, R2\)"):
         case.with_overrides({"region.2.coupling": 0.1})
 
 

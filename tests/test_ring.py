@@ -78,7 +78,7 @@ def test_invalid_rings(change, message):
 def test_one_way_needs_a_stimulus_and_no_safety_factor():
     case = ring(6.0, 10.0)
     del case["stimulus"]
-    with pytest.raises(cable.CaseError, match="needs a \\[\\[stimulus\\]\\]"):
+    with pytest.raises(cable.CaseError, match="needs a \\[stimulus\\.S1\\]"):
         cable.load_case(case)
     case = ring(6.0, 10.0, )
     case["measure"] = {"safety_factor": True}

@@ -120,9 +120,9 @@ BATCH_POINTS, BATCH_SIZE = 64, 16
 
 SMALL = {"membrane": {"model": "hodgkin-huxley-1952"},
          "fiber": {"length": 1.0, "dx": 0.01, "radius": "238 um", "axial_resistivity": "35.4 ohm*cm"},
-         "stimulus": [{"amplitude": 500.0, "duration": 0.5, "width": 0.05}],
+         "stimulus": {"S1": {"amplitude": 500.0, "duration": 0.5, "width": 0.05}},
          "numerics": {"dt": 0.01}, "run": {"duration": 20.0}, "output": {"every": 0.1},
-         "sweep": {"stimulus.0.amplitude": {"start": 500.0, "stop": 1000.0, "num": BATCH_POINTS}}}
+         "sweep": {"stimulus.S1.amplitude": {"start": 500.0, "stop": 1000.0, "num": BATCH_POINTS}}}
 
 
 def time_batching(folder: Path, repeat: int) -> dict:

@@ -28,7 +28,7 @@ length = "2 cm"
 dx = "100 um"
 radius = "238 um"
 axial_resistivity = "35.4 ohm*cm"
-[[stimulus]]
+[stimulus.S1]
 width = "1 mm"
 amplitude = "500 uA/cm^2"
 duration = "0.5 ms"
@@ -57,7 +57,7 @@ dx = "250 um"
 conductivity = 6.17
 surface_to_volume = 2000
 capacitance = 2
-[[stimulus]]
+[stimulus.S1]
 width = "1 mm"
 amplitude = 100
 duration = 1
@@ -89,7 +89,7 @@ def commands(tmp: Path, out: Path, dpi: int | None = None) -> list[list[str]]:
         ["traces", str(tmp / "axon.nc"), "--at", "0.5", "1.5", "--states", "m", "h", "n",
          "--currents", "I_Na", "I_K", "-o", str(out / "traces_panels.png")],
         ["sweep", str(sweep), "-o", str(tmp / "sweep.nc"), "--workers", "2"],
-        ["plot-sweep", str(tmp / "sweep.nc"), "--y", "conduction_velocity", "--x", "g_Na", "--hue", "temperature",
+        ["plot-sweep", str(tmp / "sweep.nc"), "--y", "conduction_velocity", "--x", "g_Na", "--curves-by", "temperature",
          "-o", str(out / "plot_sweep.png")],
         ["threshold", str(cell), "--durations", "0.1", "0.5", "2", "5", "--mode", "cell", "--observe", "10",
          "--tolerance", "0.02", "-q", "--figure", str(out / "threshold.png")],
@@ -101,7 +101,7 @@ def commands(tmp: Path, out: Path, dpi: int | None = None) -> list[list[str]]:
     if dpi:
         for cmd in cmds:
             if cmd[0] in ("map", "traces", "plot-sweep"):
-                cmd += ["--dpi", str(dpi)]
+                cmd += ["--figure-dpi", str(dpi)]
             elif "--figure" in cmd:
                 cmd += ["--figure-dpi", str(dpi)]
     return cmds

@@ -26,7 +26,7 @@ cells = [
          "axon = {\n"
          "    \"membrane\": {\"model\": \"hodgkin-huxley-1952\", \"temperature\": \"18.5 degC\"},\n"
          "    \"fiber\": {\"length\": \"2 cm\", \"dx\": \"200 um\", \"radius\": \"238 um\", \"axial_resistivity\": \"35.4 ohm*cm\"},\n"
-         "    \"stimulus\": [{\"width\": \"1 mm\", \"amplitude\": \"500 uA/cm^2\", \"duration\": \"0.5 ms\"}],\n"
+         "    \"stimulus\": {\"S1\": {\"width\": \"1 mm\", \"amplitude\": \"500 uA/cm^2\", \"duration\": \"0.5 ms\"}},\n"
          "    \"numerics\": {\"dt\": \"10 us\"},\n"
          "    \"run\": {\"duration\": \"5 ms\"},\n"
          "    \"output\": {\"every\": \"0.05 ms\"},\n"
@@ -49,12 +49,12 @@ cells = [
     md("## 2. Block from a local injury\n\n"
        "A 4 mm segment in the middle of the fibre keeps only a fraction of its sodium conductance, with a "
        "1 mm border over which it ramps back to normal. Does the wave get through?"),
-    code("injured = dict(axon, region=[{\"start\": \"8 mm\", \"end\": \"12 mm\", \"border\": \"1 mm\",\n"
-         "                               \"scale\": {\"g_Na\": 0.1}}])\n"
+    code("injured = dict(axon, region={\"injury\": {\"start\": \"8 mm\", \"end\": \"12 mm\", \"border\": \"1 mm\",\n"
+         "                                         \"scale\": {\"g_Na\": 0.1}}})\n"
          "ds = cable.simulate(injured)\n"
          "print(f\"blocked: {bool(ds.blocked[0])}, last activated at x = {float(ds.block_x[0]):.2f} cm\")"),
     md("At which fraction of g_Na in the segment does conduction turn into block? `find_critical` bisects it:"),
-    code("critical = cable.find_critical(injured, \"region.0.scale.g_Na\", 0.05, 1.0, tolerance=0.02)\n"
+    code("critical = cable.find_critical(injured, \"region.injury.scale.g_Na\", 0.05, 1.0, tolerance=0.02)\n"
          "value = critical.attrs[\"critical_value\"]\n"
          "print(f\"conduction fails below g_Na x {value:.3f} in the segment ({critical.attrs['runs']} runs)\")"),
     md("## 3. A space-time map for a figure\n\n"

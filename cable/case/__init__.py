@@ -4,7 +4,7 @@ from cable.case.load import (Case, CaseError, Fiber, Membrane, Numerics, Stimulu
                              parse_assignment, register_section, set_key)
 from cable.case.schema import SECTIONS
 import cable.sweep.spec  # noqa: E402,F401  registers the [sweep] section
-import cable.regions  # noqa: E402,F401  registers the [[region]] section
+import cable.regions  # noqa: E402,F401  registers the [region] section
 import cable.drugs  # noqa: E402,F401  registers the [drug] section
 import cable.electrodes  # noqa: E402,F401  registers the [[electrode]] section
 

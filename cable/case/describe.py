@@ -104,8 +104,8 @@ def case_facts(case) -> list[tuple[str, str]]:
         start = "0" if s.x == 0 else length(s.x)
         where = f" at {start}–{length(s.x + s.width)}" if case.fiber is not None else ""
         train = f", {s.count} × every {time(s.cycle_length)}" if s.count > 1 and s.cycle_length else ""
-        facts.append((f"stimulus {k}", f"{number(s.amplitude)} µA/cm² for {time(s.duration)} from "
-                                       f"{time(s.start)}{where}{train}"))
+        facts.append((f"stimulus {s.name or k}", f"{number(s.amplitude)} µA/cm² for {time(s.duration)} from "
+                                                 f"{time(s.onset)}{where}{train}"))
     regions = case.raw.get("region")
     if regions:
         facts.append(("regions", str(len(regions) if isinstance(regions, (list, dict)) else 1)))

@@ -16,6 +16,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from cable import units
+from cable.case import names
 from cable.case.schema import LIST_SECTIONS, SECTIONS, Key
 
 
@@ -33,20 +34,26 @@ PHYSIOLOGICAL_TEMPERATURE = (0.0, 42.0)
 # ----------------------------------------------------------------------------- dataclasses
 @dataclass(frozen=True)
 class Stimulus:
-    """A current pulse train over a zone ``[x, x + width]`` (canonical units)."""
+    """A named current pulse train over a zone ``[x, x + width]`` (canonical units)."""
 
     x: float
     width: float
     amplitude: float
     duration: float
-    start: float = 0.0
+    onset: float = 0.0
     count: int = 1
     cycle_length: float | None = None
+    name: str = ""
+
+    @property
+    def start(self) -> float:
+        """The first pulse's onset [ms] (the old name of :attr:`onset`)."""
+        return self.onset
 
     def onsets(self) -> list[float]:
         """Pulse onset times [ms]."""
         cl = self.cycle_length or 0.0
-        return [self.start + k * cl for k in range(self.count)]
+        return [self.onset + k * cl for k in range(self.count)]
 
 
 @dataclass(frozen=True)
@@ -304,7 +311,7 @@ def parse_assignment(text: str, option: str = "--set") -> tuple[str, object]:
     ``option`` names the command-line option in messages (``--set``, ``--vary``).
     """
     if not isinstance(text, str) or "=" not in text:
-        example = "membrane.scale.g_Na=[1,0.5]" if option == "--vary" else "membrane.scale.g_Na=0.5"
+        example = "membrane.scale.g_Na=[1,0.5]" if option in ("--over", "--vary") else "membrane.scale.g_Na=0.5"
         raise CaseError(f"{option} {text!r}: expected KEY=VALUE, e.g. {example}.")
     key, value = text.split("=", 1)
     key, value = key.strip(), value.strip()
@@ -317,11 +324,17 @@ def parse_assignment(text: str, option: str = "--set") -> tuple[str, object]:
     return key, parsed
 
 
-def set_key(raw: dict, dotted: str, value) -> None:
-    """Set ``section.key`` (list entries by index: ``stimulus.0.amplitude``) in a raw case."""
+def set_key(raw: dict, dotted: str, value, notes: list | None = None) -> None:
+    """Set ``section.key`` (named entries: ``stimulus.S1.amplitude``) in a raw case.
+
+    The key may use the other spellings of :mod:`cable.case.names` (``fibre.dx``, an
+    index ``stimulus.0.start``); a note on each old one is appended to ``notes``.
+    """
     parts = dotted.split(".")
     if not all(parts):
         raise CaseError(f"key {dotted!r} is not a dotted case key such as membrane.scale.g_Na.")
+    dotted = names.canonical_key(dotted, raw, notes)
+    parts = dotted.split(".")
     node = raw
     for depth, part in enumerate(parts[:-1]):
         nxt = parts[depth + 1]
@@ -331,6 +344,7 @@ def set_key(raw: dict, dotted: str, value) -> None:
             index = _index(dotted, part, node)
             node = node[index]
             continue
+        part = _spelt_as(node, part, parts[depth - 1] if depth else "")
         if part not in node:
             if depth == 0 and part not in SECTIONS and part not in _extra_sections():
                 raise CaseError(f"unknown section '{part}' in key {dotted!r}.{_nearest(part, _all_sections())}")
@@ -342,9 +356,22 @@ def set_key(raw: dict, dotted: str, value) -> None:
     if isinstance(node, list):
         node[_index(dotted, last, node)] = value
     elif isinstance(node, dict):
-        node[last] = value
+        node[_spelt_as(node, last, parts[-2] if len(parts) > 1 else "")] = value
     else:
         _not_a_table(dotted, parts[:-1], node)
+
+
+#: tables keyed by a model's names (conductances, parameters), where case is not significant
+_NAME_TABLES = {"scale", "parameters", "block"}
+
+
+def _spelt_as(node: dict, part: str, parent: str) -> str:
+    """``part`` as the table already spells it: ``--set membrane.scale.g_Na`` replaces a
+    case's ``G_Na`` rather than adding a second entry (model names ignore case)."""
+    if parent not in _NAME_TABLES or part in node:
+        return part
+    same = [k for k in node if str(k).casefold() == part.casefold()]
+    return same[0] if len(same) == 1 else part
 
 
 def _not_a_table(dotted, head, node):
@@ -428,12 +455,13 @@ def load_case(source=None, overrides=(), *, text: str | None = None) -> Case:
         else:
             raw = _read_toml(source)
             _anchor_cellml_path(raw, source)
+        notes = names.canonical_raw(raw) if isinstance(raw, dict) else []
         if isinstance(overrides, (str, bytes)):
             overrides = [overrides]
         items = overrides.items() if isinstance(overrides, dict) else (parse_assignment(o) for o in overrides)
         for key, value in items:
-            set_key(raw, key, value)
-        return from_dict(raw)
+            set_key(raw, key, value, notes)
+        return from_dict(raw, notes=notes)
     except RecursionError:
         raise CaseError(f"the case is nested too deeply (tables or lists within lists more than "
                         f"{_MAX_DEPTH} levels); a case has sections of keys and short lists.") from None
@@ -514,12 +542,14 @@ def _parse_toml(text: str, path) -> dict:
     return raw
 
 
-def from_dict(raw: dict) -> Case:
-    """Validate a raw case dict (see :func:`load_case`)."""
+def from_dict(raw: dict, *, notes=()) -> Case:
+    """Validate a raw case dict (see :func:`load_case`); ``notes`` are added to the case's."""
     from cable.membrane import UnknownModelError, get_model
 
     if not isinstance(raw, dict):
         raise CaseError(f"a case must be a table of sections, got {_fmt(raw)}.")
+    raw = copy.deepcopy(raw)
+    notes = list(dict.fromkeys([*notes, *names.canonical_raw(raw)]))
     for name in raw:
         if name not in _all_sections():
             raise CaseError(f"unknown section [{name}].{_nearest(name, _all_sections())} "
@@ -528,7 +558,6 @@ def from_dict(raw: dict) -> Case:
         raise CaseError("missing section [membrane] (at least: model = \"hodgkin-huxley-1952\"; see `cable models`).")
     if "run" not in raw:
         raise CaseError("missing section [run] (duration = ... ms).")
-    notes: list[str] = []
 
     mem = _read_section("membrane", raw["membrane"], SECTIONS["membrane"])
     mem["model"] = _model_name(mem)
@@ -540,14 +569,15 @@ def from_dict(raw: dict) -> Case:
     if own_cm is not None and mem["capacitance"] is None and "capacitance" not in raw.get("fiber", {}):
         mem["capacitance"] = own_cm
         notes.append(f"membrane.capacitance = {own_cm:g} uF/cm^2, the model's own (give the key to change it).")
-    scale = _read_scale(mem["scale"] or {}, model)
-    params = _read_parameters(mem["parameters"] or {}, model)
+    scale = _read_scale(mem["scale"] or {}, model, notes)
+    params = _read_parameters(mem["parameters"] or {}, model, notes)
     if mem["temperature"] is not None:
         if model.temperature_parameter is None:
             raise CaseError(f"membrane.temperature: model '{model.name}' has no temperature dependence; remove the key.")
-        if model.temperature_parameter in (mem["parameters"] or {}):
+        if model.temperature_parameter in params:
             # one quantity, two keys: refuse rather than let one of them win silently
-            given = raw["membrane"]["parameters"][model.temperature_parameter]
+            given = next(v for k, v in raw["membrane"]["parameters"].items()
+                         if model.resolve(k)[0] == model.temperature_parameter)
             raise CaseError(f"membrane.temperature = {raw['membrane']['temperature']!r} and "
                             f"membrane.parameters.{model.temperature_parameter} = {given!r} both set the "
                             f"temperature; give it once (either key).")
@@ -573,15 +603,14 @@ def from_dict(raw: dict) -> Case:
                                 f"{given!r} differ; give C_m once (either key).")
             fiber = replace(fiber, capacitance=mem["capacitance"])
 
-    stim_raw = raw.get("stimulus", [])
-    if isinstance(stim_raw, dict):
-        stim_raw = [stim_raw]
-    if not isinstance(stim_raw, list):
-        raise CaseError("[[stimulus]] must be a list of tables.")
-    stimuli = tuple(_read_stimulus(k, s, fiber) for k, s in enumerate(stim_raw))
+    stim_raw = raw.get("stimulus", {})
+    if not isinstance(stim_raw, dict):
+        raise CaseError("[stimulus] must hold named tables of keys, e.g. [stimulus.S1] with amplitude = ... and "
+                        "duration = ....")
+    stimuli = tuple(_read_stimulus(name, s, fiber) for name, s in stim_raw.items())
     if fiber is not None and fiber.initial == "one-way" and not stimuli:
-        raise CaseError("fiber.initial = \"one-way\" needs a [[stimulus]]: stimulus 0 starts the wave in the open "
-                        "strand whose state begins the ring.")
+        raise CaseError("fiber.initial = \"one-way\" needs a [stimulus.S1]: the first stimulus starts the wave in "
+                        "the open strand whose state begins the ring.")
 
     num = Numerics(**_read_section("numerics", raw.get("numerics", {}), SECTIONS["numerics"]))
     notes.extend(_reaction_notes(num, model, raw.get("numerics", {})))
@@ -596,10 +625,7 @@ def from_dict(raw: dict) -> Case:
     out = _read_section("output", raw.get("output", {}), SECTIONS["output"])
     meas = _read_section("measure", raw.get("measure", {}), SECTIONS["measure"])
 
-    for name in out["states"]:
-        if name not in model.state_names:
-            raise CaseError(f"output.states: '{name}' is not a state of '{model.name}'.{_nearest(name, model.state_names)} "
-                            f"States: {', '.join(model.state_names) or '(none)'}.")
+    out["states"] = tuple(resolve_name(model, name, "state", "output.states", notes) for name in out["states"])
     if num.dt > run["duration"]:
         raise CaseError(f"numerics.dt = {num.dt:g} ms is longer than run.duration = {run['duration']:g} ms.")
     steps = run["duration"] / num.dt
@@ -707,32 +733,60 @@ def _model_name(mem: dict) -> str:
     return mem["model"]
 
 
-def _read_scale(table: dict, model) -> dict:
-    out = {}
+_KINDS = {"conductance": ("a scalable conductance", "Scalable", "conductances"),
+          "parameter": ("a parameter", "Parameters", "parameter_names"),
+          "state": ("a state", "States", "state_names")}
+
+
+def resolve_name(model, name, kind: str, where: str, notes: list | None = None) -> str:
+    """The model's name for a conductance, parameter or state as a case writes it.
+
+    Accepts what :meth:`cable.membrane.base.MembraneModel.resolve` accepts (``g_Na`` for
+    ``G_Na``; an earlier name, whose note is appended to ``notes``); anything else is a
+    CaseError naming ``where``, with the nearest name and the list of valid ones.
+    """
+    found, note = model.resolve(name, kind)
+    if found is None:
+        what, label, attr = _KINDS[kind]
+        valid = getattr(model, attr)
+        raise CaseError(f"{where}: '{name}' is not {what} of '{model.name}'.{_nearest(name, valid)} "
+                        f"{label}: {', '.join(valid) or '(none)'}.")
+    if note and notes is not None and note not in notes:
+        notes.append(note)
+    return found
+
+
+def _resolved_table(table: dict, model, kind: str, section: str, notes=None) -> dict:
+    """``{model's name: value}`` of a table keyed by names; a name given twice is refused."""
+    out, given = {}, {}
     for name, value in table.items():
-        if name not in model.conductances:
-            raise CaseError(f"membrane.scale.{name}: '{name}' is not a scalable conductance of '{model.name}'."
-                            f"{_nearest(name, model.conductances)} Scalable: {', '.join(model.conductances)}.")
-        out[name] = convert(f"membrane.scale.{name}", value, Key("quantity", minimum=0.0))
+        found = resolve_name(model, name, kind, f"{section}.{name}", notes)
+        if found in given:
+            raise CaseError(f"{section}: '{given[found]}' and '{name}' both name {model.name}'s '{found}'; "
+                            f"give it once.")
+        given[found] = name
+        out[found] = value
     return out
 
 
-def _read_parameters(table: dict, model) -> dict:
-    out = {}
-    for name, value in table.items():
-        if name not in model.parameter_names:
-            raise CaseError(f"membrane.parameters.{name}: '{name}' is not a parameter of '{model.name}'."
-                            f"{_nearest(name, model.parameter_names)} Parameters: {', '.join(model.parameter_names)}.")
-        out[name] = _param_value(f"membrane.parameters.{name}", value, model.parameter(name))
-    return out
+def _read_scale(table: dict, model, notes=None) -> dict:
+    table = _resolved_table(table, model, "conductance", "membrane.scale", notes)
+    return {name: convert(f"membrane.scale.{name}", value, Key("quantity", minimum=0.0))
+            for name, value in table.items()}
+
+
+def _read_parameters(table: dict, model, notes=None) -> dict:
+    table = _resolved_table(table, model, "parameter", "membrane.parameters", notes)
+    return {name: _param_value(f"membrane.parameters.{name}", value, model.parameter(name))
+            for name, value in table.items()}
 
 
 PREPACE_KEYS = {
     "beats": Key("int", default=10, minimum=0, maximum=100000, meaning="number of paced beats (0: no pre-pacing)"),
     "cycle_length": Key("quantity", "time", default=1000.0, minimum=0.0, exclusive_minimum=True, meaning="pacing interval [ms]"),
     "amplitude": Key("quantity", "current_density", minimum=0.0, exclusive_minimum=True,
-                     meaning="stimulus per area [uA/cm^2]; default: the first [[stimulus]]'s"),
-    "duration": Key("quantity", "time", minimum=0.0, exclusive_minimum=True, meaning="pulse duration [ms]; default: the first [[stimulus]]'s"),
+                     meaning="stimulus per area [uA/cm^2]; default: the first stimulus's"),
+    "duration": Key("quantity", "time", minimum=0.0, exclusive_minimum=True, meaning="pulse duration [ms]; default: the first stimulus's"),
     "dt": Key("quantity", "time", minimum=0.0, exclusive_minimum=True, meaning="time step [ms]; default: numerics.dt"),
 }
 
@@ -790,7 +844,7 @@ def _grid_pairs(length: float, dx: float) -> str:
     return "; ".join(out)
 
 
-def _read_stimulus(k: int, table, fiber: Fiber | None) -> Stimulus:
+def _read_stimulus(k: str, table, fiber: Fiber | None) -> Stimulus:
     s = _read_section(f"stimulus.{k}", table, SECTIONS["stimulus"])
     if s["count"] > 1 and s["cycle_length"] is None:
         raise CaseError(f"stimulus.{k}.count = {s['count']} needs stimulus.{k}.cycle_length.")
@@ -803,7 +857,7 @@ def _read_stimulus(k: int, table, fiber: Fiber | None) -> Stimulus:
         if s["x"] + s["width"] > fiber.length + 1e-9:
             raise CaseError(f"stimulus.{k}: zone {s['x']:g} to {s['x'] + s['width']:g} cm extends beyond the fibre "
                             f"end at {fiber.length:g} cm.")
-    return Stimulus(**s)
+    return Stimulus(**s, name=str(k))
 
 
 # ----------------------------------------------------------------------------- TOML out
@@ -830,6 +884,8 @@ def dumps_toml(raw: dict) -> str:
         scalars = {k: v for k, v in d.items() if not isinstance(v, dict) and not _is_table_list(v)}
         subs = {k: v for k, v in d.items() if isinstance(v, dict)}
         lists = {k: v for k, v in d.items() if _is_table_list(v)}
+        # a table of named tables only ([stimulus] holding [stimulus.S1]) needs no header of its own
+        header = header if scalars or lists or not subs else None
         if header:
             lines.append(header)
         for k, v in scalars.items():

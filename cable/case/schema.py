@@ -61,7 +61,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
                                                      "no node at x = length, which is x = 0)"),
         "initial": Key("choice", default="rest", choices=("rest", "one-way"),
                        meaning="start of a ring: \"rest\", or \"one-way\": the state of an open strand whose wave "
-                               "(started by stimulus 0) has just reached its far end, so that it circulates one way"),
+                               "(started by the first stimulus) has just reached its far end, so that it circulates one way"),
         "gap_junction_conductance": _q("conductance", positive=True, meaning="gap-junction conductance per unit cross-section of the fibre (axon form) or tissue (tissue form) [mS/cm^2]; a junction resistance R_j [ohm*cm^2] is \"1/(R_j ohm*cm^2)\"; G [uS] per junction is G/(pi a^2); see cable/fiber.py"),
     },
     "stimulus": {
@@ -71,7 +71,8 @@ SECTIONS: dict[str, dict[str, Key]] = {
         # slip, and the potential it drives can blow up and recover between the runaway checks
         "amplitude": _q("current_density", required=True, positive=True, maximum=1e5, meaning="depolarising current per membrane area [uA/cm^2]"),
         "duration": _q("time", required=True, positive=True, meaning="pulse duration [ms]"),
-        "start": _q("time", 0.0, minimum=0.0, meaning="first pulse onset [ms]"),
+        "onset": _q("time", 0.0, minimum=0.0, meaning="first pulse onset [ms] (read from 'start', its old name, "
+                                                      "for this release)"),
         "count": Key("int", default=1, minimum=1, maximum=100000, meaning="number of pulses"),
         "cycle_length": _q("time", positive=True, meaning="interval between pulse onsets [ms] (needed when count > 1)"),
     },
@@ -102,5 +103,8 @@ SECTIONS: dict[str, dict[str, Key]] = {
     },
 }
 
-#: sections that are lists of tables in TOML ([[stimulus]])
-LIST_SECTIONS = {"stimulus"}
+#: sections that are lists of tables in TOML ([[name]]); stimuli and regions are named
+#: tables ([stimulus.S1], see cable.case.names)
+LIST_SECTIONS: set[str] = set()
+#: sections of named tables, as `cable keys` shows them
+NAMED_SECTIONS = {"stimulus": "stimulus.NAME", "region": "region.NAME"}

@@ -22,9 +22,19 @@ import importlib
 import pkgutil
 import signal
 import sys
+import textwrap
 from pathlib import Path
 
 CAUTION = "Research tool for modelling studies; not for clinical or diagnostic decisions."
+
+#: the headings of `cable --help` and their commands, in order; a command listed in none
+#: goes under "other"
+GROUPS = {
+    "simulate": ("run", "check", "sweep", "rerun"),
+    "protocols": ("critical", "calibrate", "threshold", "erp", "restitution", "converge"),
+    "inspect": ("models", "keys", "info"),
+    "figures": ("map", "traces", "plot-sweep"),
+}
 
 EXIT_OK, EXIT_INPUT, EXIT_NUMERICAL, EXIT_INTERRUPTED = 0, 2, 3, 130
 EXIT_OUTPUT, EXIT_CLUSTER = 4, 5
@@ -46,19 +56,38 @@ class _Parser(argparse.ArgumentParser):
         self.exit(EXIT_INPUT, f"cable: error: {message}\n")
 
 
+def _grouped(mods) -> str:
+    """The commands under their headings (:data:`GROUPS`), one line each, for `cable --help`."""
+    width = max(len(m.NAME) for m in mods) + 2
+    placed = {name: group for group, names in GROUPS.items() for name in names}
+    lines = []
+    for group in [*GROUPS, "other"]:
+        members = [m for m in mods if placed.get(m.NAME, "other") == group]
+        members.sort(key=lambda m: GROUPS[group].index(m.NAME) if group in GROUPS else m.NAME)
+        if members:
+            lines.append(f"{group}:")
+            lines += [f"  {m.NAME:<{width}}{m.HELP}" for m in members]
+            lines.append("")
+    return "\n".join(lines) + "\n`cable COMMAND --help` shows a command's options and their defaults."
+
+
 def build_parser() -> argparse.ArgumentParser:
     from cable import __version__
 
+    mods = _commands()
     parser = _Parser(
         prog="cable",
-        description="Simulate action-potential conduction along a fibre (monodomain cable) and measure "
-                    "conduction velocity, block, APD and refractoriness. " + CAUTION,
-        epilog=CAUTION,
+        description=textwrap.fill("Simulate action-potential conduction along a fibre (monodomain cable) and "
+                                  "measure conduction velocity, block, APD and refractoriness. " + CAUTION, 79),
+        epilog=_grouped(mods),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     parser.add_argument("--version", action="version", version=f"cable {__version__}")
-    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
-    for mod in _commands():
-        p = sub.add_parser(mod.NAME, help=mod.HELP, description=f"{mod.HELP}. {CAUTION}")
+    # the commands are listed, grouped, in the epilog (argparse lists subcommands in one block)
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser,
+                                help="one of the commands below")
+    for mod in mods:
+        p = sub.add_parser(mod.NAME, description=f"{mod.HELP}.")
         mod.add_arguments(p)
         p.set_defaults(_run=mod.run)
     return parser
@@ -173,8 +202,8 @@ def _main(argv) -> int:
 def add_set_option(parser) -> None:
     """The ``--set KEY=VALUE`` option shared by commands that read a case."""
     parser.add_argument("--set", dest="overrides", action="append", default=[], metavar="KEY=VALUE",
-                        help="override a case key, e.g. --set membrane.scale.g_Na=0.5 or stimulus.0.start=10 "
-                             "(repeatable)")
+                        help="override a case key, e.g. --set membrane.scale.g_Na=0.5 or stimulus.S1.onset=10 "
+                             "(repeatable; default: the case as written)")
 
 
 def say(args, msg: str) -> None:

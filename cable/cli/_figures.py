@@ -1,7 +1,13 @@
-"""Options and saving shared by the figure commands (map, traces, plot-sweep)."""
+"""Options and saving shared by the figure commands (map, traces, plot-sweep).
+
+Every command that draws names the figure's size and resolution ``--figure-size`` and
+``--figure-dpi`` (the protocols' ``--figure PATH`` too); ``--size`` and ``--dpi``, the
+plot commands' earlier spellings, are still read, hidden from ``--help``.
+"""
 
 from __future__ import annotations
 
+import argparse
 import contextlib
 from pathlib import Path
 
@@ -19,13 +25,22 @@ MAX_PIXELS = 2 ** 14
 def add_figure_options(p, default_suffix: str, *, stacked: bool = False) -> None:
     p.add_argument("-o", "--output", metavar="FIGURE",
                    help=f"figure file: .png, .pdf or .svg (default: the input's name + '{default_suffix}')")
-    p.add_argument("--size", nargs=2, metavar=("W", "H"),
+    add_size_options(p, dest_size="size", dest_dpi="dpi", stacked=stacked, aliases=True)
+    p.add_argument("--title", help="a title above the figure (default: none)")
+
+
+def add_size_options(p, *, dest_size: str, dest_dpi: str, stacked: bool = False, aliases: bool = False) -> None:
+    """``--figure-size W H`` and ``--figure-dpi DPI`` (``aliases``: also the hidden ``--size``, ``--dpi``)."""
+    p.add_argument("--figure-size", dest=dest_size, nargs=2, metavar=("W", "H"),
                    help=f"figure width and height; bare numbers in cm, or with a unit (85mm, 3.5in); "
                         f"default {DEFAULT_SIZE_CM[0]:g} x {DEFAULT_SIZE_CM[1]:g} cm"
                         + (f"; stacked panels: {STACKED_FIRST_CM:g} cm plus {STACKED_EACH_CM:g} cm per panel "
                            f"after the first, at least {DEFAULT_SIZE_CM[1]:g} cm" if stacked else ""))
-    p.add_argument("--dpi", type=int, default=DEFAULT_DPI, help=f"resolution of PNG output (default {DEFAULT_DPI})")
-    p.add_argument("--title", help="a title above the figure (none by default)")
+    p.add_argument("--figure-dpi", dest=dest_dpi, type=int, default=DEFAULT_DPI, metavar="DPI",
+                   help=f"resolution of PNG output (default {DEFAULT_DPI})")
+    if aliases:
+        p.add_argument("--size", dest=dest_size, nargs=2, default=argparse.SUPPRESS, help=argparse.SUPPRESS)
+        p.add_argument("--dpi", dest=dest_dpi, type=int, default=argparse.SUPPRESS, help=argparse.SUPPRESS)
 
 
 def quantity(text: str, kind: str, option: str) -> float:
@@ -60,9 +75,9 @@ FONT_PT_RANGE = (6.0, 10.0)
 
 
 def size_cm(args) -> tuple[float, float]:
-    size = pair(args.size, "length", "--size") if args.size else DEFAULT_SIZE_CM
+    size = pair(args.size, "length", "--figure-size") if args.size else DEFAULT_SIZE_CM
     if not all(v > 0 for v in size):
-        raise CaseError(f"--size {' '.join(args.size)}: width and height must be above 0.")
+        raise CaseError(f"--figure-size {' '.join(args.size)}: width and height must be above 0.")
     return size
 
 
@@ -72,13 +87,13 @@ STACKED_FIRST_CM, STACKED_EACH_CM = 7.0, 3.0
 
 
 def stacked_size(args, panels: int) -> None:
-    """Without --size, a figure of ``panels`` stacked panels grows in height with their number."""
+    """Without --figure-size, a figure of ``panels`` stacked panels grows in height with their number."""
     if args.size is None and panels > 1:
         height = max(DEFAULT_SIZE_CM[1], STACKED_FIRST_CM + STACKED_EACH_CM * (panels - 1))
         args.size = [f"{DEFAULT_SIZE_CM[0]:g}", f"{height:g}"]
 
 
-def check_pixels(size, dpi: int, size_option: str = "--size", dpi_option: str = "--dpi") -> None:
+def check_pixels(size, dpi: int, size_option: str = "--figure-size", dpi_option: str = "--figure-dpi") -> None:
     """Refuse a figure of more than :data:`MAX_PIXELS` along a side (``size`` in cm)."""
     if dpi <= 0:
         raise CaseError(f"{dpi_option} {dpi}: must be a positive whole number, e.g. {DEFAULT_DPI}.")

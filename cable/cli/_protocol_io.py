@@ -10,7 +10,7 @@ from cable.cli import add_set_option
 def add_common(p) -> None:
     """CASE, -o/--overwrite, --set, -q and --figure."""
     p.add_argument("case", help="case file (TOML)")
-    p.add_argument("-o", "--output", help="netCDF file for the protocol's result")
+    p.add_argument("-o", "--output", help="netCDF file for the protocol's result (default: printed only)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output file")
     add_set_option(p)
     p.add_argument("-q", "--quiet", action="store_true", help="print only the result (no line per run)")
@@ -19,14 +19,11 @@ def add_common(p) -> None:
 
 def add_figure_option(p) -> None:
     """--figure PATH (and its size and resolution): draw the result with :func:`cable.plot.protocol_figure`."""
-    from cable.cli._figures import DEFAULT_DPI, DEFAULT_SIZE_CM
+    from cable.cli._figures import add_size_options
 
-    p.add_argument("--figure", metavar="PATH", help="also draw the result: a .png, .pdf or .svg file")
-    p.add_argument("--figure-size", nargs=2, metavar=("W", "H"),
-                   help=f"figure width and height; bare numbers in cm, or with a unit (85mm, 3.5in); "
-                        f"default {DEFAULT_SIZE_CM[0]:g} x {DEFAULT_SIZE_CM[1]:g} cm")
-    p.add_argument("--figure-dpi", type=int, default=DEFAULT_DPI, metavar="DPI",
-                   help=f"resolution of PNG output (default {DEFAULT_DPI})")
+    p.add_argument("--figure", metavar="PATH", help="also draw the result: a .png, .pdf or .svg file "
+                                                    "(default: no figure)")
+    add_size_options(p, dest_size="figure_size", dest_dpi="figure_dpi")
 
 
 def _figure_options(args):

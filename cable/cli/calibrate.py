@@ -15,17 +15,17 @@ def add_arguments(p):
 
     p.add_argument("case", help="case file (TOML)")
     p.add_argument("--vary", required=True, metavar="KEY",
-                   help="the numeric case key to calibrate, e.g. fiber.conductivity, membrane.scale.G_Na")
+                   help="the numeric case key to calibrate (required), e.g. fibre.conductivity, membrane.scale.g_Na")
     p.add_argument("--target", required=True, metavar="MEASURE=VALUE",
-                   help="conduction_velocity=V [m/s], wavelength=L [cm], erp=T [ms] (effective refractory period of "
-                        "an S1-S2 search, as `cable erp` with its defaults) or apdNN=T [ms] (APD at NN%% "
+                   help="(required) conduction_velocity=V [m/s], wavelength=L [cm], erp=T [ms] (effective "
+                        "refractory period of an S1-S2 search, as `cable erp` with its defaults) or apdNN=T [ms] (APD at NN%% "
                         "repolarisation at the centre of the CV window, e.g. apd90=250)")
     p.add_argument("--between", nargs=2, type=float, metavar=("LOW", "HIGH"),
                    help="bracket of the key, canonical unit (default: searched from the case's value, seeded by "
                         "CV ~ sqrt(conductivity))")
     p.add_argument("--beat", type=int, default=0, metavar="B", help="the beat measured (default 0, the first)")
     p.add_argument("--rtol", type=float, metavar="R", help="relative tolerance of the value (default 1e-5; 1e-3 for an erp target)")
-    p.add_argument("-o", "--output", help="netCDF file for the result and its runs")
+    p.add_argument("-o", "--output", help="netCDF file for the result and its runs (default: none)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output file")
     add_set_option(p)
     p.add_argument("-q", "--quiet", action="store_true", help="print only the result (no line per run)")

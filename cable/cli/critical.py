@@ -12,11 +12,12 @@ ORDER = 6
 def add_arguments(p):
     p.add_argument("case", help="case file (TOML)")
     p.add_argument("--vary", required=True, metavar="KEY",
-                   help="the case key to bisect, list entries by index, e.g. region.0.scale.g_Na, "
-                        "region.0.parameters.K_o, region.0.coupling, region.0.end, stimulus.1.start")
+                   help="the case key to bisect (required), e.g. membrane.scale.g_Na, stimulus.S1.amplitude, fibre.dx; "
+                        "in a named table by its name: region.NAME.scale.g_Na, region.NAME.parameters.K_o, "
+                        "region.NAME.coupling, region.NAME.end, stimulus.S2.onset")
     p.add_argument("--between", required=True, nargs=2, type=float, metavar=("LOW", "HIGH"),
-                   help="the interval, in the key's canonical unit (see `cable keys`); one end must conduct "
-                        "and the other block")
+                   help="the interval (required), in the key's canonical unit (see `cable keys`); one end must "
+                        "conduct and the other block")
     p.add_argument("--tolerance", type=float, metavar="T",
                    help="width of the final bracket, same unit (default: 1%% of HIGH - LOW)")
     p.add_argument("--log", action="store_true",
@@ -26,7 +27,7 @@ def add_arguments(p):
     p.add_argument("--criterion", default="block", metavar="C",
                    help="what failing means: block (default: a judged beat does not conduct), slow-response (or it "
                         "conducts as a slow response, upstroke below 10 V/s), cv-below=X (or its CV is below X m/s)")
-    p.add_argument("-o", "--output", help="netCDF file for the runs made")
+    p.add_argument("-o", "--output", help="netCDF file for the runs made (default: none)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output file")
     add_set_option(p)
     p.add_argument("-q", "--quiet", action="store_true", help="print only the result (no line per run)")

@@ -13,13 +13,15 @@ def add_arguments(p):
 
     add_common(p)
     p.add_argument("--cycle-length", type=float, metavar="MS",
-                   help="S1 interval [ms] (default: stimulus.0.cycle_length)")
-    p.add_argument("--s1-count", type=int, metavar="N", help="number of S1 pulses (default: stimulus.0.count)")
+                   help="S1 interval [ms] (default: the first stimulus's cycle_length)")
+    p.add_argument("--s1-count", type=int, metavar="N", help="number of S1 pulses (default: the first stimulus's count)")
     p.add_argument("--s2-amplitude", type=float, metavar="UA_CM2", help="S2 amplitude [uA/cm^2] (default: the S1's)")
     p.add_argument("--s2-duration", type=float, metavar="MS", help="S2 duration [ms] (default: the S1's)")
     p.add_argument("--tolerance", type=float, default=DEFAULT_TOLERANCE, metavar="MS",
                    help=f"width of the final bracket on each interval [ms] (default {DEFAULT_TOLERANCE:g})")
-    p.add_argument("--observe", type=float, metavar="MS", help="how long each S2 is watched [ms]")
+    p.add_argument("--observe", type=float, metavar="MS",
+                   help="how long each S2 is watched [ms] (default: twice the S1 wave's transit time plus the "
+                        "capture latency and the S2 pulse)")
 
 
 def run(args):

@@ -9,7 +9,8 @@ UNIT_SHOWN = {("measure", "apd_levels"): "%"}
 
 
 def add_arguments(p):
-    p.add_argument("section", nargs="?", help="only this section, e.g. fiber")
+    p.add_argument("section", nargs="?", help="only this section, e.g. fibre (or fiber), stimulus, region "
+                                             "(default: every section)")
 
 
 def toml_value(value, unit: str = "") -> str:
@@ -63,7 +64,8 @@ def rows(name, keys):
 def run(args):
     from cable.case import CaseError
     from cable.case.load import PREPACE_KEYS, _nearest
-    from cable.case.schema import LIST_SECTIONS, SECTIONS
+    from cable.case.names import section_name
+    from cable.case.schema import LIST_SECTIONS, NAMED_SECTIONS, SECTIONS
     from cable.cli.models import table
     from cable.drugs import BLOCK_KEYS, DRUG_KEYS
     from cable.electrodes import ELECTRODE_KEYS
@@ -75,6 +77,8 @@ def run(args):
     sections["drug.NAME"] = DRUG_KEYS
     sections["drug.NAME.block.CONDUCTANCE"] = BLOCK_KEYS
     sections["electrode"] = ELECTRODE_KEYS
+    if args.section:
+        args.section = section_name(args.section)  # fibre: the [fiber] section
     if args.section and args.section not in sections and args.section != "sweep":
         raise CaseError(f"unknown section '{args.section}'.{_nearest(args.section, [*sections, 'sweep'])} "
                         f"Sections: {', '.join(sections)}, sweep.")
@@ -89,7 +93,9 @@ def run(args):
     widths = [max(len(r[k]) for r in [header, *body]) for k in range(4)]
     first = True
     for name, keys in chosen:
-        print(("" if first else "\n") + (f"[[{name}]]" if name in LIST_SECTIONS or name in ("region", "electrode") else f"[{name}]"))
+        shown = f"[{NAMED_SECTIONS[name]}]" if name in NAMED_SECTIONS else \
+            f"[[{name}]]" if name in LIST_SECTIONS or name == "electrode" else f"[{name}]"
+        print(("" if first else "\n") + shown + ("\n(also spelt [fibre])" if name == "fiber" else ""))
         lines = table(header, [tuple(f"{c:<{w}}" for c, w in zip(r[:4], widths)) + r[4:] for r in rows(name, keys)])
         print("\n".join(lines if first else lines[1:]))
         first = False

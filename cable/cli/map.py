@@ -10,11 +10,11 @@ ORDER = 30
 def add_arguments(p):
     p.add_argument("result", help="result file (.nc) written by `cable run`")
     _figures.add_figure_options(p, ".map.png")
-    p.add_argument("--t-window", nargs=2, metavar=("A", "B"), help="time range; bare numbers in ms (or '1 s')")
-    p.add_argument("--x-window", nargs=2, metavar=("A", "B"), help="position range; bare numbers in cm (or '5mm')")
-    p.add_argument("--vlim", nargs=2, metavar=("LO", "HI"), help="colour limits; bare numbers in mV")
+    p.add_argument("--t-window", nargs=2, metavar=("A", "B"), help="time range; bare numbers in ms (or '1 s'); default: the whole run")
+    p.add_argument("--x-window", nargs=2, metavar=("A", "B"), help="position range; bare numbers in cm (or '5mm'); default: the whole fibre")
+    p.add_argument("--vlim", nargs=2, metavar=("LO", "HI"), help="colour limits; bare numbers in mV (default: the field's range)")
     p.add_argument("--isochrones", metavar="STEP", help="mark the front every STEP after each beat's onset "
-                   "(bare number in ms)")
+                   "(bare number in ms; default: the front line only)")
     p.add_argument("--no-front", action="store_true", help="do not draw the activation fronts")
     p.add_argument("--variable", default="vm", help="the field to draw: vm (default) or a stored state_NAME")
     p.add_argument("--time-axis", choices=("x", "y"), default="x", help="the axis time runs along (default x)")

@@ -7,7 +7,7 @@ ORDER = 5
 
 def add_arguments(p):
     p.add_argument("name", nargs="?", help="model name, or a CellML file (path ending .cellml)")
-    p.add_argument("--cellml", metavar="OUT", help="write the model as a CellML 2.0 file OUT")
+    p.add_argument("--cellml", metavar="OUT", help="write the model as a CellML 2.0 file OUT (default: none)")
 
 
 def table(header, rows, indent: str = "  ") -> list[str]:

@@ -20,7 +20,7 @@ EXIT_DIFFERENT = 1
 
 def add_arguments(p):
     p.add_argument("result", help="result file (.nc) written by `cable run`")
-    p.add_argument("-o", "--output", help="write the new result here (.nc); kept in memory without it")
+    p.add_argument("-o", "--output", help="write the new result here (.nc) (default: none, kept in memory)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output file")
     p.add_argument("-q", "--quiet", action="store_true", help="print only the verdict")
 

@@ -13,7 +13,7 @@ ORDER = 1
 
 def add_arguments(p):
     p.add_argument("case", help="case file (TOML)")
-    p.add_argument("-o", "--output", help="result file (.nc); without it only the summary is printed")
+    p.add_argument("-o", "--output", help="result file (.nc) (default: none, only the summary is printed)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing result file")
     add_set_option(p)
     p.add_argument("-q", "--quiet", action="store_true",

@@ -1,5 +1,6 @@
 """``cable sweep CASE -o OUT.nc``: run every point of a case's ``[sweep]`` on Dask."""
 
+import argparse
 import logging
 
 import numpy as np
@@ -17,16 +18,19 @@ LIST_MAX = 40
 def add_arguments(p):
     p.add_argument("case", help="case file (TOML) with a [sweep] section")
     p.add_argument("-o", "--output", help="result file (.nc); points are stored in OUT.nc.points/ as they finish, "
-                                          "and running again with the same output computes only what is missing")
+                                          "and running again with the same output computes only what is missing "
+                                          "(default: none, the result is summarised only)")
     p.add_argument("--workers", type=int, metavar="N",
                    help="worker processes of the local cluster (default: one per core); with --scheduler, "
                         "wait for N workers")
     p.add_argument("--scheduler", metavar="ADDRESS", help="address of a running Dask scheduler, e.g. tcp://host:8786 "
                                                            "(default: start a local cluster)")
-    p.add_argument("--vary", dest="vary", action="append", default=[], metavar="KEY=VALUES",
-                   help="sweep a case key: a list, e.g. --vary membrane.scale.g_Na=[1,0.5,0.25], or a range, "
-                        "e.g. --vary 'fiber.radius={start=\"100 um\", stop=\"300 um\", num=3}' (repeatable; "
-                        "adds to or replaces the case's [sweep])")
+    p.add_argument("--over", dest="vary", action="append", default=[], metavar="KEY=VALUES",
+                   help="sweep over the values of a case key: a list, e.g. --over membrane.scale.g_Na=[1,0.5,0.25], "
+                        "or a range, e.g. --over 'stimulus.S1.amplitude={start=\"100 uA/cm^2\", stop=\"500 uA/cm^2\", "
+                        "num=3}' (repeatable; adds to or replaces the case's [sweep]; default: the case's [sweep])")
+    # --vary KEY=VALUES, the earlier spelling (critical and calibrate's --vary takes one KEY)
+    p.add_argument("--vary", dest="vary_earlier", action="append", default=[], help=argparse.SUPPRESS)
     p.add_argument("--batch", type=int, metavar="N",
                    help="most points per task (default 16): points that share a time loop run as the strands of "
                         "one kernel call, with the same results bit for bit; 1 runs each point alone")
@@ -52,11 +56,12 @@ def run(args):
     from pathlib import Path
 
     case = load_case(Path(args.case), args.overrides)
-    if args.vary:
+    swept = [(text, "--over") for text in args.vary] + [(text, "--vary") for text in args.vary_earlier]
+    if swept:
         raw = case.raw
         table = dict(raw.get("sweep", {}))
-        for text in args.vary:
-            key, value = parse_assignment(text, option="--vary")
+        for text, option in swept:
+            key, value = parse_assignment(text, option=option)  # the message names the option given
             _drop_nested(table, key)
             table[key] = value
         raw = dict(raw, sweep=table)

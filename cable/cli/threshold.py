@@ -17,7 +17,7 @@ def add_arguments(p):
 
     add_common(p)
     p.add_argument("--durations", nargs="+", type=float, required=True, metavar="MS",
-                   help="stimulus pulse durations [ms], e.g. 0.1 0.2 0.5 1 2")
+                   help="stimulus pulse durations [ms] (required), e.g. 0.1 0.2 0.5 1 2")
     p.add_argument("--mode", choices=("strand", "cell"), default="strand",
                    help="capture means a wave reaching the far end of the fibre (strand) or the single "
                         "cell crossing the activation threshold (cell); default strand")

@@ -12,12 +12,12 @@ def add_arguments(p):
     p.add_argument("--at", nargs="+", metavar="POS", help="positions, e.g. 1cm 2cm 3cm (bare numbers in cm); "
                    "default: a quarter, half and three quarters of the fibre")
     p.add_argument("--states", nargs="+", default=[], metavar="NAME",
-                   help="stored states to draw below vm (the case's output.states), e.g. h m")
+                   help="stored states to draw below vm (the case's output.states), e.g. h m (default: none)")
     p.add_argument("--currents", nargs="+", default=[], metavar="NAME",
                    help="ionic currents to draw below the states, e.g. I_Na I_K (`cable models MODEL` lists them); "
-                        "recomputed from the stored states, so the run must store all of them (output.states)")
-    p.add_argument("--t-window", nargs=2, metavar=("A", "B"), help="time range; bare numbers in ms")
-    p.add_argument("--ecg", action="store_true", help="add a panel of the pseudo-ECG (a case with [[electrode]])")
+                        "recomputed from the stored states, so the run must store all of them (output.states); default: none")
+    p.add_argument("--t-window", nargs=2, metavar=("A", "B"), help="time range; bare numbers in ms (default: the whole run)")
+    p.add_argument("--ecg", action="store_true", help="add a panel of the pseudo-ECG (a case with [[electrode]]; default: no panel)")
     _figures.add_figure_options(p, ".traces.png", stacked=True)
 
 

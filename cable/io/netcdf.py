@@ -670,15 +670,17 @@ def compare_attrs(original: dict, new: dict) -> dict:
 
     Compared: every attribute but :data:`VOLATILE_ATTRS`; values are compared in their
     stored form (:func:`_encode_attr`), so an in-memory result (bools, tuples) compares
-    equal to the file it would make.
+    equal to the file it would make. The case text is compared in the loader's spelling
+    and the notes without those on old spellings (:mod:`cable.case.names`), so that a file
+    written with ``[[stimulus]]`` reruns as identical.
     """
     out = {}
     for name in dict.fromkeys([*original, *new]):
         if name in VOLATILE_ATTRS:
             continue
         a, b = original.get(name), new.get(name)
-        ea = None if a is None else np.asarray(_encode_attr(a))
-        eb = None if b is None else np.asarray(_encode_attr(b))
+        ea = None if a is None else np.asarray(_encode_attr(_as_compared(name, a)))
+        eb = None if b is None else np.asarray(_encode_attr(_as_compared(name, b)))
         if ea is None or eb is None:
             same = ea is None and eb is None
         elif ea.dtype.kind in "OSU" or eb.dtype.kind in "OSU":
@@ -688,6 +690,26 @@ def compare_attrs(original: dict, new: dict) -> dict:
         if not same:
             out[name] = (a, b)
     return out
+
+
+def _as_compared(name: str, value):
+    """An attribute as a rerun compares it: the case in the loader's spelling, notes without deprecations."""
+    from cable.case import names
+
+    if name == "notes" and isinstance(value, str):
+        return names.without_deprecations(value)
+    if name == "case" and isinstance(value, str):
+        import tomllib
+
+        from cable.case.load import dumps_toml
+
+        try:
+            raw = tomllib.loads(value)
+            names.canonical_raw(raw)
+            return dumps_toml(raw)
+        except (tomllib.TOMLDecodeError, ValueError, TypeError):
+            return value
+    return value
 
 
 def _not_a_run(ds: xr.Dataset) -> str:

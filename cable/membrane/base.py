@@ -65,7 +65,7 @@ left to the caller (so ``dv_ion`` is returned as ``None``).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Callable
 
 import numpy as np
@@ -213,6 +213,9 @@ class MembraneModel:
     kinetics : numba dispatcher or None
         Optional right-hand side per node (see the module docstring) for the reaction
         schemes other than ``"rush-larsen"``; a model without it runs only that one.
+    old_names : dict
+        Earlier names of states and parameters -> their names now, still read (with a
+        note) for one release; see :meth:`resolve`.
     """
 
     name: str
@@ -231,6 +234,7 @@ class MembraneModel:
     temperature_parameter: str | None = None
     fast: FastPath | None = None
     kinetics: Callable | None = None
+    old_names: dict = field(default_factory=dict)
 
     def __post_init__(self):
         if self.current_basis not in ("area", "capacitance"):
@@ -255,10 +259,37 @@ class MembraneModel:
         return tuple(p.name for p in self.parameters)
 
     def parameter(self, name: str) -> Parameter:
+        """The parameter ``name`` (any spelling :meth:`resolve` accepts); KeyError if none."""
         for p in self.parameters:
             if p.name == name:
                 return p
+        found, _ = self.resolve(name, "parameter")
+        for p in self.parameters:
+            if p.name == found:
+                return p
         raise KeyError(name)
+
+    def resolve(self, name: str, kind: str = "parameter") -> tuple[str | None, str | None]:
+        """The model's name for ``name`` among its ``kind`` s, and a note on an old name.
+
+        ``kind`` is ``"parameter"``, ``"conductance"`` or ``"state"``. Accepted: the name
+        itself; an earlier name (:attr:`old_names`), with a note; a name differing only in
+        case (``g_Na`` for ``G_Na``) where exactly one name matches it so. Returns
+        ``(None, None)`` when nothing matches.
+        """
+        names = {"parameter": self.parameter_names, "conductance": self.conductances,
+                 "state": self.state_names}[kind]
+        name = str(name)
+        if name in names:
+            return name, None
+        new = self.old_names.get(name)
+        if new in names:
+            return new, (f"deprecated: '{name}' is the earlier name of {self.name}'s {kind} '{new}' "
+                         f"(read for this release).")
+        folded = [n for n in names if n.casefold() == name.casefold()]
+        if not folded:
+            folded = [n for old, n in self.old_names.items() if old.casefold() == name.casefold() and n in names]
+        return (folded[0], None) if len(folded) == 1 else (None, None)
 
     def fill_labelled_defaults(self, p: np.ndarray, given=()) -> np.ndarray:
         """Set, in place, the defaults that depend on a label (:attr:`Parameter.by_label`).

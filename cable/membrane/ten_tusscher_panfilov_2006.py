@@ -73,14 +73,14 @@ G_TO_BY_TYPE = {"epi": 0.294, "endo": 0.073, "mid": 0.294}
 G_KS_BY_TYPE = {"epi": 0.392, "endo": 0.392, "mid": 0.098}
 
 # state indices (order of STATES); the first N_GATES are Hodgkin-Huxley gates
-(M, H, J, XR1, XR2, XS, R, S, D, F, F2, FCASS, R_PRIME,
+(M, H, J, XR1, XR2, XS, R, S, D, F, F2, FCASS, R_BAR,
  CA_I, CA_SR, CA_SS, NA_I, K_I) = range(18)
 N_GATES = 12
 
 # parameter indices (order of PARAMETERS)
 (G_NA, G_TO, G_KR, G_KS, P_KNA, G_K1, G_CAL, K_NACA, GAMMA, K_MCA, K_MNAI, K_SAT, ALPHA,
  P_NAK, K_MK, K_MNA, G_PCA, K_PCA, G_PK, G_BNA, G_BCA,
- V_MAXUP, K_UP, V_LEAK, V_REL, V_XFER, K1_PRIME, K2_PRIME, K3, K4, EC, MAX_SR, MIN_SR,
+ V_MAXUP, K_UP, V_LEAK, V_REL, V_XFER, K1P, K2P, K3, K4, EC, MAX_SR, MIN_SR,
  BUF_C, K_BUFC, BUF_SR, K_BUFSR, BUF_SS, K_BUFSS, K_O, NA_O, CA_O, CELL_TYPE) = range(43)
 
 
@@ -100,11 +100,11 @@ PARAMETERS = (
     _par("G_K1", 5.405, "nS/pF", "inward rectifier conductance (at K_o 5.4 mM)", "rate"),
     _par("G_CaL", 3.98e-5, "cm/(ms*uF)", "L-type calcium permeability"),
     _par("k_NaCa", 1000.0, "pA/pF", "maximal Na/Ca exchanger current"),
-    _par("gamma", 0.35, "1", "voltage-dependence parameter of I_NaCa", maximum=1.0),
+    _par("gamma", 0.35, "1", "γ in the paper: voltage-dependence parameter of I_NaCa", maximum=1.0),
     _par("K_mCa", 1.38, "mM", "Ca_o half-saturation of I_NaCa", "concentration"),
     _par("K_mNai", 87.5, "mM", "Na half-saturation of I_NaCa", "concentration"),
     _par("k_sat", 0.1, "1", "saturation factor of I_NaCa"),
-    _par("alpha", 2.5, "1", "enhancement factor of the outward mode of I_NaCa"),
+    _par("alpha", 2.5, "1", "α in the paper: enhancement factor of the outward mode of I_NaCa"),
     _par("P_NaK", 2.724, "pA/pF", "maximal Na/K pump current"),
     _par("K_mK", 1.0, "mM", "K_o half-saturation of I_NaK", "concentration"),
     _par("K_mNa", 40.0, "mM", "Na_i half-saturation of I_NaK", "concentration"),
@@ -118,8 +118,8 @@ PARAMETERS = (
     _par("V_leak", 0.00036, "1/ms", "SR leak rate", "rate"),
     _par("V_rel", 0.102, "1/ms", "maximal SR release rate", "rate"),
     _par("V_xfer", 0.0038, "1/ms", "subspace-to-cytosol transfer rate", "rate"),
-    _par("k1_prime", 0.15, "1/(mM^2*ms)", "R -> O rate constant of the RyR"),
-    _par("k2_prime", 0.045, "1/(mM*ms)", "R -> I rate constant of the RyR"),
+    _par("k1p", 0.15, "1/(mM^2*ms)", "k1' in the paper: R -> O rate constant of the RyR"),
+    _par("k2p", 0.045, "1/(mM*ms)", "k2' in the paper: R -> I rate constant of the RyR"),
     _par("k3", 0.060, "1/ms", "O -> R rate constant of the RyR", "rate"),
     _par("k4", 0.005, "1/ms", "recovery from inactivation of the RyR", "rate"),
     _par("EC", 1.5, "mM", "Ca_SR half-saturation of k_casr", "concentration"),
@@ -245,7 +245,7 @@ def _ryr(Ca_SR, Ca_ss, p, i):
     """k_casr-scaled RyR rates: (k1 [1/(mM^2 ms)], k2 [1/(mM ms)])."""
     max_sr, min_sr = p[i, MAX_SR], p[i, MIN_SR]
     k_casr = max_sr - (max_sr - min_sr) / (1.0 + (p[i, EC] / Ca_SR) ** 2)
-    return p[i, K1_PRIME] / k_casr, p[i, K2_PRIME] * k_casr
+    return p[i, K1P] / k_casr, p[i, K2P] * k_casr
 
 
 @jit
@@ -276,14 +276,14 @@ def reaction(v, s, p, i_stim, dt, ion_scale, gating):
         rate = k2 * Ca_ss + p[i, K4]  # dR/dt = k4 - rate R
         r_inf = p[i, K4] / rate
         if gating == 0:
-            s[i, R_PRIME] = r_inf - (r_inf - s[i, R_PRIME]) * math.exp(-dt * rate)
+            s[i, R_BAR] = r_inf - (r_inf - s[i, R_BAR]) * math.exp(-dt * rate)
         else:
-            s[i, R_PRIME] = s[i, R_PRIME] + dt * (p[i, K4] - rate * s[i, R_PRIME])
+            s[i, R_BAR] = s[i, R_BAR] + dt * (p[i, K4] - rate * s[i, R_BAR])
         (I_Na, I_to, I_Kr, I_Ks, I_K1, I_NaCa, I_NaK, I_pCa, I_pK, I_bNa, I_bCa,
          I_CaL) = _membrane_currents(V, s, p, i)
         ion = I_Na + I_to + I_Kr + I_Ks + I_K1 + I_NaCa + I_NaK + I_pCa + I_pK + I_bNa + I_bCa + I_CaL
         # intracellular fluxes [mM/ms] with the updated R-bar and the old concentrations
-        O = k1 * Ca_ss * Ca_ss * s[i, R_PRIME] / (p[i, K3] + k1 * Ca_ss * Ca_ss)
+        O = k1 * Ca_ss * Ca_ss * s[i, R_BAR] / (p[i, K3] + k1 * Ca_ss * Ca_ss)
         I_rel = p[i, V_REL] * O * (Ca_SR - Ca_ss)
         I_up = p[i, V_MAXUP] / (1.0 + (p[i, K_UP] / Ca_i) ** 2)
         I_leak = p[i, V_LEAK] * (Ca_SR - Ca_i)
@@ -398,8 +398,8 @@ def reference(v, s, p):
     ion = sum(I[name] for name in CURRENT_NAMES)
     # calcium handling
     k_casr = P["max_sr"] - (P["max_sr"] - P["min_sr"]) / (1.0 + (P["EC"] / Ca_SR) ** 2)
-    k1, k2 = P["k1_prime"] / k_casr, P["k2_prime"] * k_casr
-    ds[:, R_PRIME] = -k2 * Ca_ss * R_bar + P["k4"] * (1.0 - R_bar)
+    k1, k2 = P["k1p"] / k_casr, P["k2p"] * k_casr
+    ds[:, R_BAR] = -k2 * Ca_ss * R_bar + P["k4"] * (1.0 - R_bar)
     O = k1 * Ca_ss ** 2 * R_bar / (P["k3"] + k1 * Ca_ss ** 2)
     I_rel = P["V_rel"] * O * (Ca_SR - Ca_ss)
     I_up = P["V_maxup"] / (1.0 + P["K_up"] ** 2 / Ca_i ** 2)
@@ -553,13 +553,13 @@ def reaction_fast(v, s, p, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):
         rate = k2 * Ca_ss + p[i, K4]
         r_inf = p[i, K4] / rate
         if gating == 0:
-            s[i, R_PRIME] = r_inf - (r_inf - s[i, R_PRIME]) * math.exp(-dt * rate)
+            s[i, R_BAR] = r_inf - (r_inf - s[i, R_BAR]) * math.exp(-dt * rate)
         else:
-            s[i, R_PRIME] = s[i, R_PRIME] + dt * (p[i, K4] - rate * s[i, R_PRIME])
+            s[i, R_BAR] = s[i, R_BAR] + dt * (p[i, K4] - rate * s[i, R_BAR])
         (I_Na, I_to, I_Kr, I_Ks, I_K1, I_NaCa, I_NaK, I_pCa, I_pK, I_bNa, I_bCa,
          I_CaL) = _tabulated_currents(V, s, p, i, table, j, f)
         ion = I_Na + I_to + I_Kr + I_Ks + I_K1 + I_NaCa + I_NaK + I_pCa + I_pK + I_bNa + I_bCa + I_CaL
-        O = k1 * Ca_ss * Ca_ss * s[i, R_PRIME] / (p[i, K3] + k1 * Ca_ss * Ca_ss)
+        O = k1 * Ca_ss * Ca_ss * s[i, R_BAR] / (p[i, K3] + k1 * Ca_ss * Ca_ss)
         I_rel = p[i, V_REL] * O * (Ca_SR - Ca_ss)
         I_up = p[i, V_MAXUP] / (1.0 + (p[i, K_UP] / Ca_i) ** 2)
         I_leak = p[i, V_LEAK] * (Ca_SR - Ca_i)
@@ -593,7 +593,7 @@ _STATES = (
     ("f", 0.9772254, "1", "I_CaL slow voltage inactivation gate"),
     ("f2", 0.9995015, "1", "I_CaL fast voltage inactivation gate"),
     ("fCass", 0.9999728, "1", "I_CaL subspace-calcium inactivation gate"),
-    ("R_prime", 0.9891751, "1", "fraction of RyR not inactivated (R-bar)"),
+    ("R_bar", 0.9891751, "1", "R̄ in the paper: fraction of RyR not inactivated"),
     ("Ca_i", 0.000104492, "mM", "free cytoplasmic calcium"),
     ("Ca_SR", 3.50023, "mM", "free SR calcium"),
     ("Ca_ss", 0.0002130736, "mM", "free subspace calcium"),
@@ -601,6 +601,8 @@ _STATES = (
     ("K_i", 135.7416, "mM", "intracellular potassium"),
 )
 RESTING_POTENTIAL = -85.42026  # [mV]
+#: earlier names -> the paper's (ten Tusscher & Panfilov 2006: R-bar, k1', k2' of the I_rel equations)
+OLD_NAMES = {"R_prime": "R_bar", "k1_prime": "k1p", "k2_prime": "k2p"}
 
 MODEL = MembraneModel(
     name="ten-tusscher-panfilov-2006",
@@ -620,6 +622,8 @@ MODEL = MembraneModel(
     current_names=CURRENT_NAMES,
     fast=FastPath(kernel=reaction_fast, build_table=build_table, table_parameters=("gamma",),
                   v_lo=-150.0, v_hi=100.0, dv=0.05, by_state=False),
+    # the names used before the paper's own (read for one release)
+    old_names=OLD_NAMES,
 )
 
 
@@ -634,14 +638,14 @@ def kinetics(V, y, p, i, a, b):
     """Right-hand side of node i (contract: cable.membrane.base)."""
     s = y.reshape((1, y.shape[0]))
     q = p[i:i + 1]
-    Ca_i, Ca_SR, Ca_ss, R_bar = y[CA_I], y[CA_SR], y[CA_SS], y[R_PRIME]
+    Ca_i, Ca_SR, Ca_ss, R_bar = y[CA_I], y[CA_SR], y[CA_SS], y[R_BAR]
     x_inf, tau = _kinetics(V, Ca_ss, int(p[i, CELL_TYPE]) == ENDO)
     for k in range(N_GATES):
         b[k] = 1.0 / tau[k]
         a[k] = x_inf[k] * b[k]
     k1, k2 = _ryr(Ca_SR, Ca_ss, q, 0)
-    a[R_PRIME] = p[i, K4]
-    b[R_PRIME] = k2 * Ca_ss + p[i, K4]
+    a[R_BAR] = p[i, K4]
+    b[R_BAR] = k2 * Ca_ss + p[i, K4]
     (I_Na, I_to, I_Kr, I_Ks, I_K1, I_NaCa, I_NaK, I_pCa, I_pK, I_bNa, I_bCa,
      I_CaL) = _membrane_currents(V, s, q, 0)
     O = k1 * Ca_ss * Ca_ss * R_bar / (p[i, K3] + k1 * Ca_ss * Ca_ss)

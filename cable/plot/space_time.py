@@ -57,7 +57,7 @@ def space_time(ds, ax=None, *, t_window=None, x_window=None, vmin=None, vmax=Non
     block : bool
         Mark the last activated position of each blocked beat.
     regions : bool
-        Hatch and name the ``[[region]]`` zones of the case, if any.
+        Hatch and name the ``[region.NAME]`` zones of the case, if any.
     colorbar : bool
         Add a labelled colour bar (then ``image.colorbar``).
     legend : bool

@@ -41,9 +41,10 @@ def _reduce(da, keep, select, what):
     left = [d for d in extra if da.sizes[d] > 1]
     if left:
         first = {d: (da[d].values[0].item() if d in da.coords else 0) for d in left}
-        cli = " ".join(f"--sel {d}={v}" for d, v in first.items())
+        cli = " ".join(f"--fix {d}={v}" for d, v in first.items())
         raise CaseError(f"{what} still varies along {', '.join(left)}: choose one value of each "
-                        f"({cli}; in Python select={first!r}) or draw one with hue.")
+                        f"({cli}; in Python select={first!r}) or draw one curve per value (--curves-by, "
+                        f"in Python hue=).")
     return da.squeeze(extra, drop=True) if extra else da
 
 

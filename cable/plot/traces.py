@@ -68,7 +68,7 @@ def ionic_current(ds, name: str, node: float | None):
     The currents are not stored; they are recomputed with the model's ``currents``
     kernel from ``vm`` and the stored states (all of them must be stored: the case's
     ``output.states``), with the node's parameters as the case (its ``[membrane]`` and
-    ``[[region]]`` tables, read from the result's ``case`` attribute) sets them. The
+    ``[region.NAME]`` tables, read from the result's ``case`` attribute) sets them. The
     stored samples are float32, so the currents carry that rounding.
 
     Parameters

@@ -16,7 +16,7 @@ from cable.case import Case, CaseError, load_case
 
 @dataclass(frozen=True)
 class Site:
-    """Where and how the case stimulates (its first ``[[stimulus]]``), canonical units."""
+    """Where and how the case stimulates (its first stimulus table), canonical units."""
 
     x: float            # left edge of the zone [cm]
     width: float        # [cm]
@@ -38,17 +38,17 @@ def as_case(case) -> Case:
 def stimulus_site(case: Case, who: str) -> Site:
     """The first stimulus of ``case``; a CaseError naming ``who`` when there is none."""
     if not case.stimuli:
-        raise CaseError(f"{who}: the case has no [[stimulus]]; the protocol takes the stimulus site, amplitude "
-                        f"and duration from the first one. Add a [[stimulus]] table.")
+        raise CaseError(f"{who}: the case has no stimulus; the protocol takes the stimulus site, amplitude "
+                        f"and duration from the first one. Add a [stimulus.S1] table.")
     s = case.stimuli[0]
     return Site(s.x, s.width, s.amplitude, s.duration, s.count, s.cycle_length)
 
 
 def pulse(site: Site, *, amplitude: float, duration: float, start: float = 0.0, count: int = 1,
           cycle_length: float | None = None, x: float | None = None) -> dict:
-    """A raw ``[[stimulus]]`` table (canonical units) at the site."""
+    """A raw stimulus table (canonical units) at the site; ``start`` is its onset [ms]."""
     entry = {"x": site.x if x is None else x, "width": site.width, "amplitude": float(amplitude),
-             "duration": float(duration), "start": float(start), "count": int(count)}
+             "duration": float(duration), "onset": float(start), "count": int(count)}
     if count > 1:
         entry["cycle_length"] = float(cycle_length)
     return entry
@@ -61,7 +61,7 @@ def variant(case: Case, *, stimuli: list[dict], duration: float, single_cell: bo
     Parameters
     ----------
     stimuli : list of dict
-        Raw ``[[stimulus]]`` tables.
+        Raw stimulus tables, named S1, S2, ... in this order.
     duration : float
         run.duration [ms], rounded up to a whole number of time steps.
     single_cell : bool
@@ -70,7 +70,7 @@ def variant(case: Case, *, stimuli: list[dict], duration: float, single_cell: bo
         Further ``{"section.key": value}`` changes.
     """
     raw = copy.deepcopy(case.raw)
-    raw["stimulus"] = stimuli
+    raw["stimulus"] = {f"S{k + 1}": s for k, s in enumerate(stimuli)}
     dt = case.numerics.dt
     every = case.output_every
     steps = int(np.ceil(duration / every - 1e-9))

@@ -111,9 +111,20 @@ def measure_of(ds: xr.Dataset, measure: str, beat: int, level: float | None) -> 
 
 def current_value(case: Case, key: str) -> float | None:
     """The key's value in the loaded case (canonical unit), or None when it cannot be told."""
+    from cable.case.names import canonical_key
+
+    try:
+        key = canonical_key(key, case.raw)
+    except CaseError:
+        return None
     parts = key.split(".")
     if parts[0] == "fiber" and len(parts) == 2 and case.fiber is not None:
         return getattr(case.fiber, parts[1], None)
+    if parts[:2] in (["membrane", "scale"], ["membrane", "parameters"]) and len(parts) == 3:
+        from cable.membrane import get_model
+
+        kind = "conductance" if parts[1] == "scale" else "parameter"
+        parts[2] = get_model(case.membrane.model).resolve(parts[2], kind)[0] or parts[2]  # g_Na: G_Na
     if parts[:2] == ["membrane", "scale"] and len(parts) == 3:
         return case.membrane.scale.get(parts[2], 1.0)
     if parts[:2] == ["membrane", "parameters"] and len(parts) == 3:
@@ -129,8 +140,10 @@ def current_value(case: Case, key: str) -> float | None:
         for d in case.extra.get("drug", ()):
             if d.name == parts[1]:
                 return d.concentration
-    if parts[0] == "stimulus" and len(parts) == 3 and parts[1].isdigit() and int(parts[1]) < len(case.stimuli):
-        return getattr(case.stimuli[int(parts[1])], parts[2], None)
+    if parts[0] == "stimulus" and len(parts) == 3:
+        for s in case.stimuli:
+            if s.name == parts[1]:
+                return getattr(s, parts[2], None)
     return None
 
 

@@ -4,7 +4,7 @@
 K_o, its coupling, its length, a stimulus time ...) between two values, one at which
 the wave conducts through the whole strand and one at which it does not. Keys are
 dotted, list entries by index: ``region.0.scale.g_Na``, ``region.0.end``,
-``stimulus.1.start``; values are in the key's canonical unit (see ``cable keys``).
+``stimulus.S2.onset``; values are in the key's canonical unit (see ``cable keys``).
 
 "Conducts" means: every judged beat (all beats, or the one given) captured and its
 wave reached both ends of the fibre (``conducted`` in the result of
@@ -93,9 +93,12 @@ def key_units(case: Case, key: str) -> str:
     from cable.case.schema import SECTIONS
     from cable.membrane import get_model
 
-    parts = key.split(".")
-    if parts and parts[0] in ("stimulus", "region") and len(parts) > 1 and parts[1].isdigit():
-        parts = [parts[0]] + parts[2:]
+    from cable.case.names import canonical_key, entry_parts
+
+    try:
+        parts = entry_parts(canonical_key(key, case.raw))
+    except CaseError:
+        return ""
     if len(parts) == 3 and parts[1] == "scale":
         return "1"
     if len(parts) == 3 and parts[1] == "parameters":
@@ -250,7 +253,7 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     Parameters
     ----------
     case : str, pathlib.Path, dict or Case
-        The case; it needs a ``[fiber]`` and a ``[[stimulus]]``.
+        The case; it needs a ``[fiber]`` and a ``[stimulus.NAME]``.
     key : str
         Dotted case key, list entries by index (``region.0.scale.g_Na``).
     low, high : float
@@ -303,7 +306,7 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     if case.fiber is None:
         raise CaseError(f"{who}: the case has no [fiber]; conduction block needs a strand.")
     if not case.stimuli:
-        raise CaseError(f"{who}: the case has no [[stimulus]]; add one to start the wave.")
+        raise CaseError(f"{who}: the case has no stimulus; add a [stimulus.S1] to start the wave.")
     lo = _number(who, "low", low)
     hi = _number(who, "high", high)
     if not lo < hi:

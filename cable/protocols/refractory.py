@@ -65,7 +65,7 @@ def refractory_period(case, *, cycle_length: float | None = None, s1_count: int 
     Parameters
     ----------
     case : str, pathlib.Path, dict or Case
-        A strand case; its first ``[[stimulus]]`` gives the site, the S1 amplitude and
+        A strand case; its first ``[stimulus.NAME]`` gives the site, the S1 amplitude and
         duration, and (when ``count > 1``) the defaults of ``cycle_length`` and ``s1_count``.
     cycle_length : float, optional
         S1 interval [ms]; needed when ``s1_count > 1`` and the case gives none.

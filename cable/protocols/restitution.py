@@ -45,7 +45,7 @@ def restitution(case, intervals=None, protocol: str = "s1s2", *, cycle_length: f
     Parameters
     ----------
     case : str, pathlib.Path, dict or Case
-        The case; its first ``[[stimulus]]`` gives the site, amplitude, duration and
+        The case; its first ``[stimulus.NAME]`` gives the site, amplitude, duration and
         (when ``count > 1``) the default ``cycle_length`` and ``s1_count``.
     intervals : sequence of float, optional
         S1-S2 coupling intervals (``"s1s2"``) or cycle lengths (``"dynamic"``) [ms].

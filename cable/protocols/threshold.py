@@ -57,7 +57,7 @@ def strength_duration(case, durations, *, tolerance: float = DEFAULT_TOLERANCE, 
     Parameters
     ----------
     case : str, pathlib.Path, dict or Case
-        The case; its first ``[[stimulus]]`` gives the site (x, width) and the first
+        The case; its first ``[stimulus.NAME]`` gives the site (x, width) and the first
         guess of the amplitude; its other stimuli are dropped.
     durations : sequence of float
         Pulse durations [ms].

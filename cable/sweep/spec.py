@@ -1,7 +1,7 @@
 """The ``[sweep]`` case section: swept case keys -> the list of points.
 
-Each key of ``[sweep]`` is a case key (list entries by index, e.g.
-``stimulus.0.amplitude``); its value is one of
+Each key of ``[sweep]`` is a case key (named entries by name, e.g.
+``stimulus.S1.amplitude``); its value is one of
 
 * a list of values, each written as it would be in the case: ``[1.0, 0.5, 0.25]`` or
   ``["100 um", "238 um"]``;
@@ -39,6 +39,7 @@ import numpy as np
 
 from cable import units
 from cable.case.load import CaseError, from_dict, register_section, set_key
+from cable.case.names import canonical_key
 from cable.case.schema import SECTIONS
 from cable.io import schema
 
@@ -244,15 +245,17 @@ def _axis_names(keys: list[str]) -> list[str]:
 
 def _quantity_of(key: str, case) -> str | None:
     """The quantity kind of a case key where the schema or the model knows it."""
-    parts = key.split(".")
+    from cable.case.names import entry_parts
+
+    parts = entry_parts(key)
     section = parts[0]
-    if section == "region" and len(parts) > 2 and parts[1].isdigit():
-        if parts[2] in ("scale", "parameters"):  # region.N.scale.X, region.N.parameters.X: as [membrane]'s
-            parts, section = ["membrane"] + parts[2:], "membrane"
-        else:  # region.N.start, end, border, coupling
+    if section == "region" and len(parts) > 1:
+        if parts[1] in ("scale", "parameters"):  # region.NAME.scale.X, region.NAME.parameters.X: as [membrane]'s
+            parts, section = ["membrane"] + parts[1:], "membrane"
+        else:  # region.NAME.start, end, border, coupling
             from cable.regions import REGION_KEYS
 
-            spec = REGION_KEYS.get(parts[2]) if len(parts) == 3 else None
+            spec = REGION_KEYS.get(parts[1]) if len(parts) == 2 else None
             if spec is None or spec.kind != "quantity":
                 return None
             return spec.quantity or "dimensionless"
@@ -266,7 +269,7 @@ def _quantity_of(key: str, case) -> str | None:
         except Exception:  # unknown parameter: the loader's message comes later
             return None
         return None if par.choices is not None else par.quantity
-    rest = [p for p in parts[1:] if not p.isdigit()]
+    rest = [p for p in parts[1:] if not p.isdigit()]  # an [[electrode]]'s index
     if section in SECTIONS and len(rest) == 1 and rest[0] in SECTIONS[section]:
         spec = SECTIONS[section][rest[0]]
         return spec.quantity if spec.kind == "quantity" else None
@@ -337,6 +340,7 @@ def read_sweep(table, case) -> SweepSpec:
     for key, value in flat.items():
         if key.split(".")[0] == "sweep":
             raise CaseError(f"sweep: key '{key}' sweeps the sweep itself; name a case key.")
+        key = canonical_key(key, case.raw)  # fibre.dx, stimulus.0.start: the loader's spelling
         if isinstance(value, dict):
             values = _range_values(key, value, _quantity_of(key, case))
         elif isinstance(value, list):

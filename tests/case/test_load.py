@@ -16,7 +16,7 @@ dx = "100 um"
 radius = "238 um"
 axial_resistivity = "35.4 ohm*cm"
 
-[[stimulus]]
+[stimulus.S1]
 amplitude = 500
 duration = "0.5 ms"
 
@@ -65,14 +65,15 @@ def test_case_text_round_trips():
     ("fiber.dx=-1", "fiber.dx"),
     ("membrane.model='hodgkin-huxley'", "membrane.model"),
     ("membrane.scale.gNa=0.5", "membrane.scale.gNa"),
-    ("membrane.parameters.E_NA=50", "membrane.parameters.E_NA"),
-    ("stimulus.0.x=5", "stimulus.0.x"),
+    ("membrane.parameters.E_Nq=50", "membrane.parameters.E_Nq"),
+    ("stimulus.S1.x=5", "stimulus.S1.x"),
+    ("stimulus.0.x=5", "stimulus.S1.x"),                        # the old index form names the entry
     ("stimulus.3.x=0", "stimulus.3.x"),
     ("numerics.splitting='strange'", "numerics.splitting"),
     ("output.states=['q']", "output.states"),
     ("measure.cv_window=[0.5, 9]", "measure.cv_window"),
     ("numerics.dt=10", "numerics.dt"),
-    ("stimulus.0.amplitude=1e7", "stimulus.0.amplitude"),   # a unit slip (100 A/cm^2)
+    ("stimulus.S1.amplitude=1e7", "stimulus.S1.amplitude"),   # a unit slip (100 A/cm^2)
 ])
 def test_bad_input_names_the_key(override, key):
     with pytest.raises(CaseError, match=key.replace(".", r"\.")):
@@ -156,3 +157,18 @@ def test_prepace_beats_zero_switches_pre_pacing_off():
     assert load_case(BASE, ["membrane.prepace.beats=2"]).membrane.prepace["beats"] == 2
     with pytest.raises(CaseError, match="beats"):
         load_case(BASE, ["membrane.prepace.beats=-1"])
+
+
+def test_conductance_and_parameter_names_ignore_case_where_unambiguous():
+    # g_Na and G_Na (any case) name the one sodium conductance of each model
+    tp06 = "cases/sodium_channel_block.toml"       # [membrane.scale] G_Na = 0.4
+    import pathlib
+
+    path = pathlib.Path(__file__).resolve().parents[2] / tp06
+    case = load_case(path, ["membrane.scale.g_Na=1", "membrane.parameters.k_o=8"])
+    assert case.membrane.scale == {"G_Na": 1.0}       # replaced, not a second entry
+    assert case.membrane.parameters["K_o"] == 8.0
+    axon = load_case(BASE, ["membrane.scale.G_NA=0.5"])
+    assert axon.membrane.scale == {"g_Na": 0.5}
+    with pytest.raises(CaseError, match=r"membrane.scale: 'G_Na' and 'g_na' both name .*'G_Na'; give it once"):
+        load_case(path, ["membrane.scale={G_Na = 0.5, g_na = 0.5}"])

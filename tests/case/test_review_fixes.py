@@ -39,8 +39,9 @@ def test_set_below_a_value_is_a_case_error_naming_the_key(key):
         load_case(AXON, [f"{key}=1"])
 
 
-def test_set_beyond_a_list_says_how_to_add_an_entry():
-    with pytest.raises(CaseError, match=r"1 entry \(0 to 0\)\. To add one, give the whole list"):
+def test_set_beyond_a_list_says_how_to_address_an_entry():
+    with pytest.raises(CaseError, match=r"index 1 is out of range; the case has 1 stimulus entry \(S1\)\. "
+                                        r"Address an entry by its name, e.g\. stimulus\.S1\.amplitude"):
         load_case(AXON, ["stimulus.1.amplitude=100"])
 
 
@@ -64,7 +65,7 @@ def test_temperature_message_shows_the_value_as_given():
 
 def test_absurd_pulse_counts_and_prepacing_are_refused_before_running():
     # a count of 1e11 once built a list of 1e11 onsets (the process was killed for memory)
-    with pytest.raises(CaseError, match=r"stimulus.0.count = 100000000000: must be at most 100000"):
+    with pytest.raises(CaseError, match=r"stimulus.S1.count = 100000000000: must be at most 100000"):
         load_case(AXON, ["stimulus.0.count=100000000000", "stimulus.0.cycle_length=20"])
     # 1e5 beats of 1e9 ms at dt 0.01 ms is 1e16 steps: once an endless pre-pacing
     with pytest.raises(CaseError, match="membrane.prepace: beats = 100000 .* at most 1e\\+09"):

@@ -67,8 +67,10 @@ def test_models_lists_and_shows():
 def test_keys_lists_every_section():
     res = cable_cli("keys")
     assert res.returncode == 0
-    for header in ("[membrane]", "[fiber]", "[[stimulus]]", "[numerics]", "[[region]]", "[measure]"):
+    for header in ("[membrane]", "[fiber]", "[stimulus.NAME]", "[numerics]", "[region.NAME]", "[measure]"):
         assert header in res.stdout
     assert "ohm*cm" in res.stdout
-    res = cable_cli("keys", "fibre")
+    res = cable_cli("keys", "fibr")
     assert res.returncode == 2 and "Did you mean 'fiber'" in res.stderr
+    res = cable_cli("keys", "fibre")                      # the other spelling of [fiber] (issue 16)
+    assert res.returncode == 0 and res.stdout.startswith("[fiber]")

@@ -49,7 +49,7 @@ def test_keys_header_and_toml_defaults_with_units(capsys):
     row, section = {}, None
     for ln in lines:
         if ln.startswith("["):
-            section = ln.strip("[]")
+            section = ln.strip("[]").replace(".NAME", "")  # [stimulus.NAME]: the named tables
         elif ln.startswith("  ") and ln.split():
             row[(section, ln.split()[0])] = ln
     # each shown default reads back as a TOML value (what a case file may hold)
@@ -71,3 +71,14 @@ def test_keys_sweep_is_plain_text(capsys):
     out = output(capsys, "keys", "sweep")
     assert "``" not in out and "::" not in out and ":func:" not in out
     assert '"membrane.scale.g_Na" = {start = 1.0, stop = 0.1, num = 10}' in out
+
+
+def test_keys_of_the_fibre_spelling_and_of_named_tables(capsys):
+    from cable.cli import main
+
+    assert main(["keys", "fibre"]) == 0
+    out = capsys.readouterr().out
+    assert out.startswith("[fiber]\n(also spelt [fibre])") and "axial_resistivity" in out
+    assert main(["keys", "stimulus"]) == 0
+    out = capsys.readouterr().out
+    assert out.startswith("[stimulus.NAME]") and "onset" in out and "\n  start " not in out

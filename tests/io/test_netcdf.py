@@ -215,3 +215,21 @@ def test_open_result_warns_about_an_unfinished_file(result, tmp_path):
         nc.setncattr("status", "running")
     with pytest.warns(UserWarning, match="status = 'running'"):
         cable.open_result(cut).close()
+
+
+def test_rerun_of_a_file_written_in_the_old_stimulus_form_is_identical(result, tmp_path):
+    # files written before named stimuli hold [[stimulus]] with 'start'; they must rerun as identical
+    import tomllib
+
+    from cable.case.load import dumps_toml
+
+    old = tmp_path / "old.nc"
+    shutil.copy(result, old)
+    with netCDF4.Dataset(old, "a") as nc:
+        raw = tomllib.loads(nc.getncattr("case"))
+        raw["stimulus"] = [dict(s, start=s.get("onset", 0.0)) for s in raw["stimulus"].values()]
+        text = dumps_toml(raw)
+        assert "[[stimulus]]" in text and "start = " in text
+        nc.setncattr("case", text)
+    report = cable.rerun(old)
+    assert report.attributes == {} and report.identical

@@ -98,3 +98,21 @@ def test_currents_sum_to_ionic_current(name):
     model.currents(v, s, p, out)
     _, _, ion = model.reference(v, s, p)
     np.testing.assert_allclose(out.sum(axis=1), ion, rtol=1e-9, atol=1e-9)
+
+
+@pytest.mark.parametrize("name", MODELS)
+def test_names_are_resolved_in_any_case_where_unambiguous(name):
+    # a case may write g_Na for G_Na (issue 16); a name two entries share when case is ignored stays exact
+    m = cable.get_model(name)
+    for kind, names in (("conductance", m.conductances), ("parameter", m.parameter_names),
+                        ("state", m.state_names)):
+        for n in names:
+            unique = sum(o.casefold() == n.casefold() for o in names) == 1
+            for spelt in (n, n.upper(), n.lower(), n.swapcase()):
+                found, note = m.resolve(spelt, kind)
+                assert note is None
+                if spelt in names:
+                    assert found == spelt
+                else:
+                    assert found == (n if unique else None)
+        assert m.resolve("no_such_name", kind) == (None, None)

@@ -297,3 +297,19 @@ def test_cell_type_conductances_mean_the_papers_values(cell, g_to, g_ks):
     MODEL.currents(v, st, p, out)
     e_k = tp06.RTF * np.log(5.4 / st[0, tp06.K_I])
     assert out[0, MODEL.current_names.index("I_to")] == pytest.approx(0.073 * 0.25 * (10.0 - e_k), rel=1e-12)
+
+
+def test_identifiers_are_the_papers_and_the_earlier_ones_are_read_with_a_note():
+    # ten Tusscher & Panfilov 2006 (Am J Physiol 291:H1088), I_rel equations: R-bar, k1', k2'
+    from cable.case import load_case
+
+    assert "R_bar" in MODEL.state_names and {"k1p", "k2p"} <= set(MODEL.parameter_names)
+    assert not {"R_prime", "k1_prime", "k2_prime"} & set(MODEL.state_names + MODEL.parameter_names)
+    assert MODEL.parameter("k1p").meaning.startswith("k1' in the paper")
+    assert next(s for s in MODEL.states if s.name == "R_bar").meaning.startswith("R̄ in the paper")
+    assert MODEL.parameter("k2_prime").name == "k2p"
+    case = load_case({"membrane": {"model": MODEL.name, "parameters": {"k1_prime": 0.15}},
+                            "run": {"duration": 1.0}, "output": {"states": ["R_prime"]}})
+    assert case.membrane.parameters == {"k1p": 0.15} and case.output_states == ("R_bar",)
+    assert any("'k1_prime' is the earlier name of" in n and "'k1p'" in n for n in case.notes)
+    assert any("'R_prime' is the earlier name of" in n for n in case.notes)

@@ -71,8 +71,8 @@ def results(tmp_path_factory):
     folder = tmp_path_factory.mktemp("figures")
     case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=5.0)
     case["output"] = {"every": 0.05, "states": ["m", "h", "n"]}
-    case["region"] = [{"start": 0.4, "end": 0.6, "border": 0.05, "scale": {"g_Na": 0.6},
-                       "parameters": {"E_K": -72}}]
+    case["region"] = {"injury": {"start": 0.4, "end": 0.6, "border": 0.05, "scale": {"g_Na": 0.6},
+                                 "parameters": {"E_K": -72}}}
     cable.simulate(case, output=folder / "axon.nc").close()
     g = np.array([0.2, 0.4, 0.6, 0.8, 1.0])
     temp = np.array([6.3, 18.5])
@@ -155,5 +155,5 @@ def test_map_names_the_region_with_its_units(results, drawn, tmp_path):
     (fig,) = drawn
     entries = [t.get_text().replace("\n", " ") for ax in fig.axes if ax.get_legend()
                for t in ax.get_legend().get_texts()]
-    assert "region 0, 4–6 mm: E_K = -72 mV, g_Na × 0.6" in entries
+    assert "injury, 4–6 mm: E_K = -72 mV, g_Na × 0.6" in entries       # the region's own name
     assert "border ramp, 0.5 mm" in entries

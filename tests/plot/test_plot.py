@@ -240,7 +240,7 @@ def test_sweep_plot_errors_name_the_fix():
     ax = Figure().add_subplot()
     with pytest.raises(cable.CaseError, match="Did you mean 'conduction_velocity'"):
         cable.plot.sweep(ds, "conduction_velocty", "g_Na", ax)
-    with pytest.raises(cable.CaseError, match="--sel temperature=6.3 --sel beat=0"):
+    with pytest.raises(cable.CaseError, match="--fix temperature=6.3 --fix beat=0"):
         cable.plot.sweep(ds, "conduction_velocity", "g_Na", ax)
     with pytest.raises(cable.CaseError, match="not a dimension"):
         cable.plot.sweep(ds, "conduction_velocity", "g_K", ax)

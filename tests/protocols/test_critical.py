@@ -81,7 +81,7 @@ def test_ends_that_do_not_straddle_block_are_refused():
 
 
 @pytest.mark.parametrize("kwargs, message", [
-    ({"key": "region.0.scale.G_Nx", "low": 0.0, "high": 1.0}, r"region\.0\.scale\.G_Nx.*Did you mean 'G_Na'"),
+    ({"key": "region.0.scale.G_Nx", "low": 0.0, "high": 1.0}, r"region\.R1\.scale\.G_Nx.*Did you mean 'G_Na'"),
     ({"key": "region.3.coupling", "low": 0.1, "high": 1.0}, r"index 3 is out of range"),
     ({"key": "region.0.scale.G_Na", "low": 1.0, "high": 0.0}, r"low = 1 must be less than high = 0"),
     ({"key": "region.0.scale.G_Na", "low": 0.0, "high": 1.0, "log": True}, r"log = true needs low > 0"),
@@ -262,3 +262,19 @@ def test_cv_below_criterion_and_bad_criterion():
     assert float(res.conduction_velocity.values[res.value.values == p][-1]) >= 15.0
     with pytest.raises(cable.CaseError, match="allowed are 'block', 'slow-response'"):
         find_critical(_hh(12.0), key, 0.2, 1.0, criterion="slow")
+
+
+def test_keys_of_named_tables_and_of_the_fibre_spelling_get_their_units():
+    # issue 16: stimulus.S2.onset is a time [ms], region.NAME.end a position [cm], fibre.dx as fiber.dx
+    from cable.protocols.critical import key_units
+
+    case = cable.load_case({"membrane": {"model": "hodgkin-huxley-1952"},
+                            "fibre": {"length": 1.0, "dx": 0.01, "radius": 0.0238, "axial_resistivity": 35.4},
+                            "stimulus": {"S1": {"amplitude": 500, "duration": 0.5},
+                                         "S2": {"amplitude": 500, "duration": 0.5, "onset": 5}},
+                            "region": {"zone": {"start": 0.4, "end": 0.6, "scale": {"g_Na": 0.5}}},
+                            "run": {"duration": 1.0}})
+    assert key_units(case, "stimulus.S2.onset") == "ms" and key_units(case, "stimulus.1.start") == "ms"
+    assert key_units(case, "region.zone.end") == "cm" and key_units(case, "region.zone.scale.G_NA") == "1"
+    assert key_units(case, "fibre.dx") == "cm"
+    assert key_units(case, "membrane.parameters.e_na") == "mV"

@@ -161,8 +161,8 @@ def test_cli_uses_the_scheduler_given_and_draws_progress(client, tmp_path, capsy
     address = client.scheduler.address
     assert address.startswith("tcp://127.0.0.1:")
     rc = cli_main(["sweep", str(case_file), "-o", str(out), "--scheduler", address,
-                   "--vary", "membrane.scale.g_Na=[1.0, 0.8]",
-                   "--vary", "stimulus.0.duration={start=0.2, stop=0.4, num=2}", "--batch", "2"])
+                   "--over", "membrane.scale.g_Na=[1.0, 0.8]",
+                   "--over", "stimulus.S1.duration={start=0.2, stop=0.4, num=2}", "--batch", "2"])
     captured = capsys.readouterr()
     assert rc == 0, captured.err
     assert "4/4 points, 0 failed" in captured.err and "4 points: 4 ok" in captured.out
@@ -174,7 +174,7 @@ def test_cli_uses_the_scheduler_given_and_draws_progress(client, tmp_path, capsy
     rc = cli_main(["sweep", str(case_file), "--scheduler", address, "--vary", "membrane.scale.g_Na=[1.0]", "-q",
                    "--batch", "0"])
     assert rc == 2 and "batch = 0: must be a whole number of at least 1" in capsys.readouterr().err
-    rc = cli_main(["sweep", str(case_file), "--scheduler", address, "--vary", "membrane.scale.g_NA=[1.0]", "-q"])
+    rc = cli_main(["sweep", str(case_file), "--scheduler", address, "--over", "membrane.scale.gNA=[1.0]", "-q"])
     assert rc == 2 and "Did you mean 'g_Na'" in capsys.readouterr().err
 
 

@@ -53,7 +53,8 @@ def test_grid_is_every_combination_first_key_slowest():
 def test_zip_pairs_lists_entry_by_entry():
     spec = spec_of({"mode": "zip", "membrane.scale.g_Na": [1.0, 0.5, 0.25], "stimulus.0.amplitude": [1000, 600, 400]})
     assert spec.shape == (3,) and spec.dims == ("point",)
-    assert spec.overrides(1) == {"membrane.scale.g_Na": 0.5, "stimulus.0.amplitude": 600}
+    # an old index key is kept under the entry's name (the loader's spelling)
+    assert spec.overrides(1) == {"membrane.scale.g_Na": 0.5, "stimulus.S1.amplitude": 600}
 
 
 def test_nested_tables_mean_the_same_as_quoted_keys():
@@ -66,11 +67,11 @@ def test_nested_tables_mean_the_same_as_quoted_keys():
 
 
 def test_names_are_last_parts_made_unique_and_free():
-    spec = spec_of({"stimulus.0.x": [0.0, 0.1], "stimulus.0.width": [0.1, 0.2],
+    spec = spec_of({"stimulus.S1.x": [0.0, 0.1], "stimulus.S1.width": [0.1, 0.2],
                     "membrane.parameters.g_Na": [120.0, 100.0], "membrane.scale.g_Na": [1.0, 0.5]})
     names = [a.name for a in spec.axes]
-    # "x" is the fibre's dimension; two keys end in g_Na; a name never ends on a bare index
-    assert names == ["stimulus_0_x", "width", "parameters_g_Na", "scale_g_Na"]
+    # "x" is the fibre's dimension; two keys end in g_Na
+    assert names == ["S1_x", "width", "parameters_g_Na", "scale_g_Na"]
 
 
 def test_point_case_is_the_case_without_sweep_plus_its_values():
@@ -89,9 +90,9 @@ def test_sweep_and_keep_fields_do_not_change_a_plain_run():
 
 
 @pytest.mark.parametrize("sweep, message", [
-    ({"membrane.scale.g_NA": [1.0]}, r"membrane\.scale\.g_NA.*Did you mean 'g_Na'"),
+    ({"membrane.scale.gNA": [1.0]}, r"membrane\.scale\.gNA.*Did you mean 'g_Na'"),
     ({"membrane.scael.g_Na": [1.0]}, r"unknown key 'membrane\.scael'.*Did you mean 'scale'"),
-    ({"fibre.dx": [0.01]}, r"unknown section 'fibre'.*Did you mean 'fiber'"),
+    ({"fibr.dx": [0.01]}, r"unknown section 'fibr'.*Did you mean 'fiber'"),
     ({"membrane.scale.g_Na": [-1.0]}, r"membrane\.scale\.g_Na = -1.*at least 0"),
     ({"membrane.scale.g_Na": {"start": 1, "stop": 0, "nmu": 3}}, r"unknown range key 'nmu'.*Did you mean 'num'"),
     ({"membrane.scale.g_Na": {"start": 1, "stop": 0}}, r"range needs start, stop and num; missing num"),
@@ -130,23 +131,23 @@ def test_region_keys_get_canonical_coordinates():
     # region.N.parameters.X in the model parameter's unit: 1 mm = 0.1 cm (SI prefixes)
     case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=4.0)
     case["region"] = [{"start": 0.2, "end": 0.4, "scale": {"g_Na": 0.5}}]
-    case["sweep"] = {"region.0.end": ["4 mm", "5 mm"], "region.0.scale.g_Na": [0.5, 0.25],
-                     "region.0.parameters.E_K": ["-80 mV", "-70 mV"]}
+    case["sweep"] = {"region.R1.end": ["4 mm", "5 mm"], "region.R1.scale.g_Na": [0.5, 0.25],
+                     "region.0.parameters.E_K": ["-80 mV", "-70 mV"]}  # old index form: the same entry
     axes = {a.key: a for a in load_case(case).extra["sweep"].axes}
-    end = axes["region.0.end"]
+    end = axes["region.R1.end"]
     np.testing.assert_allclose(end.coord, [0.4, 0.5], rtol=1e-12)
     assert end.units == "cm" and end.coord.dtype.kind == "f"
-    assert axes["region.0.scale.g_Na"].units == "1"
-    np.testing.assert_allclose(axes["region.0.parameters.E_K"].coord, [-80.0, -70.0])
-    assert axes["region.0.parameters.E_K"].units == "mV"
+    assert axes["region.R1.scale.g_Na"].units == "1"
+    np.testing.assert_allclose(axes["region.R1.parameters.E_K"].coord, [-80.0, -70.0])
+    assert axes["region.R1.parameters.E_K"].units == "mV"
 
 
 def test_a_bad_swept_value_is_named_once():
     # house style: the message names the key and the value (once), and what is allowed
     case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=4.0)
     case["region"] = [{"start": 0.2, "end": 0.4, "scale": {"g_Na": 0.5}}]
-    case["sweep"] = {"region.0.end": ["4 mm", "20 mm"]}
+    case["sweep"] = {"region.R1.end": ["4 mm", "20 mm"]}
     with pytest.raises(CaseError) as info:
         load_case(case)
     text = str(info.value)
-    assert "outside the fibre" in text and text.count("region.0.end") == 1, text
+    assert "outside the fibre" in text and text.count("region.R1.end") == 1, text

@@ -160,7 +160,7 @@ def build(path, potential: str | None = None, stimulus_current: str | None = Non
     else:
         stim = [k for k in depends_t if "stim" in names[k].lower()]
     zero = {sym[k]: sympy.Integer(0) for k in stim}
-    notes.append("stimulus removed (the case's [[stimulus]] is used): "
+    notes.append("stimulus removed (the case's stimuli are used): "
                  + (", ".join(names[k] for k in stim) if stim else "none found"))
 
     # the sign convention
