@@ -12,7 +12,7 @@ SWEEP_NOTE = "note: `cable run` runs the case as given and ignores its [sweep]; 
 
 def add_arguments(p):
     p.add_argument("case", help="case file (TOML)")
-    p.add_argument("-o", "--output", help="the result file the run would write (its disk need is estimated)")
+    p.add_argument("-o", "--output", help="the result file the run would write (its disk need is estimated; default: none)")
     add_set_option(p)
     p.add_argument("--timed-steps", type=int, default=None, metavar="N",
                    help="steps of the short timed run that estimates the run's time (default 300; 0 skips it)")

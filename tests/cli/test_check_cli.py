@@ -38,7 +38,7 @@ def test_check_prints_the_derived_quantities(case_file, capsys):
     out = capsys.readouterr().out
     # 1 cm at 0.01 cm: 101 nodes; the stimulus zone [0, 0.1] cm: nodes 0-10 (closed form of the grid)
     for text in ("101 nodes", "800 steps", "dx 100 um", "space constant", "upstroke extent", "stability:",
-                 "stimulus 0: nodes 0-10", "CV window: 0.25-0.75 cm, nodes 25-75", "memory:", "time: about",
+                 "stimulus S1: nodes 0-10", "CV window: 0.25-0.75 cm, nodes 25-75", "memory:", "time: about",
                  "warnings: none"):
         assert text in out, text
 
@@ -47,7 +47,7 @@ def test_dry_run_writes_nothing(case_file, tmp_path, capsys):
     result = tmp_path / "out.nc"
     assert main(["run", str(case_file), "-o", str(result), "--dry-run", "-q"]) == 0
     out = capsys.readouterr().out
-    assert "disk: up to" in out and "stimulus 0" in out
+    assert "disk: up to" in out and "stimulus S1" in out
     assert not result.exists() and list(tmp_path.iterdir()) == [case_file]
 
 

@@ -44,8 +44,8 @@ def test_says_where_it_measured(blocked_run):
 def test_echoes_what_the_case_changed(blocked_run):
     text = summarise(blocked_run)
     assert "changed from the model's defaults: g_K x 1, temperature = 18.5" in text
-    assert "region 0: start = 0.6, end = 2, scale = {g_Na = 0}" in text
-    assert "stimulus 0: amplitude = 1000, duration = 0.2, width = 0.1" in text
+    assert "region R1: start = 0.6, end = 2, scale = {g_Na = 0}" in text
+    assert "stimulus S1: amplitude = 1000, duration = 0.2, width = 0.1" in text
     assert "dx 200 um" in text
 
 
