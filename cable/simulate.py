@@ -451,8 +451,15 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
 
     attrs = provenance(setup, command)
     attrs["rates"] = rates.mode
+    from cable import quiet as _quiet
+
+    quiet = None
+    attrs["stop_when_quiet"] = int(_quiet.wanted(case))
+    if attrs["stop_when_quiet"]:
+        quiet = _quiet.QuietCheck(setup.pulses, setup.v0, case.quiet_tolerance, len(case.apd_levels))
     if output is not None:
-        sink = netcdf.StreamWriter(output, setup, field_names, model, attrs, overwrite=overwrite)
+        sink = netcdf.StreamWriter(output, setup, field_names, model, attrs, overwrite=overwrite,
+                                   growing=quiet is not None)
     else:
         sink = _MemorySink(setup, field_names)
 
@@ -495,6 +502,10 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
             sample(k)
             if progress is not None:
                 progress(t_k, t_total)
+            if quiet is not None and k < setup.n_samples - 1 and \
+                    quiet(t_k, v, act, nact, arrays.apd.pending):
+                attrs["stopped_when_quiet_ms"] = t_k  # nothing left to happen (cable/quiet.py)
+                break
     except KeyboardInterrupt:
         interrupted = True
     wall = _time.perf_counter() - wall0
@@ -509,7 +520,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
             arrays.apd.finish(nact)
             meas = measurements(setup, act, nact, upstroke, arrays.apd, t_end=(n_done - 1) * spb * dt)
             if ecg_w is not None:
-                meas.update(electrodes.outputs(case, setup.t[:n_done], ecg if output is not None else ecg[:, :n_done],
+                meas.update(electrodes.outputs(case, setup.t[:n_done], ecg if (output is not None and quiet is None) else ecg[:, :n_done],
                                                meas["beat_onset"][1], meas["activation_time"][1]))
         except BaseException:
             if output is not None:

@@ -121,6 +121,8 @@ class Case:
     raw: dict
     notes: tuple[str, ...] = ()
     extra: dict = field(default_factory=dict)  # validated sections owned by other modules
+    stop_when_quiet: bool | None = None  # run.stop_when_quiet; None: not given (the caller's default)
+    quiet_tolerance: float = 1.0         # run.quiet_tolerance [mV]
 
     @property
     def capacitance(self) -> float:
@@ -618,7 +620,8 @@ def from_dict(raw: dict) -> Case:
     case = Case(membrane=membrane, fiber=fiber, stimuli=stimuli, numerics=num,
                 duration=run["duration"], output_every=every, output_states=tuple(out["states"]),
                 threshold=meas["threshold"], cv_window=tuple(cv_window) if cv_window else None,
-                apd_levels=levels, raw=copy.deepcopy(raw), notes=tuple(notes))
+                apd_levels=levels, raw=copy.deepcopy(raw), notes=tuple(notes),
+                stop_when_quiet=run["stop_when_quiet"], quiet_tolerance=run["quiet_tolerance"])
     extra = {}
     for name, (is_list, validate) in _EXTERNAL.items():
         if name in raw:

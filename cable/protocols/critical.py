@@ -330,9 +330,12 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         from cable.io.netcdf import check_target
 
         check_target(output, overwrite)
+    from cable.quiet import quiet_by_default
+
+    run_case = quiet_by_default(case)  # each run ends when nothing is left to happen, unless the case says
     variants = {}
     for value in (lo, hi):  # invalid keys and values fail here, before anything runs
-        variants[value] = case.with_overrides({key: value})
+        variants[value] = run_case.with_overrides({key: value})
     nbeat = len({round(t, 9) for s in variants[lo].stimuli for t in s.onsets()})
     if beat is not None and not 0 <= int(beat) < nbeat:
         raise CaseError(f"{who}: beat = {beat} is out of range; the case has {nbeat} beat(s) (0 to {nbeat - 1}).")
@@ -349,7 +352,7 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         outcome = journal.get(value) if journal is not None else None
         reused = outcome is not None
         if not reused:
-            outcome = _run_until_decided(case, variants.get(value), key, value, beat, crit, say)
+            outcome = _run_until_decided(run_case, variants.get(value), key, value, beat, crit, say)
             if journal is not None:
                 journal.put(value, outcome)
         runs.append((value, outcome))
