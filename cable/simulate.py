@@ -684,6 +684,7 @@ def provenance(setup: Setup, command: str | None) -> dict:
     if setup.prepace is not None:
         attrs["prepace"] = setup.prepace["summary"]
         attrs["prepace_last_beat_change"] = setup.prepace["last_beat_change"]
+        attrs["prepace_beats"] = int(setup.prepace["beats"])
     return attrs
 
 

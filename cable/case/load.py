@@ -699,6 +699,8 @@ PREPACE_KEYS = {
                      meaning="stimulus per area [uA/cm^2]; default: the first [[stimulus]]'s"),
     "duration": Key("quantity", "time", minimum=0.0, exclusive_minimum=True, meaning="pulse duration [ms]; default: the first [[stimulus]]'s"),
     "dt": Key("quantity", "time", minimum=0.0, exclusive_minimum=True, meaning="time step [ms]; default: numerics.dt"),
+    "until_change": Key("quantity", "time", minimum=0.0, exclusive_minimum=True,
+                        meaning="stop pacing after the first beat whose APD90 differs from the previous beat's by less than this [ms] (beats is then the cap); the report says how many beats it took"),
 }
 
 
