@@ -4,9 +4,12 @@ A run may end early, without changing any measurement of its beats, once
 
 1. every stimulus pulse has ended and its capture deadline has passed
    (``CAPTURE_LATENCY`` of :mod:`cable.measure.activation` after the last pulse's end);
-2. the last threshold crossing of any node lies at least ``MAX_NODE_DELAY`` back, so
-   that no wave may still be travelling (one activation more, or a beat read as
-   ``timed_out`` rather than blocked or conducted, would need a later crossing);
+2. no beat would be read as ``timed_out`` at this time (rather than blocked or
+   conducted): the caller's ``judge`` says so (``cable.simulate`` asks
+   :func:`cable.measure.activation.assign_beats`), once; without a judge, or when it
+   finds a beat timed out, the last threshold crossing of any node must lie at least
+   ``MAX_NODE_DELAY`` back (the longest a wave may take from node to node: no wave can
+   be read as travelling after it);
 3. every node that was activated has repolarised past every APD level measured (the
    repolarisation probe has no level pending), so every APD, peak and rest is stored;
 4. every node is within ``run.quiet_tolerance`` of its resting potential (the settled
@@ -44,14 +47,17 @@ class QuietCheck:
         How close to ``v_rest`` every node must be [mV].
     n_levels : int
         Repolarisation levels probed (the APD probe's).
+    judge : callable, optional
+        ``judge(t) -> bool``: no beat would be ``timed_out`` if the run ended at ``t``.
     """
 
-    def __init__(self, pulses: np.ndarray, v_rest: np.ndarray, tolerance: float, n_levels: int):
+    def __init__(self, pulses: np.ndarray, v_rest: np.ndarray, tolerance: float, n_levels: int, judge=None):
         last_end = float(np.max(pulses[:, 1])) if pulses.shape[0] else 0.0
         self.not_before = last_end + CAPTURE_LATENCY
         self.v_rest = np.array(v_rest, dtype=np.float64)
         self.tolerance = float(tolerance)
         self.n_levels = int(n_levels)
+        self.judge = judge
 
     def __call__(self, t: float, v: np.ndarray, act: np.ndarray, nact: np.ndarray, pending: np.ndarray) -> bool:
         """Whether the loop is quiet at time ``t`` [ms] (see the module's conditions).
@@ -66,13 +72,14 @@ class QuietCheck:
         if np.max(np.abs(v - self.v_rest)) > self.tolerance:
             return False
         cap = act.shape[1]
+        if np.any(nact > cap):  # crossings beyond the cap are counted, not stored: their times are unknown
+            return False
+        if self.judge is not None:
+            judge, self.judge = self.judge, None   # asked once: then the rule below
+            if judge(t):
+                return True
         hit = np.flatnonzero(nact > 0)
-        if hit.size:
-            last = act[hit, np.minimum(nact[hit], cap) - 1]
-            # crossings beyond the cap are counted, not stored: the last one's time is unknown, go on
-            if np.any(nact[hit] > cap) or t < float(np.nanmax(last)) + MAX_NODE_DELAY:
-                return False
-        return True
+        return not (hit.size and t < float(np.nanmax(act[hit, nact[hit] - 1])) + MAX_NODE_DELAY)
 
 
 def wanted(case, default: bool = False) -> bool:

@@ -456,7 +456,12 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     quiet = None
     attrs["stop_when_quiet"] = int(_quiet.wanted(case))
     if attrs["stop_when_quiet"]:
-        quiet = _quiet.QuietCheck(setup.pulses, setup.v0, case.quiet_tolerance, len(case.apd_levels))
+        x_nodes = setup.x if setup.x is not None else np.zeros(1)
+
+        def judge(t):  # no beat read as timed out if the run ended at t
+            return not np.any(assign_beats(act, nact, x_nodes, setup.pulses, t_end=t).timed_out)
+
+        quiet = _quiet.QuietCheck(setup.pulses, setup.v0, case.quiet_tolerance, len(case.apd_levels), judge=judge)
     if output is not None:
         sink = netcdf.StreamWriter(output, setup, field_names, model, attrs, overwrite=overwrite,
                                    growing=quiet is not None)

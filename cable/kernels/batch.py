@@ -310,7 +310,15 @@ def _run_batch(setups):
     from cable.quiet import QuietCheck, wanted
 
     # run.stop_when_quiet (the same for every member, group_key): the batch stops once every strand is quiet
-    quiet = QuietCheck(pulses, v, case0.quiet_tolerance, len(case0.apd_levels)) if wanted(case0) else None
+    def judge(t):  # no strand's beat read as timed out if the run ended at t
+        from cable.measure.activation import assign_beats
+
+        return not any(np.any(assign_beats(np.ascontiguousarray(act[sl]), nact[sl].copy(),
+                                           s.x if s.x is not None else np.zeros(1), s.pulses, t_end=t).timed_out)
+                       for s, sl in zip(setups, slices))
+
+    quiet = QuietCheck(pulses, v, case0.quiet_tolerance, len(case0.apd_levels), judge=judge) \
+        if wanted(case0) else None
     sample(0)
     n_done = first.n_samples
     wall0 = _time.perf_counter()

@@ -50,8 +50,6 @@ DEFAULT_RELATIVE_TOLERANCE = 0.01
 MAX_RUNS = 60
 #: times a run that timed out is repeated with run.duration doubled
 MAX_EXTENSIONS = 3
-#: values tried per round inside the bracket (1: plain bisection); see cable/protocols/_rounds.py
-POINTS_PER_ROUND = 4
 #: the criteria of failing (see the module's notes)
 CRITERIA = ("block", "slow-response", "cv-below=")
 
@@ -277,8 +275,8 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         What failing means: ``"block"`` (default), ``"slow-response"``, ``"cv-below=X"``
         (X in m/s); see the module's notes.
     points : int, optional
-        Values tried per round inside the bracket (default ``POINTS_PER_ROUND``; 1 is
-        plain bisection). They divide the bracket evenly (geometrically with ``log``)
+        Values tried per round inside the bracket (default: ``workers``, one run per
+        thread; 1 is plain bisection). They divide the bracket evenly (geometrically with ``log``)
         and run together (:mod:`cable.protocols._rounds`); a case that cannot batch
         (a ring, electrodes, the safety factor) is bisected one value per round.
     workers : int, optional
@@ -343,8 +341,8 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     from cable.protocols import _rounds
     from cable.quiet import quiet_by_default
 
-    points = _rounds.check_count(who, "points", POINTS_PER_ROUND if points is None else points)
     workers = _rounds.check_count(who, "workers", _rounds.default_workers() if workers is None else workers)
+    points = _rounds.check_count(who, "points", workers if points is None else points)
     if not _rounds.batchable(case):
         points, workers = 1, 1  # a ring's, the electrodes' and the safety factor's runs go alone
     run_case = quiet_by_default(case)  # each run ends when nothing is left to happen, unless the case says
