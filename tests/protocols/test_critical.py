@@ -55,7 +55,7 @@ def test_bracket_agrees_with_direct_runs_on_both_sides(tmp_path):
     case = lr1_region()
     key = "region.0.scale.G_Na"
     out = tmp_path / "runs.nc"
-    res = find_critical(case, key, 0.0, 1.0, tolerance=0.01, output=out)
+    res = find_critical(case, key, 0.0, 1.0, tolerance=0.01, output=out, points=1)  # plain bisection
     p, f = res.attrs["passing_value"], res.attrs["failing_value"]
     width = abs(p - f)
     assert width <= 0.01
@@ -146,11 +146,11 @@ def test_cli_prints_bracket_runs_and_cv(tmp_path, capsys):
     path = tmp_path / "zone.toml"
     path.write_text(cable.load_case(lr1_region(dx=0.01)).text)
     rc = main(["critical", str(path), "--vary", "region.0.scale.G_Na", "--between", "0", "1", "--tolerance",
-               "0.05", "-q", "-o", str(tmp_path / "r.nc")])
+               "0.05", "-q", "-o", str(tmp_path / "r.nc"), "--points", "1"])
     out = capsys.readouterr().out
     assert rc == 0
     assert "critical value between" in out and "(conducts)" in out and "(blocks)" in out
-    assert "runs: 7" in out and "CV just on the passing side:" in out and "m/s" in out
+    assert "runs: 7 in 6 rounds" in out and "CV just on the passing side:" in out and "m/s" in out
     assert (tmp_path / "r.nc").exists()
     rc = main(["critical", str(path), "--vary", "region.0.scale.G_Na", "--between", "0.5", "1", "-q"])
     err = capsys.readouterr().err
