@@ -199,11 +199,14 @@ def test_interrupted_search_resumes_with_the_same_result(tmp_path):
     out = tmp_path / "resumed.nc"
     with pytest.raises(KeyboardInterrupt):
         find_critical(case, key, lo, hi, tolerance=tol, output=out, info=stop_after_three)
-    assert not out.exists() and len(list((tmp_path / "resumed.nc.runs").glob("run-*.npz"))) == 3
+    # the runs of the rounds made are kept (rounds of two values by default: the 3rd line
+    # is said after the second round, whose two runs are kept already)
+    kept = len(list((tmp_path / "resumed.nc.runs").glob("run-*.npz")))
+    assert not out.exists() and kept >= 3
     notes = []
     again = find_critical(case, key, lo, hi, tolerance=tol, output=out, info=notes.append)
-    assert any("resuming: 3 run(s)" in n for n in notes)
-    assert sum(n.endswith("(reused)") for n in notes) == 3
+    assert any(f"resuming: {kept} run(s)" in n for n in notes)
+    assert sum(n.endswith("(reused)") for n in notes) == kept
     assert again.attrs["passing_value"] == whole.attrs["passing_value"]
     assert again.attrs["failing_value"] == whole.attrs["failing_value"]
     np.testing.assert_array_equal(again["activation_time"].values, whole["activation_time"].values)
