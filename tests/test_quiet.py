@@ -103,3 +103,20 @@ def test_default_is_off_for_a_run_and_on_for_the_protocols():
     off = _pacing.variant(case.with_overrides({"run.stop_when_quiet": False}), stimuli=case.raw["stimulus"],
                           duration=40.0)
     assert off.stop_when_quiet is False
+
+
+def test_command_line_sets_it_and_the_summary_says_where_it_stopped(tmp_path, capsys):
+    from cable.cli import main
+    from tests.protocols.protocol_cases import write_case
+
+    path = write_case(tmp_path, _hh())
+    import xarray as xr
+
+    rc = main(["run", str(path), "-o", str(tmp_path / "q.nc"), "--set", "run.stop_when_quiet=true",
+               "--set", "run.quiet_tolerance=0.5 mV"])
+    out = capsys.readouterr().out
+    assert rc == 0 and "stopped when quiet at" in out
+    with xr.open_dataset(tmp_path / "q.nc") as ds:
+        assert ds.attrs["stop_when_quiet"] == 1 and ds.sizes["t"] < 401
+    rc = main(["run", str(path), "--set", "run.stop_when_quiet=maybe"])
+    assert rc == 2
