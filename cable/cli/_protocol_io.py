@@ -23,7 +23,8 @@ def add_rounds_options(p) -> None:
                    help="values tried per round of the search, run together (default: --workers; 1: plain "
                         "bisection; see cable/protocols/_rounds.py)")
     p.add_argument("--workers", type=int, metavar="N",
-                   help="threads that share a round's runs (default 2, or 1 on a one-core machine)")
+                   help="threads that share a round's runs (default: the cores free when the search starts, "
+                        "at most 2)")
 
 
 def add_figure_option(p) -> None:

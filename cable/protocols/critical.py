@@ -280,7 +280,8 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         and run together (:mod:`cable.protocols._rounds`); a case that cannot batch
         (a ring, electrodes, the safety factor) is bisected one value per round.
     workers : int, optional
-        Threads that share a round's runs (default: 2, or 1 on a one-core machine).
+        Threads that share a round's runs (default: the cores free at the start, at most
+        2: :func:`cable.protocols._rounds.default_workers`).
 
     Returns
     -------
@@ -357,8 +358,8 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     runs: list[tuple[float, dict]] = []
     journal = None
     if output is not None:
-        journal = _Journal(output, f"{case.text}\n{key} {lo!r} {hi!r} {tol!r} {beat!r} {log!r} {criterion!r}"
-                                   + (f" points={points}" if points != 1 else ""))
+        # points is not part of the identity: runs are reused by value, whatever the rounds asked
+        journal = _Journal(output, f"{case.text}\n{key} {lo!r} {hi!r} {tol!r} {beat!r} {log!r} {criterion!r}")
         if journal.done:
             say(f"resuming: {len(journal.done)} run(s) of an interrupted search reused from {journal.folder}")
 

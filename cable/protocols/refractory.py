@@ -84,7 +84,8 @@ def refractory_period(case, *, cycle_length: float | None = None, s1_count: int 
         Receives one line per trial.
     points, workers : int, optional
         Coupling intervals tried per round of the joint narrowing, and the threads that
-        share them (defaults: 2, or 1 on a one-core machine; ``points = 1``: one per
+        share them (defaults: the cores free at the start, at most 2, and
+        as many points; ``points = 1``: one per
         round, as bisection). Each interval's run has its own duration, so the runs of a
         round do not share a kernel call; they run side by side
         (:mod:`cable.protocols._rounds`).

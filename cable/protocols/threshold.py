@@ -75,7 +75,8 @@ def strength_duration(case, durations, *, tolerance: float = DEFAULT_TOLERANCE, 
         Receives one line per duration.
     points, workers : int, optional
         Amplitudes tried per round of the final narrowing, and the threads that share
-        them (defaults: 2, or 1 on a one-core machine; ``points = 1`` is plain
+        them (defaults: the cores free at the start, at most 2, and
+        as many points; ``points = 1`` is plain
         bisection); see :mod:`cable.protocols._rounds`.
 
     Returns

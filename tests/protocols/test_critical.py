@@ -188,7 +188,8 @@ def test_interrupted_search_resumes_with_the_same_result(tmp_path):
         "output": {"every": 0.5},
     }
     key, lo, hi, tol = "region.0.scale.g_Na", 0.0, 1.0, 0.02
-    whole = find_critical(case, key, lo, hi, tolerance=tol, output=tmp_path / "whole.nc")
+    rounds = {"points": 2, "workers": 2}  # explicit: the default follows the machine's load
+    whole = find_critical(case, key, lo, hi, tolerance=tol, output=tmp_path / "whole.nc", **rounds)
     said = []
 
     def stop_after_three(msg):
@@ -198,13 +199,13 @@ def test_interrupted_search_resumes_with_the_same_result(tmp_path):
 
     out = tmp_path / "resumed.nc"
     with pytest.raises(KeyboardInterrupt):
-        find_critical(case, key, lo, hi, tolerance=tol, output=out, info=stop_after_three)
-    # the runs of the rounds made are kept (rounds of two values by default: the 3rd line
+        find_critical(case, key, lo, hi, tolerance=tol, output=out, info=stop_after_three, **rounds)
+    # the runs of the rounds made are kept (rounds of two values: the 3rd line
     # is said after the second round, whose two runs are kept already)
     kept = len(list((tmp_path / "resumed.nc.runs").glob("run-*.npz")))
     assert not out.exists() and kept >= 3
     notes = []
-    again = find_critical(case, key, lo, hi, tolerance=tol, output=out, info=notes.append)
+    again = find_critical(case, key, lo, hi, tolerance=tol, output=out, info=notes.append, **rounds)
     assert any(f"resuming: {kept} run(s)" in n for n in notes)
     assert sum(n.endswith("(reused)") for n in notes) == kept
     assert again.attrs["passing_value"] == whole.attrs["passing_value"]
