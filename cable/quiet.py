@@ -20,7 +20,9 @@ remaining time would add is diastole. The rest measured for each beat is the low
 potential before its upstroke, so it is unchanged too. A model that oscillates by
 itself, or a strand whose rest drifts beyond the tolerance after the beats (changed
 ion concentrations), simply runs to ``run.duration``. Rings are not stopped (their
-reentry is judged against the whole run).
+reentry is judged against the whole run), nor runs with ``measure.safety_factor``: its
+charges are integrated over the beat's window to the end of the run, and the last
+diastole still adds to them (at the 1e-4 level on the HH axon, measured here).
 
 The check is made between output intervals, from the probes the kernel keeps anyway
 (a few vectorised passes over the nodes, after the last pulse only), so the stop is at
@@ -85,9 +87,11 @@ class QuietCheck:
 def wanted(case, default: bool = False) -> bool:
     """Whether a run of ``case`` stops when quiet: ``run.stop_when_quiet`` if given, else ``default``.
 
-    Rings never do (see the module's notes).
+    Rings never do, nor runs that measure the safety factor (see the module's notes).
     """
     if case.fiber is not None and case.fiber.closed:
+        return False
+    if case.fiber is not None and case.raw.get("measure", {}).get("safety_factor", False):
         return False
     given = getattr(case, "stop_when_quiet", None)
     return default if given is None else bool(given)

@@ -525,7 +525,9 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
             arrays.apd.finish(nact)
             meas = measurements(setup, act, nact, upstroke, arrays.apd, t_end=(n_done - 1) * spb * dt)
             if ecg_w is not None:
-                meas.update(electrodes.outputs(case, setup.t[:n_done], ecg if (output is not None and quiet is None) else ecg[:, :n_done],
+                # a streamed file holds every sample time, unless the run may stop early (then n_done)
+                full = output is not None and quiet is None
+                meas.update(electrodes.outputs(case, setup.t[:n_done], ecg if full else ecg[:, :n_done],
                                                meas["beat_onset"][1], meas["activation_time"][1]))
         except BaseException:
             if output is not None:

@@ -120,3 +120,19 @@ def test_command_line_sets_it_and_the_summary_says_where_it_stopped(tmp_path, ca
         assert ds.attrs["stop_when_quiet"] == 1 and ds.sizes["t"] < 401
     rc = main(["run", str(path), "--set", "run.stop_when_quiet=maybe"])
     assert rc == 2
+
+
+def test_pseudo_ecg_is_the_same_when_streamed_and_the_safety_factor_runs_to_the_end(tmp_path):
+    # the QT interval needs the T wave, which ends before the strand is back at rest
+    raw = _hh()
+    raw["electrode"] = [{"x": "1.5 cm", "distance": 0}]
+    full = cable.simulate(cable.load_case(raw), output=tmp_path / "full.nc")
+    quiet = cable.simulate(cable.load_case(raw, ["run.stop_when_quiet=true"]), output=tmp_path / "quiet.nc")
+    assert quiet.sizes["t"] < full.sizes["t"] and quiet.pseudo_ecg.shape[1] == quiet.sizes["t"]
+    for name in ("qrs_onset", "qt_interval", "t_peak", "activation_time"):
+        assert np.array_equal(full[name].values, quiet[name].values, equal_nan=True), name
+    assert np.array_equal(full.pseudo_ecg.values[:, : quiet.sizes["t"]], quiet.pseudo_ecg.values)
+    # the safety factor's charges run to the end of the run: such a run is not stopped
+    raw["measure"] = {"safety_factor": True}
+    ds = cable.simulate(cable.load_case(raw, ["run.stop_when_quiet=true"]))
+    assert ds.attrs["stop_when_quiet"] == 0 and ds.sizes["t"] == full.sizes["t"]
