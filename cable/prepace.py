@@ -13,10 +13,16 @@ import numpy as np
 
 from cable.case import CaseError
 from cable.kernels import diffusion, integrate
-from cable.measure.apd import no_probe
+from cable.measure.apd import ApdProbe, no_probe
 
 
-def _pace_cell(advance, model, p_row, v0, s_row, beats, cl, amp, dur, dt, ion_scale):
+def _pace_cell(advance, model, p_row, v0, s_row, beats, cl, amp, dur, dt, ion_scale, until_change=None):
+    """Pace one cell; (v, states, state at the end of each beat, APD90 of each beat [ms]).
+
+    With ``until_change`` [ms], stop after the first beat whose APD90 differs from the
+    previous beat's by less than that (``beats`` is then the cap). The APD probe only
+    reads the potential: the states reached do not depend on it.
+    """
     n = 1
     v = np.array([v0], dtype=np.float64)
     s = np.ascontiguousarray(s_row.reshape(1, -1).copy())
@@ -29,19 +35,24 @@ def _pace_cell(advance, model, p_row, v0, s_row, beats, cl, amp, dur, dt, ion_sc
     nact = np.zeros(n, dtype=np.int64)
     ups = np.full((n, cap), np.nan)
     steps = int(round(cl / dt))
-    ends = []
+    ends, apds = [], []
     for b in range(beats):
         pulses = np.array([[0.0, dur, 0, 1, amp]])
         nact[:] = 0
+        act[:] = np.nan
+        probe = ApdProbe(v, cap, (90.0,))
         status, step, node = advance(v, s, p, 0.0, steps, dt, pulses, lo, up, 0.5, fac, fac,
                                      integrate.GODUNOV, False, 0, ion_scale, model.threshold,
                                      v.copy(), act, nact, np.zeros(1), np.zeros(1, dtype=np.int64), ups,
-                                     no_probe(n, cap), np.zeros(1), np.zeros(1), 200)
+                                     probe.args(), np.zeros(1), np.zeros(1), 200)
         if status != integrate.OK:
             raise CaseError(f"membrane.prepace: the single cell became unstable in beat {b + 1} "
                             f"(t = {(step + 1) * dt:g} ms); reduce membrane.prepace.dt or check the parameters.")
         ends.append(np.concatenate([v, s[0]]))
-    return v[0], s[0].copy(), ends
+        apds.append(float(probe.repol[0, 0, 0] - act[0, 0]) if nact[0] >= 1 else float("nan"))
+        if until_change is not None and len(apds) >= 2 and abs(apds[-1] - apds[-2]) < until_change:
+            break  # NaN (no beat, or not repolarised within the cycle) never counts as settled
+    return v[0], s[0].copy(), ends, apds
 
 
 def prepace_nodes(case, model, p, v0, s0):
@@ -63,22 +74,35 @@ def prepace_nodes(case, model, p, v0, s0):
     v_out = v0.copy()
     s_out = s0.copy()
     worst = 0.0
+    until = cfg.get("until_change")
+    taken, apd_change, unsettled = [], 0.0, 0
     for r in range(rows.shape[0]):
         node = int(np.flatnonzero(inverse == r)[0])
-        v_end, s_end, ends = _pace_cell(advance, model, rows[r], v0[node], s0[node], cfg["beats"],
-                                        cfg["cycle_length"], amp / cm, dur, dt, model.ion_scale(cm))
+        v_end, s_end, ends, apds = _pace_cell(advance, model, rows[r], v0[node], s0[node], cfg["beats"],
+                                              cfg["cycle_length"], amp / cm, dur, dt, model.ion_scale(cm),
+                                              until_change=until)
         v_out[inverse == r] = v_end
         s_out[inverse == r] = s_end
+        taken.append(len(ends))
         if len(ends) >= 2:
             a, b = ends[-2], ends[-1]
             scale = np.maximum(np.abs(a), 1e-12)
             worst = max(worst, float(np.max(np.abs(b - a) / scale)))
-    change = worst if cfg["beats"] >= 2 else float("nan")
-    summary = (f"prepaced {rows.shape[0]} cell type(s) for {cfg['beats']} beats at {cfg['cycle_length']:g} ms; "
+            step = abs(apds[-1] - apds[-2])
+            apd_change = max(apd_change, step) if np.isfinite(step) else float("nan")
+            unsettled += int(until is not None and not step < until)
+    change = worst if max(taken) >= 2 else float("nan")
+    beats = f"{cfg['beats']} beats" if until is None else \
+        f"{min(taken)}-{max(taken)} beats" if min(taken) != max(taken) else f"{taken[0]} beats"
+    summary = (f"prepaced {rows.shape[0]} cell type(s) for {beats} at {cfg['cycle_length']:g} ms; "
                f"largest relative change of a state over the last beat: {change:.2e}")
-    if change > 1e-3:
+    if until is not None:
+        summary += (f"; APD90 changed by {apd_change:.3g} ms over the last beat (until_change = {until:g} ms"
+                    + (f", not reached within {cfg['beats']} beats by {unsettled} cell type(s))" if unsettled else ")"))
+    if change > 1e-3 or unsettled:
         summary += " (not settled: consider more beats)"
-    return v_out, s_out, {"summary": summary, "last_beat_change": change}
+    return v_out, s_out, {"summary": summary, "last_beat_change": change, "beats": max(taken),
+                          "last_beat_apd90_change": apd_change, "settled": not unsettled}
 
 
 #: settling of an unstimulated cell whose parameters differ from the model's defaults:

@@ -469,8 +469,20 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
 
     attrs = provenance(setup, command)
     attrs["rates"] = rates.mode
+    from cable import quiet as _quiet
+
+    quiet = None
+    attrs["stop_when_quiet"] = int(_quiet.wanted(case))
+    if attrs["stop_when_quiet"]:
+        x_nodes = setup.x if setup.x is not None else np.zeros(1)
+
+        def judge(t):  # no beat read as timed out if the run ended at t
+            return not np.any(assign_beats(act, nact, x_nodes, setup.pulses, t_end=t).timed_out)
+
+        quiet = _quiet.QuietCheck(setup.pulses, setup.v0, case.quiet_tolerance, len(case.apd_levels), judge=judge)
     if output is not None:
-        sink = netcdf.StreamWriter(output, setup, field_names, model, attrs, overwrite=overwrite)
+        sink = netcdf.StreamWriter(output, setup, field_names, model, attrs, overwrite=overwrite,
+                                   growing=quiet is not None)
     else:
         sink = _MemorySink(setup, field_names)
 
@@ -540,6 +552,10 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
             sample(k)
             if progress is not None:
                 progress(t_k, t_total)
+            if quiet is not None and k < setup.n_samples - 1 and \
+                    quiet(t_k, v, act, nact, arrays.apd.pending):
+                attrs["stopped_when_quiet_ms"] = t_k  # nothing left to happen (cable/quiet.py)
+                break
     except KeyboardInterrupt:
         interrupted = True
     wall = _time.perf_counter() - wall0
@@ -556,8 +572,10 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
             if stepper is not None:
                 meas.update(stepper.outputs())
             if ecg_w is not None:
+                # a streamed file holds every sample time, unless the run may stop early (then n_done)
+                full = output is not None and quiet is None
                 n_steps_done = (n_done - 1) * spb + 1
-                meas.update(electrodes.outputs(case, setup.t[:n_done], ecg if output is not None else ecg[:, :n_done],
+                meas.update(electrodes.outputs(case, setup.t[:n_done], ecg if full else ecg[:, :n_done],
                                                meas["beat_onset"][1], meas["activation_time"][1],
                                                t_steps=np.arange(n_steps_done) * dt,
                                                phi_steps=ecg_steps[:, :n_steps_done]))
@@ -729,6 +747,7 @@ def provenance(setup: Setup, command: str | None) -> dict:
     if setup.prepace is not None:
         attrs["prepace"] = setup.prepace["summary"]
         attrs["prepace_last_beat_change"] = setup.prepace["last_beat_change"]
+        attrs["prepace_beats"] = int(setup.prepace["beats"])
     return attrs
 
 

@@ -53,10 +53,13 @@ cells = [
          "                                         \"scale\": {\"g_Na\": 0.1}}})\n"
          "ds = cable.simulate(injured)\n"
          "print(f\"blocked: {bool(ds.blocked[0])}, last activated at x = {float(ds.block_x[0]):.2f} cm\")"),
-    md("At which fraction of g_Na in the segment does conduction turn into block? `find_critical` bisects it:"),
-    code("critical = cable.find_critical(injured, \"region.injury.scale.g_Na\", 0.05, 1.0, tolerance=0.02)\n"
+    md("At which fraction of g_Na in the segment does conduction turn into block? `find_critical` narrows a "
+       "bracket, here two values per round run side by side (`points=1` is plain bisection; the default "
+       "follows the cores free):"),
+    code("critical = cable.find_critical(injured, \"region.injury.scale.g_Na\", 0.05, 1.0, tolerance=0.02, points=2)\n"
          "value = critical.attrs[\"critical_value\"]\n"
-         "print(f\"conduction fails below g_Na x {value:.3f} in the segment ({critical.attrs['runs']} runs)\")"),
+         "print(f\"conduction fails below g_Na x {value:.3f} in the segment ({critical.attrs['runs']} runs in \"\n"
+         "      f\"{critical.attrs['rounds']} rounds)\")"),
     md("## 3. A space-time map for a figure\n\n"
        "Time runs along the horizontal axis and position up the vertical one; the white line is the "
        "activation front, the cross the block site, and the hatched bar beside the map the injured segment "

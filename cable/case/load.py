@@ -134,6 +134,8 @@ class Case:
     raw: dict
     notes: tuple[str, ...] = ()
     extra: dict = field(default_factory=dict)  # validated sections owned by other modules
+    stop_when_quiet: bool | None = None  # run.stop_when_quiet; None: not given (the caller's default)
+    quiet_tolerance: float = 1.0         # run.quiet_tolerance [mV]
 
     @property
     def capacitance(self) -> float:
@@ -682,7 +684,8 @@ def from_dict(raw: dict, *, notes=()) -> Case:
     case = Case(membrane=membrane, fiber=fiber, stimuli=stimuli, numerics=num,
                 duration=run["duration"], output_every=every, output_states=tuple(out["states"]),
                 threshold=meas["threshold"], cv_window=tuple(cv_window) if cv_window else None,
-                apd_levels=levels, raw=copy.deepcopy(raw), notes=tuple(notes))
+                apd_levels=levels, raw=copy.deepcopy(raw), notes=tuple(notes),
+                stop_when_quiet=run["stop_when_quiet"], quiet_tolerance=run["quiet_tolerance"])
     extra = {}
     for name, (is_list, validate) in _EXTERNAL.items():
         if name in raw:
@@ -788,6 +791,8 @@ PREPACE_KEYS = {
                      meaning="stimulus per area [uA/cm^2]; default: the first stimulus's"),
     "duration": Key("quantity", "time", minimum=0.0, exclusive_minimum=True, meaning="pulse duration [ms]; default: the first stimulus's"),
     "dt": Key("quantity", "time", minimum=0.0, exclusive_minimum=True, meaning="time step [ms]; default: numerics.dt"),
+    "until_change": Key("quantity", "time", minimum=0.0, exclusive_minimum=True,
+                        meaning="stop pacing after the first beat whose APD90 differs from the previous beat's by less than this [ms] (beats is then the cap); the report says how many beats it took"),
 }
 
 

@@ -88,6 +88,8 @@ SECTIONS: dict[str, dict[str, Key]] = {
     },
     "run": {
         "duration": _q("time", required=True, positive=True, meaning="simulated time [ms]"),
+        "stop_when_quiet": Key("bool", meaning="end the run once every stimulus was given, every wave ended and the strand is back within quiet_tolerance of rest (the beats' measurements unchanged; the t axis is shorter); default false for `cable run`, true for the protocols and `cable critical`; see cable/quiet.py"),
+        "quiet_tolerance": _q("potential", 1.0, positive=True, meaning="stop_when_quiet: how close to its resting potential every node must be [mV]"),
     },
     "output": {
         "every": _q("time", 0.1, positive=True, meaning="sampling interval of stored fields [ms]"),

@@ -17,6 +17,16 @@ def add_common(p) -> None:
     add_figure_option(p)
 
 
+def add_rounds_options(p) -> None:
+    """``--points``, ``--workers``: values tried per round of a search, threads sharing them."""
+    p.add_argument("--points", type=int, metavar="K",
+                   help="values tried per round of the search, run together (default: --workers; 1: plain "
+                        "bisection; see cable/protocols/_rounds.py)")
+    p.add_argument("--workers", type=int, metavar="N",
+                   help="threads that share a round's runs (default: the cores free when the search starts, "
+                        "at most 2)")
+
+
 def add_figure_option(p) -> None:
     """--figure PATH (and its size and resolution): draw the result with :func:`cable.plot.protocol_figure`."""
     from cable.cli._figures import add_size_options

@@ -30,6 +30,9 @@ def add_arguments(p):
     p.add_argument("-o", "--output", help="netCDF file for the runs made (default: none)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing output file")
     add_set_option(p)
+    from cable.cli._protocol_io import add_rounds_options
+
+    add_rounds_options(p)
     p.add_argument("-q", "--quiet", action="store_true", help="print only the result (no line per run)")
 
 
@@ -46,7 +49,8 @@ def summarise(ds) -> str:
     fails = {"block": "blocks", "slow-response": "blocks or slow response"}.get(crit, f"blocks or {crit}")
     lines = [f"{a['key']}: critical value between {a['passing_value']:.6g}{unit} (conducts) and "
              f"{a['failing_value']:.6g}{unit} ({fails}); midpoint {a['critical_value']:.6g}{unit}",
-             f"runs: {a['runs']}   final bracket: {_width(a)} (tolerance {a['tolerance']:.3g})",
+             f"runs: {a['runs']}" + (f" in {a['rounds']} rounds" if "rounds" in a else "")
+             + f"   final bracket: {_width(a)} (tolerance {a['tolerance']:.3g})",
              f"CV just on the passing side: {a['cv_passing_m_per_s']:.4g} m/s"]
     if a.get("note"):
         lines.append(f"note: {a['note']}")
@@ -72,7 +76,7 @@ def run(args):
     try:
         ds = find_critical(case, args.vary, low, high, tolerance=args.tolerance, beat=args.beat, log=args.log,
                            output=args.output, overwrite=args.overwrite, info=lambda m: say(args, m),
-                           criterion=args.criterion)
+                           criterion=args.criterion, points=args.points, workers=args.workers)
     except NoBracketError as exc:
         print(f"cable: error: {exc}", file=sys.stderr)
         if args.output:

@@ -1,7 +1,7 @@
 """``cable erp CASE``: effective and local refractory periods by S1-S2 bisection."""
 
 from cable.cli import say
-from cable.cli._protocol_io import add_common, finish, prepare
+from cable.cli._protocol_io import add_common, add_rounds_options, finish, prepare
 
 NAME = "erp"
 HELP = "refractory periods: S1 train, then the shortest S1-S2 interval that captures and that propagates"
@@ -22,6 +22,7 @@ def add_arguments(p):
     p.add_argument("--observe", type=float, metavar="MS",
                    help="how long each S2 is watched [ms] (default: twice the S1 wave's transit time plus the "
                         "capture latency and the S2 pulse)")
+    add_rounds_options(p)
 
 
 def run(args):
@@ -34,5 +35,6 @@ def run(args):
                         f"the time resolution of each run (default {DEFAULT_TOLERANCE:g} ms).")
     ds = refractory_period(case, cycle_length=args.cycle_length, s1_count=args.s1_count,
                            s2_amplitude=args.s2_amplitude, s2_duration=args.s2_duration, tolerance=args.tolerance,
-                           observe=args.observe, info=lambda m: say(args, m))
+                           observe=args.observe, info=lambda m: say(args, m), points=args.points,
+                           workers=args.workers)
     return finish(args, ds, summary(ds))

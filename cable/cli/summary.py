@@ -75,7 +75,9 @@ def summarise(ds, path=None) -> str:
     lines.append(f"model: {model}" + (f" ({cite})" if cite else ""))
     status = attrs.get("status", "?")
     lines.append(f"status: {status}" + (f", completed until {_num(attrs.get('completed_until_ms'))} ms"
-                                        if status == "partial" else ""))
+                                        if status == "partial" else "")
+                 + (f", stopped when quiet at {_num(attrs['stopped_when_quiet_ms'])} ms (run.stop_when_quiet)"
+                    if "stopped_when_quiet_ms" in attrs else ""))
     if attrs.get("partial_reason"):
         lines.append(f"PARTIAL: {attrs['partial_reason']}")
     t_end = float(ds["t"][-1]) if ds.sizes.get("t", 0) else float("nan")

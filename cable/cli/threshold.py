@@ -1,7 +1,7 @@
 """``cable threshold CASE --durations ...``: strength-duration curve, rheobase and chronaxie."""
 
 from cable.cli import say
-from cable.cli._protocol_io import add_common, finish, prepare
+from cable.cli._protocol_io import add_common, add_rounds_options, finish, prepare
 
 #: smallest --tolerance: a bracket of 1 ppm of the amplitude (about 20 halvings) is far finer
 #: than any model's accuracy, and near the float64 spacing (2e-16) bisection stops halving
@@ -25,6 +25,7 @@ def add_arguments(p):
                    help=f"relative width of the final amplitude bracket (default {DEFAULT_TOLERANCE:g})")
     p.add_argument("--observe", type=float, metavar="MS",
                    help="how long to watch after the pulse [ms] (default: the case's run.duration)")
+    add_rounds_options(p)
 
 
 def run(args):
@@ -37,5 +38,5 @@ def run(args):
                         f"final amplitude bracket, e.g. 0.01 for 1 %).")
     case = prepare(args)
     ds = strength_duration(case, args.durations, tolerance=args.tolerance, mode=args.mode, observe=args.observe,
-                           info=lambda m: say(args, m))
+                           info=lambda m: say(args, m), points=args.points, workers=args.workers)
     return finish(args, ds, summary(ds))

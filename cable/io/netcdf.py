@@ -227,7 +227,9 @@ def variable_attrs(attrs: dict, dtype) -> dict:
 class StreamWriter:
     """Write a run's fields as they are computed, then its measurements."""
 
-    def __init__(self, path, setup, field_names, model, attrs, overwrite: bool = False):
+    def __init__(self, path, setup, field_names, model, attrs, overwrite: bool = False, growing: bool = False):
+        """``growing``: the run may stop before its last sample (``run.stop_when_quiet``):
+        the ``t`` dimension is unlimited and holds the samples computed only."""
         from cable.simulate import _field_attrs
 
         self.path = Path(path)
@@ -248,7 +250,7 @@ class StreamWriter:
         # or at the latest when the interpreter exits
         self._discard = weakref.finalize(self, _discard, self.tmp, nc)
         try:
-            nc.createDimension("t", setup.n_samples)
+            nc.createDimension("t", None if growing else setup.n_samples)
             tv = nc.createVariable("t", "f8", ("t",))
             tv.setncatts(variable_attrs(schema.attrs("t"), "f8"))
             # the times are written with the samples (flush, finish): no n_samples array up front
@@ -319,7 +321,8 @@ class StreamWriter:
             self.flush()
             nc = self.nc
             step = max(1, BUFFER_BYTES // 8)
-            for a in range(self.start, self.setup.n_samples, step):   # times of samples not run (partial)
+            end = self.start if nc.dimensions["t"].isunlimited() else self.setup.n_samples
+            for a in range(self.start, end, step):   # times of samples not run (partial)
                 b = min(a + step, self.setup.n_samples)
                 nc.variables["t"][a:b] = self._times(a, b)
             nb = len(meas["beat_onset"][1])

@@ -80,11 +80,15 @@ def group_key(setup) -> tuple | None:
         return None  # a ring's cyclic solve and the pseudo-ECG are cable.simulate's alone
     if setup.case.numerics.adaptive:
         return None  # adaptive steps (numerics.dt_max): each strand chooses its own steps, in cable.simulate
+    from cable.quiet import wanted
+
     case = setup.case
     num = case.numerics
+    quiet = (wanted(case), case.quiet_tolerance if wanted(case) else None)
     return (setup.model.name, num.dt, num.splitting, num.diffusion, num.gating, num.reaction, num.merge_half_steps,
             num.rates, setup.steps_per_sample, setup.n_samples, setup.threshold, tuple(case.apd_levels),
-            setup.ion_scale, tuple(case.output_states), crossing_cap(setup.pulses.shape[0]), _rates_key(setup))
+            setup.ion_scale, tuple(case.output_states), crossing_cap(setup.pulses.shape[0]), _rates_key(setup),
+            quiet)
 
 
 def loop_key(case) -> tuple:
@@ -105,7 +109,8 @@ def loop_key(case) -> tuple:
     alone = bool(case.raw.get("measure", {}).get("safety_factor", False)) and case.fiber is not None
     return (case.membrane.model, num.dt, num.splitting, num.diffusion, num.gating, num.reaction, num.merge_half_steps,
             num.rates, case.output_every, case.duration, case.threshold, tuple(case.apd_levels),
-            tuple(case.output_states), cm, alone, num.dt_max if num.adaptive else None)
+            tuple(case.output_states), cm, alone, num.dt_max if num.adaptive else None, case.stop_when_quiet,
+            case.quiet_tolerance)
 
 
 def simulate_batch(cases, *, errors: str = "raise") -> list:
@@ -305,7 +310,20 @@ def _run_batch(setups):
         for name, j in zip(field_names[1:], state_idx):
             put(name, k, arrays.state(j))
 
+    from cable.quiet import QuietCheck, wanted
+
+    # run.stop_when_quiet (the same for every member, group_key): the batch stops once every strand is quiet
+    def judge(t):  # no strand's beat read as timed out if the run ended at t
+        from cable.measure.activation import assign_beats
+
+        return not any(np.any(assign_beats(np.ascontiguousarray(act[sl]), nact[sl].copy(),
+                                           s.x if s.x is not None else np.zeros(1), s.pulses, t_end=t).timed_out)
+                       for s, sl in zip(setups, slices))
+
+    quiet = QuietCheck(pulses, v, case0.quiet_tolerance, len(case0.apd_levels), judge=judge) \
+        if wanted(case0) else None
     sample(0)
+    n_done = first.n_samples
     wall0 = _time.perf_counter()
     for k in range(1, first.n_samples):
         t0 = (k - 1) * spb * dt
@@ -315,8 +333,11 @@ def _run_batch(setups):
         if status != integrate.OK:
             return None
         sample(k)
+        if quiet is not None and k < first.n_samples - 1 and quiet(k * spb * dt, v, act, nact, arrays.apd.pending):
+            n_done = k + 1
+            break
     wall = _time.perf_counter() - wall0
-    t_end = (first.n_samples - 1) * spb * dt
+    t_end = (n_done - 1) * spb * dt
     tracker = arrays.apd
     tracker.finish(nact)
     results = []
@@ -326,8 +347,10 @@ def _run_batch(setups):
                             np.ascontiguousarray(upstroke[sl]), _tracker_part(tracker, sl), t_end=t_end)
         attrs = provenance(setup, None)
         attrs.update(rates=rates.mode, wall_time_s=round(wall * setup.n / n, 6), status="complete",
-                     batch_size=len(setups))
-        own = {name: (arr[j] if interleaved else arr[:, sl]).copy() for name, arr in fields.items()}
+                     batch_size=len(setups), stop_when_quiet=int(quiet is not None))
+        if n_done < first.n_samples:
+            attrs["stopped_when_quiet_ms"] = t_end
+        own = {name: (arr[j, :n_done] if interleaved else arr[:n_done, sl]).copy() for name, arr in fields.items()}
         ds = _like(template, setup, own, meas, attrs)
         if ds is None:
             from cable.simulate import assemble

@@ -71,6 +71,8 @@ def variant(case: Case, *, stimuli: list[dict], duration: float, single_cell: bo
     """
     raw = copy.deepcopy(case.raw)
     raw["stimulus"] = {f"S{k + 1}": s for k, s in enumerate(stimuli)}
+    if case.stop_when_quiet is None:  # the protocols' default: a trial ends when nothing is left to happen
+        raw.setdefault("run", {})["stop_when_quiet"] = True
     dt = case.numerics.dt
     every = case.output_every
     steps = int(np.ceil(duration / every - 1e-9))

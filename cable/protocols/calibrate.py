@@ -226,7 +226,8 @@ def calibrate(case, key: str, measure: str, target: float, *, level: float | Non
             return memo[value]
         if len(runs) >= MAX_RUNS:
             raise CaseError(f"{who}: no convergence within {MAX_RUNS} runs; give a bracket with between.")
-        variant = case.with_overrides({key: value})  # an invalid key or value fails here, nothing run
+        # an invalid key or value fails here, nothing run; the run stops when quiet unless the case says
+        variant = case.with_overrides({key: value, **_quiet_default(case)})
         try:
             m = _erp(variant, target) if measure == "erp" else measure_of(simulate(variant), measure, beat, level)
         except SimulationError as exc:
@@ -362,3 +363,8 @@ def summary(ds: xr.Dataset) -> str:
              f"{' ' + unit if unit else ''}   residual: {float(ds['residual']):.3g} {a['measure_units']}",
              f"{a['key']} = {float(ds['value']):.8g}{' ' + unit if unit else ''}"]
     return "\n".join(lines)
+
+
+def _quiet_default(case) -> dict:
+    """``run.stop_when_quiet = true`` unless the case gives it (the protocols' default, cable/quiet.py)."""
+    return {} if case.stop_when_quiet is not None else {"run.stop_when_quiet": True}

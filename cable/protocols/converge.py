@@ -148,7 +148,8 @@ def convergence(case, levels: int = 3, *, ratio: str = "dt/dx^2", beat: int = -1
         # interpolated crossings, and APD from interpolated samples (an error second order in
         # output.every, the same at every level) -- while the stored field, and memory, stay
         # the size of the case's own
-        refined = case.with_overrides({"fiber.dx": dx, "numerics.dt": dt})
+        refined = case.with_overrides({"fiber.dx": dx, "numerics.dt": dt,
+                                       **({} if case.stop_when_quiet is not None else {"run.stop_when_quiet": True})})
         try:
             ds = simulate(refined)
         except SimulationError as exc:

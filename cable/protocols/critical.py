@@ -247,7 +247,7 @@ class _Journal:
 
 def find_critical(case, key: str, low, high, *, tolerance: float | None = None, beat: int | None = None,
                   log: bool = False, output=None, overwrite: bool = False, info=None,
-                  criterion: str = "block") -> xr.Dataset:
+                  criterion: str = "block", points: int | None = None, workers: int | None = None) -> xr.Dataset:
     """Bisect ``key`` between ``low`` and ``high`` for the value where conduction turns into block.
 
     Parameters
@@ -277,6 +277,14 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     criterion : str
         What failing means: ``"block"`` (default), ``"slow-response"``, ``"cv-below=X"``
         (X in m/s); see the module's notes.
+    points : int, optional
+        Values tried per round inside the bracket (default: ``workers``, one run per
+        thread; 1 is plain bisection). They divide the bracket evenly (geometrically with ``log``)
+        and run together (:mod:`cable.protocols._rounds`); a case that cannot batch
+        (a ring, electrodes, the safety factor) is bisected one value per round.
+    workers : int, optional
+        Threads that share a round's runs (default: the cores free at the start, at most
+        2: :func:`cable.protocols._rounds.default_workers`).
 
     Returns
     -------
@@ -286,7 +294,8 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         ``beats_conducted``, and ``activation_time(run, x)`` of the first judged beat
         (when every run has the same grid). Attributes: ``key``, ``units``, ``low``,
         ``high``, ``tolerance``, ``passing_value``, ``failing_value``,
-        ``critical_value`` (their midpoint, geometric with ``log``), ``runs``, ``cv_passing_m_per_s`` (the CV
+        ``critical_value`` (their midpoint, geometric with ``log``), ``runs``, ``rounds`` (the
+        rounds of runs made together), ``points_per_round``, ``cv_passing_m_per_s`` (the CV
         at the passing end of the bracket), ``case``, and ``note`` when the failing end's
         stimulus did not excite (the transition found is then loss of capture).
 
@@ -333,9 +342,17 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         from cable.io.netcdf import check_target
 
         check_target(output, overwrite)
+    from cable.protocols import _rounds
+    from cable.quiet import quiet_by_default
+
+    workers = _rounds.check_count(who, "workers", _rounds.default_workers() if workers is None else workers)
+    points = _rounds.check_count(who, "points", workers if points is None else points)
+    if not _rounds.batchable(case):
+        points, workers = 1, 1  # a ring's, the electrodes' and the safety factor's runs go alone
+    run_case = quiet_by_default(case)  # each run ends when nothing is left to happen, unless the case says
     variants = {}
     for value in (lo, hi):  # invalid keys and values fail here, before anything runs
-        variants[value] = case.with_overrides({key: value})
+        variants[value] = run_case.with_overrides({key: value})
     nbeat = len({round(t, 9) for s in variants[lo].stimuli for t in s.onsets()})
     if beat is not None and not 0 <= int(beat) < nbeat:
         raise CaseError(f"{who}: beat = {beat} is out of range; the case has {nbeat} beat(s) (0 to {nbeat - 1}).")
@@ -344,23 +361,36 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     runs: list[tuple[float, dict]] = []
     journal = None
     if output is not None:
+        # points is not part of the identity: runs are reused by value, whatever the rounds asked
         journal = _Journal(output, f"{case.text}\n{key} {lo!r} {hi!r} {tol!r} {beat!r} {log!r} {criterion!r}")
         if journal.done:
             say(f"resuming: {len(journal.done)} run(s) of an interrupted search reused from {journal.folder}")
 
-    def trial(value):
-        outcome = journal.get(value) if journal is not None else None
-        reused = outcome is not None
-        if not reused:
-            outcome = _run_until_decided(case, variants.get(value), key, value, beat, crit, say)
-            if journal is not None:
-                journal.put(value, outcome)
-        runs.append((value, outcome))
-        shown = f" {unit}" if unit and unit != "1" else ""
-        say(f"{key} = {value:.6g}{shown}: {describe(outcome)}{' (reused)' if reused else ''}")
-        return outcome["conducted"]
+    rounds = [0]
 
-    c_lo, c_hi = trial(lo), trial(hi)
+    def trials(values) -> list[bool]:
+        """Run ``values`` together (those not in the journal); whether each conducted."""
+        done = {v: journal.get(v) for v in values} if journal is not None else {}
+        todo = [v for v in values if done.get(v) is None]
+        if todo:
+            rounds[0] += 1
+            for value in todo:
+                if value not in variants:  # an invalid value fails here, before the round runs
+                    variants[value] = run_case.with_overrides({key: value})
+            fresh = _rounds.run_together([variants[v] for v in todo], workers)
+            for value, ds in zip(todo, fresh):
+                outcome = _decide(run_case, ds, key, value, beat, crit, say)
+                if journal is not None:
+                    journal.put(value, outcome)
+                done[value] = outcome
+        shown = f" {unit}" if unit and unit != "1" else ""
+        for value in values:
+            reused = value not in todo
+            runs.append((value, done[value]))
+            say(f"{key} = {value:.6g}{shown}: {describe(done[value])}{' (reused)' if reused else ''}")
+        return [bool(done[v]["conducted"]) for v in values]
+
+    c_lo, c_hi = trials([lo, hi])
     if c_lo == c_hi:
         ds = _result(case, key, unit, lo, hi, tol, runs, None, None, log, criterion)
         if output is not None:
@@ -374,12 +404,10 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
                              runs=ds)
     passing, failing = (lo, hi) if c_lo else (hi, lo)
     while width(passing, failing) > tol:
-        mid = middle(passing, failing)
-        if trial(mid):
-            passing = mid
-        else:
-            failing = mid
+        values = _rounds.inside(passing, failing, points, tol, log) if points > 1 else [middle(passing, failing)]
+        passing, failing = _rounds.narrow(passing, failing, values, trials(values))
     ds = _result(case, key, unit, lo, hi, tol, runs, passing, failing, log, criterion)
+    ds.attrs.update(rounds=rounds[0], points_per_round=points)
     fail_outcome = [o for v, o in runs if v == failing][-1]
     if not fail_outcome["captured"]:
         # the search found where the stimulus stops exciting, not where a started wave blocks
@@ -393,15 +421,28 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     return ds
 
 
-def _run_until_decided(case, variant, key, value, beat, crit, say) -> dict:
+def _decide(case, ds, key, value, beat, crit, say) -> dict:
+    """The outcome of the run at ``key = value`` from its result ``ds`` (or the
+    SimulationError it raised), running it again alone if it timed out."""
+    if isinstance(ds, SimulationError):
+        raise SimulationError(f"find_critical: the run at {key} = {value:g} failed: {ds}", time=ds.time,
+                              position=ds.position, partial=ds.partial) from None
+    outcome = _judge(ds, beat, crit)
+    if not outcome["timed_out"]:
+        return outcome
+    return _run_until_decided(case, None, key, value, beat, crit, say, first=ds)
+
+
+def _run_until_decided(case, variant, key, value, beat, crit, say, first=None) -> dict:
     """The outcome of the run at ``key = value``, with run.duration doubled while a
-    judged beat times out (at most MAX_EXTENSIONS times)."""
+    judged beat times out (at most MAX_EXTENSIONS times); ``first``: the result of the
+    first run when it was made already."""
     who = "find_critical"
     variant = variant or case.with_overrides({key: value})
     duration = variant.duration
     for extension in range(MAX_EXTENSIONS + 1):
         try:
-            ds = simulate(variant)
+            ds = first if (extension == 0 and first is not None) else simulate(variant)
         except SimulationError as exc:
             raise SimulationError(f"{who}: the run at {key} = {value:g} failed: {exc}", time=exc.time,
                                   position=exc.position, partial=exc.partial) from None

@@ -59,7 +59,7 @@ REGENERATIVE_FRACTION = 0.05
 def refractory_period(case, *, cycle_length: float | None = None, s1_count: int | None = None,
                       s2_amplitude: float | None = None, s2_duration: float | None = None,
                       tolerance: float = DEFAULT_TOLERANCE, observe: float | None = None,
-                      info=None) -> xr.Dataset:
+                      info=None, points: int | None = None, workers: int | None = None) -> xr.Dataset:
     """Effective and local refractory periods after an S1 train.
 
     Parameters
@@ -81,6 +81,13 @@ def refractory_period(case, *, cycle_length: float | None = None, s1_count: int 
         ``TRANSIT_FACTOR`` x the S1 wave's transit time plus the capture latency.
     info : callable, optional
         Receives one line per trial.
+    points, workers : int, optional
+        Coupling intervals tried per round of the joint narrowing, and the threads that
+        share them (defaults: the cores free at the start, at most 2, and
+        as many points; ``points = 1``: one per
+        round, as bisection). Each interval's run has its own duration, so the runs of a
+        round do not share a kernel call; they run side by side
+        (:mod:`cable.protocols._rounds`).
 
     Returns
     -------
@@ -129,24 +136,41 @@ def refractory_period(case, *, cycle_length: float | None = None, s1_count: int 
     inward = _InwardProbe(case, site_node)
     inward.calibrate(ref, last, last + site.duration + CAPTURE_LATENCY)
 
+    from cable.protocols import _rounds
+
+    workers = _rounds.check_count(who, "workers", _rounds.default_workers() if workers is None else workers)
+    points = _rounds.check_count(who, "points", workers if points is None else points)
+
+    def s2_case(ci):
+        s2 = _pacing.pulse(site, amplitude=amp2, duration=dur2, start=last + ci)
+        return _pacing.variant(case, stimuli=[s1, s2], duration=last + ci + watch, overrides=inward.overrides)
+
+    def judge(ci, ds):
+        prop = _pacing.propagated(ds, n1, site)
+        local = prop or (_pacing.captured(ds, n1) and
+                         inward.regenerative(ds, last + ci, last + ci + dur2 + CAPTURE_LATENCY))
+        tried[ci] = (local, prop)
+        say(f"S1-S2 {ci:g} ms: {'captured' if tried[ci][0] else 'no capture'}, "
+            f"{'propagated' if tried[ci][1] else 'no propagation'}")
+
     def trial(ci):
         ci = round(float(ci), 9)
         if ci not in tried:
-            s2 = _pacing.pulse(site, amplitude=amp2, duration=dur2, start=last + ci)
-            ds = simulate(_pacing.variant(case, stimuli=[s1, s2], duration=last + ci + watch,
-                                          overrides=inward.overrides))
-            prop = _pacing.propagated(ds, n1, site)
-            local = prop or (_pacing.captured(ds, n1) and
-                             inward.regenerative(ds, last + ci, last + ci + dur2 + CAPTURE_LATENCY))
-            tried[ci] = (local, prop)
-            say(f"S1-S2 {ci:g} ms: {'captured' if tried[ci][0] else 'no capture'}, "
-                f"{'propagated' if tried[ci][1] else 'no propagation'}")
+            judge(ci, simulate(s2_case(ci)))
         return tried[ci]
+
+    def trial_many(cis):  # one round, side by side
+        todo = sorted({round(float(ci), 9) for ci in cis} - set(tried))
+        for ci, ds in zip(todo, _rounds.run_together([s2_case(ci) for ci in todo], workers)):
+            if isinstance(ds, Exception):
+                raise ds
+            judge(ci, ds)
 
     # an S2 during the S1's own upstroke would be read as the S1's crossings: start after it
     start = max(site.duration, upstroke_end(ref, site_node, last, apd_site))
     erp, local = search(trial, start, cl if n1 > 1 else max(2.0 * apd_site, cl or 0.0), tol,
-                        who=who, limit=4.0 * max(cl or 0.0, apd_site, 1.0), guess=apd_site)
+                        who=who, limit=4.0 * max(cl or 0.0, apd_site, 1.0), guess=apd_site,
+                        many=trial_many if (points > 1 and _rounds.batchable(case)) else None, points=points)
     cis = np.array(sorted(tried))
     data = {
         "erp": ((), erp, {"units": "ms", "long_name": "effective refractory period: shortest S1-S2 interval "
@@ -251,8 +275,13 @@ def s1_train(case, site, who, s1_count, cycle_length):
     return int(n1), float(cl)
 
 
-def search(trial, lo, hi, tol, *, who, limit, guess=None):
+def search(trial, lo, hi, tol, *, who, limit, guess=None, many=None, points=1):
     """Joint bisection of (ERP, local refractory period).
+
+    With ``many`` (``many(intervals)`` runs them together, so that ``trial`` then finds
+    them done) and ``points`` > 1, each round of the narrowing tries ``points``
+    intervals dividing the brackets wider than ``tol`` evenly (shared between the two
+    brackets while both are).
 
     ``trial(ci) -> (captured, propagated)``. ``lo`` is the shortest interval tried
     (checked), ``hi`` a first interval expected to propagate (doubled up to ``limit``
@@ -276,9 +305,11 @@ def search(trial, lo, hi, tol, *, who, limit, guess=None):
             b["cap_lo"] = ci if b["cap_lo"] is None else max(b["cap_lo"], ci)
 
     if guess is not None and np.isfinite(guess):
-        for ci in (GUESS_ABOVE * guess, GUESS_BELOW * guess):
-            if lo < ci < hi:
-                run(ci)
+        first = [ci for ci in (GUESS_ABOVE * guess, GUESS_BELOW * guess) if lo < ci < hi]
+        if many is not None and points > 1:
+            many(first)
+        for ci in first:
+            run(ci)
     while b["prop_hi"] is None:
         run(hi)
         if b["prop_hi"] is not None:
@@ -298,7 +329,19 @@ def search(trial, lo, hi, tol, *, who, limit, guess=None):
         w_cap = b["cap_hi"] - b["cap_lo"]
         if max(w_prop, w_cap) <= tol:
             return b["prop_hi"], b["cap_hi"]
-        run(0.5 * (b["prop_lo"] + b["prop_hi"]) if w_prop >= w_cap else 0.5 * (b["cap_lo"] + b["cap_hi"]))
+        if many is not None and points > 1:
+            from cable.protocols._rounds import inside
+
+            wide = [(b["prop_lo"], b["prop_hi"])] if w_prop > tol else []
+            if w_cap > tol and (b["cap_lo"], b["cap_hi"]) != (b["prop_lo"], b["prop_hi"]):
+                wide.append((b["cap_lo"], b["cap_hi"]))
+            share = [points // len(wide) + (1 if k < points % len(wide) else 0) for k in range(len(wide))]
+            cis = [ci for (a, c), k in zip(wide, share) for ci in inside(a, c, k, tol)]
+            many(cis)
+            for ci in cis:
+                run(ci)
+        else:
+            run(0.5 * (b["prop_lo"] + b["prop_hi"]) if w_prop >= w_cap else 0.5 * (b["cap_lo"] + b["cap_hi"]))
         # capture never comes later than propagation: keep the brackets consistent
         b["cap_hi"] = min(b["cap_hi"], b["prop_hi"])
         b["cap_lo"] = min(b["cap_lo"], b["cap_hi"])

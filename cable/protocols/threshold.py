@@ -51,7 +51,8 @@ LN2 = float(np.log(2.0))
 
 
 def strength_duration(case, durations, *, tolerance: float = DEFAULT_TOLERANCE, mode: str = "strand",
-                      observe: float | None = None, info=None) -> xr.Dataset:
+                      observe: float | None = None, info=None, points: int | None = None,
+                      workers: int | None = None) -> xr.Dataset:
     """Threshold amplitude against stimulus duration, with Lapicque's and Weiss's fits.
 
     Parameters
@@ -71,6 +72,11 @@ def strength_duration(case, durations, *, tolerance: float = DEFAULT_TOLERANCE, 
         How long to watch after the pulse ends [ms]; default the case's run.duration.
     info : callable, optional
         Receives one line per duration.
+    points, workers : int, optional
+        Amplitudes tried per round of the final narrowing, and the threads that share
+        them (defaults: the cores free at the start, at most 2, and
+        as many points; ``points = 1`` is plain
+        bisection); see :mod:`cable.protocols._rounds`.
 
     Returns
     -------
@@ -107,15 +113,30 @@ def strength_duration(case, durations, *, tolerance: float = DEFAULT_TOLERANCE, 
     site = _pacing.stimulus_site(case, who)
     watch = case.duration if observe is None else _pacing.positive(who, "observe", observe)
     say = info or (lambda msg: None)
+    from cable.protocols import _rounds
 
-    def excites(amplitude, duration):
-        trial = _pacing.variant(case, stimuli=[_pacing.pulse(site, amplitude=amplitude, duration=duration)],
-                                duration=duration + watch, single_cell=(mode == "cell"))
-        try:
-            ds = simulate(trial)
-        except SimulationError:
+    workers = _rounds.check_count(who, "workers", _rounds.default_workers() if workers is None else workers)
+    points = _rounds.check_count(who, "points", workers if points is None else points)
+    if not _rounds.batchable(case):
+        points, workers = 1, 1
+
+    def trial_case(amplitude, duration):
+        return _pacing.variant(case, stimuli=[_pacing.pulse(site, amplitude=amplitude, duration=duration)],
+                               duration=duration + watch, single_cell=(mode == "cell"))
+
+    def judged(ds):
+        if isinstance(ds, SimulationError):
             return None  # numerical failure at this amplitude: treat as beyond the search
         return _pacing.propagated(ds, 0, site) if mode == "strand" else _pacing.captured(ds, 0)
+
+    def excites(amplitude, duration):
+        try:
+            return judged(simulate(trial_case(amplitude, duration)))
+        except SimulationError as exc:
+            return judged(exc)
+
+    def excite_many(amplitudes, duration):  # one round: run together (one batched call per thread)
+        return [judged(ds) for ds in _rounds.run_together([trial_case(a, duration) for a in amplitudes], workers)]
 
     thresholds = np.full(durs.size, np.nan)
     trials = np.zeros(durs.size, dtype=np.int64)
@@ -128,7 +149,7 @@ def strength_duration(case, durations, *, tolerance: float = DEFAULT_TOLERANCE, 
             hi, lo = site.amplitude, None
         else:
             hi, lo = prev[0], prev[0] * prev[1] / d
-        value, count, note = _bisect(excites, d, lo, hi, tolerance)
+        value, count, note = _bisect(excites, d, lo, hi, tolerance, many=excite_many, points=points)
         thresholds[k], trials[k] = value, count
         if note:
             notes.append(note)
@@ -138,8 +159,12 @@ def strength_duration(case, durations, *, tolerance: float = DEFAULT_TOLERANCE, 
     return _result(case, durs, thresholds, trials, tolerance, mode, watch, site, notes)
 
 
-def _bisect(excites, d, lo, hi, tolerance):
-    """Bracket then bisect the threshold amplitude at duration ``d``; (value, runs, note)."""
+def _bisect(excites, d, lo, hi, tolerance, many=None, points=1):
+    """Bracket then bisect the threshold amplitude at duration ``d``; (value, runs, note).
+
+    With ``many`` (``many(amplitudes, d) -> outcomes``) and ``points`` > 1, the final
+    narrowing tries ``points`` amplitudes per round (:func:`cable.protocols._rounds.inside`).
+    """
     runs = 0
 
     def test(a):
@@ -165,6 +190,14 @@ def _bisect(excites, d, lo, hi, tolerance):
         else:
             lo_fails = True
     while hi - lo > tolerance * hi:
+        if many is not None and points > 1:
+            from cable.protocols import _rounds
+
+            # a round narrows the bracket to below tolerance * lo <= tolerance * (the new hi)
+            values = _rounds.inside(hi, lo, points, tolerance * lo)
+            runs += len(values)
+            hi, lo = _rounds.narrow(hi, lo, values, [ok is True for ok in many(values, d)])
+            continue
         mid = 0.5 * (lo + hi)
         if test(mid) is True:
             hi = mid

@@ -55,7 +55,7 @@ def test_bracket_agrees_with_direct_runs_on_both_sides(tmp_path):
     case = lr1_region()
     key = "region.0.scale.G_Na"
     out = tmp_path / "runs.nc"
-    res = find_critical(case, key, 0.0, 1.0, tolerance=0.01, output=out)
+    res = find_critical(case, key, 0.0, 1.0, tolerance=0.01, output=out, points=1)  # plain bisection
     p, f = res.attrs["passing_value"], res.attrs["failing_value"]
     width = abs(p - f)
     assert width <= 0.01
@@ -146,11 +146,11 @@ def test_cli_prints_bracket_runs_and_cv(tmp_path, capsys):
     path = tmp_path / "zone.toml"
     path.write_text(cable.load_case(lr1_region(dx=0.01)).text)
     rc = main(["critical", str(path), "--vary", "region.0.scale.G_Na", "--between", "0", "1", "--tolerance",
-               "0.05", "-q", "-o", str(tmp_path / "r.nc")])
+               "0.05", "-q", "-o", str(tmp_path / "r.nc"), "--points", "1"])
     out = capsys.readouterr().out
     assert rc == 0
     assert "critical value between" in out and "(conducts)" in out and "(blocks)" in out
-    assert "runs: 7" in out and "CV just on the passing side:" in out and "m/s" in out
+    assert "runs: 7 in 6 rounds" in out and "CV just on the passing side:" in out and "m/s" in out
     assert (tmp_path / "r.nc").exists()
     rc = main(["critical", str(path), "--vary", "region.0.scale.G_Na", "--between", "0.5", "1", "-q"])
     err = capsys.readouterr().err
@@ -188,7 +188,8 @@ def test_interrupted_search_resumes_with_the_same_result(tmp_path):
         "output": {"every": 0.5},
     }
     key, lo, hi, tol = "region.0.scale.g_Na", 0.0, 1.0, 0.02
-    whole = find_critical(case, key, lo, hi, tolerance=tol, output=tmp_path / "whole.nc")
+    rounds = {"points": 2, "workers": 2}  # explicit: the default follows the machine's load
+    whole = find_critical(case, key, lo, hi, tolerance=tol, output=tmp_path / "whole.nc", **rounds)
     said = []
 
     def stop_after_three(msg):
@@ -198,12 +199,15 @@ def test_interrupted_search_resumes_with_the_same_result(tmp_path):
 
     out = tmp_path / "resumed.nc"
     with pytest.raises(KeyboardInterrupt):
-        find_critical(case, key, lo, hi, tolerance=tol, output=out, info=stop_after_three)
-    assert not out.exists() and len(list((tmp_path / "resumed.nc.runs").glob("run-*.npz"))) == 3
+        find_critical(case, key, lo, hi, tolerance=tol, output=out, info=stop_after_three, **rounds)
+    # the runs of the rounds made are kept (rounds of two values: the 3rd line
+    # is said after the second round, whose two runs are kept already)
+    kept = len(list((tmp_path / "resumed.nc.runs").glob("run-*.npz")))
+    assert not out.exists() and kept >= 3
     notes = []
-    again = find_critical(case, key, lo, hi, tolerance=tol, output=out, info=notes.append)
-    assert any("resuming: 3 run(s)" in n for n in notes)
-    assert sum(n.endswith("(reused)") for n in notes) == 3
+    again = find_critical(case, key, lo, hi, tolerance=tol, output=out, info=notes.append, **rounds)
+    assert any(f"resuming: {kept} run(s)" in n for n in notes)
+    assert sum(n.endswith("(reused)") for n in notes) == kept
     assert again.attrs["passing_value"] == whole.attrs["passing_value"]
     assert again.attrs["failing_value"] == whole.attrs["failing_value"]
     np.testing.assert_array_equal(again["activation_time"].values, whole["activation_time"].values)

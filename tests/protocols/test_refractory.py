@@ -141,3 +141,13 @@ def test_cli_erp(tmp_path):
     assert "ERP" in res.stdout and out.exists()
     bad = cable_cli("erp", str(case), "--s1-count", "2")
     assert bad.returncode == 2 and "cycle_length" in bad.stderr
+
+
+def test_rounds_agree_with_one_interval_per_round_within_the_tolerance(ms_healthy):
+    # the fixture searches with the default rounds (cable/protocols/_rounds.py); one interval
+    # per round is the search as it was. Both brackets are at most TOL wide around the same
+    # transitions, so the intervals found differ by at most TOL (definition of bracketing).
+    plain = cable.refractory_period(cardiac_strand("mitchell-schaeffer-2003"), tolerance=TOL, points=1, workers=1)
+    for name in ("erp", "local_refractory_period"):
+        assert abs(float(plain[name]) - float(ms_healthy[name])) <= TOL, name
+    assert float(plain["apd90_s1"]) == float(ms_healthy["apd90_s1"])
