@@ -98,9 +98,10 @@ def test_default_is_off_for_a_run_and_on_for_the_protocols():
 
     case = cable.load_case(_hh())
     assert case.stop_when_quiet is None and cable.simulate(case).attrs["stop_when_quiet"] == 0
-    variant = _pacing.variant(case, stimuli=case.raw["stimulus"], duration=40.0)
+    variant = _pacing.variant(case, stimuli=list(case.raw["stimulus"].values()), duration=40.0)
     assert variant.stop_when_quiet is True
-    off = _pacing.variant(case.with_overrides({"run.stop_when_quiet": False}), stimuli=case.raw["stimulus"],
+    off = _pacing.variant(case.with_overrides({"run.stop_when_quiet": False}),
+                          stimuli=list(case.raw["stimulus"].values()),
                           duration=40.0)
     assert off.stop_when_quiet is False
 
