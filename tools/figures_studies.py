@@ -45,11 +45,15 @@ def drug_panel(ax):
     x = np.array(conc[1:])
     ax.semilogx(x, cv[1:], **_common.look(0), label="CV [m/s]")
     ax.axhline(cv[0], color=_common.look(0)["color"], linewidth=0.6, linestyle=":")
-    ax.set_xlabel("compound_a concentration [uM]")
+    ax.set_xlabel("compound_a concentration [µM]")
     ax.set_ylabel("conduction velocity [m/s]")
     twin = ax.twinx()
     twin.semilogx(x, apd[1:], **_common.look(1), label="APD90 [ms]")
+    twin.axhline(apd[0], color=_common.look(1)["color"], linewidth=0.6, linestyle=":")
     twin.set_ylabel("APD90 at 1 cm [ms]")
+    # the no-drug levels (dotted) lie beyond the drug points: keep them in view
+    ax.set_ylim(0.9 * min(cv), 1.04 * max(cv))
+    twin.set_ylim(min(apd) - 0.05 * (max(apd) - min(apd)), max(apd) + 0.05 * (max(apd) - min(apd)))
     ax.set_title("(b) mixed I_Na / I_Kr block (dotted: no drug)", fontsize="small")
     ax.legend(handles=ax.lines[:1] + twin.lines[:1], fontsize="small", loc="center left", frameon=False)
 
