@@ -8,7 +8,7 @@ value, says what is allowed and suggests the nearest valid name.
 from __future__ import annotations
 
 import copy
-import difflib
+from cable.suggest import did_you_mean
 import math
 import os
 import tomllib
@@ -169,9 +169,7 @@ class Case:
 
 
 # ----------------------------------------------------------------------------- helpers
-def _nearest(name, candidates) -> str:
-    near = difflib.get_close_matches(str(name), list(candidates), n=1, cutoff=0.5)
-    return f" Did you mean '{near[0]}'?" if near else ""
+_nearest = did_you_mean
 
 
 def _allowed_keys(candidates) -> str:

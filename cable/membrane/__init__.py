@@ -8,7 +8,7 @@ model means adding one file, and the contract tests pick it up by themselves.
 
 from __future__ import annotations
 
-import difflib
+from cable.suggest import did_you_mean
 import functools
 import importlib
 import pkgutil
@@ -51,8 +51,7 @@ def get_model(name: str) -> MembraneModel:
         return load(str(name))
     names = model_names()
     if name not in names:
-        near = difflib.get_close_matches(str(name), names, n=1, cutoff=0.4)
-        hint = f" Did you mean '{near[0]}'?" if near else ""
+        hint = did_you_mean(name, names)
         raise UnknownModelError(
             f"unknown membrane model '{name}'.{hint} Known models: {', '.join(names)}."
         )

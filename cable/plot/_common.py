@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-import difflib
+from cable.suggest import did_you_mean
 import re
 import textwrap
 import tomllib
@@ -125,9 +125,7 @@ def axes_or_current(ax):
     return plt.gca()
 
 
-def nearest_name(name, candidates) -> str:
-    near = difflib.get_close_matches(str(name), [str(c) for c in candidates], n=1, cutoff=0.5)
-    return f" Did you mean '{near[0]}'?" if near else ""
+nearest_name = did_you_mean
 
 
 def window(values: np.ndarray, win, what: str, unit: str):

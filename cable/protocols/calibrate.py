@@ -76,14 +76,12 @@ def parse_target(text: str) -> tuple[str, float, float | None]:
             level = None
         name = "apd" if level is not None else name
     if name not in MEASURES or (name == "apd" and level is None):
-        import difflib
+        from cable.suggest import did_you_mean
 
         names = ["conduction_velocity", "wavelength", "erp", "apd90", "apd50"]
-        near = difflib.get_close_matches(name, names, n=1, cutoff=0.5)
         raise CaseError(f"--target {text!r}: '{name}' is not a measure; allowed: conduction_velocity [m/s], "
                         f"wavelength [cm], erp [ms] (effective refractory period, S1-S2), "
-                        f"apdNN [ms] (APD at NN% repolarisation, e.g. apd90)."
-                        + (f" Did you mean '{near[0]}'?" if near else ""))
+                        f"apdNN [ms] (APD at NN% repolarisation, e.g. apd90)." + did_you_mean(name, names))
     try:
         target = float(value)
     except ValueError:

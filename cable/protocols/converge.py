@@ -129,10 +129,9 @@ def convergence(case, levels: int = 3, *, ratio: str = "dt/dx^2", beat: int = -1
         raise CaseError(f"{who}: levels = {levels!r} must be a whole number of at least 3 (the observed order "
                         f"needs three grids).")
     if ratio not in RATIOS:
-        import difflib
+        from cable.suggest import did_you_mean
 
-        near = difflib.get_close_matches(str(ratio), RATIOS, n=1, cutoff=0.3)
-        hint = f" Did you mean {near[0]!r}?" if near else ""
+        hint = did_you_mean(ratio, RATIOS)
         raise CaseError(f"{who}: ratio = {ratio!r}; allowed values are 'dt/dx^2', 'dt/dx'.{hint}")
     if ratio == "dt/dx" and case.numerics.diffusion == "forward-euler":
         raise CaseError(f"{who}: ratio = 'dt/dx' with numerics.diffusion = 'forward-euler' breaks the stability "

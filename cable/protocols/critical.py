@@ -67,11 +67,10 @@ def parse_criterion(text) -> tuple[str, float | None]:
         if math.isfinite(limit) and limit > 0:
             return "cv-below", limit
         raise CaseError(f"criterion = {text!r}: cv-below needs a positive speed in m/s, e.g. cv-below=0.1.")
-    import difflib
+    from cable.suggest import did_you_mean
 
-    near = difflib.get_close_matches(text, ["block", "slow-response", "cv-below=0.1"], n=1)
-    hint = f" (did you mean {near[0]!r}?)" if near else ""
-    raise CaseError(f"criterion = {text!r}: allowed are 'block', 'slow-response' and 'cv-below=X' (X in m/s){hint}.")
+    hint = did_you_mean(text, ["block", "slow-response", "cv-below=0.1"])
+    raise CaseError(f"criterion = {text!r}: allowed are 'block', 'slow-response' and 'cv-below=X' (X in m/s).{hint}")
 
 
 class NoBracketError(CaseError):

@@ -74,10 +74,9 @@ def restitution(case, intervals=None, protocol: str = "s1s2", *, cycle_length: f
     who = "restitution"
     case = _pacing.as_case(case)
     if protocol not in PROTOCOLS:
-        import difflib
+        from cable.suggest import did_you_mean
 
-        near = difflib.get_close_matches(str(protocol), PROTOCOLS, n=1)
-        hint = f" Did you mean {near[0]!r}?" if near else ""
+        hint = did_you_mean(protocol, PROTOCOLS)
         raise CaseError(f"{who}: protocol = {protocol!r}; allowed values are 's1s2', 'dynamic'.{hint}")
     site = _pacing.stimulus_site(case, who)
     n1, cl = s1_train(case, site, who, s1_count, cycle_length)

@@ -93,10 +93,9 @@ def strength_duration(case, durations, *, tolerance: float = DEFAULT_TOLERANCE, 
     who = "strength_duration"
     case = _pacing.as_case(case)
     if mode not in MODES:
-        import difflib
+        from cable.suggest import did_you_mean
 
-        near = difflib.get_close_matches(str(mode), MODES, n=1)
-        hint = f" Did you mean {near[0]!r}?" if near else ""
+        hint = did_you_mean(mode, MODES)
         raise CaseError(f"{who}: mode = {mode!r}; allowed values are 'strand', 'cell'.{hint}")
     if mode == "strand" and case.fiber is None:
         raise CaseError(f"{who}: mode = 'strand' needs a [fiber]; use mode = 'cell' for a single cell.")

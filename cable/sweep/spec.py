@@ -32,7 +32,7 @@ instead, and the other points run.
 from __future__ import annotations
 
 import copy
-import difflib
+from cable.suggest import did_you_mean
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -120,9 +120,7 @@ class SweepSpec:
 
 
 # ----------------------------------------------------------------------------- reading
-def _nearest(name, candidates) -> str:
-    near = difflib.get_close_matches(str(name), list(candidates), n=1, cutoff=0.5)
-    return f" Did you mean '{near[0]}'?" if near else ""
+_nearest = did_you_mean
 
 
 def base_raw(raw: dict) -> dict:

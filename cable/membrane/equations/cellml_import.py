@@ -98,8 +98,9 @@ def _find(names: dict, wanted: str, arrays, key: str, path):
     hits = exact or hits
     if len(hits) != 1:
         cands = sorted(names[k] for k in names if k[0] in arrays)
-        import difflib
-        near = difflib.get_close_matches(wanted, cands, n=3)
+        from cable.suggest import closest
+
+        near = closest(wanted, cands, n=3)
         raise EquationError(f"membrane.{key} = {wanted!r}: no {'unique ' if hits else ''}variable of that name in "
                             f"'{path}'.{' Nearest: ' + ', '.join(near) + '.' if near else ''}")
     return hits[0]
