@@ -76,15 +76,15 @@ def run(args):
 
 def _check_workers(args) -> None:
     """--workers: at least 1; on the local cluster at most one per usable core."""
-    import os
-
     from cable.case import CaseError
 
     if args.workers is None:
         return
     if args.workers < 1:
         raise CaseError(f"--workers {args.workers}: must be a whole number of at least 1.")
-    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    from cable.machine import usable_cores
+
+    cores = usable_cores()
     if args.scheduler is None and args.workers > cores:
         raise CaseError(f"--workers {args.workers}: the local cluster runs one process per core and this machine "
                         f"has {cores}; give at most {cores}, or start a Dask scheduler with workers elsewhere and "

@@ -33,10 +33,9 @@ def default_workers() -> int:
     round would only lengthen the search (measured here: 0.87 times the speed of
     bisection at load 4.7 on 2 cores), so the default is then one value per round.
     """
-    try:
-        cores = len(os.sched_getaffinity(0))
-    except AttributeError:  # not on Linux
-        cores = os.cpu_count() or 1
+    from cable.machine import usable_cores
+
+    cores = usable_cores()
     try:
         free = cores - os.getloadavg()[0]
     except OSError:  # no load average: take the cores as free

@@ -282,8 +282,9 @@ def connect(client=None, scheduler: str | None = None, workers: int | None = Non
         finally:
             cl.close()
         return
-    n = workers or max(1, min(n_tasks, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity")
-                              else os.cpu_count() or 1))
+    from cable.machine import usable_cores
+
+    n = workers or max(1, min(n_tasks, usable_cores()))
     say(f"starting a local cluster of {n} worker process{'es' if n > 1 else ''}...")
     cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
                            silence_logs=logging.ERROR)
