@@ -38,3 +38,10 @@ def hh_axon_case(length=3.0, dx=0.01, dt=0.005, duration=None, **extra):
     for key, value in extra.items():
         case.setdefault(key, {}).update(value)
     return case
+
+
+def hh_axon_toml(**kw) -> str:
+    """:func:`hh_axon_case` written as a case file's TOML text."""
+    from cable.case.load import dumps_toml
+
+    return dumps_toml(hh_axon_case(**kw))

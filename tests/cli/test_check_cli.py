@@ -3,27 +3,9 @@
 import pytest
 
 from cable.cli import main
+from tests.conftest import hh_axon_toml
 
-CASE = """
-[membrane]
-model = "hodgkin-huxley-1952"
-temperature = 18.5
-[fiber]
-length = 1.0
-dx = 0.01
-radius = "238 um"
-axial_resistivity = "35.4 ohm*cm"
-[[stimulus]]
-amplitude = 1000
-duration = 0.2
-width = 0.1
-[numerics]
-dt = 0.005
-[run]
-duration = 4
-[output]
-every = 0.5
-"""
+CASE = hh_axon_toml(length=1.0, dx=0.01, dt=0.005, duration=4.0)
 
 
 @pytest.fixture
