@@ -45,57 +45,77 @@ def reaction(v, s, p, i_stim, dt, ion_scale, gating):  # bound by specialise() (
 
 
 @jit_inline
-def quiet_pass(v, vprev, dt, threshold, pre_rate, open_up, vmin, vpeak, lin, off, busy):
+def quiet_pass(v, vprev, dt, threshold, pre_rate, vmin, level, ceiling, busy):
     """The probe of quiet nodes, in one vectorised pass over all nodes; the others are
     marked in ``busy`` and left as they were, for :func:`probe_nodes`.
 
-    A node is quiet when it does not cross ``threshold`` upwards, is not in an upstroke
-    and does not fall below its next repolarisation level (``lin * peak + off``; -inf
-    when none is pending). Its probe is then the rise rate kept for the next upstroke
-    and the running lowest and highest potentials (what ``probe_nodes`` does for it,
-    bit for bit). Returns (first, last + 1) of the busy nodes ((n, 0) when none).
+    A node is quiet when it does not cross ``threshold`` upwards, does not fall below
+    its next repolarisation level (``level``: -inf when none is pending) and does not
+    rise above ``ceiling`` (its running peak while a level is pending, -inf in an
+    upstroke, +inf otherwise; see :func:`bounds`). Its probe is then the rise rate kept
+    for the next upstroke and the running lowest potential (what ``probe_nodes`` does
+    for it, bit for bit: its running peak does not change, and is not read while no
+    level is pending). Returns the number of busy nodes.
     """
-    n = v.shape[0]
-    first, end = n, 0
-    for i in range(n):
+    nbusy = 0
+    for i in range(v.shape[0]):
         vi = v[i]
         vp = vprev[i]
-        pk = vpeak[i]
-        level = lin[i] * (pk if pk > vi else vi) + off[i]
-        b = (open_up[i] != 0) | ((vp < threshold) & (vi >= threshold)) | (vi < level)
+        b = (vi > ceiling[i]) | ((vp < threshold) & (vi >= threshold)) | (vi < level[i])
         rate = (vi - vp) / dt
         pr = pre_rate[i]
         grown = (rate if rate > pr else pr) if rate > 0.0 else 0.0
         pre_rate[i] = pr if b else grown
         lo = vmin[i]
         vmin[i] = lo if (b | (lo <= vi)) else vi
-        vpeak[i] = pk if (b | (pk >= vi)) else vi
         busy[i] = b
-        first = min(first, i if b else n)
-        end = max(end, i + 1 if b else 0)
-    return first, end
+        nbusy += b
+    return nbusy
 
 
 @jit_inline
-def block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on):
+def bounds(open_up, apd, level, ceiling, i0, i1):
+    """``level`` and ``ceiling`` of nodes i0..i1-1 for :func:`quiet_pass`, from the
+    probe's state (after :func:`probe_nodes` may have changed it)."""
+    vpeak, lin, off, pending = apd[4], apd[5], apd[6], apd[8]
+    nlev = apd[1].shape[0]
+    for i in range(i0, i1):
+        pk = vpeak[i]
+        level[i] = lin[i] * pk + off[i]
+        ceiling[i] = -np.inf if open_up[i] != 0 else (pk if pending[i] < nlev else np.inf)
+
+
+@jit_inline
+def probe_bounds(open_up, apd):
+    """``level``, ``ceiling`` (see :func:`bounds`) and ``busy`` for :func:`block_probe`,
+    made at the start of a loop call from the probe's state."""
+    n = open_up.shape[0]
+    level, ceiling, busy = np.empty(n), np.empty(n), np.empty(n, np.bool_)
+    bounds(open_up, apd, level, ceiling, 0, n)
+    return level, ceiling, busy
+
+
+@jit_inline
+def block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on,
+                level, ceiling, busy):
     """The probe of :func:`cable.kernels.integrate.probe`: the quiet nodes in one
     vectorised pass (:func:`quiet_pass`), the runs of busy nodes by ``probe_nodes``
-    (every node while a stimulus is on: its current is taken out of the rates)."""
-    vmin, vpeak, lin, off = apd[3], apd[4], apd[5], apd[6]
+    (every node while a stimulus is on: its current is taken out of the rates), their
+    ``level`` and ``ceiling`` then brought up to date (:func:`bounds`)."""
     n = v.shape[0]
     if stim_on:
         probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, 0, n)
-    else:
-        busy = np.empty(n, np.bool_)
-        first, end = quiet_pass(v, vprev, dt, threshold, pre_rate, open_up, vmin, vpeak, lin, off, busy)
-        i = first
-        while i < end:
+        bounds(open_up, apd, level, ceiling, 0, n)
+    elif quiet_pass(v, vprev, dt, threshold, pre_rate, apd[3], level, ceiling, busy) > 0:
+        i = 0
+        while i < n:
             if busy[i]:
                 j = i + 1
-                while j < end and busy[j]:
+                while j < n and busy[j]:
                     j += 1
                 probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid,
                             i, j)
+                bounds(open_up, apd, level, ceiling, i, j)
                 i = j
             else:
                 i += 1
@@ -148,6 +168,7 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
     interleaved (factors from ``diffusion.factor_interleaved``, see
     ``diffusion.diffuse_interleaved``). Returns (status, step, node).
     """
+    level, ceiling, busy = probe_bounds(open_up, apd)
     stim_on = True
     pv_h, el_h, bk_h = half
     pv_f, el_f, bk_f = full
@@ -164,7 +185,8 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
             i_stim[:] = 0.0
         stim_on = any_on
         fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
-        block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on)
+        block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on,
+                    level, ceiling, busy)
         if splitting == GODUNOV:
             _diffuse(v, lo, up, dt, theta, pv_f, el_f, bk_f, work, strands)
         elif not merge or k == nsteps - 1:
@@ -183,6 +205,7 @@ def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half
     ``offsets[j]`` to ``offsets[j + 1] - 1``, factors from
     ``diffusion.factor_segments``): each strand's diffusion solved alone
     (``diffusion.diffuse_segments``), everything else as in :func:`advance_fast`."""
+    level, ceiling, busy = probe_bounds(open_up, apd)
     stim_on = True
     pv_h, el_h, bk_h = half
     pv_f, el_f, bk_f = full
@@ -199,7 +222,8 @@ def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half
             i_stim[:] = 0.0
         stim_on = any_on
         fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
-        block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on)
+        block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on,
+                    level, ceiling, busy)
         if splitting == GODUNOV:
             diffuse_segments(v, lo, up, dt, theta, pv_f, el_f, bk_f, work, offsets)
         elif not merge or k == nsteps - 1:
