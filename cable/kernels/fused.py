@@ -45,7 +45,7 @@ def reaction(v, s, p, i_stim, dt, ion_scale, gating):  # bound by specialise() (
 
 
 @jit_inline
-def quiet_pass(v, vprev, dt, threshold, pre_rate, vmin, level, ceiling, busy):
+def quiet_pass(v, vprev, dnow, dt, threshold, pre_rate, vmin, level, ceiling, busy):
     """The probe of quiet nodes, in one vectorised pass over all nodes; the others are
     marked in ``busy`` and left as they were, for :func:`probe_nodes`.
 
@@ -55,19 +55,23 @@ def quiet_pass(v, vprev, dt, threshold, pre_rate, vmin, level, ceiling, busy):
     upstroke, +inf otherwise; see :func:`bounds`). Its probe is then the rise rate kept
     for the next upstroke and the running lowest potential (what ``probe_nodes`` does
     for it, bit for bit: its running peak does not change, and is not read while no
-    level is pending). Returns the number of busy nodes.
+    level is pending), and its ``vprev = v``. ``dnow = v - vprev`` at every node.
+    Returns the number of busy nodes.
     """
     nbusy = 0
     for i in range(v.shape[0]):
         vi = v[i]
         vp = vprev[i]
         b = (vi > ceiling[i]) | ((vp < threshold) & (vi >= threshold)) | (vi < level[i])
-        rate = (vi - vp) / dt
+        d = vi - vp
+        rate = d / dt
         pr = pre_rate[i]
         grown = (rate if rate > pr else pr) if rate > 0.0 else 0.0
         pre_rate[i] = pr if b else grown
         lo = vmin[i]
         vmin[i] = lo if (b | (lo <= vi)) else vi
+        dnow[i] = d
+        vprev[i] = vp if b else vi
         busy[i] = b
         nbusy += b
     return nbusy
@@ -96,39 +100,46 @@ def probe_bounds(open_up, apd):
 
 
 @jit_inline
-def block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on,
+def block_probe(v, vprev, dnow, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on,
                 level, ceiling, busy):
-    """The probe of :func:`cable.kernels.integrate.probe`: the quiet nodes in one
-    vectorised pass (:func:`quiet_pass`), the runs of busy nodes by ``probe_nodes``
-    (every node while a stimulus is on: its current is taken out of the rates), their
-    ``level`` and ``ceiling`` then brought up to date (:func:`bounds`)."""
+    """The probe of :func:`cable.kernels.integrate.probe`, but for ``dlast``: the quiet
+    nodes in one vectorised pass (:func:`quiet_pass`), the runs of busy nodes by
+    ``probe_nodes`` (every node while a stimulus is on: its current is taken out of the
+    rates), their ``level`` and ``ceiling`` then brought up to date (:func:`bounds`).
+    Leaves ``dnow = v - vprev`` (the caller makes it the next step's ``dlast``) and
+    ``vprev = v``."""
     n = v.shape[0]
     if stim_on:
-        probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, 0, n)
+        for i in range(n):
+            dnow[i] = v[i] - vprev[i]
+        probe_nodes(v, vprev, dnow, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid,
+                    0, n)
         bounds(open_up, apd, level, ceiling, 0, n)
-    elif quiet_pass(v, vprev, dt, threshold, pre_rate, apd[3], level, ceiling, busy) > 0:
+        for i in range(n):
+            vprev[i] = v[i]
+    elif quiet_pass(v, vprev, dnow, dt, threshold, pre_rate, apd[3], level, ceiling, busy) > 0:
         i = 0
         while i < n:
             if busy[i]:
                 j = i + 1
                 while j < n and busy[j]:
                     j += 1
-                probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid,
-                            i, j)
+                probe_nodes(v, vprev, dnow, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim,
+                            grid, i, j)
                 bounds(open_up, apd, level, ceiling, i, j)
+                for m in range(i, j):
+                    vprev[m] = v[m]
                 i = j
             else:
                 i += 1
-    close(v, vprev, apd[0])
 
 
 @jit_inline
-def close(v, vprev, dlast):
-    """:func:`cable.kernels.integrate.close_probe`, inlined: ``dlast = v - vprev``, ``vprev = v``."""
-    for i in range(v.shape[0]):
-        vi = v[i]
-        dlast[i] = vi - vprev[i]
-        vprev[i] = vi
+def _keep_dlast(dlast0, dlast, steps):
+    """After ``steps`` swaps the last step's changes are in ``dlast``: into the caller's ``dlast0``."""
+    if steps % 2 == 1:
+        for i in range(dlast0.shape[0]):
+            dlast0[i] = dlast[i]
 
 
 @jit
@@ -169,6 +180,8 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
     ``diffusion.diffuse_interleaved``). Returns (status, step, node).
     """
     level, ceiling, busy = probe_bounds(open_up, apd)
+    dlast0 = apd[0]
+    dnow = np.empty_like(dlast0)
     stim_on = True
     pv_h, el_h, bk_h = half
     pv_f, el_f, bk_f = full
@@ -185,8 +198,9 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
             i_stim[:] = 0.0
         stim_on = any_on
         fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
-        block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on,
-                    level, ceiling, busy)
+        block_probe(v, vprev, dnow, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid,
+                    stim_on, level, ceiling, busy)
+        dnow, apd = apd[0], (dnow,) + apd[1:]    # this step's changes are the next step's dlast
         if splitting == GODUNOV:
             _diffuse(v, lo, up, dt, theta, pv_f, el_f, bk_f, work, strands)
         elif not merge or k == nsteps - 1:
@@ -194,7 +208,9 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
         if (k + 1) % check_every == 0 or k == nsteps - 1:
             status, node = check(v)
             if status != OK:
+                _keep_dlast(dlast0, apd[0], k + 1)
                 return status, k, node
+    _keep_dlast(dlast0, apd[0], nsteps)
     return OK, nsteps, -1
 
 
@@ -206,6 +222,8 @@ def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half
     ``diffusion.factor_segments``): each strand's diffusion solved alone
     (``diffusion.diffuse_segments``), everything else as in :func:`advance_fast`."""
     level, ceiling, busy = probe_bounds(open_up, apd)
+    dlast0 = apd[0]
+    dnow = np.empty_like(dlast0)
     stim_on = True
     pv_h, el_h, bk_h = half
     pv_f, el_f, bk_f = full
@@ -222,8 +240,9 @@ def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half
             i_stim[:] = 0.0
         stim_on = any_on
         fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
-        block_probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, stim_on,
-                    level, ceiling, busy)
+        block_probe(v, vprev, dnow, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid,
+                    stim_on, level, ceiling, busy)
+        dnow, apd = apd[0], (dnow,) + apd[1:]    # this step's changes are the next step's dlast
         if splitting == GODUNOV:
             diffuse_segments(v, lo, up, dt, theta, pv_f, el_f, bk_f, work, offsets)
         elif not merge or k == nsteps - 1:
@@ -231,7 +250,9 @@ def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half
         if (k + 1) % check_every == 0 or k == nsteps - 1:
             status, node = check(v)
             if status != OK:
+                _keep_dlast(dlast0, apd[0], k + 1)
                 return status, k, node
+    _keep_dlast(dlast0, apd[0], nsteps)
     return OK, nsteps, -1
 
 

@@ -63,34 +63,37 @@ def stimulus_current(t, dt, pulses, i_stim):
 
 
 @jit
-def step_rate(v, vprev, dlast, lo, up, h, stride, i, dt):
-    """dV/dt of node ``i`` over the whole step [mV/ms], from the potentials probed after
-    two consecutive reactions (``vprev``, ``v``).
+def step_rate(dnow, dlast, lo, up, h, stride, i, dt):
+    """dV/dt of node ``i`` over the whole step [mV/ms], from the changes of the
+    potential between the probes after two consecutive reactions (``dnow``, this step's;
+    ``dlast``, the step's before).
 
-    Their difference d lacks the diffusion of the rest of the step (``h``): it is added
-    as h L applied to the mean of d and the previous step's difference ``dlast`` (L the
-    grid's diffusion operator, neighbours ``stride`` nodes away: strands interleaved in
-    a batch). To second order in dt that is the increment of the whole step; the mean
-    over two steps cancels the grid-scale modes that Crank-Nicolson leaves undamped and
-    flips in sign every step with the half steps merged (which an explicit h L d would
-    amplify by up to 2 h (lo + up), ~100 on fine grids).
+    ``dnow`` lacks the diffusion of the rest of the step (``h``): it is added as h L
+    applied to the mean of ``dnow`` and ``dlast`` (L the grid's diffusion operator,
+    neighbours ``stride`` nodes away: strands interleaved in a batch). To second order
+    in dt that is the increment of the whole step; the mean over two steps cancels the
+    grid-scale modes that Crank-Nicolson leaves undamped and flips in sign every step
+    with the half steps merged (which an explicit h L d would amplify by up to
+    2 h (lo + up), ~100 on fine grids).
     """
-    d = v[i] - vprev[i]
+    d = dnow[i]
     mid = 0.5 * (d + dlast[i])
     acc = 0.0
     if i >= stride:
         j = i - stride
-        acc += lo[i] * (0.5 * ((v[j] - vprev[j]) + dlast[j]) - mid)
-    if i + stride < v.shape[0]:
+        acc += lo[i] * (0.5 * (dnow[j] + dlast[j]) - mid)
+    if i + stride < dnow.shape[0]:
         j = i + stride
-        acc += up[i] * (0.5 * ((v[j] - vprev[j]) + dlast[j]) - mid)
+        acc += up[i] * (0.5 * (dnow[j] + dlast[j]) - mid)
     return (d + h * acc) / dt
 
 
 @jit
-def probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid, i0, i1):
-    """Probe nodes i0..i1-1 after the reaction of the step ending at t + dt (``vprev``
-    and ``dlast`` are updated by the caller, :func:`close_probe`, after every node).
+def probe_nodes(v, vprev, dnow, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid,
+                i0, i1):
+    """Probe nodes i0..i1-1 after the reaction of the step ending at t + dt (``dnow`` is
+    ``v - vprev`` at every node; ``vprev`` and ``dlast`` are updated by the caller,
+    :func:`close_probe`, after every node).
 
     Crossings; the upstroke rate (:func:`step_rate` with ``grid`` = (lo, up, h,
     stride), without the stimulus current ``i_stim`` of the step: the rate of the
@@ -111,7 +114,7 @@ def probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstro
             k = nact[i]
             if k < cap:
                 act[i, k] = t + dt * (threshold - vp) / (vi - vp)
-                upstroke[i, k] = max(pre_rate[i], step_rate(v, vprev, dlast, lo, up, h, stride, i, dt) - i_stim[i])
+                upstroke[i, k] = max(pre_rate[i], step_rate(dnow, dlast, lo, up, h, stride, i, dt) - i_stim[i])
                 nact[i] = k + 1
                 open_up[i] = 1
             else:
@@ -134,7 +137,7 @@ def probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstro
             if open_up[i] == 1:
                 k = nact[i] - 1
                 if k < cap:
-                    full = step_rate(v, vprev, dlast, lo, up, h, stride, i, dt) - i_stim[i]
+                    full = step_rate(dnow, dlast, lo, up, h, stride, i, dt) - i_stim[i]
                     if full > upstroke[i, k]:
                         upstroke[i, k] = full
         else:
@@ -163,19 +166,19 @@ def probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstro
 
 @jit
 def probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid):
-    """Probe every node (:func:`probe_nodes`), then ``vprev = v``."""
-    probe_nodes(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid,
+    """Probe every node (:func:`probe_nodes`), then ``vprev = v`` and ``dlast = v - vprev``."""
+    dnow = v - vprev
+    probe_nodes(v, vprev, dnow, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid,
                 0, v.shape[0])
-    close_probe(v, vprev, apd[0])
+    close_probe(v, vprev, dnow, apd[0])
 
 
 @jit
-def close_probe(v, vprev, dlast):
-    """After the probe of a step: ``dlast = v - vprev``, ``vprev = v``."""
+def close_probe(v, vprev, dnow, dlast):
+    """After the probe of a step: ``dlast = dnow``, ``vprev = v``."""
     for i in range(v.shape[0]):
-        vi = v[i]
-        dlast[i] = vi - vprev[i]
-        vprev[i] = vi
+        dlast[i] = dnow[i]
+        vprev[i] = v[i]
 
 
 def advance(v, s, p, t0, nsteps, dt, pulses, lo, up, theta, half, full, splitting, merge,
