@@ -41,7 +41,7 @@ import xarray as xr
 
 from cable import units
 from cable.case import Case, CaseError, load_case
-from cable.io.schema import provenance
+from cable.io import schema
 from cable.simulate import SimulationError, simulate
 
 #: default final bracket width, as a fraction of |high - low| (7 bisections)
@@ -462,35 +462,17 @@ def _run_until_decided(case, variant, key, value, beat, crit, say, first=None) -
 def _result(case, key, unit, lo, hi, tol, runs, passing, failing, log=False, criterion="block") -> xr.Dataset:
     values = np.array([v for v, _ in runs])
     out = [o for _, o in runs]
-    data = {
-        "value": (("run",), values, {"units": unit or "1", "long_name": f"value of {key}"}),
-        "conducted": (("run",), np.array([o["conducted"] for o in out], dtype=np.int8),
-                      {"long_name": "every judged beat conducted through the strand", "flag_values": [0, 1],
-                       "flag_meanings": "false true"}),
-        "captured": (("run",), np.array([o["captured"] for o in out], dtype=np.int8),
-                     {"long_name": "the stimulus excited (first failing beat, else last judged)",
-                      "flag_values": [0, 1], "flag_meanings": "false true"}),
-        "blocked": (("run",), np.array([o["blocked"] for o in out], dtype=np.int8),
-                    {"long_name": "the wave started but did not reach an end", "flag_values": [0, 1],
-                     "flag_meanings": "false true"}),
-        "block_x": (("run",), np.array([o["block_x"] for o in out]),
-                    {"units": "cm", "long_name": "last activated position of the blocked wave"}),
-        "conduction_velocity": (("run",), np.array([o["cv"] for o in out]),
-                                {"units": "m/s", "long_name": "conduction velocity in the measurement window"}),
-        "beats_conducted": (("run",), np.array([o["beats_conducted"] for o in out], dtype=np.int32),
-                            {"units": "1", "long_name": "judged beats that conducted"}),
-        "slow_response": (("run",), np.array([bool(o.get("slow_response", False)) for o in out], dtype=np.int8),
-                          {"long_name": "conduction by a slow response (first failing beat, else last judged)",
-                           "flag_values": [0, 1], "flag_meanings": "false true"}),
-    }
-    coords = {"run": ("run", np.arange(len(runs)), {"long_name": "run number, in the order made"})}
+    col = lambda key, dtype=np.int8: np.array([o[key] for o in out], dtype=dtype)  # noqa: E731
+    data = {"value": values, "conducted": col("conducted"), "captured": col("captured"), "blocked": col("blocked"),
+            "block_x": col("block_x", float), "conduction_velocity": col("cv", float),
+            "beats_conducted": col("beats_conducted", np.int32),
+            "slow_response": np.array([bool(o.get("slow_response", False)) for o in out], dtype=np.int8)}
+    coords = {"run": np.arange(len(runs))}
     grids = [o["x"] for o in out]
     if grids and all(g.shape == grids[0].shape and np.allclose(g, grids[0]) for g in grids):
-        coords["x"] = ("x", grids[0], {"units": "cm", "long_name": "position along the fibre"})
-        data["activation_time"] = (("run", "x"), np.array([o["activation"] for o in out]),
-                                   {"units": "ms", "long_name": "activation time of the first judged beat"})
+        coords["x"] = grids[0]
+        data["activation_time"] = np.array([o["activation"] for o in out])
     attrs = {
-        **provenance(f"cable critical-value search: {key}", case, protocol="critical-value search"),
         "key": key,
         "units": unit,
         "low": lo,
@@ -506,7 +488,8 @@ def _result(case, key, unit, lo, hi, tol, runs, passing, failing, log=False, cri
         mid = math.sqrt(passing * failing) if log else 0.5 * (passing + failing)
         attrs.update(passing_value=passing, failing_value=failing, critical_value=mid,
                      cv_passing_m_per_s=float(out[k_pass]["cv"]))
-    return xr.Dataset(data, coords=coords, attrs=attrs)
+    return schema.dataset("critical", data, coords, attrs, case=case, description="critical-value search",
+                          title=f"cable critical-value search: {key}")
 
 
 def _write(ds: xr.Dataset, output, overwrite: bool) -> None:

@@ -32,7 +32,8 @@ import numpy as np
 import xarray as xr
 
 from cable.case import CaseError
-from cable.io.schema import STATE_PREFIX, provenance
+from cable.io import schema
+from cable.io.schema import STATE_PREFIX
 from cable.measure.activation import CAPTURE_LATENCY
 from cable.membrane import get_model
 from cable.protocols import _pacing
@@ -172,40 +173,16 @@ def refractory_period(case, *, cycle_length: float | None = None, s1_count: int 
                         who=who, limit=4.0 * max(cl or 0.0, apd_site, 1.0), guess=apd_site,
                         many=trial_many if (points > 1 and _rounds.batchable(case)) else None, points=points)
     cis = np.array(sorted(tried))
-    data = {
-        "erp": ((), erp, {"units": "ms", "long_name": "effective refractory period: shortest S1-S2 interval "
-                                                      "whose S2 propagates along the strand"}),
-        "local_refractory_period": ((), local, {"units": "ms", "long_name": "shortest S1-S2 interval whose S2 "
-                                                                            "starts a regenerative response at the "
-                                                                            "stimulus site"}),
-        "vulnerable_window": ((), erp - local, {"units": "ms", "long_name": "intervals with a local response "
-                                                                            "that fails to propagate"}),
-        "apd90_s1": ((), apd_site, {"units": "ms", "long_name": "APD90 of the last S1 beat at the stimulus site"}),
-        "apd90_s1_centre": ((), apd_centre, {"units": "ms", "long_name": "APD90 of the last S1 beat at the "
-                                                                        "centre of the CV window"}),
-        "erp_minus_apd90": ((), erp - apd_site, {"units": "ms", "long_name": "post-repolarisation refractoriness "
-                                                                            "(ERP - APD90 at the site)"}),
-        **_wavelengths(ref, n1 - 1, erp, apd_centre),
-        "s2_captured": ("trial", np.array([tried[c][0] for c in cis], dtype=np.int8),
-                        {"long_name": "S2 started a regenerative response at the site", "flag_values": [0, 1],
-                         "flag_meanings": "false true"}),
-        "s2_propagated": ("trial", np.array([tried[c][1] for c in cis], dtype=np.int8),
-                          {"long_name": "S2 wave reached the far end", "flag_values": [0, 1],
-                           "flag_meanings": "false true"}),
-    }
-    coords = {"coupling_interval": ("trial", cis, {"units": "ms", "long_name": "S1-S2 coupling interval"})}
-    attrs = {
-        **provenance(f"refractory periods: {case.membrane.model}", case, protocol="S1-S2 refractory period"),
-        "s1_count": n1,
-        "s1_cycle_length_ms": cl if n1 > 1 else np.nan,
-        "s1_amplitude": site.amplitude,
-        "s2_amplitude": amp2,
-        "s2_duration_ms": dur2,
-        "tolerance_ms": tol,
-        "search_start_ms": start,
-        "observe_ms": watch,
-    }
-    return xr.Dataset(data, coords=coords, attrs=attrs)
+    data = {"erp": erp, "local_refractory_period": local, "vulnerable_window": erp - local,
+            "apd90_s1": apd_site, "apd90_s1_centre": apd_centre, "erp_minus_apd90": erp - apd_site,
+            **_wavelengths(ref, n1 - 1, erp, apd_centre),
+            "s2_captured": np.array([tried[c][0] for c in cis], dtype=np.int8),
+            "s2_propagated": np.array([tried[c][1] for c in cis], dtype=np.int8)}
+    attrs = {"s1_count": n1, "s1_cycle_length_ms": cl if n1 > 1 else np.nan, "s1_amplitude": site.amplitude,
+             "s2_amplitude": amp2, "s2_duration_ms": dur2, "tolerance_ms": tol, "search_start_ms": start,
+             "observe_ms": watch}
+    return schema.dataset("refractory", data, {"coupling_interval": cis}, attrs, case=case,
+                          description="S1-S2 refractory period", title=f"refractory periods: {case.membrane.model}")
 
 
 def upstroke_end(ds, node: int, onset: float, apd: float) -> float:
@@ -350,13 +327,7 @@ def search(trial, lo, hi, tol, *, who, limit, guess=None, many=None, points=1):
 def _wavelengths(ref, beat, erp, apd_centre) -> dict:
     """Wavelengths of the last S1 beat: CV x ERP (the classical one) and CV x APD90."""
     cv = float(ref["conduction_velocity"].values[beat])     # m/s
-    return {
-        "conduction_velocity_s1": ((), cv, {"units": "m/s", "long_name": "CV of the last S1 beat"}),
-        "wavelength_erp": ((), cv / 10.0 * erp, {"units": "cm", "long_name": "wavelength: CV of the last S1 beat "
-                                                                             "times the ERP"}),
-        "wavelength_apd": ((), cv / 10.0 * apd_centre, {"units": "cm", "long_name": "wavelength: CV of the last S1 "
-                                                                                   "beat times its APD90 mid-strand"}),
-    }
+    return {"conduction_velocity_s1": cv, "wavelength_erp": cv / 10.0 * erp, "wavelength_apd": cv / 10.0 * apd_centre}
 
 
 def summary(ds: xr.Dataset) -> str:
