@@ -28,6 +28,7 @@ import xarray as xr
 
 from cable.case import Case, CaseError, load_case
 from cable.io import schema
+from cable.protocols.base import Protocol
 from cable.simulate import SimulationError, simulate
 
 #: the measurements a target may name -> unit
@@ -353,3 +354,14 @@ def summary(ds: xr.Dataset) -> str:
 def _quiet_default(case) -> dict:
     """``run.stop_when_quiet = true`` unless the case gives it (the protocols' default, cable/quiet.py)."""
     return {} if case.stop_when_quiet is not None else {"run.stop_when_quiet": True}
+
+
+def figure(ds, fig) -> None:
+    """The runs, the target and the value found (:func:`cable.plot.calibration`)."""
+    from cable.plot.studies import calibration
+
+    calibration(ds, fig.add_subplot())
+
+
+PROTOCOL = Protocol(name="calibrate", title="calibration", run=calibrate, summary=summary, figure=figure,
+                    command="calibrate", order=50, legacy=lambda ds: ds.attrs.get("protocol") == "calibration")

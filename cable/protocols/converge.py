@@ -48,6 +48,7 @@ import xarray as xr
 
 from cable.case import CaseError
 from cable.io import schema
+from cable.protocols.base import Protocol
 from cable.protocols import _pacing
 from cable.simulate import SimulationError, simulate
 
@@ -349,3 +350,16 @@ def summary(ds: xr.Dataset) -> str:
     if ds.attrs.get("warning"):
         lines += [f"WARNING: {w}" for w in ds.attrs["warning"].split("\n")]
     return "\n".join(lines)
+
+
+def figure(ds, fig) -> None:
+    """CV, its error and APD90 against dx (:mod:`cable.plot.protocol_figures.converge`)."""
+    from cable.plot.protocol_figures.converge import figure as draw
+
+    draw(ds, fig)
+
+
+PROTOCOL = Protocol(name="converge", title="convergence", run=convergence, summary=summary, figure=figure,
+                    command="converge", order=40,
+                    legacy=lambda ds: ds.attrs.get("protocol") == "grid convergence"
+                    or "cv_extrapolated" in ds.variables)

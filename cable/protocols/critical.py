@@ -42,6 +42,8 @@ import xarray as xr
 from cable import units
 from cable.case import Case, CaseError, load_case
 from cable.io import schema
+from cable.protocols._journal import Journal
+from cable.protocols.base import Protocol
 from cable.simulate import SimulationError, simulate
 
 #: default final bracket width, as a fraction of |high - low| (7 bisections)
@@ -190,60 +192,6 @@ def describe(outcome: dict) -> str:
     return "does not conduct"
 
 
-class _Journal:
-    """The runs of a search with an output file, kept as they finish so that an
-    interrupted search, started again with the same output, reuses them.
-
-    Bisection is deterministic: replaying the same case, key, interval and tolerance
-    asks for the same values in the same order, so the reused outcomes give the same
-    bracket and the same file as an uninterrupted search. The folder
-    ``<output>.runs/`` holds one ``.npz`` per run and ``search.txt`` (the identity:
-    the case text and the search settings); a different search at the same output
-    discards it. It is removed when the result is written.
-    """
-
-    def __init__(self, output, identity: str):
-        import hashlib
-        from pathlib import Path
-
-        self.folder = Path(f"{output}.runs")
-        self.identity = hashlib.sha256(identity.encode()).hexdigest()
-        self.done = {}
-        stamp = self.folder / "search.txt"
-        if self.folder.is_dir():
-            if stamp.is_file() and stamp.read_text().strip() == self.identity:
-                for f in sorted(self.folder.glob("run-*.npz")):
-                    try:
-                        with np.load(f) as z:
-                            self.done[float(z["value"])] = {k: (z[k] if z[k].ndim else z[k].item())
-                                                            for k in z.files if k != "value"}
-                    except Exception:  # noqa: BLE001 -- a damaged entry (cut off: BadZipFile, EOFError,
-                        # zlib.error, OSError...) is redone, whatever the zip reader raises for it
-                        f.unlink(missing_ok=True)
-            else:
-                self.remove()
-        self.folder.mkdir(parents=True, exist_ok=True)
-        stamp.write_text(self.identity + "\n")
-
-    def get(self, value):
-        return self.done.get(float(value))
-
-    def put(self, value, outcome: dict) -> None:
-        import os
-
-        taken = [int(f.stem.split("-")[1]) for f in self.folder.glob("run-*.npz") if f.stem.split("-")[1].isdigit()]
-        name = self.folder / f"run-{max(taken, default=-1) + 1:04d}.npz"  # after every entry kept (none replaced)
-        tmp = self.folder / f".{name.name}.{os.getpid()}.tmp.npz"
-        np.savez(tmp, value=float(value), **outcome)
-        os.replace(tmp, name)
-        self.done[float(value)] = outcome
-
-    def remove(self) -> None:
-        import shutil
-
-        shutil.rmtree(self.folder, ignore_errors=True)
-
-
 def find_critical(case, key: str, low, high, *, tolerance: float | None = None, beat: int | None = None,
                   log: bool = False, output=None, overwrite: bool = False, info=None,
                   criterion: str = "block", points: int | None = None, workers: int | None = None) -> xr.Dataset:
@@ -268,7 +216,7 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     output : str or pathlib.Path, optional
         netCDF file for the runs made (also written when the ends do not straddle).
         With it, an interrupted search started again with the same output reuses the
-        runs already made (see :class:`_Journal`).
+        runs already made (see :class:`cable.protocols._journal.Journal`).
     overwrite : bool
         Replace an existing ``output``.
     info : callable, optional
@@ -361,7 +309,7 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     journal = None
     if output is not None:
         # points is not part of the identity: runs are reused by value, whatever the rounds asked
-        journal = _Journal(output, f"{case.text}\n{key} {lo!r} {hi!r} {tol!r} {beat!r} {log!r} {criterion!r}")
+        journal = Journal(output, f"{case.text}\n{key} {lo!r} {hi!r} {tol!r} {beat!r} {log!r} {criterion!r}")
         if journal.done:
             say(f"resuming: {len(journal.done)} run(s) of an interrupted search reused from {journal.folder}")
 
@@ -496,3 +444,38 @@ def _write(ds: xr.Dataset, output, overwrite: bool) -> None:
     from cable.io.netcdf import write_dataset
 
     write_dataset(ds, output, overwrite=overwrite)
+
+
+def summary(ds: xr.Dataset) -> str:
+    """The search's result as a few lines: bracket, runs, CV on the passing side."""
+    a = ds.attrs
+    unit = a.get("units", "")
+    unit = f" {unit}" if unit and unit != "1" else ""
+    if "passing_value" not in a:
+        return (f"{a['key']}: {a['low']:.6g}{unit} and {a['high']:.6g}{unit} do not straddle block "
+                f"(both ends {'conduct' if int(ds['conducted'].values.all()) else 'fail to conduct'}); "
+                f"runs: {a['runs']}")
+    crit = a.get("criterion", "block")
+    fails = {"block": "blocks", "slow-response": "blocks or slow response"}.get(crit, f"blocks or {crit}")
+    lines = [f"{a['key']}: critical value between {a['passing_value']:.6g}{unit} (conducts) and "
+             f"{a['failing_value']:.6g}{unit} ({fails}); midpoint {a['critical_value']:.6g}{unit}",
+             f"runs: {a['runs']}" + (f" in {a['rounds']} rounds" if "rounds" in a else "")
+             + f"   final bracket: {_width(a)} (tolerance {a['tolerance']:.3g})",
+             f"CV just on the passing side: {a['cv_passing_m_per_s']:.4g} m/s"]
+    if a.get("note"):
+        lines.append(f"note: {a['note']}")
+    return "\n".join(lines)
+
+
+def _width(a) -> str:
+    p, f = a["passing_value"], a["failing_value"]
+    if a.get("scale") == "log":
+        return f"ratio {max(p, f) / min(p, f):.4g}"
+    unit = a.get("units", "")
+    return f"width {abs(p - f):.3g}{' ' + unit if unit and unit != '1' else ''}"
+
+
+PROTOCOL = Protocol(name="critical", title="critical-value search", run=find_critical, summary=summary,
+                    command="critical", order=60,
+                    legacy=lambda ds: ds.attrs.get("protocol") == "critical-value search"
+                    or str(ds.attrs.get("title", "")).startswith("cable critical-value search"))

@@ -33,6 +33,7 @@ import xarray as xr
 
 from cable.case import CaseError
 from cable.io import schema
+from cable.protocols.base import Protocol
 from cable.io.schema import STATE_PREFIX
 from cable.measure.activation import CAPTURE_LATENCY
 from cable.membrane import get_model
@@ -346,3 +347,15 @@ def summary(ds: xr.Dataset) -> str:
     for ci, c, p in zip(ds["coupling_interval"].values, ds["s2_captured"].values, ds["s2_propagated"].values):
         lines.append(f"{ci:8.5g}  {'yes' if c else 'no':>8}  {'yes' if p else 'no':>10}")
     return "\n".join(lines)
+
+
+def figure(ds, fig) -> None:
+    """The S2 trials by outcome (:mod:`cable.plot.protocol_figures.refractory`)."""
+    from cable.plot.protocol_figures.refractory import figure as draw
+
+    draw(ds, fig)
+
+
+PROTOCOL = Protocol(name="refractory", title="refractory period", run=refractory_period, summary=summary,
+                    figure=figure, command="erp", order=20,
+                    legacy=lambda ds: ds.attrs.get("protocol") == "S1-S2 refractory period" or "erp" in ds.variables)

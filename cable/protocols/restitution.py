@@ -23,6 +23,7 @@ import xarray as xr
 
 from cable.case import CaseError
 from cable.io import schema
+from cable.protocols.base import Protocol
 from cable.measure.activation import CAPTURE_LATENCY
 from cable.protocols import _pacing
 from cable.protocols.refractory import TRANSIT_FACTOR, s1_train
@@ -212,3 +213,14 @@ def summary(ds: xr.Dataset) -> str:
                      f"{'yes' if int(p['propagated']) else 'no'}")
     lines.append(f"maximal APD restitution slope {float(ds['max_slope']):.3g} at DI {float(ds['max_slope_di']):.4g} ms")
     return "\n".join(lines)
+
+
+def figure(ds, fig) -> None:
+    """APD90 and CV against DI (:mod:`cable.plot.protocol_figures.restitution`)."""
+    from cable.plot.protocol_figures.restitution import figure as draw
+
+    draw(ds, fig)
+
+
+PROTOCOL = Protocol(name="restitution", title="restitution", run=restitution, summary=summary, figure=figure,
+                    command="restitution", order=30, legacy=lambda ds: "max_slope" in ds.variables)

@@ -34,6 +34,7 @@ import xarray as xr
 
 from cable.case import CaseError
 from cable.io import schema
+from cable.protocols.base import Protocol
 from cable.protocols import _pacing
 from cable.simulate import SimulationError, simulate
 
@@ -367,3 +368,16 @@ def summary(ds: xr.Dataset) -> str:
     if ds.attrs.get("notes"):
         lines.append("notes: " + ds.attrs["notes"])
     return "\n".join(lines)
+
+
+def figure(ds, fig) -> None:
+    """Amplitude and charge against duration (:mod:`cable.plot.protocol_figures.threshold`)."""
+    from cable.plot.protocol_figures.threshold import figure as draw
+
+    draw(ds, fig)
+
+
+PROTOCOL = Protocol(name="threshold", title="strength-duration", run=strength_duration, summary=summary,
+                    figure=figure, command="threshold", order=10,
+                    legacy=lambda ds: ds.attrs.get("protocol") == "strength-duration"
+                    or "rheobase_weiss" in ds.variables)
