@@ -263,6 +263,66 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         raise CaseError(f"{who}: the case has no [fiber]; conduction block needs a strand.")
     if not case.stimuli:
         raise CaseError(f"{who}: the case has no stimulus; add a [stimulus.S1] to start the wave.")
+    lo, hi, tol = _interval(who, low, high, tolerance, log)
+    if output is not None:
+        from cable.io.netcdf import check_target
+
+        check_target(output, overwrite)
+    from cable.protocols import _rounds
+
+    workers = _rounds.check_count(who, "workers", _rounds.default_workers() if workers is None else workers)
+    points = _rounds.check_count(who, "points", workers if points is None else points)
+    if not _rounds.batchable(case):
+        points, workers = 1, 1  # a ring's, the electrodes' and the safety factor's runs go alone
+    say = info or (lambda msg: None)
+    trials = _Trials(case, key, (lo, hi), beat, crit, workers, say)   # invalid keys and beats fail here
+    unit, journal = trials.unit, None
+    if output is not None:
+        # points is not part of the identity: runs are reused by value, whatever the rounds asked
+        journal = trials.journal = Journal(output, f"{case.text}\n{key} {lo!r} {hi!r} {tol!r} {beat!r} {log!r} "
+                                                   f"{criterion!r}")
+        if journal.done:
+            say(f"resuming: {len(journal.done)} run(s) of an interrupted search reused from {journal.folder}")
+
+    def finish(ds):
+        if output is not None:
+            _write(ds, output, overwrite)
+            journal.remove()
+        return ds
+
+    c_lo, c_hi = trials([lo, hi])
+    if c_lo == c_hi:
+        ds = finish(_result(case, key, unit, lo, hi, tol, trials.runs, None, None, log, criterion))
+        both = "conduct" if c_lo else "fail to conduct"
+        hint = ("move the interval toward more severe values" if c_lo else
+                "move the interval toward milder values (or check that the stimulus captures)")
+        raise NoBracketError(f"{who}: {key} between {lo:g} and {hi:g} does not straddle block: both ends {both} "
+                             f"(at {lo:g}: {describe(trials.runs[0][1])}; at {hi:g}: "
+                             f"{describe(trials.runs[1][1])}); {hint}.", runs=ds)
+    passing, failing = (lo, hi) if c_lo else (hi, lo)
+    while _bracket_width(passing, failing, log) > tol:
+        values = _rounds.inside(passing, failing, points, tol, log) if points > 1 else \
+            [math.sqrt(passing * failing) if log else 0.5 * (passing + failing)]
+        passing, failing = _rounds.narrow(passing, failing, values, trials(values))
+    ds = _result(case, key, unit, lo, hi, tol, trials.runs, passing, failing, log, criterion)
+    ds.attrs.update(rounds=trials.rounds, points_per_round=points)
+    fail_outcome = [o for v, o in trials.runs if v == failing][-1]
+    if not fail_outcome["captured"]:
+        # the search found where the stimulus stops exciting, not where a started wave blocks
+        ds.attrs["note"] = (f"at the failing end ({key} = {failing:g}) the stimulus did not excite at all: the "
+                            f"transition found is loss of capture, not conduction block; keep the stimulated "
+                            f"tissue out of the change, or raise the stimulus.")
+        say(f"note: {ds.attrs['note']}")
+    return finish(ds)
+
+
+def _bracket_width(a, b, log) -> float:
+    """Width of a bracket: its ratio minus 1 with ``log``, else its difference."""
+    return max(a, b) / min(a, b) - 1.0 if log else abs(a - b)
+
+
+def _interval(who, low, high, tolerance, log):
+    """(low, high, tolerance) of the search, checked."""
     lo = _number(who, "low", low)
     hi = _number(who, "high", high)
     if not lo < hi:
@@ -275,97 +335,55 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         tol = _number(who, "tolerance", tolerance)
     if not tol > 0:
         raise CaseError(f"{who}: tolerance = {tol:g} must be positive.")
-
-    def width(a, b):
-        return max(a, b) / min(a, b) - 1.0 if log else abs(a - b)
-
-    def middle(a, b):
-        return math.sqrt(a * b) if log else 0.5 * (a + b)
-
-    if math.log2(width(lo, hi) / tol) + 2 > MAX_RUNS:
+    if math.log2(_bracket_width(lo, hi, log) / tol) + 2 > MAX_RUNS:
         raise CaseError(f"{who}: tolerance = {tol:g} would need more than {MAX_RUNS} runs over [{lo:g}, {hi:g}]; "
                         f"give a larger tolerance.")
-    if output is not None:
-        from cable.io.netcdf import check_target
+    return lo, hi, tol
 
-        check_target(output, overwrite)
-    from cable.protocols import _rounds
-    from cable.quiet import quiet_by_default
 
-    workers = _rounds.check_count(who, "workers", _rounds.default_workers() if workers is None else workers)
-    points = _rounds.check_count(who, "points", workers if points is None else points)
-    if not _rounds.batchable(case):
-        points, workers = 1, 1  # a ring's, the electrodes' and the safety factor's runs go alone
-    run_case = quiet_by_default(case)  # each run ends when nothing is left to happen, unless the case says
-    variants = {}
-    for value in (lo, hi):  # invalid keys and values fail here, before anything runs
-        variants[value] = run_case.with_overrides({key: value})
-    nbeat = len({round(t, 9) for s in variants[lo].stimuli for t in s.onsets()})
-    if beat is not None and not 0 <= int(beat) < nbeat:
-        raise CaseError(f"{who}: beat = {beat} is out of range; the case has {nbeat} beat(s) (0 to {nbeat - 1}).")
-    say = info or (lambda msg: None)
-    unit = key_units(case, key)
-    runs: list[tuple[float, dict]] = []
-    journal = None
-    if output is not None:
-        # points is not part of the identity: runs are reused by value, whatever the rounds asked
-        journal = Journal(output, f"{case.text}\n{key} {lo!r} {hi!r} {tol!r} {beat!r} {log!r} {criterion!r}")
-        if journal.done:
-            say(f"resuming: {len(journal.done)} run(s) of an interrupted search reused from {journal.folder}")
+class _Trials:
+    """The runs of one search: ``trials(values)`` runs the values together (those not in
+    the journal) and says whether each conducted; ``runs`` keeps (value, outcome) in the
+    order asked, ``rounds`` the rounds that ran something."""
 
-    rounds = [0]
+    def __init__(self, case, key, ends, beat, crit, workers, say):
+        from cable.quiet import quiet_by_default
 
-    def trials(values) -> list[bool]:
-        """Run ``values`` together (those not in the journal); whether each conducted."""
+        self.case = quiet_by_default(case)  # each run ends when nothing is left to happen, unless the case says
+        self.key, self.beat, self.crit, self.workers, self.say = key, beat, crit, workers, say
+        self.journal = None   # a Journal when the search has an output file
+        self.variants = {v: self.case.with_overrides({key: v}) for v in ends}  # invalid keys fail before any run
+        lo = ends[0]
+        nbeat = len({round(t, 9) for s in self.variants[lo].stimuli for t in s.onsets()})
+        if beat is not None and not 0 <= int(beat) < nbeat:
+            raise CaseError(f"find_critical: beat = {beat} is out of range; the case has {nbeat} beat(s) (0 to "
+                            f"{nbeat - 1}).")
+        self.unit = key_units(case, key)
+        self.runs: list[tuple[float, dict]] = []
+        self.rounds = 0
+
+    def __call__(self, values) -> list[bool]:
+        from cable.protocols import _rounds
+
+        journal, key = self.journal, self.key
         done = {v: journal.get(v) for v in values} if journal is not None else {}
         todo = [v for v in values if done.get(v) is None]
         if todo:
-            rounds[0] += 1
+            self.rounds += 1
             for value in todo:
-                if value not in variants:  # an invalid value fails here, before the round runs
-                    variants[value] = run_case.with_overrides({key: value})
-            fresh = _rounds.run_together([variants[v] for v in todo], workers)
+                if value not in self.variants:  # an invalid value fails here, before the round runs
+                    self.variants[value] = self.case.with_overrides({key: value})
+            fresh = _rounds.run_together([self.variants[v] for v in todo], self.workers)
             for value, ds in zip(todo, fresh):
-                outcome = _decide(run_case, ds, key, value, beat, crit, say)
+                outcome = _decide(self.case, ds, key, value, self.beat, self.crit, self.say)
                 if journal is not None:
                     journal.put(value, outcome)
                 done[value] = outcome
-        shown = f" {unit}" if unit and unit != "1" else ""
+        shown = f" {self.unit}" if self.unit and self.unit != "1" else ""
         for value in values:
-            reused = value not in todo
-            runs.append((value, done[value]))
-            say(f"{key} = {value:.6g}{shown}: {describe(done[value])}{' (reused)' if reused else ''}")
+            self.runs.append((value, done[value]))
+            self.say(f"{key} = {value:.6g}{shown}: {describe(done[value])}{'' if value in todo else ' (reused)'}")
         return [bool(done[v]["conducted"]) for v in values]
-
-    c_lo, c_hi = trials([lo, hi])
-    if c_lo == c_hi:
-        ds = _result(case, key, unit, lo, hi, tol, runs, None, None, log, criterion)
-        if output is not None:
-            _write(ds, output, overwrite)
-            journal.remove()
-        both = "conduct" if c_lo else "fail to conduct"
-        hint = ("move the interval toward more severe values" if c_lo else
-                "move the interval toward milder values (or check that the stimulus captures)")
-        raise NoBracketError(f"{who}: {key} between {lo:g} and {hi:g} does not straddle block: both ends {both} "
-                             f"(at {lo:g}: {describe(runs[0][1])}; at {hi:g}: {describe(runs[1][1])}); {hint}.",
-                             runs=ds)
-    passing, failing = (lo, hi) if c_lo else (hi, lo)
-    while width(passing, failing) > tol:
-        values = _rounds.inside(passing, failing, points, tol, log) if points > 1 else [middle(passing, failing)]
-        passing, failing = _rounds.narrow(passing, failing, values, trials(values))
-    ds = _result(case, key, unit, lo, hi, tol, runs, passing, failing, log, criterion)
-    ds.attrs.update(rounds=rounds[0], points_per_round=points)
-    fail_outcome = [o for v, o in runs if v == failing][-1]
-    if not fail_outcome["captured"]:
-        # the search found where the stimulus stops exciting, not where a started wave blocks
-        ds.attrs["note"] = (f"at the failing end ({key} = {failing:g}) the stimulus did not excite at all: the "
-                            f"transition found is loss of capture, not conduction block; keep the stimulated "
-                            f"tissue out of the change, or raise the stimulus.")
-        say(f"note: {ds.attrs['note']}")
-    if output is not None:
-        _write(ds, output, overwrite)
-        journal.remove()
-    return ds
 
 
 def _decide(case, ds, key, value, beat, crit, say) -> dict:
