@@ -45,3 +45,14 @@ def hh_axon_toml(**kw) -> str:
     from cable.case.load import dumps_toml
 
     return dumps_toml(hh_axon_case(**kw))
+
+
+def ms_strand(count, cycle_length=None):
+    """A 0.5 cm Mitchell & Schaeffer (2003) strand in the ten Tusscher et al. (2004) tissue form."""
+    stim = {"amplitude": 100.0, "duration": 1.0, "width": 0.1, "count": count}
+    if cycle_length:
+        stim["cycle_length"] = cycle_length
+    return {"membrane": {"model": "mitchell-schaeffer-2003"},
+            "fiber": {"length": 0.5, "dx": 0.025, "conductivity": 1000.0 / 162.0, "surface_to_volume": 2000.0,
+                      "capacitance": 2.0},
+            "stimulus": [stim], "numerics": {"dt": 0.02}, "run": {"duration": 400.0}, "output": {"every": 1.0}}

@@ -35,7 +35,7 @@ def add_arguments(p):
 def run(args):
     from cable import load_case
     from cable.case import CaseError
-    from cable.cli._protocol_io import check_figure
+    from cable.cli._protocol_io import check_figure, write_figure
     from cable.io.netcdf import check_target, write_dataset
     from cable.protocols.calibrate import calibrate, parse_target, summary
 
@@ -52,20 +52,6 @@ def run(args):
     if args.output:
         write_dataset(ds, args.output, overwrite=args.overwrite)
         say(args, f"wrote {args.output}")
-    if args.figure:
-        draw(args, ds)
+    write_figure(args, ds)   # the protocol's figure (cable.protocols.calibrate.figure)
     print(summary(ds))  # last: its last line is KEY = VALUE UNIT, for scripts
     return 0
-
-
-def draw(args, ds) -> None:
-    from pathlib import Path
-
-    from cable.cli import _figures
-    from cable.cli._protocol_io import _figure_options
-    from cable.plot.studies import calibration
-
-    opts = _figure_options(args)
-    with _figures.drawing(opts) as fig:
-        calibration(ds, fig.add_subplot())
-        _figures.finish(fig, opts, Path(args.figure))

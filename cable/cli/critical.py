@@ -37,32 +37,10 @@ def add_arguments(p):
 
 
 def summarise(ds) -> str:
-    """The search's result as a few lines: bracket, runs, CV on the passing side."""
-    a = ds.attrs
-    unit = a.get("units", "")
-    unit = f" {unit}" if unit and unit != "1" else ""
-    if "passing_value" not in a:
-        return (f"{a['key']}: {a['low']:.6g}{unit} and {a['high']:.6g}{unit} do not straddle block "
-                f"(both ends {'conduct' if int(ds['conducted'].values.all()) else 'fail to conduct'}); "
-                f"runs: {a['runs']}")
-    crit = a.get("criterion", "block")
-    fails = {"block": "blocks", "slow-response": "blocks or slow response"}.get(crit, f"blocks or {crit}")
-    lines = [f"{a['key']}: critical value between {a['passing_value']:.6g}{unit} (conducts) and "
-             f"{a['failing_value']:.6g}{unit} ({fails}); midpoint {a['critical_value']:.6g}{unit}",
-             f"runs: {a['runs']}" + (f" in {a['rounds']} rounds" if "rounds" in a else "")
-             + f"   final bracket: {_width(a)} (tolerance {a['tolerance']:.3g})",
-             f"CV just on the passing side: {a['cv_passing_m_per_s']:.4g} m/s"]
-    if a.get("note"):
-        lines.append(f"note: {a['note']}")
-    return "\n".join(lines)
+    """The search's result as a few lines (:func:`cable.protocols.critical.summary`, which ``cable info`` prints too)."""
+    from cable.protocols.critical import summary
 
-
-def _width(a) -> str:
-    p, f = a["passing_value"], a["failing_value"]
-    if a.get("scale") == "log":
-        return f"ratio {max(p, f) / min(p, f):.4g}"
-    unit = a.get("units", "")
-    return f"width {abs(p - f):.3g}{' ' + unit if unit and unit != '1' else ''}"
+    return summary(ds)
 
 
 def run(args):

@@ -9,7 +9,7 @@ threshold, the CV window's positions and nodes, the node of the other columns). 
 have fixed decimals; a blocked beat shows "-" for CV and wavelength; a single cell has
 no CV, wavelength or block columns. A sweep result gets its swept keys, its points'
 outcomes apart from failures and, when small, one line per point; a protocol result
-(threshold, erp, restitution, converge, critical) the table its command printed.
+the text its command printed (its protocol's ``summary``, :mod:`cable.protocols`).
 """
 
 import numpy as np
@@ -257,24 +257,18 @@ def _changes(raw) -> list:
 
 
 def _protocol_summary(ds):
-    """The summary a protocol result prints (threshold, erp, restitution, converge, critical), or None."""
-    attrs = ds.attrs
-    kind = attrs.get("protocol")
-    if kind == "strength-duration":
-        from cable.protocols.threshold import summary
-    elif kind == "S1-S2 refractory period":
-        from cable.protocols.refractory import summary
-    elif kind in ("s1s2", "dynamic") and "max_slope" in ds:
-        from cable.protocols.restitution import summary
-    elif kind == "grid convergence":
-        from cable.protocols.converge import summary
-    elif kind == "calibration":
-        from cable.protocols.calibrate import summary
-    elif kind == "critical-value search" or str(attrs.get("title", "")).startswith("cable critical-value search"):
-        from cable.cli.critical import summarise as summary
-    else:
+    """The summary a protocol result prints (its protocol's ``summary``), or None for a run or a sweep.
+
+    The protocol is the one the result names (``cable_protocol``); an older result is
+    recognised by the rule of its time and gets a ``deprecated:`` note.
+    """
+    from cable.protocols import legacy_note, protocol_of
+
+    protocol = protocol_of(ds)
+    if protocol is None:
         return None
-    return summary(ds)
+    note = legacy_note(ds)
+    return protocol.summary(ds) + (f"\n{note}" if note else "")
 
 
 def _swept_dims(ds) -> list:

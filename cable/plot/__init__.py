@@ -5,7 +5,8 @@
 * :func:`sweep` — a measurement against a swept key, one curve per value of another;
 * :func:`strength_duration`, :func:`charge_duration`, :func:`refractory`,
   :func:`restitution`, :func:`cv_restitution`, :func:`convergence` — the protocol
-  results (:mod:`cable.plot.protocols`); :func:`protocol_figure` lays out their panels;
+  results (one module per protocol in :mod:`cable.plot.protocol_figures`);
+  :func:`protocol_figure` draws the figure of the result's protocol;
 * :func:`calibration`, :func:`ring`, :func:`pseudo_ecg` — the runs of ``cable calibrate``,
   a ring's revolutions, the pseudo-ECG of ``[[electrode]]`` (:mod:`cable.plot.studies`).
 

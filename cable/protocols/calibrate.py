@@ -28,6 +28,7 @@ import xarray as xr
 
 from cable.case import Case, CaseError, load_case
 from cable.io import schema
+from cable.protocols.base import Protocol
 from cable.simulate import SimulationError, simulate
 
 #: the measurements a target may name -> unit
@@ -325,29 +326,16 @@ def _name(measure, level):
 
 def _result(case, key, unit, measure, level, target, runs, value, residual, bracket) -> xr.Dataset:
     mu = MEASURES[measure]
-    data = {
-        "value": ((), float(value), {**schema.attrs("value"), "units": unit or "1",
-                                     "long_name": f"value of {key} at which {_name(measure, level)} = {target:g} {mu}"}),
-        "residual": ((), float(residual), {**schema.attrs("residual"), "units": mu}),
-        "run_value": (("run",), np.array([v for v, _ in runs]), {**schema.attrs("run_value"), "units": unit or "1"}),
-        "run_measure": (("run",), np.array([m for _, m in runs]), {**schema.attrs("run_measure"), "units": mu,
-                                                                    "long_name": _name(measure, level)}),
-    }
-    coords = {"run": ("run", np.arange(len(runs)), schema.attrs("run"))}
-    attrs = {
-        **schema.provenance(f"cable calibration: {key}", case, protocol="calibration"),
-        "key": key,
-        "units": unit,
-        "measure": _name(measure, level),
-        "measure_units": mu,
-        "target": float(target),
-        "runs": len(runs),
-        "dx_cm": float(case.fiber.dx) if case.fiber is not None else math.nan,
-        "dt_ms": float(case.numerics.dt),
-    }
+    data = {"value": float(value), "residual": float(residual), "run_value": np.array([v for v, _ in runs]),
+            "run_measure": np.array([m for _, m in runs])}
+    attrs = {"key": key, "units": unit, "measure": _name(measure, level), "measure_units": mu,
+             "target": float(target), "runs": len(runs),
+             "dx_cm": float(case.fiber.dx) if case.fiber is not None else math.nan,
+             "dt_ms": float(case.numerics.dt)}
     if bracket is not None:
         attrs.update(low=float(bracket[0]), high=float(bracket[1]))
-    return xr.Dataset(data, coords=coords, attrs=attrs)
+    return schema.dataset("calibrate", data, {"run": np.arange(len(runs))}, attrs, case=case,
+                          description="calibration", title=f"cable calibration: {key}")
 
 
 def summary(ds: xr.Dataset) -> str:
@@ -366,3 +354,14 @@ def summary(ds: xr.Dataset) -> str:
 def _quiet_default(case) -> dict:
     """``run.stop_when_quiet = true`` unless the case gives it (the protocols' default, cable/quiet.py)."""
     return {} if case.stop_when_quiet is not None else {"run.stop_when_quiet": True}
+
+
+def figure(ds, fig) -> None:
+    """The runs, the target and the value found (:func:`cable.plot.calibration`)."""
+    from cable.plot.studies import calibration
+
+    calibration(ds, fig.add_subplot())
+
+
+PROTOCOL = Protocol(name="calibrate", title="calibration", run=calibrate, summary=summary, figure=figure,
+                    command="calibrate", order=50, legacy=lambda ds: ds.attrs.get("protocol") == "calibration")

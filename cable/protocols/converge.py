@@ -47,7 +47,8 @@ import numpy as np
 import xarray as xr
 
 from cable.case import CaseError
-from cable.io.schema import provenance
+from cable.io import schema
+from cable.protocols.base import Protocol
 from cable.protocols import _pacing
 from cable.simulate import SimulationError, simulate
 
@@ -232,32 +233,25 @@ def _series_data(series, tolerance, time: int = TIME_ORDER):
     data, coords = {}, {}
     rec = {"dx": np.nan, "dt": np.nan}
     errors = {}
-    for axis, order, dim, unit in (("dx", SPACE_ORDER, "dx_level", "cm"), ("dt", time, "dt_level", "ms")):
+    for axis, order in (("dx", SPACE_ORDER), ("dt", time)):
         rows = series.get(axis)
         if rows is None:
             continue
-        coords[f"{axis}_series_{axis}"] = (dim, np.array([r[axis] for r in rows]),
-                                           {"units": unit, "long_name": f"{axis} of the separate {axis} series"})
+        coords[f"{axis}_series_{axis}"] = np.array([r[axis] for r in rows])
         steps = []
-        for name, key, vunit, long in (("cv", "cv", "m/s", "conduction velocity"), ("apd90", "apd", "ms", "APD90")):
+        for name, key in (("cv", "cv"), ("apd90", "apd")):
             f = np.array([r[key] for r in rows], dtype=float)
-            other = "dt" if axis == "dx" else "dx"
-            data[f"{name}_{axis}_series"] = (dim, f, {"units": vunit, "long_name": f"{long} with {axis} refined at "
-                                                                                   f"the case's {other}"})
+            data[f"{name}_{axis}_series"] = f
             err, p, h = separate_errors(f, rows[0][axis], order, 0.5 * tolerance)
             kind = "space" if axis == "dx" else "time"
-            data[f"{name}_{kind}_error"] = ((), err, {"units": "1", "long_name": f"estimated relative {kind} error "
-                                                                                 f"of the {long} at the case's {axis}"})
-            data[f"{name}_{kind}_observed_order"] = ((), p, {"units": "1", "long_name": f"observed order of the "
-                                                                                      f"{long} in {axis}"})
+            data[f"{name}_{kind}_error"] = err
+            data[f"{name}_{kind}_observed_order"] = p
             errors[(name, axis)] = err
             steps.append(h)
         finite = [h for h in steps if np.isfinite(h)]
         rec[axis] = min(finite) if finite else np.nan
-    data["dx_recommended"] = ((), rec["dx"], {"units": "cm", "long_name": "dx at which the space error is half "
-                                                                           "the tolerance (dx series)"})
-    data["dt_recommended"] = ((), rec["dt"], {"units": "ms", "long_name": "dt at which the time error is half "
-                                                                           "the tolerance (dt series)"})
+    data["dx_recommended"] = rec["dx"]
+    data["dt_recommended"] = rec["dt"]
     return data, coords, rec, errors
 
 
@@ -304,25 +298,14 @@ def _result(case, rows, ratio, beat, site, series=None, tolerance=WARN_RELATIVE_
                      "at these resolutions.")
     elif not prop.all():
         notes.append(f"propagation differs between levels: {', '.join(str(int(v)) for v in prop)}.")
-    flag = {"flag_values": [0, 1], "flag_meanings": "false true"}
-    data = {
-        "dt": ("level", col("dt"), {"units": "ms", "long_name": "time step"}),
-        "conduction_velocity": ("level", cv, {"units": "m/s", "long_name": "conduction velocity of the beat"}),
-        "apd90": ("level", apd, {"units": "ms", "long_name": "APD90 at the centre of the CV window"}),
-        "propagated": ("level", prop.astype(np.int8), {"long_name": "the beat reached the far end", **flag}),
-    }
-    for name, unit, long in (("cv", "m/s", "conduction velocity"), ("apd90", "ms", "APD90")):
+    data = {"dt": col("dt"), "conduction_velocity": cv, "apd90": apd, "propagated": prop.astype(np.int8)}
+    for name in ("cv", "apd90"):
         p, used, ext, err = out[name]
-        data[f"{name}_observed_order"] = ((), p, {"units": "1", "long_name": f"observed order of the {long}"})
-        data[f"{name}_order_used"] = ((), used, {"units": "1", "long_name": "order used for extrapolation"})
-        data[f"{name}_extrapolated"] = ((), ext, {"units": unit, "long_name": f"Richardson-extrapolated {long}"})
-        data[f"{name}_relative_error"] = ((), err, {"units": "1", "long_name": f"estimated relative error of the "
-                                                                              f"{long} at the case's resolution"})
+        data.update({f"{name}_observed_order": p, f"{name}_order_used": used, f"{name}_extrapolated": ext,
+                     f"{name}_relative_error": err})
     data.update(sdata)
-    coords = {"level": ("level", np.arange(len(rows)), {"units": "1", "long_name": "refinement level (0 = case)"}),
-              "dx": ("level", col("dx"), {"units": "cm", "long_name": "grid spacing"}), **scoords}
+    coords = {"level": np.arange(len(rows)), "dx": col("dx"), **scoords}
     attrs = {
-        **provenance(f"convergence certificate: {case.membrane.model}", case, protocol="grid convergence"),
         "ratio": ratio,
         "formal_order": formal_order(ratio, time_order(case.numerics)),
         "refinement": "dx halved per level; "
@@ -339,7 +322,8 @@ def _result(case, rows, ratio, beat, site, series=None, tolerance=WARN_RELATIVE_
         "numerical_block": int(block),
         "notes": "\n".join(notes),
     }
-    return xr.Dataset(data, coords=coords, attrs=attrs)
+    return schema.dataset("converge", data, coords, attrs, case=case, description="grid convergence",
+                          title=f"convergence certificate: {case.membrane.model}")
 
 
 def summary(ds: xr.Dataset) -> str:
@@ -366,3 +350,16 @@ def summary(ds: xr.Dataset) -> str:
     if ds.attrs.get("warning"):
         lines += [f"WARNING: {w}" for w in ds.attrs["warning"].split("\n")]
     return "\n".join(lines)
+
+
+def figure(ds, fig) -> None:
+    """CV, its error and APD90 against dx (:mod:`cable.plot.protocol_figures.converge`)."""
+    from cable.plot.protocol_figures.converge import figure as draw
+
+    draw(ds, fig)
+
+
+PROTOCOL = Protocol(name="converge", title="convergence", run=convergence, summary=summary, figure=figure,
+                    command="converge", order=40,
+                    legacy=lambda ds: ds.attrs.get("protocol") == "grid convergence"
+                    or "cv_extrapolated" in ds.variables)

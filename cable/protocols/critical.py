@@ -41,7 +41,9 @@ import xarray as xr
 
 from cable import units
 from cable.case import Case, CaseError, load_case
-from cable.io.schema import provenance
+from cable.io import schema
+from cable.protocols._journal import Journal
+from cable.protocols.base import Protocol
 from cable.simulate import SimulationError, simulate
 
 #: default final bracket width, as a fraction of |high - low| (7 bisections)
@@ -190,60 +192,6 @@ def describe(outcome: dict) -> str:
     return "does not conduct"
 
 
-class _Journal:
-    """The runs of a search with an output file, kept as they finish so that an
-    interrupted search, started again with the same output, reuses them.
-
-    Bisection is deterministic: replaying the same case, key, interval and tolerance
-    asks for the same values in the same order, so the reused outcomes give the same
-    bracket and the same file as an uninterrupted search. The folder
-    ``<output>.runs/`` holds one ``.npz`` per run and ``search.txt`` (the identity:
-    the case text and the search settings); a different search at the same output
-    discards it. It is removed when the result is written.
-    """
-
-    def __init__(self, output, identity: str):
-        import hashlib
-        from pathlib import Path
-
-        self.folder = Path(f"{output}.runs")
-        self.identity = hashlib.sha256(identity.encode()).hexdigest()
-        self.done = {}
-        stamp = self.folder / "search.txt"
-        if self.folder.is_dir():
-            if stamp.is_file() and stamp.read_text().strip() == self.identity:
-                for f in sorted(self.folder.glob("run-*.npz")):
-                    try:
-                        with np.load(f) as z:
-                            self.done[float(z["value"])] = {k: (z[k] if z[k].ndim else z[k].item())
-                                                            for k in z.files if k != "value"}
-                    except Exception:  # noqa: BLE001 -- a damaged entry (cut off: BadZipFile, EOFError,
-                        # zlib.error, OSError...) is redone, whatever the zip reader raises for it
-                        f.unlink(missing_ok=True)
-            else:
-                self.remove()
-        self.folder.mkdir(parents=True, exist_ok=True)
-        stamp.write_text(self.identity + "\n")
-
-    def get(self, value):
-        return self.done.get(float(value))
-
-    def put(self, value, outcome: dict) -> None:
-        import os
-
-        taken = [int(f.stem.split("-")[1]) for f in self.folder.glob("run-*.npz") if f.stem.split("-")[1].isdigit()]
-        name = self.folder / f"run-{max(taken, default=-1) + 1:04d}.npz"  # after every entry kept (none replaced)
-        tmp = self.folder / f".{name.name}.{os.getpid()}.tmp.npz"
-        np.savez(tmp, value=float(value), **outcome)
-        os.replace(tmp, name)
-        self.done[float(value)] = outcome
-
-    def remove(self) -> None:
-        import shutil
-
-        shutil.rmtree(self.folder, ignore_errors=True)
-
-
 def find_critical(case, key: str, low, high, *, tolerance: float | None = None, beat: int | None = None,
                   log: bool = False, output=None, overwrite: bool = False, info=None,
                   criterion: str = "block", points: int | None = None, workers: int | None = None) -> xr.Dataset:
@@ -268,7 +216,7 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
     output : str or pathlib.Path, optional
         netCDF file for the runs made (also written when the ends do not straddle).
         With it, an interrupted search started again with the same output reuses the
-        runs already made (see :class:`_Journal`).
+        runs already made (see :class:`cable.protocols._journal.Journal`).
     overwrite : bool
         Replace an existing ``output``.
     info : callable, optional
@@ -315,6 +263,66 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         raise CaseError(f"{who}: the case has no [fiber]; conduction block needs a strand.")
     if not case.stimuli:
         raise CaseError(f"{who}: the case has no stimulus; add a [stimulus.S1] to start the wave.")
+    lo, hi, tol = _interval(who, low, high, tolerance, log)
+    if output is not None:
+        from cable.io.netcdf import check_target
+
+        check_target(output, overwrite)
+    from cable.protocols import _rounds
+
+    workers = _rounds.check_count(who, "workers", _rounds.default_workers() if workers is None else workers)
+    points = _rounds.check_count(who, "points", workers if points is None else points)
+    if not _rounds.batchable(case):
+        points, workers = 1, 1  # a ring's, the electrodes' and the safety factor's runs go alone
+    say = info or (lambda msg: None)
+    trials = _Trials(case, key, (lo, hi), beat, crit, workers, say)   # invalid keys and beats fail here
+    unit, journal = trials.unit, None
+    if output is not None:
+        # points is not part of the identity: runs are reused by value, whatever the rounds asked
+        journal = trials.journal = Journal(output, f"{case.text}\n{key} {lo!r} {hi!r} {tol!r} {beat!r} {log!r} "
+                                                   f"{criterion!r}")
+        if journal.done:
+            say(f"resuming: {len(journal.done)} run(s) of an interrupted search reused from {journal.folder}")
+
+    def finish(ds):
+        if output is not None:
+            _write(ds, output, overwrite)
+            journal.remove()
+        return ds
+
+    c_lo, c_hi = trials([lo, hi])
+    if c_lo == c_hi:
+        ds = finish(_result(case, key, unit, lo, hi, tol, trials.runs, None, None, log, criterion))
+        both = "conduct" if c_lo else "fail to conduct"
+        hint = ("move the interval toward more severe values" if c_lo else
+                "move the interval toward milder values (or check that the stimulus captures)")
+        raise NoBracketError(f"{who}: {key} between {lo:g} and {hi:g} does not straddle block: both ends {both} "
+                             f"(at {lo:g}: {describe(trials.runs[0][1])}; at {hi:g}: "
+                             f"{describe(trials.runs[1][1])}); {hint}.", runs=ds)
+    passing, failing = (lo, hi) if c_lo else (hi, lo)
+    while _bracket_width(passing, failing, log) > tol:
+        values = _rounds.inside(passing, failing, points, tol, log) if points > 1 else \
+            [math.sqrt(passing * failing) if log else 0.5 * (passing + failing)]
+        passing, failing = _rounds.narrow(passing, failing, values, trials(values))
+    ds = _result(case, key, unit, lo, hi, tol, trials.runs, passing, failing, log, criterion)
+    ds.attrs.update(rounds=trials.rounds, points_per_round=points)
+    fail_outcome = [o for v, o in trials.runs if v == failing][-1]
+    if not fail_outcome["captured"]:
+        # the search found where the stimulus stops exciting, not where a started wave blocks
+        ds.attrs["note"] = (f"at the failing end ({key} = {failing:g}) the stimulus did not excite at all: the "
+                            f"transition found is loss of capture, not conduction block; keep the stimulated "
+                            f"tissue out of the change, or raise the stimulus.")
+        say(f"note: {ds.attrs['note']}")
+    return finish(ds)
+
+
+def _bracket_width(a, b, log) -> float:
+    """Width of a bracket: its ratio minus 1 with ``log``, else its difference."""
+    return max(a, b) / min(a, b) - 1.0 if log else abs(a - b)
+
+
+def _interval(who, low, high, tolerance, log):
+    """(low, high, tolerance) of the search, checked."""
     lo = _number(who, "low", low)
     hi = _number(who, "high", high)
     if not lo < hi:
@@ -327,97 +335,55 @@ def find_critical(case, key: str, low, high, *, tolerance: float | None = None, 
         tol = _number(who, "tolerance", tolerance)
     if not tol > 0:
         raise CaseError(f"{who}: tolerance = {tol:g} must be positive.")
-
-    def width(a, b):
-        return max(a, b) / min(a, b) - 1.0 if log else abs(a - b)
-
-    def middle(a, b):
-        return math.sqrt(a * b) if log else 0.5 * (a + b)
-
-    if math.log2(width(lo, hi) / tol) + 2 > MAX_RUNS:
+    if math.log2(_bracket_width(lo, hi, log) / tol) + 2 > MAX_RUNS:
         raise CaseError(f"{who}: tolerance = {tol:g} would need more than {MAX_RUNS} runs over [{lo:g}, {hi:g}]; "
                         f"give a larger tolerance.")
-    if output is not None:
-        from cable.io.netcdf import check_target
+    return lo, hi, tol
 
-        check_target(output, overwrite)
-    from cable.protocols import _rounds
-    from cable.quiet import quiet_by_default
 
-    workers = _rounds.check_count(who, "workers", _rounds.default_workers() if workers is None else workers)
-    points = _rounds.check_count(who, "points", workers if points is None else points)
-    if not _rounds.batchable(case):
-        points, workers = 1, 1  # a ring's, the electrodes' and the safety factor's runs go alone
-    run_case = quiet_by_default(case)  # each run ends when nothing is left to happen, unless the case says
-    variants = {}
-    for value in (lo, hi):  # invalid keys and values fail here, before anything runs
-        variants[value] = run_case.with_overrides({key: value})
-    nbeat = len({round(t, 9) for s in variants[lo].stimuli for t in s.onsets()})
-    if beat is not None and not 0 <= int(beat) < nbeat:
-        raise CaseError(f"{who}: beat = {beat} is out of range; the case has {nbeat} beat(s) (0 to {nbeat - 1}).")
-    say = info or (lambda msg: None)
-    unit = key_units(case, key)
-    runs: list[tuple[float, dict]] = []
-    journal = None
-    if output is not None:
-        # points is not part of the identity: runs are reused by value, whatever the rounds asked
-        journal = _Journal(output, f"{case.text}\n{key} {lo!r} {hi!r} {tol!r} {beat!r} {log!r} {criterion!r}")
-        if journal.done:
-            say(f"resuming: {len(journal.done)} run(s) of an interrupted search reused from {journal.folder}")
+class _Trials:
+    """The runs of one search: ``trials(values)`` runs the values together (those not in
+    the journal) and says whether each conducted; ``runs`` keeps (value, outcome) in the
+    order asked, ``rounds`` the rounds that ran something."""
 
-    rounds = [0]
+    def __init__(self, case, key, ends, beat, crit, workers, say):
+        from cable.quiet import quiet_by_default
 
-    def trials(values) -> list[bool]:
-        """Run ``values`` together (those not in the journal); whether each conducted."""
+        self.case = quiet_by_default(case)  # each run ends when nothing is left to happen, unless the case says
+        self.key, self.beat, self.crit, self.workers, self.say = key, beat, crit, workers, say
+        self.journal = None   # a Journal when the search has an output file
+        self.variants = {v: self.case.with_overrides({key: v}) for v in ends}  # invalid keys fail before any run
+        lo = ends[0]
+        nbeat = len({round(t, 9) for s in self.variants[lo].stimuli for t in s.onsets()})
+        if beat is not None and not 0 <= int(beat) < nbeat:
+            raise CaseError(f"find_critical: beat = {beat} is out of range; the case has {nbeat} beat(s) (0 to "
+                            f"{nbeat - 1}).")
+        self.unit = key_units(case, key)
+        self.runs: list[tuple[float, dict]] = []
+        self.rounds = 0
+
+    def __call__(self, values) -> list[bool]:
+        from cable.protocols import _rounds
+
+        journal, key = self.journal, self.key
         done = {v: journal.get(v) for v in values} if journal is not None else {}
         todo = [v for v in values if done.get(v) is None]
         if todo:
-            rounds[0] += 1
+            self.rounds += 1
             for value in todo:
-                if value not in variants:  # an invalid value fails here, before the round runs
-                    variants[value] = run_case.with_overrides({key: value})
-            fresh = _rounds.run_together([variants[v] for v in todo], workers)
+                if value not in self.variants:  # an invalid value fails here, before the round runs
+                    self.variants[value] = self.case.with_overrides({key: value})
+            fresh = _rounds.run_together([self.variants[v] for v in todo], self.workers)
             for value, ds in zip(todo, fresh):
-                outcome = _decide(run_case, ds, key, value, beat, crit, say)
+                outcome = _decide(self.case, ds, key, value, self.beat, self.crit, self.say)
                 if journal is not None:
                     journal.put(value, outcome)
                 done[value] = outcome
-        shown = f" {unit}" if unit and unit != "1" else ""
+        shown = f" {self.unit}" if self.unit and self.unit != "1" else ""
         for value in values:
-            reused = value not in todo
-            runs.append((value, done[value]))
-            say(f"{key} = {value:.6g}{shown}: {describe(done[value])}{' (reused)' if reused else ''}")
+            self.runs.append((value, done[value]))
+            self.say(f"{key} = {value:.6g}{shown}: {describe(done[value])}{'' if value in todo else ' (reused)'}")
         return [bool(done[v]["conducted"]) for v in values]
-
-    c_lo, c_hi = trials([lo, hi])
-    if c_lo == c_hi:
-        ds = _result(case, key, unit, lo, hi, tol, runs, None, None, log, criterion)
-        if output is not None:
-            _write(ds, output, overwrite)
-            journal.remove()
-        both = "conduct" if c_lo else "fail to conduct"
-        hint = ("move the interval toward more severe values" if c_lo else
-                "move the interval toward milder values (or check that the stimulus captures)")
-        raise NoBracketError(f"{who}: {key} between {lo:g} and {hi:g} does not straddle block: both ends {both} "
-                             f"(at {lo:g}: {describe(runs[0][1])}; at {hi:g}: {describe(runs[1][1])}); {hint}.",
-                             runs=ds)
-    passing, failing = (lo, hi) if c_lo else (hi, lo)
-    while width(passing, failing) > tol:
-        values = _rounds.inside(passing, failing, points, tol, log) if points > 1 else [middle(passing, failing)]
-        passing, failing = _rounds.narrow(passing, failing, values, trials(values))
-    ds = _result(case, key, unit, lo, hi, tol, runs, passing, failing, log, criterion)
-    ds.attrs.update(rounds=rounds[0], points_per_round=points)
-    fail_outcome = [o for v, o in runs if v == failing][-1]
-    if not fail_outcome["captured"]:
-        # the search found where the stimulus stops exciting, not where a started wave blocks
-        ds.attrs["note"] = (f"at the failing end ({key} = {failing:g}) the stimulus did not excite at all: the "
-                            f"transition found is loss of capture, not conduction block; keep the stimulated "
-                            f"tissue out of the change, or raise the stimulus.")
-        say(f"note: {ds.attrs['note']}")
-    if output is not None:
-        _write(ds, output, overwrite)
-        journal.remove()
-    return ds
 
 
 def _decide(case, ds, key, value, beat, crit, say) -> dict:
@@ -462,35 +428,17 @@ def _run_until_decided(case, variant, key, value, beat, crit, say, first=None) -
 def _result(case, key, unit, lo, hi, tol, runs, passing, failing, log=False, criterion="block") -> xr.Dataset:
     values = np.array([v for v, _ in runs])
     out = [o for _, o in runs]
-    data = {
-        "value": (("run",), values, {"units": unit or "1", "long_name": f"value of {key}"}),
-        "conducted": (("run",), np.array([o["conducted"] for o in out], dtype=np.int8),
-                      {"long_name": "every judged beat conducted through the strand", "flag_values": [0, 1],
-                       "flag_meanings": "false true"}),
-        "captured": (("run",), np.array([o["captured"] for o in out], dtype=np.int8),
-                     {"long_name": "the stimulus excited (first failing beat, else last judged)",
-                      "flag_values": [0, 1], "flag_meanings": "false true"}),
-        "blocked": (("run",), np.array([o["blocked"] for o in out], dtype=np.int8),
-                    {"long_name": "the wave started but did not reach an end", "flag_values": [0, 1],
-                     "flag_meanings": "false true"}),
-        "block_x": (("run",), np.array([o["block_x"] for o in out]),
-                    {"units": "cm", "long_name": "last activated position of the blocked wave"}),
-        "conduction_velocity": (("run",), np.array([o["cv"] for o in out]),
-                                {"units": "m/s", "long_name": "conduction velocity in the measurement window"}),
-        "beats_conducted": (("run",), np.array([o["beats_conducted"] for o in out], dtype=np.int32),
-                            {"units": "1", "long_name": "judged beats that conducted"}),
-        "slow_response": (("run",), np.array([bool(o.get("slow_response", False)) for o in out], dtype=np.int8),
-                          {"long_name": "conduction by a slow response (first failing beat, else last judged)",
-                           "flag_values": [0, 1], "flag_meanings": "false true"}),
-    }
-    coords = {"run": ("run", np.arange(len(runs)), {"long_name": "run number, in the order made"})}
+    col = lambda key, dtype=np.int8: np.array([o[key] for o in out], dtype=dtype)  # noqa: E731
+    data = {"value": values, "conducted": col("conducted"), "captured": col("captured"), "blocked": col("blocked"),
+            "block_x": col("block_x", float), "conduction_velocity": col("cv", float),
+            "beats_conducted": col("beats_conducted", np.int32),
+            "slow_response": np.array([bool(o.get("slow_response", False)) for o in out], dtype=np.int8)}
+    coords = {"run": np.arange(len(runs))}
     grids = [o["x"] for o in out]
     if grids and all(g.shape == grids[0].shape and np.allclose(g, grids[0]) for g in grids):
-        coords["x"] = ("x", grids[0], {"units": "cm", "long_name": "position along the fibre"})
-        data["activation_time"] = (("run", "x"), np.array([o["activation"] for o in out]),
-                                   {"units": "ms", "long_name": "activation time of the first judged beat"})
+        coords["x"] = grids[0]
+        data["activation_time"] = np.array([o["activation"] for o in out])
     attrs = {
-        **provenance(f"cable critical-value search: {key}", case, protocol="critical-value search"),
         "key": key,
         "units": unit,
         "low": lo,
@@ -506,10 +454,46 @@ def _result(case, key, unit, lo, hi, tol, runs, passing, failing, log=False, cri
         mid = math.sqrt(passing * failing) if log else 0.5 * (passing + failing)
         attrs.update(passing_value=passing, failing_value=failing, critical_value=mid,
                      cv_passing_m_per_s=float(out[k_pass]["cv"]))
-    return xr.Dataset(data, coords=coords, attrs=attrs)
+    return schema.dataset("critical", data, coords, attrs, case=case, description="critical-value search",
+                          title=f"cable critical-value search: {key}")
 
 
 def _write(ds: xr.Dataset, output, overwrite: bool) -> None:
     from cable.io.netcdf import write_dataset
 
     write_dataset(ds, output, overwrite=overwrite)
+
+
+def summary(ds: xr.Dataset) -> str:
+    """The search's result as a few lines: bracket, runs, CV on the passing side."""
+    a = ds.attrs
+    unit = a.get("units", "")
+    unit = f" {unit}" if unit and unit != "1" else ""
+    if "passing_value" not in a:
+        return (f"{a['key']}: {a['low']:.6g}{unit} and {a['high']:.6g}{unit} do not straddle block "
+                f"(both ends {'conduct' if int(ds['conducted'].values.all()) else 'fail to conduct'}); "
+                f"runs: {a['runs']}")
+    crit = a.get("criterion", "block")
+    fails = {"block": "blocks", "slow-response": "blocks or slow response"}.get(crit, f"blocks or {crit}")
+    lines = [f"{a['key']}: critical value between {a['passing_value']:.6g}{unit} (conducts) and "
+             f"{a['failing_value']:.6g}{unit} ({fails}); midpoint {a['critical_value']:.6g}{unit}",
+             f"runs: {a['runs']}" + (f" in {a['rounds']} rounds" if "rounds" in a else "")
+             + f"   final bracket: {_width(a)} (tolerance {a['tolerance']:.3g})",
+             f"CV just on the passing side: {a['cv_passing_m_per_s']:.4g} m/s"]
+    if a.get("note"):
+        lines.append(f"note: {a['note']}")
+    return "\n".join(lines)
+
+
+def _width(a) -> str:
+    p, f = a["passing_value"], a["failing_value"]
+    if a.get("scale") == "log":
+        return f"ratio {max(p, f) / min(p, f):.4g}"
+    unit = a.get("units", "")
+    return f"width {abs(p - f):.3g}{' ' + unit if unit and unit != '1' else ''}"
+
+
+PROTOCOL = Protocol(name="critical", title="critical-value search", run=find_critical, summary=summary,
+                    command="critical", order=60,
+                    legacy=lambda ds: ds.attrs.get("protocol") == "critical-value search"
+                    or str(ds.attrs.get("title", "")).startswith("cable critical-value search"))

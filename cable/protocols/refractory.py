@@ -32,7 +32,9 @@ import numpy as np
 import xarray as xr
 
 from cable.case import CaseError
-from cable.io.schema import STATE_PREFIX, provenance
+from cable.io import schema
+from cable.protocols.base import Protocol
+from cable.io.schema import STATE_PREFIX
 from cable.measure.activation import CAPTURE_LATENCY
 from cable.membrane import get_model
 from cable.protocols import _pacing
@@ -116,23 +118,9 @@ def refractory_period(case, *, cycle_length: float | None = None, s1_count: int 
     last = (n1 - 1) * cl
     s1 = _pacing.pulse(site, amplitude=site.amplitude, duration=site.duration, count=n1, cycle_length=cl)
 
-    # the S1 train alone: APD90 of its last beat, and how long its wave takes to cross
-    states = {"output.states": list(get_model(case.membrane.model).state_names)}
-    ref = simulate(_pacing.variant(case, stimuli=[s1], duration=last + max(cl, case.duration), overrides=states))
-    site_node = _pacing.node_index(ref, site.centre)
-    centre_node = _pacing.node_index(ref, _pacing.cv_centre(case))
-    if not _pacing.propagated(ref, n1 - 1, site):
-        raise CaseError(f"{who}: the last S1 beat does not propagate along the strand (stimulus.0.amplitude = "
-                        f"{site.amplitude:g} uA/cm^2, cycle_length = {cl:g} ms); raise the amplitude or lengthen "
-                        f"the cycle.")
-    apd_site = _pacing.apd90(ref, n1 - 1, site_node)
-    apd_centre = _pacing.apd90(ref, n1 - 1, centre_node)
-    act = ref["activation_time"].values[n1 - 1]
-    transit = float(np.nanmax(act) - np.nanmin(act))
+    ref, site_node, apd_site, apd_centre, transit = _s1_reference(case, site, s1, n1, cl, who)
     watch = (TRANSIT_FACTOR * transit + CAPTURE_LATENCY + dur2) if observe is None else \
         _pacing.positive(who, "observe", observe)
-
-    tried = {}
     inward = _InwardProbe(case, site_node)
     inward.calibrate(ref, last, last + site.duration + CAPTURE_LATENCY)
 
@@ -147,65 +135,74 @@ def refractory_period(case, *, cycle_length: float | None = None, s1_count: int 
 
     def judge(ci, ds):
         prop = _pacing.propagated(ds, n1, site)
-        local = prop or (_pacing.captured(ds, n1) and
-                         inward.regenerative(ds, last + ci, last + ci + dur2 + CAPTURE_LATENCY))
-        tried[ci] = (local, prop)
-        say(f"S1-S2 {ci:g} ms: {'captured' if tried[ci][0] else 'no capture'}, "
-            f"{'propagated' if tried[ci][1] else 'no propagation'}")
+        return prop or (_pacing.captured(ds, n1) and
+                        inward.regenerative(ds, last + ci, last + ci + dur2 + CAPTURE_LATENCY)), prop
 
-    def trial(ci):
-        ci = round(float(ci), 9)
-        if ci not in tried:
-            judge(ci, simulate(s2_case(ci)))
-        return tried[ci]
-
-    def trial_many(cis):  # one round, side by side
-        todo = sorted({round(float(ci), 9) for ci in cis} - set(tried))
-        for ci, ds in zip(todo, _rounds.run_together([s2_case(ci) for ci in todo], workers)):
-            if isinstance(ds, Exception):
-                raise ds
-            judge(ci, ds)
-
+    tried = _S2Trials(s2_case, judge, workers, say)
     # an S2 during the S1's own upstroke would be read as the S1's crossings: start after it
     start = max(site.duration, upstroke_end(ref, site_node, last, apd_site))
-    erp, local = search(trial, start, cl if n1 > 1 else max(2.0 * apd_site, cl or 0.0), tol,
+    erp, local = search(tried.one, start, cl if n1 > 1 else max(2.0 * apd_site, cl or 0.0), tol,
                         who=who, limit=4.0 * max(cl or 0.0, apd_site, 1.0), guess=apd_site,
-                        many=trial_many if (points > 1 and _rounds.batchable(case)) else None, points=points)
+                        many=tried.many if (points > 1 and _rounds.batchable(case)) else None, points=points)
+    tried = tried.outcomes
     cis = np.array(sorted(tried))
-    data = {
-        "erp": ((), erp, {"units": "ms", "long_name": "effective refractory period: shortest S1-S2 interval "
-                                                      "whose S2 propagates along the strand"}),
-        "local_refractory_period": ((), local, {"units": "ms", "long_name": "shortest S1-S2 interval whose S2 "
-                                                                            "starts a regenerative response at the "
-                                                                            "stimulus site"}),
-        "vulnerable_window": ((), erp - local, {"units": "ms", "long_name": "intervals with a local response "
-                                                                            "that fails to propagate"}),
-        "apd90_s1": ((), apd_site, {"units": "ms", "long_name": "APD90 of the last S1 beat at the stimulus site"}),
-        "apd90_s1_centre": ((), apd_centre, {"units": "ms", "long_name": "APD90 of the last S1 beat at the "
-                                                                        "centre of the CV window"}),
-        "erp_minus_apd90": ((), erp - apd_site, {"units": "ms", "long_name": "post-repolarisation refractoriness "
-                                                                            "(ERP - APD90 at the site)"}),
-        **_wavelengths(ref, n1 - 1, erp, apd_centre),
-        "s2_captured": ("trial", np.array([tried[c][0] for c in cis], dtype=np.int8),
-                        {"long_name": "S2 started a regenerative response at the site", "flag_values": [0, 1],
-                         "flag_meanings": "false true"}),
-        "s2_propagated": ("trial", np.array([tried[c][1] for c in cis], dtype=np.int8),
-                          {"long_name": "S2 wave reached the far end", "flag_values": [0, 1],
-                           "flag_meanings": "false true"}),
-    }
-    coords = {"coupling_interval": ("trial", cis, {"units": "ms", "long_name": "S1-S2 coupling interval"})}
-    attrs = {
-        **provenance(f"refractory periods: {case.membrane.model}", case, protocol="S1-S2 refractory period"),
-        "s1_count": n1,
-        "s1_cycle_length_ms": cl if n1 > 1 else np.nan,
-        "s1_amplitude": site.amplitude,
-        "s2_amplitude": amp2,
-        "s2_duration_ms": dur2,
-        "tolerance_ms": tol,
-        "search_start_ms": start,
-        "observe_ms": watch,
-    }
-    return xr.Dataset(data, coords=coords, attrs=attrs)
+    data = {"erp": erp, "local_refractory_period": local, "vulnerable_window": erp - local,
+            "apd90_s1": apd_site, "apd90_s1_centre": apd_centre, "erp_minus_apd90": erp - apd_site,
+            **_wavelengths(ref, n1 - 1, erp, apd_centre),
+            "s2_captured": np.array([tried[c][0] for c in cis], dtype=np.int8),
+            "s2_propagated": np.array([tried[c][1] for c in cis], dtype=np.int8)}
+    attrs = {"s1_count": n1, "s1_cycle_length_ms": cl if n1 > 1 else np.nan, "s1_amplitude": site.amplitude,
+             "s2_amplitude": amp2, "s2_duration_ms": dur2, "tolerance_ms": tol, "search_start_ms": start,
+             "observe_ms": watch}
+    return schema.dataset("refractory", data, {"coupling_interval": cis}, attrs, case=case,
+                          description="S1-S2 refractory period", title=f"refractory periods: {case.membrane.model}")
+
+
+def _s1_reference(case, site, s1, n1, cl, who):
+    """The S1 train alone: (its result, the site's node, APD90 of its last beat at the site
+    and mid-strand [ms], the time its wave takes to cross [ms])."""
+    last = (n1 - 1) * cl
+    states = {"output.states": list(get_model(case.membrane.model).state_names)}
+    ref = simulate(_pacing.variant(case, stimuli=[s1], duration=last + max(cl, case.duration), overrides=states))
+    site_node = _pacing.node_index(ref, site.centre)
+    centre_node = _pacing.node_index(ref, _pacing.cv_centre(case))
+    if not _pacing.propagated(ref, n1 - 1, site):
+        raise CaseError(f"{who}: the last S1 beat does not propagate along the strand (stimulus.0.amplitude = "
+                        f"{site.amplitude:g} uA/cm^2, cycle_length = {cl:g} ms); raise the amplitude or lengthen "
+                        f"the cycle.")
+    act = ref["activation_time"].values[n1 - 1]
+    return (ref, site_node, _pacing.apd90(ref, n1 - 1, site_node), _pacing.apd90(ref, n1 - 1, centre_node),
+            float(np.nanmax(act) - np.nanmin(act)))
+
+
+class _S2Trials:
+    """The S2 trials of a search, by coupling interval [ms] (rounded to 1e-9 ms, so that a
+    value met twice runs once): ``outcomes[ci] = (local response, propagated)``."""
+
+    def __init__(self, s2_case, judge, workers, say):
+        self.s2_case, self.judge, self.workers, self.say = s2_case, judge, workers, say
+        self.outcomes = {}
+
+    def _record(self, ci, ds):
+        self.outcomes[ci] = local, prop = self.judge(ci, ds)
+        self.say(f"S1-S2 {ci:g} ms: {'captured' if local else 'no capture'}, "
+                 f"{'propagated' if prop else 'no propagation'}")
+
+    def one(self, ci):
+        ci = round(float(ci), 9)
+        if ci not in self.outcomes:
+            self._record(ci, simulate(self.s2_case(ci)))
+        return self.outcomes[ci]
+
+    def many(self, cis):
+        """One round, side by side."""
+        from cable.protocols import _rounds
+
+        todo = sorted({round(float(ci), 9) for ci in cis} - set(self.outcomes))
+        for ci, ds in zip(todo, _rounds.run_together([self.s2_case(ci) for ci in todo], self.workers)):
+            if isinstance(ds, Exception):
+                raise ds
+            self._record(ci, ds)
 
 
 def upstroke_end(ds, node: int, onset: float, apd: float) -> float:
@@ -350,13 +347,7 @@ def search(trial, lo, hi, tol, *, who, limit, guess=None, many=None, points=1):
 def _wavelengths(ref, beat, erp, apd_centre) -> dict:
     """Wavelengths of the last S1 beat: CV x ERP (the classical one) and CV x APD90."""
     cv = float(ref["conduction_velocity"].values[beat])     # m/s
-    return {
-        "conduction_velocity_s1": ((), cv, {"units": "m/s", "long_name": "CV of the last S1 beat"}),
-        "wavelength_erp": ((), cv / 10.0 * erp, {"units": "cm", "long_name": "wavelength: CV of the last S1 beat "
-                                                                             "times the ERP"}),
-        "wavelength_apd": ((), cv / 10.0 * apd_centre, {"units": "cm", "long_name": "wavelength: CV of the last S1 "
-                                                                                   "beat times its APD90 mid-strand"}),
-    }
+    return {"conduction_velocity_s1": cv, "wavelength_erp": cv / 10.0 * erp, "wavelength_apd": cv / 10.0 * apd_centre}
 
 
 def summary(ds: xr.Dataset) -> str:
@@ -375,3 +366,15 @@ def summary(ds: xr.Dataset) -> str:
     for ci, c, p in zip(ds["coupling_interval"].values, ds["s2_captured"].values, ds["s2_propagated"].values):
         lines.append(f"{ci:8.5g}  {'yes' if c else 'no':>8}  {'yes' if p else 'no':>10}")
     return "\n".join(lines)
+
+
+def figure(ds, fig) -> None:
+    """The S2 trials by outcome (:mod:`cable.plot.protocol_figures.refractory`)."""
+    from cable.plot.protocol_figures.refractory import figure as draw
+
+    draw(ds, fig)
+
+
+PROTOCOL = Protocol(name="refractory", title="refractory period", run=refractory_period, summary=summary,
+                    figure=figure, command="erp", order=20,
+                    legacy=lambda ds: ds.attrs.get("protocol") == "S1-S2 refractory period" or "erp" in ds.variables)

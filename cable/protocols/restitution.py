@@ -22,7 +22,8 @@ import numpy as np
 import xarray as xr
 
 from cable.case import CaseError
-from cable.io.schema import provenance
+from cable.io import schema
+from cable.protocols.base import Protocol
 from cable.measure.activation import CAPTURE_LATENCY
 from cable.protocols import _pacing
 from cable.protocols.refractory import TRANSIT_FACTOR, s1_train
@@ -187,32 +188,16 @@ def _result(case, protocol, rows, apd1, n1, cl, beats, node, ref) -> xr.Dataset:
     di, apd, cv = col("di"), col("apd"), col("cv")
     wavelength = cv / 10.0 * apd  # m/s -> cm/ms, times ms
     slope, slope_di = max_slope(di, apd)
-    name = "S1-S2 coupling interval" if protocol == "s1s2" else "cycle length"
-    flag = {"flag_values": [0, 1], "flag_meanings": "false true"}
-    data = {
-        "diastolic_interval": ("point", di, {"units": "ms", "long_name": "diastolic interval before the beat"}),
-        "apd90": ("point", apd, {"units": "ms", "long_name": "APD90 of the beat"}),
-        "conduction_velocity": ("point", cv, {"units": "m/s", "long_name": "conduction velocity of the beat"}),
-        "wavelength_apd": ("point", wavelength, {"units": "cm", "long_name": "wavelength: CV x APD90"}),
-        "propagated": ("point", col("propagated").astype(np.int8),
-                       {"long_name": "the beat propagated along the strand (a cell: captured)", **flag}),
-        "max_slope": ((), slope, {"units": "1", "long_name": "maximal slope of APD90 against DI"}),
-        "max_slope_di": ((), slope_di, {"units": "ms", "long_name": "DI at the maximal slope"}),
-        "apd90_s1": ((), apd1, {"units": "ms", "long_name": "APD90 of the last S1 beat (basic cycle length)"}),
-    }
+    data = {"diastolic_interval": di, "apd90": apd, "conduction_velocity": cv, "wavelength_apd": wavelength,
+            "propagated": col("propagated").astype(np.int8), "max_slope": slope, "max_slope_di": slope_di,
+            "apd90_s1": apd1}
     if protocol == "dynamic":
-        data["one_to_one"] = ("point", col("one_to_one").astype(np.int8),
-                              {"long_name": "every beat at this cycle length propagated", **flag})
-    coords = {"interval": ("point", col("interval"), {"units": "ms", "long_name": name})}
+        data["one_to_one"] = col("one_to_one").astype(np.int8)
     x = ref["x"].values[node] if "x" in ref.dims else np.nan
-    attrs = {
-        **provenance(f"restitution ({protocol}): {case.membrane.model}", case, protocol=protocol),
-        "s1_count": n1,
-        "basic_cycle_length_ms": cl,
-        "beats_per_cycle_length": beats if protocol == "dynamic" else 0,
-        "measurement_x_cm": float(x),
-    }
-    return xr.Dataset(data, coords=coords, attrs=attrs)
+    attrs = {"s1_count": n1, "basic_cycle_length_ms": cl, "beats_per_cycle_length": beats if protocol == "dynamic" else 0,
+             "measurement_x_cm": float(x)}
+    return schema.dataset("restitution", data, {"interval": col("interval")}, attrs, case=case, description=protocol,
+                          title=f"restitution ({protocol}): {case.membrane.model}")
 
 
 def summary(ds: xr.Dataset) -> str:
@@ -228,3 +213,14 @@ def summary(ds: xr.Dataset) -> str:
                      f"{'yes' if int(p['propagated']) else 'no'}")
     lines.append(f"maximal APD restitution slope {float(ds['max_slope']):.3g} at DI {float(ds['max_slope_di']):.4g} ms")
     return "\n".join(lines)
+
+
+def figure(ds, fig) -> None:
+    """APD90 and CV against DI (:mod:`cable.plot.protocol_figures.restitution`)."""
+    from cable.plot.protocol_figures.restitution import figure as draw
+
+    draw(ds, fig)
+
+
+PROTOCOL = Protocol(name="restitution", title="restitution", run=restitution, summary=summary, figure=figure,
+                    command="restitution", order=30, legacy=lambda ds: "max_slope" in ds.variables)

@@ -33,7 +33,8 @@ import numpy as np
 import xarray as xr
 
 from cable.case import CaseError
-from cable.io.schema import provenance
+from cable.io import schema
+from cable.protocols.base import Protocol
 from cable.protocols import _pacing
 from cable.simulate import SimulationError, simulate
 
@@ -326,34 +327,15 @@ def _result(case, durs, thr, trials, tolerance, mode, watch, site, notes) -> xr.
     direct = chronaxie_direct(durs, thr, rheobase)
     notes = list(notes) + _fit_notes(durs, thr, {"lapicque": (rl, cl, res_l), "weiss": (rw, cw, res_w)},
                                      rheobase, reached, tolerance)
-    cur = {"units": "uA/cm^2"}
-    data = {
-        "threshold": ("duration", thr, {**cur, "long_name": "threshold stimulus amplitude (an amplitude that excited, "
-                                                           "within the tolerance of the true threshold)"}),
-        "charge": ("duration", charge, {"units": "nC/cm^2", "long_name": "threshold charge (amplitude x duration)"}),
-        "trials": ("duration", trials, {"units": "1", "long_name": "simulations run for this duration"}),
-        "lapicque_residual": ("duration", res_l, {**cur, "long_name": "threshold minus Lapicque fit"}),
-        "weiss_residual": ("duration", res_w, {**cur, "long_name": "threshold minus Weiss fit"}),
-        "rheobase_lapicque": ((), rl, {**cur, "long_name": "rheobase, Lapicque fit I = I_rh / (1 - exp(-d/tau))"}),
-        "chronaxie_lapicque": ((), cl, {"units": "ms", "long_name": "chronaxie tau ln 2, Lapicque fit"}),
-        "rheobase_weiss": ((), rw, {**cur, "long_name": "rheobase, Weiss fit I = I_rh (1 + c/d)"}),
-        "chronaxie_weiss": ((), cw, {"units": "ms", "long_name": "chronaxie c, Weiss fit"}),
-        "rheobase_measured": ((), rheobase, {**cur, "long_name": "rheobase measured: the computed threshold at the "
-                                                                  "longest duration (the curve's plateau)"}),
-        "chronaxie_direct": ((), direct, {"units": "ms", "long_name": "chronaxie measured: duration at which the "
-                                                                       "computed threshold is twice the measured "
-                                                                       "rheobase"}),
-        "lapicque_rms_relative_residual": ((), _rms_relative(res_l, thr), {
-            "units": "1", "long_name": "root-mean-square of the Lapicque residuals relative to the thresholds"}),
-        "weiss_rms_relative_residual": ((), _rms_relative(res_w, thr), {
-            "units": "1", "long_name": "root-mean-square of the Weiss residuals relative to the thresholds"}),
-    }
-    coords = {"duration": ("duration", durs, {"units": "ms", "long_name": "stimulus pulse duration"})}
+    data = {"threshold": thr, "charge": charge, "trials": trials, "lapicque_residual": res_l,
+            "weiss_residual": res_w, "rheobase_lapicque": rl, "chronaxie_lapicque": cl, "rheobase_weiss": rw,
+            "chronaxie_weiss": cw, "rheobase_measured": rheobase, "chronaxie_direct": direct,
+            "lapicque_rms_relative_residual": _rms_relative(res_l, thr),
+            "weiss_rms_relative_residual": _rms_relative(res_w, thr)}
     if mode == "cell" and case.fiber is not None and case.fiber.capacitance != 1.0:
         notes.append(f"cell mode runs one cell with C_m = 1 uF/cm^2 (the case's fibre has "
                      f"{case.fiber.capacitance:g} uF/cm^2).")
     attrs = {
-        **provenance(f"strength-duration: {case.membrane.model}", case, protocol="strength-duration"),
         "mode": mode,
         "capture_criterion": ("the wave reaches the far end of the fibre" if mode == "strand"
                               else "the cell crosses the activation threshold"),
@@ -365,7 +347,8 @@ def _result(case, durs, thr, trials, tolerance, mode, watch, site, notes) -> xr.
                 "least squares in the relative residual",
         "notes": "\n".join(notes),
     }
-    return xr.Dataset(data, coords=coords, attrs=attrs)
+    return schema.dataset("threshold", data, {"duration": durs}, attrs, case=case, description="strength-duration",
+                          title=f"strength-duration: {case.membrane.model}")
 
 
 def summary(ds: xr.Dataset) -> str:
@@ -385,3 +368,16 @@ def summary(ds: xr.Dataset) -> str:
     if ds.attrs.get("notes"):
         lines.append("notes: " + ds.attrs["notes"])
     return "\n".join(lines)
+
+
+def figure(ds, fig) -> None:
+    """Amplitude and charge against duration (:mod:`cable.plot.protocol_figures.threshold`)."""
+    from cable.plot.protocol_figures.threshold import figure as draw
+
+    draw(ds, fig)
+
+
+PROTOCOL = Protocol(name="threshold", title="strength-duration", run=strength_duration, summary=summary,
+                    figure=figure, command="threshold", order=10,
+                    legacy=lambda ds: ds.attrs.get("protocol") == "strength-duration"
+                    or "rheobase_weiss" in ds.variables)

@@ -13,7 +13,7 @@ from matplotlib.figure import Figure
 import cable
 from cable.plot import layout
 from cable.cli import main
-from conftest import hh_axon_case
+from conftest import hh_axon_case, ms_strand
 
 #: fraction of pixels that must change between figures of different results; a shifted
 #: curve or line moves far more pixels than antialiasing noise (common practice)
@@ -23,17 +23,6 @@ MIN_CHANGED_FRACTION = 0.01
 PIXEL_STEP = 8
 #: drawn values are the result's float64 values or closed forms of them: round-off only
 EXACT = 1e-9
-
-
-def ms_strand(count, cycle_length=None):
-    """A 0.5 cm Mitchell & Schaeffer (2003) strand in the ten Tusscher et al. (2004) tissue form."""
-    stim = {"amplitude": 100.0, "duration": 1.0, "width": 0.1, "count": count}
-    if cycle_length:
-        stim["cycle_length"] = cycle_length
-    return {"membrane": {"model": "mitchell-schaeffer-2003"},
-            "fiber": {"length": 0.5, "dx": 0.025, "conductivity": 1000.0 / 162.0, "surface_to_volume": 2000.0,
-                      "capacitance": 2.0},
-            "stimulus": [stim], "numerics": {"dt": 0.02}, "run": {"duration": 400.0}, "output": {"every": 1.0}}
 
 
 @pytest.fixture(scope="module")
