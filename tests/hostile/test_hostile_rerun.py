@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 
 from cable.cli import main
-from cable.protocols.critical import _Journal
+from cable.protocols._journal import Journal
 from hostile_cases import small_case
 
 
@@ -55,13 +55,13 @@ def test_rerun_of_an_untouched_file_is_identical(original, capsys):
 
 def test_a_truncated_journal_entry_is_redone_and_no_entry_replaced(tmp_path):
     # item 10: a truncated entry raised zipfile.BadZipFile on every retry of `cable critical`
-    journal = _Journal(tmp_path / "c.nc", "search")
+    journal = Journal(tmp_path / "c.nc", "search")
     for value in (0.0, 1.0, 0.5):
         journal.put(value, {"conducted": np.int8(value > 0.2)})
     first = tmp_path / "c.nc.runs" / "run-0000.npz"
     first.write_bytes(first.read_bytes()[:40])              # cut off while written
-    again = _Journal(tmp_path / "c.nc", "search")
+    again = Journal(tmp_path / "c.nc", "search")
     assert sorted(again.done) == [0.5, 1.0] and not first.exists()
     again.put(0.0, {"conducted": np.int8(0)})             # the redone run is added, the others stay
-    third = _Journal(tmp_path / "c.nc", "search")
+    third = Journal(tmp_path / "c.nc", "search")
     assert sorted(third.done) == [0.0, 0.5, 1.0]
