@@ -108,23 +108,53 @@ def test_blocks_never_cross_an_output_time_or_a_stimulus_edge(monkeypatch):
         init(self, rec, *args, **kw)
 
     monkeypatch.setattr(adaptive.Stepper, "__init__", spy)
-    case = cell(0.01, 0.32, beats=2)
+    case = strand("ten-tusscher-panfilov-2006", 0.01, 0.32, beats=2, cycle=1000.0)   # strands: blocks of the loop
+    case["fiber"]["length"] = 0.1
     case["stimulus"][0].update(start=100.013, duration=1.003)   # edges off the fine grid
     case["output"]["every"] = 2.5
     cable.simulate(case)
     blocks = seen[0].blocks
+    _tile_the_run([(t0, t0 + m * h, h) for t0, m, h in blocks])
+
+
+def _tile_the_run(steps):
+    """The steps (t0, t1, h) tile the 2-beat run, cross no output time (every 2.5 ms), and
+    only fine steps (0.01 ms) touch a stimulus edge."""
     edges = [e for k in range(2) for e in (100.013 + 1000.0 * k, 101.016 + 1000.0 * k)]
     outputs = np.arange(0.0, 2000.0 + 1.0, 2.5)
     t = 0.0
-    for t0, m, h in blocks:
+    for t0, t1, h in steps:
         assert t0 == pytest.approx(t, abs=1e-9)   # the blocks tile the run
-        t1 = t0 + m * h
         assert not np.any((outputs > t0 + 1e-9) & (outputs < t1 - 1e-9)), (t0, m, h)
         if h > 0.01:
-            assert not any(t0 - 1e-9 < e < t1 + 1e-9 for e in edges), (t0, m, h)
+            assert not any(t0 - 1e-9 < e < t1 + 1e-9 for e in edges), (t0, t1, h)
         t = t1
     assert t == pytest.approx(2000.0)
-    assert max(h for _, _, h in blocks) == pytest.approx(0.32)   # the long steps were used
+    assert max(h for _, _, h in steps) == pytest.approx(0.32)   # the long steps were used
+
+
+def test_cell_steps_never_cross_an_output_time_or_a_stimulus_edge(monkeypatch):
+    from cable.kernels import adaptive_cell
+
+    seen = []
+    init = adaptive_cell.CellStepper.__init__
+
+    def spy(self, *args, **kw):
+        init(self, *args, **kw)
+        self.trace = np.zeros((400_000, 2), dtype=np.int64)   # the loop records every step
+        seen.append(self)
+
+    monkeypatch.setattr(adaptive_cell.CellStepper, "__init__", spy)
+    case = cell(0.01, 0.32, beats=2)
+    case["stimulus"][0].update(start=100.013, duration=1.003)
+    case["output"]["every"] = 2.5
+    ds = cable.simulate(case)
+    st = seen[0]
+    n_steps = int(st.ctl[2])
+    assert n_steps == int(ds.steps_taken.sum()) < st.trace.shape[0]
+    n, k = st.trace[:n_steps, 0], st.trace[:n_steps, 1]
+    h = st.levels[k]
+    _tile_the_run(list(zip(n * 0.01, n * 0.01 + h, h)))
 
 
 def test_dt_max_equal_to_dt_is_the_fixed_step_bit_for_bit():
