@@ -116,8 +116,14 @@ def needs_compiling(case: Case) -> bool:
     mem = case.membrane
     settles = mem.prepace is not None or mem.temperature is not None or \
         bool(mem.parameters or mem.scale or case.raw.get("region") or case.raw.get("drug"))
+    cell_loop = None
+    if case.numerics.adaptive and (case.fiber is None or mem.prepace is not None):   # adaptive_cell's loop
+        from cable.kernels.adaptive_cell import cell_loop as _cell_loop
+
+        model = get_model(name)
+        cell_loop = _cell_loop(model, case.numerics.rates != "reference" and model.fast is not None)
     return not is_compiled(name, case.numerics.rates, case.numerics.reaction) or \
-        (settles and not _in_cache(_integrator(name)))
+        (settles and not _in_cache(_integrator(name))) or (cell_loop is not None and not _in_cache(cell_loop))
 
 
 @dataclass

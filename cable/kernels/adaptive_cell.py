@@ -28,7 +28,8 @@ import numpy as np
 
 from cable.kernels import adaptive
 from cable.kernels.integrate import NONFINITE, OK, RUNAWAY, RUNAWAY_MV, probe, stimulus_current
-from cable.kernels.jit import jit, specialise
+from cable.kernels.adaptive import potential_step
+from cable.kernels.jit import jit_inline, specialise
 from cable.kernels.state import CHECK_EVERY
 
 
@@ -69,14 +70,13 @@ class CellZones:
         return CellZones(np.ascontiguousarray(out))
 
 
-@jit
-def _allowed(v, d, h_last, threshold, s, s_last, fe, dt_max, dv_step, reach, rel_step):
+@jit_inline
+def _allowed(v, d, h_last, threshold, s, s_last, fe, dt_max, dv_step, reach, rel_step, dv_power, dv_fast):
     """:func:`cable.kernels.adaptive.allowed_step` for one node, the forward-Euler rates
     from the last step (``s_last``: the states before it) [ms] (0: the fine step)."""
     if v < threshold and v > threshold - reach and d > 0.0:
         return 0.0
-    rate = abs(d) / h_last
-    step = dt_max if rate * dt_max <= dv_step else dv_step / rate
+    step = potential_step(abs(d) / h_last, dt_max, dv_step, dv_power, dv_fast)
     for j in range(fe.shape[0]):
         if fe[j] == 0:
             continue
@@ -109,7 +109,7 @@ def advance_cell(v, s, p, n0, n1, dt, hs, tables, v_lo, inv_dv, pulses, zones, s
     """
     sf = s.reshape(-1)
     nlev = hs.shape[0]
-    dv_step, reach, rel_step = bounds
+    dv_step, reach, rel_step, dv_power, dv_fast = bounds
     k = ctl[0]
     nz = zones.shape[0]
     z = 0
@@ -129,7 +129,7 @@ def advance_cell(v, s, p, n0, n1, dt, hs, tables, v_lo, inv_dv, pulses, zones, s
             rule = 0
         else:
             step = _allowed(v[0], apd[0][0], hs[k], threshold, sf, s_last, fe, hs[nlev - 1], dv_step, reach,
-                            rel_step)
+                            rel_step, dv_power, dv_fast)
             rule = 0
             while rule + 1 < nlev and hs[rule + 1] <= step and rule <= ctl[1]:
                 rule += 1
@@ -234,7 +234,8 @@ class CellStepper:
         self.cols = np.array(cols, dtype=np.int64)
         self.ion_scale, self.threshold = float(ion_scale), float(threshold)
         self.fe = adaptive.euler_states(model, arrays.vprev[0], arrays.s.reshape(-1), p_nodes, 0)
-        self.bounds = (adaptive.DV_STEP_MV, adaptive.REACH_MV, adaptive.REL_STEP)
+        self.bounds = (adaptive.DV_STEP_MV, adaptive.REACH_MV, adaptive.REL_STEP, adaptive.DV_POWER,
+                       adaptive.DV_FAST_MV)
         self.ctl = np.array([-1, -1, 0], dtype=np.int64)
         self.trace = np.zeros((0, 2), dtype=np.int64)   # give rows to record the steps (fine index, level)
         self.s_last = arrays.s.reshape(-1).copy()
