@@ -32,14 +32,15 @@ import numpy as np
 from cable.kernels import diffusion, tables
 from cable.kernels.jit import jit, jit_inline
 
-#: the potential may change by at most this much per step [mV]: the APD90 error of the
-#: long steps grows with it (TP06 cell, measured here: 0.45 ms at 0.5 mV, 0.13 at 0.05;
-#: DEVELOPERS.md, "Adaptive time steps"); checked by the accuracy tests
-DV_STEP_MV = 0.05
-#: the step scales as |dV/dt|^-DV_POWER (1: ``DV_STEP_MV`` per step at every rate)
-DV_POWER = 1.0
-#: and at most this change per step at any rate [mV] (the upstrokes, with DV_POWER < 1)
-DV_FAST_MV = 0.5
+#: the bound of the potential (:func:`potential_step`): at |dV/dt| = 1 mV/ms a step may
+#: change it by ``DV_STEP_MV``, and the step scales as |dV/dt|^-``DV_POWER``: shorter than a
+#: fixed change per step in the slow plateau (where the long steps make the APD90 error:
+#: TP06 cell, measured here), longer in the fast phases 1 and 3 (where they make little);
+#: at most ``DV_FAST_MV`` per step at any rate (the upstrokes). Chosen on a TP06 cell and
+#: the strands of the accuracy tests (DEVELOPERS.md, "Adaptive steps in one compiled loop")
+DV_STEP_MV = 0.1
+DV_POWER = 0.3
+DV_FAST_MV = 0.25
 #: a node below the threshold and rising, closer to it than this, keeps the fine step [mV]
 REACH_MV = 15.0
 #: a forward-Euler state may change by at most this fraction of its magnitude per step

@@ -62,12 +62,16 @@ def errors(ds, ref) -> dict:
 
 
 def timed(c: dict, rounds: int):
-    best, ds = np.inf, None
+    """(best wall time, best CPU time of this process, result) over ``rounds`` runs [s]: on a
+    shared machine the CPU time is the steadier figure (it leaves out the time the
+    process waited for a core)."""
+    best, cpu, ds = np.inf, np.inf, None
     for _ in range(rounds):
-        t = time.perf_counter()
+        t, c0 = time.perf_counter(), time.process_time()
         ds = cable.simulate(c)
         best = min(best, time.perf_counter() - t)
-    return best, ds
+        cpu = min(cpu, time.process_time() - c0)
+    return best, cpu, ds
 
 
 def cell_case(beats: int, dt: float, dt_max: float | None = None, prepace: bool = False) -> dict:
@@ -86,10 +90,10 @@ def cell_case(beats: int, dt: float, dt_max: float | None = None, prepace: bool 
 def timed_cell(c: dict):
     t = time.perf_counter()
     if "prepace" in c["membrane"]:
-        setup = cable.prepare(c)
-        return time.perf_counter() - t, setup.prepace
-    ds = cable.simulate(c)
-    return time.perf_counter() - t, ds
+        res = cable.prepare(c).prepace
+    else:
+        res = cable.simulate(c)
+    return time.perf_counter() - t, res
 
 
 def cell_bench(beats: int, fixed_beats: int) -> None:
@@ -129,15 +133,19 @@ def main(argv=None) -> None:
     for _, c in runs:                  # warm-up: the compiled kernels loaded once
         warm = dict(c, run={"duration": 20.0}, stimulus=[dict(c["stimulus"][0], count=1)])
         cable.simulate(warm)
-    ref = timed(case(args.beats, args.length, 0.005), 1)[1] if args.reference else None
+    ref = timed(case(args.beats, args.length, 0.005), 1)[2] if args.reference else None
     base = None
-    print(f"TP06 strand {args.length:g} cm, dx 100 um, {args.beats} beats at 1 Hz, output every 1 ms")
+    import os
+
+    print(f"TP06 strand {args.length:g} cm, dx 100 um, {args.beats} beats at 1 Hz, output every 1 ms; "
+          f"load average {os.getloadavg()[0]:.2f}")
     for name, c in runs:
-        wall, ds = timed(c, args.rounds)
-        base = wall if base is None else base
+        wall, cpu, ds = timed(c, args.rounds)
+        base = (wall, cpu) if base is None else base
         steps = "" if "steps_taken" not in ds else \
             "  steps " + " ".join(f"{h:g}:{int(n)}" for h, n in zip(ds.step_dt.values, ds.steps_taken.values))
-        print(f"{name:24s} wall {wall:7.2f} s  fixed/this {base / wall:5.2f}{steps}")
+        print(f"{name:24s} wall {wall:7.2f} s  fixed/this {base[0] / wall:5.2f}  cpu {cpu:7.2f} s  "
+              f"fixed/this {base[1] / cpu:5.2f}{steps}")
         if ref is not None:
             print(" " * 26 + "  ".join(f"{k} {v:.3g}" for k, v in errors(ds, ref).items()))
 
