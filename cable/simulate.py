@@ -638,7 +638,7 @@ def _cell_chunk(setup: Setup, quiet) -> tuple[int, int]:
     spb_ms = setup.steps_per_sample * setup.case.numerics.dt
     last = setup.n_samples - 1
     if quiet is not None:
-        last = min(last, max(0, int(np.floor(quiet.not_before / spb_ms + 1e-9))))
+        last = min(last, max(0, int(np.ceil(quiet.not_before / spb_ms - 1e-9)) - 1))   # t_k < not_before
     return last, max(1, int(CELL_CHUNK_MS / spb_ms))
 
 

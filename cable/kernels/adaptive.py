@@ -10,13 +10,16 @@ the level is chosen from the state (:func:`allowed_step`):
 * the fine step wherever a stimulus is on (a block never crosses a pulse's start or
   end: blocks end at the fine step holding it), wherever a node below the activation
   threshold rises within ``REACH_MV`` of it (a wave arriving, a slow depolarisation), and
-  wherever the potential changes fast (an upstroke): the step is at most
-  ``DV_STEP_MV`` / max |dV/dt|;
+  wherever the potential changes fast (an upstroke): the step is at most what
+  :func:`potential_step` allows at max |dV/dt| (``DV_STEP_MV``, ``DV_POWER``,
+  ``DV_FAST_MV``);
 * the states that the reaction integrates by forward Euler (those whose ``kinetics``
   rate b is 0: concentrations) bound the step so that each changes by at most
   ``REL_STEP`` of its magnitude per step (the rate measured over the last block);
   Rush-Larsen gates are exact for a constant potential and allow any step.
 
+The blocks are driven from compiled code (:mod:`cable.kernels.adaptive_strand`, one call
+per output interval); a single cell has its own loop (:mod:`cable.kernels.adaptive_cell`).
 Blocks end at every output time (samples stay on the output grid), at stimulus edges,
 and after at most ``BLOCK_STEPS`` steps, when the level is chosen again. Activation
 times, repolarisation crossings and the upstroke rate are interpolated within the step
@@ -176,7 +179,7 @@ class Stepper:
     Parameters
     ----------
     advance : numba dispatcher
-        The run's compiled loop.
+        The run's compiled loop (run block by block by ``adaptive_strand.driver``).
     setup : cable.simulate.Setup
     arrays : cable.kernels.state.LoopArrays
     levels : sequence of float
@@ -189,7 +192,6 @@ class Stepper:
     """
 
     def __init__(self, advance, setup, arrays, levels, rates, codes, n_end):
-        self.advance = advance
         self.setup = setup
         self.arrays = arrays
         self.levels = tuple(levels)

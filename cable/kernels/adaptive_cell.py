@@ -4,15 +4,17 @@ A single cell has no diffusion, so nothing ties a step to the Strang sequence of
 block: the level is chosen again before every step, in the loop
 (:func:`advance_cell`), by the rules of :mod:`cable.kernels.adaptive` (the fine step
 through stimulus zones and while the potential rises below the threshold within
-``REACH_MV`` of it; otherwise the longest level with |dV/dt| h <= ``DV_STEP_MV`` and
-every forward-Euler state changing by at most ``REL_STEP`` of itself per step), the
-rates taken from the last step. One call runs many output intervals and returns their
-samples, so the Python cost of ``adaptive.Stepper`` (one call of the loop per block of
-at most 16 steps, ~20-40 us each: the whole cost of a cell) is paid once per call.
+``REACH_MV`` of it; otherwise the longest level the potential's bound allows,
+:func:`cable.kernels.adaptive.potential_step`, with every forward-Euler state changing
+by at most ``REL_STEP`` of itself per step), the rates taken from the last step. One
+call runs many output intervals and returns their samples, so the Python cost that
+driving a cell in blocks had (one call of the loop per block of at most 16 steps,
+~20-40 us each: the whole cost of a cell) is paid once per call.
 
-Two further rules, for the loop's own freedom: the level rises by at most one per step
-(a step at most doubles), and the longest level is cut to what fits before the next
-output time or stimulus zone (steps stay on the fine grid, samples on the output grid).
+Two further rules, for the loop's own freedom: the level the rules allow rises by at
+most one per step (a step at most doubles), and the step is cut to what fits before the
+next output time or stimulus zone (steps stay on the fine grid, samples on the output
+grid; the next step rises from the level allowed, not from the cut one).
 
 The pulses are looked up per zone (``CellZones``): outside a zone no pulse overlaps a
 step, so a train of 1000 pulses costs nothing between them (the fixed loops scan every
@@ -97,9 +99,10 @@ def advance_cell(v, s, p, n0, n1, dt, hs, tables, v_lo, inv_dv, pulses, zones, s
     ``zones``: :class:`CellZones`; ``spb``: fine steps per output interval: at every
     multiple of it after ``n0`` the row ``out[r]`` gets the potential and the states
     ``cols``; ``fe``: 1 for the forward-Euler states; ``bounds``: (``DV_STEP_MV``,
-    ``REACH_MV``, ``REL_STEP``); ``ctl``: [level of the last step, level the rules
-    allowed for it] (kept between calls; -1 before the first), ``s_last``: the states before the last step; ``counts``: steps
-    per level (added to); ``lohi``: a zero coupling (the probe's grid); ``trace``
+    ``REACH_MV``, ``REL_STEP``, ``DV_POWER``, ``DV_FAST_MV``); ``ctl``: [level of the
+    last step, level the rules allowed for it (both -1 before the first step), steps
+    traced] (kept between calls); ``s_last``: the states before the last step;
+    ``counts``: steps per level (added to); ``lohi``: a zero coupling (the probe's grid); ``trace``
     (m, 2): the fine index and level of the steps, while ``ctl[2]`` < m (counted
     there; an array with no rows keeps none). The rest as for
     :func:`cable.kernels.integrate.advance` (states and parameters of the one node, by

@@ -213,3 +213,16 @@ def test_levels_beyond_the_measured_rush_larsen_limit_are_warned():
     assert any("dt_max = 0.1 ms allows steps of 0.08 ms" in n for n in cable.load_case(case).notes)
     case["numerics"]["dt_max"] = 0.05
     assert not any("dt_max" in n for n in cable.load_case(case).notes)
+
+
+def test_cell_stopped_when_quiet_keeps_every_measurement():
+    # run.stop_when_quiet (cable/quiet.py): the measurements of the beats are those of the
+    # whole run, bit for bit, with the cell's compiled loop running many intervals per call
+    case = cell(0.02, 0.5, beats=1)
+    whole = cable.simulate(case)
+    case["run"]["stop_when_quiet"] = True
+    quiet = cable.simulate(case)
+    assert quiet.attrs["stopped_when_quiet_ms"] < 1000.0 and quiet.t.size < whole.t.size
+    for name in ("activation_time", "apd", "upstroke_velocity", "resting_potential", "peak_potential"):
+        assert np.array_equal(quiet[name].values, whole[name].values, equal_nan=True), name
+    assert np.array_equal(quiet.vm.values, whole.vm.values[:quiet.t.size])
