@@ -55,6 +55,45 @@ def _pace_cell(advance, model, p_row, v0, s_row, beats, cl, amp, dur, dt, ion_sc
     return v[0], s[0].copy(), ends, apds
 
 
+def _pace_cell_adaptive(model, p_row, v0, s_row, beats, cl, amp, dur, dt, dt_max, ion_scale, rates,
+                        until_change=None):
+    """:func:`_pace_cell` with adaptive steps from ``dt`` to ``dt_max``
+    (:class:`cable.kernels.adaptive_cell.CellStepper`, one call of its loop per beat); the
+    same returns, then the steps taken per level."""
+    from cable.kernels import adaptive, tables
+    from cable.kernels.adaptive_cell import CellStepper
+    from cable.kernels.state import loop_arrays
+
+    p_nodes = np.ascontiguousarray(p_row.reshape(1, -1), dtype=np.float64)
+    levels = adaptive.step_levels(dt, dt_max)
+    plans = [tables.plan(model, p_nodes, h, 0, rates) for h in levels]
+    fast = plans[0].mode != "reference"
+    v = np.array([v0], dtype=np.float64)
+    arrays = loop_arrays(model, fast, v, s_row.reshape(1, -1), p_nodes, 1, (90.0,))
+    steps = int(round(cl / dt))
+    pulses = np.array([[0.0, dur, 0, 1, amp]])
+    stepper = CellStepper(model, arrays, p_nodes, levels, plans if fast else [None] * len(levels), pulses, steps,
+                          steps, (), ion_scale, model.threshold)
+    ends, apds = [], []
+    for b in range(beats):
+        arrays.act[:] = np.nan          # each beat probed afresh, as by _pace_cell
+        arrays.nact[:] = 0
+        arrays.vprev[:] = v
+        arrays.pre_rate[:] = 0.0
+        arrays.open_up[:] = 0
+        arrays.apd = ApdProbe(v, arrays.act.shape[1], (90.0,))
+        status, done, _ = stepper.run(v, 0, steps)
+        if status != integrate.OK:
+            raise CaseError(f"membrane.prepace: the single cell became unstable in beat {b + 1} "
+                            f"(t = {done * dt:g} ms); reduce membrane.prepace.dt or numerics.dt_max, or check the "
+                            f"parameters.")
+        ends.append(np.concatenate([v, arrays.s.reshape(-1)]))   # one node: the same order by node or by state
+        apds.append(float(arrays.apd.repol[0, 0, 0] - arrays.act[0, 0]) if arrays.nact[0] >= 1 else float("nan"))
+        if until_change is not None and len(apds) >= 2 and abs(apds[-1] - apds[-2]) < until_change:
+            break
+    return v[0], arrays.s.reshape(-1).copy(), ends, apds, stepper.counts.copy()
+
+
 def prepace_nodes(case, model, p, v0, s0):
     """Prepace every distinct parameter set; return (v0, s0, report)."""
     from cable.simulate import _integrator
@@ -76,11 +115,20 @@ def prepace_nodes(case, model, p, v0, s0):
     worst = 0.0
     until = cfg.get("until_change")
     taken, apd_change, unsettled = [], 0.0, 0
+    dt_max = case.numerics.dt_max
+    adaptive = dt_max is not None and dt_max >= 2.0 * dt * (1.0 - 1e-9)
+    counts = None
     for r in range(rows.shape[0]):
         node = int(np.flatnonzero(inverse == r)[0])
-        v_end, s_end, ends, apds = _pace_cell(advance, model, rows[r], v0[node], s0[node], cfg["beats"],
-                                              cfg["cycle_length"], amp / cm, dur, dt, model.ion_scale(cm),
-                                              until_change=until)
+        if adaptive:
+            v_end, s_end, ends, apds, steps = _pace_cell_adaptive(
+                model, rows[r], v0[node], s0[node], cfg["beats"], cfg["cycle_length"], amp / cm, dur, dt, dt_max,
+                model.ion_scale(cm), case.numerics.rates, until_change=until)
+            counts = steps if counts is None else counts + steps
+        else:
+            v_end, s_end, ends, apds = _pace_cell(advance, model, rows[r], v0[node], s0[node], cfg["beats"],
+                                                  cfg["cycle_length"], amp / cm, dur, dt, model.ion_scale(cm),
+                                                  until_change=until)
         v_out[inverse == r] = v_end
         s_out[inverse == r] = s_end
         taken.append(len(ends))
@@ -101,8 +149,15 @@ def prepace_nodes(case, model, p, v0, s0):
                     + (f", not reached within {cfg['beats']} beats by {unsettled} cell type(s))" if unsettled else ")"))
     if change > 1e-3 or unsettled:
         summary += " (not settled: consider more beats)"
-    return v_out, s_out, {"summary": summary, "last_beat_change": change, "beats": max(taken),
-                          "last_beat_apd90_change": apd_change, "settled": not unsettled}
+    report = {"summary": summary, "last_beat_change": change, "beats": max(taken),
+              "last_beat_apd90_change": apd_change, "settled": not unsettled}
+    if counts is not None:
+        from cable.kernels.adaptive import step_levels
+
+        report["summary"] += f"; adaptive steps {dt:g} to {dt_max:g} ms: {int(counts.sum())} steps"
+        report["steps_taken"] = counts
+        report["step_dt"] = np.array(step_levels(dt, dt_max))
+    return v_out, s_out, report
 
 
 #: settling of an unstimulated cell whose parameters differ from the model's defaults:

@@ -116,8 +116,14 @@ def needs_compiling(case: Case) -> bool:
     mem = case.membrane
     settles = mem.prepace is not None or mem.temperature is not None or \
         bool(mem.parameters or mem.scale or case.raw.get("region") or case.raw.get("drug"))
+    cell_loop = None
+    if case.numerics.adaptive and (case.fiber is None or mem.prepace is not None):   # adaptive_cell's loop
+        from cable.kernels.adaptive_cell import cell_loop as _cell_loop
+
+        model = get_model(name)
+        cell_loop = _cell_loop(model, case.numerics.rates != "reference" and model.fast is not None)
     return not is_compiled(name, case.numerics.rates, case.numerics.reaction) or \
-        (settles and not _in_cache(_integrator(name)))
+        (settles and not _in_cache(_integrator(name))) or (cell_loop is not None and not _in_cache(cell_loop))
 
 
 @dataclass
@@ -385,6 +391,14 @@ class _MemorySink:
             self.fields[name][k] = arr
         self.filled = k + 1
 
+    def write_rows(self, k, values):
+        """Samples k, k + 1, ... at once (``values``: arrays (rows, n))."""
+        m = 0
+        for name, arr in values.items():
+            m = arr.shape[0]
+            self.fields[name][k:k + m] = arr
+        self.filled = k + m
+
 
 def simulate(case, *, output=None, overwrite: bool = False, progress=None, command: str | None = None,
              info=None) -> xr.Dataset:
@@ -506,7 +520,18 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
                 "merged (numerics.merge_half_steps = false for this run).")
         merge = False
 
-    def sample(k):
+    def sample(k, rows=None):
+        """Store output sample k (from v and the states), or the samples k, k + 1, ... of
+        ``rows`` (the single-cell loop's: potential, then the output states)."""
+        if rows is not None:
+            if rows.shape[0]:
+                highest[0] = max(highest[0], float(np.max(rows[:, 0])))
+                if isinstance(sink, _MemorySink):
+                    sink.write_rows(k, {name: rows[:, c:c + 1] for c, name in enumerate(field_names)})
+                else:    # streamed: one sample at a time into the writer's buffer
+                    for r in range(rows.shape[0]):
+                        sink.write(k + r, {name: rows[r, c:c + 1] for c, name in enumerate(field_names)})
+            return
         if ecg_w is not None:
             ecg[:, k] = ecg_w @ v  # the pseudo-ECG from the full profile at each output time
         highest[0] = max(highest[0], float(np.max(v)))
@@ -517,7 +542,8 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
 
     table_args = (rates.table, rates.v_lo, rates.inv_dv, 1) if fast else ()
     stepper = _stepper(setup, advance, arrays, rates if fast else None, (gating, theta, splitting,
-                                                                         num.merge_half_steps))
+                                                                         num.merge_half_steps), state_idx)
+    cell_chunk = _cell_chunk(setup, quiet) if getattr(stepper, "single_cell", False) else None
     if stepper is not None:
         attrs["dt_max_ms"] = num.dt_max
     sample(0)
@@ -527,9 +553,15 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     t_total = (setup.n_samples - 1) * spb * dt
     wall0 = _time.perf_counter()
     try:
-        for k in range(1, setup.n_samples):
+        k_from = 1
+        if cell_chunk is not None:   # a single cell, adaptive: many intervals per call (until quiet may stop it)
+            k_from, failure = _run_cell(stepper, v, setup, cell_chunk, sample, progress, t_total)
+        for k in range(k_from, setup.n_samples if failure is None else 0):
             t0 = (k - 1) * spb * dt
-            if stepper is not None:
+            if cell_chunk is not None:
+                status, step, _ = stepper.run(v, (k - 1) * spb, k * spb)
+                step, node = step - 1, 0
+            elif stepper is not None:
                 status, step, node = stepper.run(v, (k - 1) * spb, k * spb)
             elif ecg_w is None:
                 status, step, node = advance(v, arrays.s, arrays.p, t0, spb, dt, setup.pulses, grid.lo, grid.up,
@@ -600,8 +632,41 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     return ds
 
 
-def _stepper(setup: Setup, advance, arrays, plan, codes):
-    """The adaptive stepper of the run (``numerics.dt_max``), or None for fixed steps."""
+def _cell_chunk(setup: Setup, quiet) -> tuple[int, int]:
+    """Output intervals the single-cell loop runs per call before the last one that a quiet
+    stop could end: up to that one (``quiet.not_before``), in calls of ``CELL_CHUNK_MS``."""
+    spb_ms = setup.steps_per_sample * setup.case.numerics.dt
+    last = setup.n_samples - 1
+    if quiet is not None:
+        last = min(last, max(0, int(np.ceil(quiet.not_before / spb_ms - 1e-9)) - 1))   # t_k < not_before
+    return last, max(1, int(CELL_CHUNK_MS / spb_ms))
+
+
+#: simulated time per call of the single-cell adaptive loop (samples returned per call) [ms]
+CELL_CHUNK_MS = 1000.0
+
+
+def _run_cell(stepper, v, setup: Setup, chunk, sample, progress, t_total):
+    """Run a single cell's output intervals 1..``chunk[0]`` in calls of ``chunk[1]`` intervals;
+    (the next interval to run, failure or None). Samples are written as the calls return."""
+    last, per_call = chunk
+    spb, dt = setup.steps_per_sample, setup.case.numerics.dt
+    k = 1
+    while k <= last:
+        k1 = min(last, k + per_call - 1)
+        status, done, rows = stepper.run(v, (k - 1) * spb, k1 * spb)
+        sample(k, rows)
+        if status != integrate.OK:
+            return k, (status, (k - 1) * spb * dt + done * dt, 0)
+        k = k1 + 1
+        if progress is not None:
+            progress((k - 1) * spb * dt, t_total)
+    return k, None
+
+
+def _stepper(setup: Setup, advance, arrays, plan, codes, state_idx=()):
+    """The adaptive stepper of the run (``numerics.dt_max``), or None for fixed steps: a
+    :class:`cable.kernels.adaptive_cell.CellStepper` for a single cell."""
     num = setup.case.numerics
     if not num.adaptive:
         return None
@@ -614,6 +679,11 @@ def _stepper(setup: Setup, advance, arrays, plan, codes):
     plans = [None] * len(levels) if plan is None else \
         [plan] + adaptive.level_plans(setup.model, setup.p, levels[1:], codes[0], plan.mode, num.reaction)
     n_end = (setup.n_samples - 1) * setup.steps_per_sample
+    if setup.x is None:
+        from cable.kernels.adaptive_cell import CellStepper
+
+        return CellStepper(setup.model, arrays, setup.p, levels, plans if plan is not None else [None] * len(levels),
+                           setup.pulses, n_end, setup.steps_per_sample, state_idx, setup.ion_scale, setup.threshold)
     return adaptive.Stepper(advance, setup, arrays, levels, plans, codes, n_end)
 
 

@@ -10,7 +10,7 @@ import numpy as np
 
 import cable
 from cable.membrane import get_model
-from cable.prepace import _pace_cell
+from cable.prepace import _pace_cell, _pace_cell_adaptive
 from cable.simulate import _integrator
 
 #: ten Tusscher & Panfilov (2006) epicardial cell at 600 ms: its APD90 still drifts from the
@@ -53,3 +53,31 @@ def test_a_cap_below_the_beats_needed_says_it_was_not_reached():
 def test_run_records_the_beats_taken():
     ds = cable.simulate(cable.load_case(CELL, [f"membrane.prepace.until_change={UNTIL} ms"]))
     assert 2 < ds.attrs["prepace_beats"] < 200 and "until_change" in ds.attrs["prepace"]
+
+
+def test_adaptive_pacing_keeps_the_apd90_of_every_beat_within_the_contract():
+    # issue 15's cell contract: APD90 within 0.5 ms of the fixed step (here the fixed 5 us
+    # step of the same pacing, every beat); the steps taken are reported
+    model = get_model("ten-tusscher-panfilov-2006")
+    p = model.default_parameters()
+    args = (model, p, model.resting_potential, model.initial_states(), 3, 600.0, 52.0, 1.0, 0.005)
+    *_, fixed = _pace_cell(_integrator(model.name), *args, model.ion_scale(1.0))
+    *_, ends, adaptive, counts = _pace_cell_adaptive(*args, 0.5, model.ion_scale(1.0), "tabulated")
+    assert len(adaptive) == len(ends) == 3
+    assert np.max(np.abs(np.array(adaptive) - np.array(fixed))) <= 0.5
+    assert counts.sum() < 0.2 * 3 * 600.0 / 0.005      # the long steps were taken
+
+
+def test_adaptive_pacing_from_the_case_stops_by_until_change_and_reports_its_steps():
+    case = cable.load_case(CELL, [f"membrane.prepace.until_change={UNTIL}", "numerics.dt=0.005",
+                                  "numerics.dt_max=0.5"])
+    setup = cable.prepare(case)
+    beats = setup.prepace["beats"]
+    assert 2 < beats < 200 and "adaptive steps 0.005 to 0.5 ms" in setup.prepace["summary"]
+    model = get_model("ten-tusscher-panfilov-2006")
+    *_, apd, counts = _pace_cell_adaptive(model, model.default_parameters(), model.resting_potential,
+                                          model.initial_states(), beats, 600.0, 52.0, 1.0, 0.005, 0.5,
+                                          model.ion_scale(1.0), "tabulated")
+    steps = np.abs(np.diff(apd))
+    assert steps[-1] < UNTIL and np.all(steps[:-1] >= UNTIL), steps
+    assert int(setup.prepace["steps_taken"].sum()) == int(counts.sum())

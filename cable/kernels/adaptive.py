@@ -10,13 +10,16 @@ the level is chosen from the state (:func:`allowed_step`):
 * the fine step wherever a stimulus is on (a block never crosses a pulse's start or
   end: blocks end at the fine step holding it), wherever a node below the activation
   threshold rises within ``REACH_MV`` of it (a wave arriving, a slow depolarisation), and
-  wherever the potential changes fast (an upstroke): the step is at most
-  ``DV_STEP_MV`` / max |dV/dt|;
+  wherever the potential changes fast (an upstroke): the step is at most what
+  :func:`potential_step` allows at max |dV/dt| (``DV_STEP_MV``, ``DV_POWER``,
+  ``DV_FAST_MV``);
 * the states that the reaction integrates by forward Euler (those whose ``kinetics``
   rate b is 0: concentrations) bound the step so that each changes by at most
   ``REL_STEP`` of its magnitude per step (the rate measured over the last block);
   Rush-Larsen gates are exact for a constant potential and allow any step.
 
+The blocks are driven from compiled code (:mod:`cable.kernels.adaptive_strand`, one call
+per output interval); a single cell has its own loop (:mod:`cable.kernels.adaptive_cell`).
 Blocks end at every output time (samples stay on the output grid), at stimulus edges,
 and after at most ``BLOCK_STEPS`` steps, when the level is chosen again. Activation
 times, repolarisation crossings and the upstroke rate are interpolated within the step
@@ -30,12 +33,17 @@ from __future__ import annotations
 import numpy as np
 
 from cable.kernels import diffusion, tables
-from cable.kernels.jit import jit
+from cable.kernels.jit import jit, jit_inline
 
-#: the potential may change by at most this much per step [mV]: the APD90 error of the
-#: long steps grows with it (TP06 cell, measured here: 0.45 ms at 0.5 mV, 0.13 at 0.05;
-#: DEVELOPERS.md, "Adaptive time steps"); checked by the accuracy tests
-DV_STEP_MV = 0.05
+#: the bound of the potential (:func:`potential_step`): at |dV/dt| = 1 mV/ms a step may
+#: change it by ``DV_STEP_MV``, and the step scales as |dV/dt|^-``DV_POWER``: shorter than a
+#: fixed change per step in the slow plateau (where the long steps make the APD90 error:
+#: TP06 cell, measured here), longer in the fast phases 1 and 3 (where they make little);
+#: at most ``DV_FAST_MV`` per step at any rate (the upstrokes). Chosen on a TP06 cell and
+#: the strands of the accuracy tests (DEVELOPERS.md, "Adaptive steps in one compiled loop")
+DV_STEP_MV = 0.1
+DV_POWER = 0.3
+DV_FAST_MV = 0.25
 #: a node below the threshold and rising, closer to it than this, keeps the fine step [mV]
 REACH_MV = 15.0
 #: a forward-Euler state may change by at most this fraction of its magnitude per step
@@ -93,8 +101,20 @@ def stimulus_zones(pulses: np.ndarray, dt: float, n_end: int) -> np.ndarray:
     return np.array(merged, dtype=np.int64).reshape(-1, 2)
 
 
+@jit_inline
+def potential_step(rate, dt_max, dv_step, dv_power, dv_fast):
+    """The longest step [ms] the potential's rate |dV/dt| [mV/ms] allows: ``dv_step`` [mV] per
+    step at 1 mV/ms, the step scaling as rate^-``dv_power`` (1: the change per step is
+    ``dv_step`` at every rate)."""
+    if rate <= 0.0:
+        return dt_max
+    step = dv_step / rate if dv_power == 1.0 else min(dv_step * rate ** -dv_power, dv_fast / rate)
+    return min(step, dt_max)
+
+
 @jit
-def allowed_step(v, dlast, dt_last, threshold, s, s_before, fe, t_block, by_state, dt_max, dv_step, reach, rel_step):
+def allowed_step(v, dlast, dt_last, threshold, s, s_before, fe, t_block, by_state, dt_max, dv_step, reach, rel_step,
+                 dv_power=1.0, dv_fast=1.0):
     """The longest step the state allows [ms] (0: the fine step).
 
     ``dlast``: each node's change of potential over the last step of ``dt_last``;
@@ -114,7 +134,7 @@ def allowed_step(v, dlast, dt_last, threshold, s, s_before, fe, t_block, by_stat
         if a > rate:
             rate = a
     rate /= dt_last
-    step = dt_max if rate * dt_max <= dv_step else dv_step / rate
+    step = potential_step(rate, dt_max, dv_step, dv_power, dv_fast)
     if t_block <= 0.0:
         return step
     nstate = fe.shape[0]
@@ -159,7 +179,7 @@ class Stepper:
     Parameters
     ----------
     advance : numba dispatcher
-        The run's compiled loop.
+        The run's compiled loop (run block by block by ``adaptive_strand.driver``).
     setup : cable.simulate.Setup
     arrays : cable.kernels.state.LoopArrays
     levels : sequence of float
@@ -172,7 +192,6 @@ class Stepper:
     """
 
     def __init__(self, advance, setup, arrays, levels, rates, codes, n_end):
-        self.advance = advance
         self.setup = setup
         self.arrays = arrays
         self.levels = tuple(levels)
@@ -181,77 +200,38 @@ class Stepper:
         lo, up = setup.grid.lo, setup.grid.up
         self.factors = [(diffusion.factor(lo, up, 0.5 * h, self.theta), diffusion.factor(lo, up, h, self.theta))
                         for h in self.levels]
-        self.tables = [() if r is None else (r.table, r.v_lo, r.inv_dv, 1) for r in rates]
-        self.zone_list = [(int(a), int(b)) for a, b in stimulus_zones(setup.pulses, self.dt, n_end)]
-        self.zone_at = 0
-        self.args = None
+        stack = lambda part: np.ascontiguousarray(np.stack([np.asarray(x) for x in part]))  # noqa: E731
+        self.halves = tuple(stack([f[0][j] for f in self.factors]) for j in range(3))
+        self.fulls = tuple(stack([f[1][j] for f in self.factors]) for j in range(3))
+        fast = rates[0] is not None
+        if fast:
+            self.tables = stack([r.table for r in rates])
+            self.v_lo, self.inv_dv = float(rates[0].v_lo), float(rates[0].inv_dv)
+        else:
+            self.tables, self.v_lo, self.inv_dv = np.zeros((len(self.levels), 0, 1)), 0.0, 1.0
+        from cable.kernels.adaptive_strand import driver
+
+        self.driver = driver(advance, fast)
+        self.zones = np.ascontiguousarray(stimulus_zones(setup.pulses, self.dt, n_end))
         self.fe = euler_states(setup.model, setup.v0[0], setup.s0[0], setup.p, self.gating)
         self.s_before = arrays.s.copy()
-        self.track_states = bool(np.any(self.fe))
-        self.t_block = 0.0
-        self.current = 0                      # the level of the last block
+        self.ctl = np.zeros(3, dtype=np.int64)    # level of the last block (0 at first), zone reached, blocks traced
+        self.t_block = np.zeros(1)
         self.counts = np.zeros(len(self.levels), dtype=np.int64)
-        self.dv_step, self.reach, self.rel_step = DV_STEP_MV, REACH_MV, REL_STEP
-
-    def _zone(self, n: int) -> tuple[bool, int]:
-        """(inside a stimulus zone, fine index where that zone ends or the next begins)."""
-        z = self.zone_list
-        k = self.zone_at
-        while k < len(z) and z[k][1] <= n:     # the run only moves forward
-            k += 1
-        self.zone_at = k
-        if k < len(z):
-            if z[k][0] <= n:
-                return True, z[k][1]
-            return False, z[k][0]
-        return False, 1 << 62
-
-    def _level(self, v) -> int:
-        a = self.arrays
-        step = allowed_step(v, a.apd.dlast, self.levels[self.current], self.setup.threshold, a.s, self.s_before,
-                            self.fe, self.t_block, a.by_state, self.levels[-1], self.dv_step, self.reach,
-                            self.rel_step)
-        k = 0
-        while k + 1 < len(self.levels) and self.levels[k + 1] <= step:
-            k += 1
-        return k
+        self.bounds = (DV_STEP_MV, REACH_MV, REL_STEP, DV_POWER, DV_FAST_MV)
+        self.trace = np.zeros((0, 3), dtype=np.int64)   # give rows to record the blocks (fine index, steps, level)
 
     def run(self, v, n0: int, n1: int) -> tuple[int, int, int]:
         """Advance from fine step ``n0`` to ``n1``; (status, step, node) as the loop returns, ``step``
         counted in fine steps from ``n0`` (the failure lies in the fine step ending at ``n0 + step + 1``)."""
         a = self.arrays
         s = self.setup
-        if self.args is None:        # the loop's arguments after (v, s, p, t0, nsteps, dt), per level
-            head = (s.pulses, s.grid.lo, s.grid.up, self.theta)
-            tail = (self.splitting, self.merge, self.gating, s.ion_scale, s.threshold, *a.probes())
-            self.args = [head + self.factors[k] + tail + self.tables[k] for k in range(len(self.levels))]
-        advance, sv, pv, dt = self.advance, a.s, a.p, self.dt
-        n = n0
-        while n < n1:
-            inside, edge = self._zone(n)
-            if inside:
-                k = 0
-            else:
-                k = self._level(v)
-            span = min(edge, n1) - n
-            while (1 << k) > span:
-                k -= 1
-            width = 1 << k
-            m = min(span // width, BLOCK_STEPS)
-            h = self.levels[k]
-            if k != self.current:                 # the probe's last difference, per step of the new level
-                a.apd.dlast *= h / self.levels[self.current]
-                self.current = k
-            if self.track_states:
-                np.copyto(self.s_before, sv)
-            status, step, node = advance(v, sv, pv, n * dt, m, h, *self.args[k])
-            if status != 0:
-                self.counts[k] += step + 1
-                return status, n - n0 + (step + 1) * width - 1, node
-            self.counts[k] += m
-            self.t_block = m * h
-            n += m * width
-        return 0, n1 - n0, -1
+        status, step, node = self.driver(
+            v, a.s, a.p, n0, n1, self.dt, np.array(self.levels), s.pulses, s.grid.lo, s.grid.up, self.theta,
+            self.halves, self.fulls, self.splitting, self.merge, self.gating, s.ion_scale, s.threshold,
+            *a.probes(), self.tables, self.v_lo, self.inv_dv, self.zones, self.fe, a.by_state, self.bounds, self.ctl,
+            self.t_block, self.s_before, self.counts, self.trace)
+        return int(status), int(step), int(node)
 
     def outputs(self) -> dict:
         """The steps taken per level, as measurements (``step_dt``, ``steps_taken``)."""

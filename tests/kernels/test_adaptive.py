@@ -87,44 +87,68 @@ def test_paced_cell_apd90_of_the_last_beat():
     assert list(ada.step_dt.values) == list(adaptive.step_levels(DT_FINE, DT_MAX))
 
 
-class Recorder:
-    """Wraps the compiled loop and records every block (t0, steps, step)."""
-
-    def __init__(self, advance):
-        self.advance, self.blocks = advance, []
-
-    def __call__(self, v, s, p, t0, m, h, *rest):
-        self.blocks.append((t0, m, h))
-        return self.advance(v, s, p, t0, m, h, *rest)
-
-
 def test_blocks_never_cross_an_output_time_or_a_stimulus_edge(monkeypatch):
     seen = []
     init = adaptive.Stepper.__init__
 
-    def spy(self, advance, *args, **kw):
-        rec = Recorder(advance)
-        seen.append(rec)
-        init(self, rec, *args, **kw)
+    def spy(self, *args, **kw):
+        init(self, *args, **kw)
+        self.trace = np.zeros((100_000, 3), dtype=np.int64)   # the driver records every block
+        seen.append(self)
 
     monkeypatch.setattr(adaptive.Stepper, "__init__", spy)
-    case = cell(0.01, 0.32, beats=2)
+    case = strand("ten-tusscher-panfilov-2006", 0.01, 0.32, beats=2, cycle=1000.0)   # strands: blocks of the loop
+    case["fiber"]["length"] = 0.1
     case["stimulus"][0].update(start=100.013, duration=1.003)   # edges off the fine grid
     case["output"]["every"] = 2.5
-    cable.simulate(case)
-    blocks = seen[0].blocks
+    ds = cable.simulate(case)
+    st = seen[0]
+    n_blocks = int(st.ctl[2])
+    assert n_blocks < st.trace.shape[0]
+    n, m, k = st.trace[:n_blocks].T
+    h = np.array(st.levels)[k]
+    assert int(m.sum()) == int(ds.steps_taken.sum()) and np.all(m <= adaptive.BLOCK_STEPS)
+    _tile_the_run(list(zip(n * 0.01, n * 0.01 + m * h, h)))
+
+
+def _tile_the_run(steps):
+    """The steps (t0, t1, h) tile the 2-beat run, cross no output time (every 2.5 ms), and
+    only fine steps (0.01 ms) touch a stimulus edge."""
     edges = [e for k in range(2) for e in (100.013 + 1000.0 * k, 101.016 + 1000.0 * k)]
     outputs = np.arange(0.0, 2000.0 + 1.0, 2.5)
     t = 0.0
-    for t0, m, h in blocks:
+    for t0, t1, h in steps:
         assert t0 == pytest.approx(t, abs=1e-9)   # the blocks tile the run
-        t1 = t0 + m * h
         assert not np.any((outputs > t0 + 1e-9) & (outputs < t1 - 1e-9)), (t0, m, h)
         if h > 0.01:
-            assert not any(t0 - 1e-9 < e < t1 + 1e-9 for e in edges), (t0, m, h)
+            assert not any(t0 - 1e-9 < e < t1 + 1e-9 for e in edges), (t0, t1, h)
         t = t1
     assert t == pytest.approx(2000.0)
-    assert max(h for _, _, h in blocks) == pytest.approx(0.32)   # the long steps were used
+    assert max(h for _, _, h in steps) == pytest.approx(0.32)   # the long steps were used
+
+
+def test_cell_steps_never_cross_an_output_time_or_a_stimulus_edge(monkeypatch):
+    from cable.kernels import adaptive_cell
+
+    seen = []
+    init = adaptive_cell.CellStepper.__init__
+
+    def spy(self, *args, **kw):
+        init(self, *args, **kw)
+        self.trace = np.zeros((400_000, 2), dtype=np.int64)   # the loop records every step
+        seen.append(self)
+
+    monkeypatch.setattr(adaptive_cell.CellStepper, "__init__", spy)
+    case = cell(0.01, 0.32, beats=2)
+    case["stimulus"][0].update(start=100.013, duration=1.003)
+    case["output"]["every"] = 2.5
+    ds = cable.simulate(case)
+    st = seen[0]
+    n_steps = int(st.ctl[2])
+    assert n_steps == int(ds.steps_taken.sum()) < st.trace.shape[0]
+    n, k = st.trace[:n_steps, 0], st.trace[:n_steps, 1]
+    h = st.levels[k]
+    _tile_the_run(list(zip(n * 0.01, n * 0.01 + h, h)))
 
 
 def test_dt_max_equal_to_dt_is_the_fixed_step_bit_for_bit():
@@ -189,3 +213,16 @@ def test_levels_beyond_the_measured_rush_larsen_limit_are_warned():
     assert any("dt_max = 0.1 ms allows steps of 0.08 ms" in n for n in cable.load_case(case).notes)
     case["numerics"]["dt_max"] = 0.05
     assert not any("dt_max" in n for n in cable.load_case(case).notes)
+
+
+def test_cell_stopped_when_quiet_keeps_every_measurement():
+    # run.stop_when_quiet (cable/quiet.py): the measurements of the beats are those of the
+    # whole run, bit for bit, with the cell's compiled loop running many intervals per call
+    case = cell(0.02, 0.5, beats=1)
+    whole = cable.simulate(case)
+    case["run"]["stop_when_quiet"] = True
+    quiet = cable.simulate(case)
+    assert quiet.attrs["stopped_when_quiet_ms"] < 1000.0 and quiet.t.size < whole.t.size
+    for name in ("activation_time", "apd", "upstroke_velocity", "resting_potential", "peak_potential"):
+        assert np.array_equal(quiet[name].values, whole[name].values, equal_nan=True), name
+    assert np.array_equal(quiet.vm.values, whole.vm.values[:quiet.t.size])

@@ -1,0 +1,125 @@
+"""The blocks of :class:`cable.kernels.adaptive.Stepper` driven from compiled code.
+
+``advance_levels`` does what ``Stepper.run`` did in Python, block by block: the level
+chosen by :func:`cable.kernels.adaptive.allowed_step` at the start of each block (the
+fine step inside stimulus zones), the block cut to the next zone edge, output time and
+``BLOCK_STEPS`` steps, ``dlast`` rescaled on a change of level, the states kept for the
+forward-Euler bound, and the block run by the run's own compiled loop
+(``fused.advance_fast`` or ``integrate.advance``, unchanged) at that level's factors
+and rate table. Same arithmetic in the same order, so the results are those of the
+Python driver bit for bit; what goes is numba's dispatch of the loop's ~30 arguments
+per block (~20-40 us, up to 12 blocks per millisecond of fine steps). One call runs one
+output interval (``cable.simulate`` samples, checks and reports between them).
+"""
+
+from __future__ import annotations
+
+import functools
+
+from cable.kernels.adaptive import BLOCK_STEPS, allowed_step
+from cable.kernels.jit import specialise
+
+
+def loop(*args):  # bound by specialise(): the run's compiled time loop
+    raise NotImplementedError
+
+
+def run_block(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale, threshold,
+              vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table, v_lo, inv_dv):
+    # bound by specialise(): fast_block or reference_block
+    raise NotImplementedError
+
+
+def fast_block(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale, threshold,
+               vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table, v_lo, inv_dv):
+    """One block of ``fused.advance_fast`` (one strand) at one level."""
+    return loop(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale, threshold,
+                vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table, v_lo, inv_dv, 1)
+
+
+def reference_block(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale,
+                    threshold, vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table,
+                    v_lo, inv_dv):
+    """One block of ``integrate.advance`` at one level (no table)."""
+    return loop(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale, threshold,
+                vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every)
+
+
+def advance_levels(v, s, p, n0, n1, dt, hs, pulses, lo, up, theta, halves, fulls, splitting, merge, gating, ion_scale,
+                   threshold, vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, tables,
+                   v_lo, inv_dv, zones, fe, by_state, bounds, ctl, t_block, s_before, counts, trace):
+    """Advance from fine step ``n0`` to ``n1`` in blocks (see the module docstring).
+
+    ``hs``: the levels; ``halves``, ``fulls``: the factors of D(h/2) and D(h) per level
+    (each part stacked (nlev, ...)); ``tables`` (nlev, rows, cols); ``zones`` (m, 2):
+    ``adaptive.stimulus_zones``; ``bounds``: (dv_step, reach, rel_step, dv_power,
+    dv_fast); ``ctl``: [level of the last block, zone reached, blocks traced]; ``t_block``:
+    [length of the last block, ms]; ``s_before``: the states at its start; ``counts``:
+    steps per level; ``trace`` (m, 3): (fine index, steps, level) of the blocks while
+    ``ctl[2]`` < m. Returns (status, step, node) as ``Stepper.run``.
+    """
+    dv_step, reach, rel_step, dv_power, dv_fast = bounds
+    nlev = hs.shape[0]
+    nz = zones.shape[0]
+    track = False
+    for j in range(fe.shape[0]):
+        track = track or fe[j] != 0
+    dlast = apd[0]
+    n = n0
+    while n < n1:
+        z = ctl[1]
+        while z < nz and zones[z, 1] <= n:
+            z += 1
+        ctl[1] = z
+        inside = False
+        edge = 1 << 62
+        if z < nz:
+            inside = zones[z, 0] <= n
+            edge = zones[z, 1] if inside else zones[z, 0]
+        cur = ctl[0]
+        k = 0
+        if not inside:
+            step = allowed_step(v, dlast, hs[cur], threshold, s, s_before, fe, t_block[0], by_state, hs[nlev - 1],
+                                dv_step, reach, rel_step, dv_power, dv_fast)
+            while k + 1 < nlev and hs[k + 1] <= step:
+                k += 1
+        span = min(edge, n1) - n
+        while (1 << k) > span:
+            k -= 1
+        width = 1 << k
+        m = min(span // width, BLOCK_STEPS)
+        h = hs[k]
+        if k != cur:                     # the probe's last difference, per step of the new level
+            ratio = h / hs[cur]
+            for i in range(dlast.shape[0]):
+                dlast[i] *= ratio
+            ctl[0] = k
+        if track:
+            s_before[:, :] = s
+        if ctl[2] < trace.shape[0]:
+            trace[ctl[2], 0] = n
+            trace[ctl[2], 1] = m
+            trace[ctl[2], 2] = k
+            ctl[2] += 1
+        status, done, node = run_block(v, s, p, n * dt, m, h, pulses, lo, up, theta,
+                                       (halves[0][k], halves[1][k], halves[2][k]),
+                                       (fulls[0][k], fulls[1][k], fulls[2][k]), splitting, merge, gating, ion_scale,
+                                       threshold, vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work,
+                                       check_every, tables[k], v_lo, inv_dv)
+        if status != 0:
+            counts[k] += done + 1
+            return status, n - n0 + (done + 1) * width - 1, node
+        counts[k] += m
+        t_block[0] = m * h
+        n += m * width
+    return 0, n1 - n0, -1
+
+
+@functools.lru_cache(maxsize=None)
+def driver(advance, fast: bool):
+    """The compiled block driver of the run's loop ``advance`` (a specialised dispatcher of
+    ``fused.advance_fast`` when ``fast``, else of ``integrate.advance``)."""
+    template = fast_block if fast else reference_block
+    tag = advance.py_func.__qualname__
+    block = specialise(template, tag, loop=advance, depends=(advance.py_func,))
+    return specialise(advance_levels, tag, run_block=block, depends=(advance.py_func,))
