@@ -146,7 +146,7 @@ def advance_cell(v, s, p, n0, n1, dt, hs, tables, v_lo, inv_dv, pulses, zones, s
         k = kk
         t = n * dt
         if inside:
-            any_on = stimulus_current(t, h, pulses[zones[z, 2]:zones[z, 3]], i_stim)
+            any_on, _ = stimulus_current(t, h, pulses[zones[z, 2]:zones[z, 3]], i_stim, 0)
         else:
             any_on = False
         if stim_on and not any_on:

@@ -183,6 +183,7 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
     dlast0 = apd[0]
     dnow = np.empty_like(dlast0)
     stim_on = True
+    first_pulse = 0
     pv_h, el_h, bk_h = half
     pv_f, el_f, bk_f = full
     grid = (lo, up, dt if splitting == GODUNOV else 0.5 * dt, strands)   # the probe's: diffusion after it
@@ -193,7 +194,7 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
                 _diffuse(v, lo, up, dt, theta, pv_f, el_f, bk_f, work, strands)
             else:
                 _diffuse(v, lo, up, 0.5 * dt, theta, pv_h, el_h, bk_h, work, strands)
-        any_on = stimulus_current(t, dt, pulses, i_stim)
+        any_on, first_pulse = stimulus_current(t, dt, pulses, i_stim, first_pulse)
         if stim_on and not any_on:
             i_stim[:] = 0.0
         stim_on = any_on
@@ -225,6 +226,7 @@ def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half
     dlast0 = apd[0]
     dnow = np.empty_like(dlast0)
     stim_on = True
+    first_pulse = 0
     pv_h, el_h, bk_h = half
     pv_f, el_f, bk_f = full
     grid = (lo, up, dt if splitting == GODUNOV else 0.5 * dt, 1)   # the probe's: diffusion after it
@@ -235,7 +237,7 @@ def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half
                 diffuse_segments(v, lo, up, dt, theta, pv_f, el_f, bk_f, work, offsets)
             else:
                 diffuse_segments(v, lo, up, 0.5 * dt, theta, pv_h, el_h, bk_h, work, offsets)
-        any_on = stimulus_current(t, dt, pulses, i_stim)
+        any_on, first_pulse = stimulus_current(t, dt, pulses, i_stim, first_pulse)
         if stim_on and not any_on:
             i_stim[:] = 0.0
         stim_on = any_on
@@ -263,6 +265,7 @@ def advance_segments(v, s, p, t0, nsteps, dt, pulses, lo, up, theta, half, full,
     ``reaction`` bound by specialise, states by node) for strands laid end to end,
     each strand's diffusion solved alone as in :func:`advance_fast_segments`."""
     stim_on = True
+    first_pulse = 0
     sub_h, cp_h, inv_h = half
     sub_f, cp_f, inv_f = full
     grid = (lo, up, dt if splitting == GODUNOV else 0.5 * dt, 1)   # the probe's: diffusion after it
@@ -273,7 +276,7 @@ def advance_segments(v, s, p, t0, nsteps, dt, pulses, lo, up, theta, half, full,
                 diffuse_segments(v, lo, up, dt, theta, sub_f, cp_f, inv_f, work, offsets)
             else:
                 diffuse_segments(v, lo, up, 0.5 * dt, theta, sub_h, cp_h, inv_h, work, offsets)
-        any_on = stimulus_current(t, dt, pulses, i_stim)
+        any_on, first_pulse = stimulus_current(t, dt, pulses, i_stim, first_pulse)
         if stim_on and not any_on:
             i_stim[:] = 0.0
         stim_on = any_on

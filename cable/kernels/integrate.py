@@ -43,11 +43,23 @@ def reaction(v, s, p, i_stim, dt, ion_scale, gating):  # replaced by specialise(
 
 
 @jit
-def stimulus_current(t, dt, pulses, i_stim):
-    """Fill i_stim [mV/ms] with the mean stimulus over [t, t+dt]; return True if any."""
+def stimulus_current(t, dt, pulses, i_stim, first):
+    """Fill i_stim [mV/ms] with the mean stimulus over [t, t+dt].
+
+    ``pulses`` are sorted by onset (``simulate.stimulus_pulses``, ``batch._pulses``);
+    ``first`` is the caller's cursor: every pulse before it has ended (0 at the start of
+    a call). The pulses that have ended since are skipped and the scan stops at the
+    first pulse starting after the step, so a step costs the pulses on rather than all
+    of a long train. Returns (whether any is on, the new cursor).
+    """
     any_on = False
-    for k in range(pulses.shape[0]):
+    npulse = pulses.shape[0]
+    while first < npulse and pulses[first, 1] <= t:
+        first += 1
+    for k in range(first, npulse):
         on = pulses[k, 0]
+        if on >= t + dt:
+            break      # this one and every later one start after the step
         off = pulses[k, 1]
         overlap = min(off, t + dt) - max(on, t)
         if overlap > 0.0:
@@ -59,7 +71,7 @@ def stimulus_current(t, dt, pulses, i_stim):
             amp = pulses[k, 4] * overlap / dt
             for i in range(i0, i1):
                 i_stim[i] += amp
-    return any_on
+    return any_on, first
 
 
 @jit
@@ -190,6 +202,7 @@ def advance(v, s, p, t0, nsteps, dt, pulses, lo, up, theta, half, full, splittin
     node where it was found (checked every ``check_every`` steps and at the end).
     """
     stim_on = True
+    first_pulse = 0
     sub_h, cp_h, inv_h = half
     sub_f, cp_f, inv_f = full
     grid = (lo, up, dt if splitting == GODUNOV else 0.5 * dt, 1)   # the probe's: diffusion after it
@@ -200,7 +213,7 @@ def advance(v, s, p, t0, nsteps, dt, pulses, lo, up, theta, half, full, splittin
                 diffuse(v, lo, up, dt, theta, sub_f, cp_f, inv_f, work)
             else:
                 diffuse(v, lo, up, 0.5 * dt, theta, sub_h, cp_h, inv_h, work)
-        any_on = stimulus_current(t, dt, pulses, i_stim)
+        any_on, first_pulse = stimulus_current(t, dt, pulses, i_stim, first_pulse)
         if stim_on and not any_on:
             i_stim[:] = 0.0
         stim_on = any_on
