@@ -35,6 +35,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from cable.kernels.jit import jit
+
 #: a neighbour may cross slightly before its upstream node (stimulated zone fires as a
 #: block, collisions) [ms]
 BACKWARD_TOLERANCE = 2.0
@@ -142,33 +144,8 @@ def assign_beats(act: np.ndarray, nact: np.ndarray, x: np.ndarray, pulses: np.nd
             continue
         captured[b] = True
         # outward to the right from the rightmost captured node, then to the left
-        right = hit.max()
-        i = right
-        while i + 1 < n:
-            if index[b, i + 1] >= 0:
-                i += 1
-                continue
-            t = activation[b, i]
-            k = take(i + 1, t - BACKWARD_TOLERANCE, t + MAX_NODE_DELAY)
-            if k < 0:
-                break
-            index[b, i + 1] = k
-            activation[b, i + 1] = act[i + 1, k]
-            i += 1
-        right = i
-        i = hit.min()
-        while i - 1 >= 0:
-            if index[b, i - 1] >= 0:
-                i -= 1
-                continue
-            t = activation[b, i]
-            k = take(i - 1, t - BACKWARD_TOLERANCE, t + MAX_NODE_DELAY)
-            if k < 0:
-                break
-            index[b, i - 1] = k
-            activation[b, i - 1] = act[i - 1, k]
-            i -= 1
-        left = i
+        right = _walk(act, count, used, index[b], activation[b], int(hit.max()), 1)
+        left = _walk(act, count, used, index[b], activation[b], int(hit.min()), -1)
         ends = [(right, 1)] if right < n - 1 else []
         ends += [(left, -1)] if left > 0 else []
         running = [(i, way) for i, way in ends if not stopped(activation[b], i, way, t_end)]
@@ -177,6 +154,33 @@ def assign_beats(act: np.ndarray, nact: np.ndarray, x: np.ndarray, pulses: np.nd
         elif ends:
             blocked[b], block_x[b], side[b] = True, x[ends[0][0]], ends[0][1]
     return Beats(onsets, index, activation, captured, blocked, block_x, side, timed_out, front_x)
+
+
+@jit
+def _walk(act, count, used, index, activation, start, way):
+    """Follow one beat's wave from node ``start`` in direction ``way`` (+1 or -1): each
+    next node takes its first unused crossing within [t - BACKWARD_TOLERANCE,
+    t + MAX_NODE_DELAY) of its neighbour's time t (nodes already assigned are passed).
+    Fills ``index`` and ``activation`` (this beat's rows); returns the last node reached."""
+    n = act.shape[0]
+    i = start
+    while 0 <= i + way < n:
+        j = i + way
+        if index[j] < 0:
+            t = activation[i]
+            lo, hi = t - BACKWARD_TOLERANCE, t + MAX_NODE_DELAY
+            k = -1
+            for m in range(count[j]):
+                if not used[j, m] and lo <= act[j, m] < hi:
+                    used[j, m] = True
+                    k = m
+                    break
+            if k < 0:
+                break
+            index[j] = k
+            activation[j] = act[j, k]
+        i = j
+    return i
 
 
 def per_beat(values: np.ndarray, index: np.ndarray) -> np.ndarray:
