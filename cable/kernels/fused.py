@@ -104,20 +104,17 @@ def block_probe(v, vprev, dnow, t, dt, threshold, act, nact, pre_rate, open_up, 
                 level, ceiling, busy):
     """The probe of :func:`cable.kernels.integrate.probe`, but for ``dlast``: the quiet
     nodes in one vectorised pass (:func:`quiet_pass`), the runs of busy nodes by
-    ``probe_nodes`` (every node while a stimulus is on: its current is taken out of the
-    rates), their ``level`` and ``ceiling`` then brought up to date (:func:`bounds`).
+    ``probe_nodes`` (and every stimulated node while a stimulus is on: its current is
+    taken out of the rates there), their ``level`` and ``ceiling`` then brought up to
+    date (:func:`bounds`).
     Leaves ``dnow = v - vprev`` (the caller makes it the next step's ``dlast``) and
     ``vprev = v``."""
     n = v.shape[0]
     if stim_on:
-        for i in range(n):
-            dnow[i] = v[i] - vprev[i]
-        probe_nodes(v, vprev, dnow, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid,
-                    0, n)
-        bounds(open_up, apd, level, ceiling, 0, n)
-        for i in range(n):
-            vprev[i] = v[i]
-    elif quiet_pass(v, vprev, dnow, dt, threshold, pre_rate, apd[3], level, ceiling, busy) > 0:
+        for i in range(n):   # stimulated nodes take the full pass (their current out of the rates)
+            if i_stim[i] != 0.0:
+                ceiling[i] = -np.inf   # busy; bounds() below sets it again
+    if quiet_pass(v, vprev, dnow, dt, threshold, pre_rate, apd[3], level, ceiling, busy) > 0:
         i = 0
         while i < n:
             if busy[i]:

@@ -139,7 +139,8 @@ def test_block_probe_equals_plain_probe(rng):
         v = np.where((x < front) & (x >= back), 30.0 - 0.5 * (front - x), -70.0) + rng.normal(0.0, 0.5, n)
         v[front:front + 3] = np.linspace(-10.0, -60.0, 3)
         stim_on = k < 3
-        i_stim[:] = 50.0 if stim_on else 0.0
+        i_stim[:] = 0.0
+        i_stim[:30] = 50.0 if stim_on else 0.0   # a stimulated site: the others take the quiet pass
         a = arrays["plain"]
         integrate.probe(v, a["vprev"], k * dt, dt, thr, a["act"], a["nact"], a["pre"], a["open_up"], a["ups"],
                         a["apd"].args(), i_stim, grid)
