@@ -239,3 +239,20 @@ def test_tabulated_rates_within_the_bound(name):
     exact, tab = apd90(beat(gen, name), 0.01), apd90(beat(gen, name, tabulated=True), 0.01)
     assert exact > 30.0  # a whole action potential (45 ms FitzHugh-Nagumo, ~290-370 ms the cardiac models)
     assert tab == pytest.approx(exact, rel=1e-3)
+
+
+@pytest.mark.parametrize("name", DESCRIBED)
+def test_listing_keeps_every_line_of_the_hand_written_model(name, capsys):
+    # `cable models NAME` lists at least what it listed for the hand-written model (states,
+    # parameters with their units and meanings, currents), and says how the kernel integrates;
+    # fitzhugh-nagumo now reports its two currents (the hand-written model reported none)
+    from cable.cli import main
+    from cable.cli.models import describe
+
+    assert main(["models", name]) == 0
+    shown = capsys.readouterr().out.splitlines()
+    for line in describe(oracle(name).MODEL):
+        if "does not report its currents" not in line:
+            assert line in shown, line
+    if name != "passive":  # (no states)
+        assert any(line.startswith("  Rush-Larsen") for line in shown)
