@@ -234,7 +234,7 @@ def test_strand_equals_the_hand_written_one(name, oracles_registered):
 @pytest.mark.parametrize("name", ["fitzhugh-nagumo", "mitchell-schaeffer-2003", "luo-rudy-1991"])
 def test_tabulated_rates_within_the_bound(name):
     # the bound for every fast path: APD90 within 0.1% of the exact rates (single cell;
-    # the hand-written models have no fast path, so this is the generated one's own check)
+    # the hand-written models had no fast path, so this is the generated one's own check)
     gen = cable.get_model(name)
     exact, tab = apd90(beat(gen, name), 0.01), apd90(beat(gen, name, tabulated=True), 0.01)
     assert exact > 30.0  # a whole action potential (45 ms FitzHugh-Nagumo, ~290-370 ms the cardiac models)
