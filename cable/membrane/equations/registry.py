@@ -65,6 +65,8 @@ def load_description(module: str, name: str):
     from cable.membrane.equations import cache
 
     try:
+        if not module.isidentifier():
+            raise OSError(module)
         source = description_path(module).read_bytes()
     except OSError:
         raise EquationError(f"'{name}': no description cable/membrane/equations/{module}.py.") from None
