@@ -1,6 +1,9 @@
 """Shared test settings: a non-interactive matplotlib backend and a seeded generator."""
 
+import importlib.util
 import os
+import sys
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -56,3 +59,23 @@ def ms_strand(count, cycle_length=None):
             "fiber": {"length": 0.5, "dx": 0.025, "conductivity": 1000.0 / 162.0, "surface_to_volume": 2000.0,
                       "capacitance": 2.0},
             "stimulus": [stim], "numerics": {"dt": 0.02}, "run": {"duration": 400.0}, "output": {"every": 1.0}}
+
+
+def oracle(name: str):
+    """The hand-written module of the built-in model ``name``, kept as a test oracle.
+
+    ``tests/membrane/oracles/<name with _>.py`` (passive, fitzhugh-nagumo, mitchell-schaeffer-2003,
+    luo-rudy-1991: the models the package now generates from their descriptions).
+    """
+    stem = name.replace("-", "_")
+    full = f"cable_oracle_{stem}"
+    if full not in sys.modules:
+        spec = importlib.util.spec_from_file_location(full, Path(__file__).parent / "membrane" / "oracles" / f"{stem}.py")
+        module = importlib.util.module_from_spec(spec)
+        sys.modules[full] = module  # before running it: numba looks its functions' module up by name
+        try:
+            spec.loader.exec_module(module)
+        except BaseException:
+            del sys.modules[full]
+            raise
+    return sys.modules[full]

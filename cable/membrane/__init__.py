@@ -1,9 +1,14 @@
 """Membrane models, registered by name.
 
-A model is one module of this package that defines ``MODEL`` (a
-:class:`cable.membrane.base.MembraneModel`). The registry name is the module name with
-``_`` written as ``-`` (``hodgkin_huxley_1952.py`` -> ``hodgkin-huxley-1952``), so adding a
-model means adding one file, and the contract tests pick it up by themselves.
+A model is one file: a module of this package that defines ``MODEL`` (a
+:class:`cable.membrane.base.MembraneModel`, written by hand), or a description in
+``cable/membrane/equations/`` that defines ``EQUATIONS`` (an
+:class:`cable.membrane.equations.Equations`; its kernels are generated and cached, see
+:func:`cable.membrane.equations.registry.load_description`). The registry name is the
+module name with ``_`` written as ``-`` (``luo_rudy_1991.py`` -> ``luo-rudy-1991``); where a
+name has both, the hand-written module is the model (HH: its description is reachable as
+``equations:hodgkin_huxley_1952``). Adding a model means adding one file, and the contract
+tests pick it up by themselves.
 """
 
 from __future__ import annotations
@@ -21,15 +26,31 @@ _NOT_MODELS = {"base", "equations"}
 
 def model_names() -> list[str]:
     """The registered model names, sorted."""
-    return list(_listed_models())
+    return sorted(_hand_written() + tuple(_described()))
 
 
 @functools.lru_cache(maxsize=1)
-def _listed_models() -> tuple[str, ...]:
+def _hand_written() -> tuple[str, ...]:
     # the package's files do not change while a process runs; listing them costs ~1 ms
     here = str(Path(__file__).parent)
     return tuple(sorted(m.name.replace("_", "-") for m in pkgutil.iter_modules([here])
                         if m.name not in _NOT_MODELS and not m.name.startswith("_")))
+
+
+@functools.lru_cache(maxsize=1)
+def _described() -> dict[str, str]:
+    """Registry name -> description module, for the descriptions without a hand-written module.
+
+    A description is a file of ``equations/`` with a line starting ``EQUATIONS = `` (read as
+    text: importing it would import sympy)."""
+    here = Path(__file__).parent / "equations"
+    hand = set(_hand_written())
+    found = {}
+    for path in sorted(here.glob("[a-z]*.py")):
+        name = path.stem.replace("_", "-")
+        if name not in hand and "\nEQUATIONS = " in path.read_text(encoding="utf-8"):
+            found[name] = path.stem
+    return found
 
 
 class UnknownModelError(KeyError):
@@ -45,10 +66,13 @@ def get_model(name: str) -> MembraneModel:
     A CellML file's path (see :func:`cable.membrane.equations.registry.cellml_model_name`)
     or ``equations:MODULE`` gives a model generated from its equations.
     """
-    from cable.membrane.equations.registry import is_generated_name, load
+    from cable.membrane.equations.registry import is_generated_name, load, load_description
 
     if is_generated_name(name):
         return load(str(name))
+    described = _described()
+    if name in described:
+        return load_description(described[name], name)
     names = model_names()
     if name not in names:
         hint = did_you_mean(name, names)

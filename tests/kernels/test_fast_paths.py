@@ -7,6 +7,7 @@ rates against the exact ones; and, on strands, CV and APD90 of the default
 (tabulated) path against the exact path, within the 0.1% the performance issue sets.
 """
 
+from dataclasses import replace
 from fractions import Fraction
 
 import numba
@@ -28,6 +29,11 @@ STEP_RTOL = 1e-12
 #: linear interpolation errs by <= dv^2/8 max|f''| (common practice); measured at the
 #: default spacing: 2e-8 (Hodgkin-Huxley), 4e-7 (ten Tusscher-Panfilov Xr1 near +100 mV)
 TABLE_STEP_ATOL = 1e-6
+#: ... except where a rate is very steep: Luo-Rudy 1991's h gate below -135 mV, where
+#: alpha_h = 0.135 exp(-(80 + V)/6.8) exceeds 1000/ms (Luo & Rudy 1991), so the step's
+#: coefficients curve strongly over one row: measured here 3.8e-6 at -137..-148 mV (and
+#: 2.1e-7, 16x less, on a table 4x finer: the interpolation's second order, checked below)
+TABLE_STEP_ATOL_MODEL = {"luo-rudy-1991": 1e-5}
 #: ... and within the one table cell that holds a jump of a piecewise rate function (the
 #: h and j rates of ten Tusscher & Panfilov 2006 switch formula at -40 mV; from memory),
 #: where the interpolation blends the two branches
@@ -237,19 +243,22 @@ def test_tabulated_step_close_to_exact_and_exact_outside_the_table(name, gating,
         se, st = se.T, st.T
     gates = [k for k, state in enumerate(model.states) if state.units == "1"]
     inside = (v >= fast.v_lo) & (v < fast.v_hi)
-    if gating == 0:
+    if gating == 0 and gates:  # (the passive membrane has no gates: only the bitwise check below)
         # (forward-Euler gates multiply the coefficients' curvature by dt / their own
         # step; their accuracy is checked through CV and APD90 below)
         err = np.abs(st[gates][:, inside] - se[gates][:, inside])
-        assert np.quantile(err, 0.999) < TABLE_STEP_ATOL
+        assert np.quantile(err, 0.999) < TABLE_STEP_ATOL_MODEL.get(name, TABLE_STEP_ATOL)
         assert err.max() < TABLE_KINK_ATOL
-        # second order in the spacing: a table 4x finer is ~16x closer (at least 8x here)
-        fine = fast.build_table(np.asarray(p[0]), dt, gating, fast.v_lo, fast.v_hi, fast.dv / 4.0)
-        vf, sf = v.copy(), states(s)
-        fast.kernel(vf, sf, pk, np.zeros(n), dt, 1.0, gating, fine, fast.v_lo, 4.0 / fast.dv)
-        sf = sf if fast.by_state else sf.T
-        err_fine = np.abs(sf[gates][:, inside] - se[gates][:, inside])
-        assert np.quantile(err_fine, 0.99) < np.quantile(err, 0.99) / 8.0
+        # second order in the spacing: a table 4x finer is ~16x closer (at least 8x here), where the
+        # error is above rounding (1e-12: a table whose columns are linear in V, FitzHugh-Nagumo's u,
+        # interpolates exactly, and there is no order to see)
+        if np.quantile(err, 0.99) > 1e-12:
+            fine = fast.build_table(np.asarray(p[0]), dt, gating, fast.v_lo, fast.v_hi, fast.dv / 4.0)
+            vf, sf = v.copy(), states(s)
+            fast.kernel(vf, sf, pk, np.zeros(n), dt, 1.0, gating, fine, fast.v_lo, 4.0 / fast.dv)
+            sf = sf if fast.by_state else sf.T
+            err_fine = np.abs(sf[gates][:, inside] - se[gates][:, inside])
+            assert np.quantile(err_fine, 0.99) < np.quantile(err, 0.99) / 8.0
     np.testing.assert_array_equal(st[:, ~inside], se[:, ~inside])
     np.testing.assert_array_equal(vt[~inside], ve[~inside])
 
@@ -260,7 +269,27 @@ def test_table_not_used_when_temperature_varies():
     p[2, model.parameter_names.index("temperature")] = 10.0
     plan = tables.plan(model, p, 0.01, 0, "tabulated")
     assert plan.mode == "exact" and "temperature" in plan.note
-    assert tables.plan(cable.get_model("passive"), p[:, :0], 0.01, 0, "tabulated").mode == "reference"
+    no_fast = replace(cable.get_model("passive"), fast=None)  # (every registered model has a fast path now)
+    assert tables.plan(no_fast, p[:, :0], 0.01, 0, "tabulated").mode == "reference"
+
+
+@pytest.fixture
+def passive_without_fast_path(monkeypatch):
+    """The registry name ``passive-no-fast``: the passive membrane without its fast path (every
+    registered model has one since the built-ins are generated, issue 12)."""
+    import sys
+
+    import cable.membrane
+
+    real = cable.membrane.get_model
+    model = replace(real("passive"), fast=None, name="passive-no-fast")
+
+    def get_model(name):
+        return model if str(name) == "passive-no-fast" else real(name)
+
+    for module in (cable.membrane, sys.modules["cable.simulate"], cable):
+        monkeypatch.setattr(module, "get_model", get_model)
+    return "passive-no-fast"
 
 
 def _hh_strand(rates, **numerics):
@@ -330,7 +359,7 @@ def test_tp06_strand_cv_and_apd90_tabulated_against_exact(cell):
     assert abs(apd_t - apd_e) / apd_e < FAST_PATH_BOUND
 
 
-def test_rates_key_is_validated_and_recorded():
+def test_rates_key_is_validated_and_recorded(passive_without_fast_path):
     case = _hh_strand("tabulate")
     with pytest.raises(cable.CaseError, match=r"numerics\.rates.*Did you mean 'tabulated'"):
         cable.load_case(case)
@@ -339,15 +368,15 @@ def test_rates_key_is_validated_and_recorded():
     del default["numerics"]["rates"]
     assert cable.load_case(default).numerics.rates == "tabulated"
     # a model without a fast path runs its reference kernel whatever is asked
-    passive = {"membrane": {"model": "passive"}, "stimulus": [{"amplitude": 1.0, "duration": 1.0}],
+    passive = {"membrane": {"model": passive_without_fast_path}, "stimulus": [{"amplitude": 1.0, "duration": 1.0}],
                "numerics": {"dt": 0.01, "rates": "tabulated"}, "run": {"duration": 2.0}}
     assert cable.simulate(passive).attrs["rates"] == "reference"
 
 
-def test_tabulated_fallback_is_said_once():
+def test_tabulated_fallback_is_said_once(passive_without_fast_path):
     # issue 13 item 13: a model without a fast path runs its plain kernel under the default
     # rates = "tabulated"; the run says so, once
-    case = {"membrane": {"model": "passive"}, "run": {"duration": 2.0},
+    case = {"membrane": {"model": passive_without_fast_path}, "run": {"duration": 2.0},
             "numerics": {"dt": 0.01}, "output": {"every": 0.5}}
     said = []
     cable.simulate(case, info=said.append)

@@ -2,18 +2,22 @@
 
 Source: Mitchell CC, Schaeffer DG (2003) Bull Math Biol 65:767-793, through
 /work/shared/REFERENCES.md (row "Mitchell-Schaeffer", marked M = from memory). The
-formulas used below were re-derived here from the model equations (see the module
-docstring of cable.membrane.mitchell_schaeffer_2003 and the comments of each test).
+formulas used below were re-derived here from the model equations (see the docstrings
+of cable/membrane/equations/mitchell_schaeffer_2003.py and of its hand-written oracle
+tests/membrane/oracles/mitchell_schaeffer_2003.py, and the comments of each test).
 """
 
 import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-import cable.membrane.mitchell_schaeffer_2003 as ms
 from cable.membrane import get_model
 
 MODEL = get_model("mitchell-schaeffer-2003")
+# parameter indices (the model's declared order)
+V_REST, V_PEAK, TAU_IN, TAU_OUT, TAU_OPEN, TAU_CLOSE, V_GATE, G_IN = (
+    MODEL.parameter_names.index(n) for n in ("V_rest", "V_peak", "tau_in", "tau_out", "tau_open", "tau_close",
+                                              "v_gate", "g_in"))
 
 # Stimulus: 1 ms at 20 mV/ms raises v by about 0.2, well above the unstable rest branch
 # at h = 1 (v = 0.053) and v_gate; a short suprathreshold pulse is common practice.
@@ -84,11 +88,11 @@ def analytic_apd(tau_in, tau_out, tau_close):
 
 def gate_apd(p, dt=0.01):
     """APD measured between the v_gate crossings for a cell starting at rest (h = 1)."""
-    leading, _ = analytic_apd(p[ms.TAU_IN], p[ms.TAU_OUT], p[ms.TAU_CLOSE])
-    trace, _ = simulate(p, p[ms.V_REST], [1.0], dt, 1.5 * leading + 50.0,
+    leading, _ = analytic_apd(p[TAU_IN], p[TAU_OUT], p[TAU_CLOSE])
+    trace, _ = simulate(p, p[V_REST], [1.0], dt, 1.5 * leading + 50.0,
                         STIM_AMPLITUDE, STIM_DURATION)
-    u = (trace - p[ms.V_REST]) / (p[ms.V_PEAK] - p[ms.V_REST])
-    t_up, t_dn = crossing_times(u, p[ms.V_GATE], dt)
+    u = (trace - p[V_REST]) / (p[V_PEAK] - p[V_REST])
+    t_up, t_dn = crossing_times(u, p[V_GATE], dt)
     return t_dn - t_up
 
 
@@ -125,19 +129,19 @@ def default_beat():
 
 def test_rest_and_peak(default_beat):
     p, dt, trace, _ = default_beat
-    span = p[ms.V_PEAK] - p[ms.V_REST]
-    assert abs(trace[0] - p[ms.V_REST]) < REST_TOL
-    assert abs(trace[-1] - p[ms.V_REST]) < 0.01 * span  # back near rest after the beat
-    h_min = 4.0 * p[ms.TAU_IN] / p[ms.TAU_OUT]
+    span = p[V_PEAK] - p[V_REST]
+    assert abs(trace[0] - p[V_REST]) < REST_TOL
+    assert abs(trace[-1] - p[V_REST]) < 0.01 * span  # back near rest after the beat
+    h_min = 4.0 * p[TAU_IN] / p[TAU_OUT]
     v_upper = 0.5 * (1.0 + np.sqrt(1.0 - h_min))
-    assert abs(trace.max() - (p[ms.V_REST] + span * v_upper)) < PEAK_TOL
+    assert abs(trace.max() - (p[V_REST] + span * v_upper)) < PEAK_TOL
 
 
 def test_max_upstroke_velocity(default_beat):
     p, dt, trace, _ = default_beat
-    span = p[ms.V_PEAK] - p[ms.V_REST]
+    span = p[V_PEAK] - p[V_REST]
     u = np.linspace(0.0, 1.0, 100001)
-    predicted = span * np.max(u**2 * (1.0 - u) / p[ms.TAU_IN] - u / p[ms.TAU_OUT])
+    predicted = span * np.max(u**2 * (1.0 - u) / p[TAU_IN] - u / p[TAU_OUT])
     k0 = int(round(STIM_DURATION / dt))
     measured = np.max(np.diff(trace)[k0:]) / dt
     assert abs(measured / predicted - 1.0) < DVDT_RTOL
@@ -145,9 +149,9 @@ def test_max_upstroke_velocity(default_beat):
 
 def test_apd_against_asymptotic_formula(default_beat):
     p, dt, trace, _ = default_beat
-    leading, corrected = analytic_apd(p[ms.TAU_IN], p[ms.TAU_OUT], p[ms.TAU_CLOSE])
-    u = (trace - p[ms.V_REST]) / (p[ms.V_PEAK] - p[ms.V_REST])
-    t_up, t_dn = crossing_times(u, p[ms.V_GATE], dt)
+    leading, corrected = analytic_apd(p[TAU_IN], p[TAU_OUT], p[TAU_CLOSE])
+    u = (trace - p[V_REST]) / (p[V_PEAK] - p[V_REST])
+    t_up, t_dn = crossing_times(u, p[V_GATE], dt)
     apd_gate = t_dn - t_up
     assert abs(apd_gate / leading - 1.0) < LEADING_ORDER_RTOL
     assert apd_gate > leading  # the fold delay only lengthens the plateau
@@ -164,8 +168,8 @@ def test_fold_delay_scales_as_tau_close_to_the_third():
     p = MODEL.default_parameters()
     excess = []
     for tau_close in (150.0, 1200.0):
-        p[ms.TAU_CLOSE] = tau_close
-        leading, _ = analytic_apd(p[ms.TAU_IN], p[ms.TAU_OUT], tau_close)
+        p[TAU_CLOSE] = tau_close
+        leading, _ = analytic_apd(p[TAU_IN], p[TAU_OUT], tau_close)
         excess.append(gate_apd(p) - leading)
     assert excess[1] / excess[0] == pytest.approx(2.0, rel=0.15)
 
@@ -177,14 +181,14 @@ def test_excitable_only_above_h_min(tau_in, tau_out):
     # Freeze h by making tau_open and tau_close huge; kick v to 0.9 (above any middle
     # branch) and see whether it stays up. 5% either side of h_min keeps the answer clear.
     p = MODEL.default_parameters()
-    p[ms.TAU_IN], p[ms.TAU_OUT] = tau_in, tau_out
-    p[ms.TAU_OPEN] = p[ms.TAU_CLOSE] = 1e12
+    p[TAU_IN], p[TAU_OUT] = tau_in, tau_out
+    p[TAU_OPEN] = p[TAU_CLOSE] = 1e12
     h_min = 4.0 * tau_in / tau_out
-    span = p[ms.V_PEAK] - p[ms.V_REST]
+    span = p[V_PEAK] - p[V_REST]
     for factor, excitable in ((0.95, False), (1.05, True)):
         h = factor * h_min
-        trace, gate = simulate(p, p[ms.V_REST] + 0.9 * span, [h], 0.01, 20.0 * tau_out)
-        u_end = (trace[-1] - p[ms.V_REST]) / span
+        trace, gate = simulate(p, p[V_REST] + 0.9 * span, [h], 0.01, 20.0 * tau_out)
+        u_end = (trace[-1] - p[V_REST]) / span
         assert abs(gate[-1] - h) < 1e-9
         if excitable:
             u_stable = 0.5 * (1.0 + np.sqrt(1.0 - h_min / h))  # upper equilibrium
@@ -259,7 +263,7 @@ def test_currents_sum_to_reference_current():
     _, _, ion = MODEL.reference(v, s, p)
     assert np.allclose(out.sum(axis=1), ion, rtol=1e-12, atol=1e-12)
     # inward current is inward (negative) for 0 < v < 1, outward positive
-    u = (v - p[:, ms.V_REST]) / (p[:, ms.V_PEAK] - p[:, ms.V_REST])
+    u = (v - p[:, V_REST]) / (p[:, V_PEAK] - p[:, V_REST])
     inside = (u > 0.0) & (u < 1.0)
     assert np.all(out[inside, 0] <= 0.0) and np.all(out[inside, 1] > 0.0)
 
@@ -268,8 +272,8 @@ def test_g_in_is_equivalent_to_dividing_tau_in():
     # g_in multiplies J_in, so g_in = 2 must equal tau_in / 2 (the model's definition)
     p1 = MODEL.default_parameters()
     p2 = p1.copy()
-    p1[ms.G_IN] = 2.0
-    p2[ms.TAU_IN] = p2[ms.TAU_IN] / 2.0
+    p1[G_IN] = 2.0
+    p2[TAU_IN] = p2[TAU_IN] / 2.0
     a, _ = simulate(p1, -80.0, [1.0], 0.01, 50.0, STIM_AMPLITUDE, STIM_DURATION)
     b, _ = simulate(p2, -80.0, [1.0], 0.01, 50.0, STIM_AMPLITUDE, STIM_DURATION)
     assert np.allclose(a, b, rtol=1e-12, atol=1e-10)

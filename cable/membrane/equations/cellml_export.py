@@ -7,10 +7,17 @@ units are kept as names, the numbers unchanged). The potential obeys
 dV/dt = -(I_ion)/C_m (area basis, C_m in uF/cm^2) or -I_ion (per capacitance) with
 I_stim = 0 as its stimulus, so that the file is a complete CellML model; importing it
 again recognises V, the stimulus and C_m. The libcellml validator checks the result.
+
+What CellML has no place for (the citation and summary, the activation threshold, each
+parameter's unit string, meaning, kind, bounds and whether it is scalable, each state's
+unit and meaning, the temperature parameter, ``current_states``) is written as one XML
+comment, ``<!-- cable-description: {JSON} -->`` (:data:`METADATA`), which CellML tools
+ignore and :mod:`.cellml_import` reads back (:func:`read_metadata`).
 """
 
 from __future__ import annotations
 
+import json
 import re
 
 import sympy
@@ -74,6 +81,37 @@ def _ident(name: str, taken: set) -> str:
         out = f"{base}_{k}"
     taken.add(out)
     return out
+
+
+#: the comment holding what CellML cannot say (see the module docstring)
+METADATA = "cable-description:"
+
+
+def _metadata(eq: Equations, ident) -> str:
+    """The XML comment of the package's own data of ``eq`` (names as written in the file)."""
+    data = {
+        "citation": eq.citation, "summary": eq.summary, "threshold": eq.threshold,
+        "current_states": eq.current_states,
+        "temperature_parameter": ident(eq.temperature_parameter) if eq.temperature_parameter else None,
+        "states": {ident(s.name): {"units": s.units, "file_units": _units_id(s.units), "meaning": s.meaning}
+                   for s in eq.states},
+        "parameters": {ident(p.name): {"units": p.units, "file_units": _units_id(p.units), "meaning": p.meaning,
+                                       "quantity": p.quantity, "scalable": p.scalable, "minimum": p.minimum,
+                                       "maximum": p.maximum} for p in eq.parameters},
+    }
+    text = json.dumps(data, sort_keys=True).replace("--", "-\\u002d")  # "--" may not occur in a comment
+    return f"<!-- {METADATA} {text} -->"
+
+
+def read_metadata(text: str) -> dict | None:
+    """The package's data written by :func:`export` into a CellML file's text, or None."""
+    m = re.search(r"<!--\s*" + re.escape(METADATA) + r"\s*(\{.*?\})\s*-->", text, re.S)
+    if m is None:
+        return None
+    try:
+        return json.loads(m.group(1))
+    except ValueError:
+        return None
 
 
 def _units_id(u: str) -> str:
@@ -147,6 +185,7 @@ def export(eq: Equations) -> str:
     out.append(f'    <math xmlns="{_MATHML}">')
     out += ["      " + m for m in maths]
     out += ["    </math>", "  </component>", "</model>", ""]
+    out.insert(1, _metadata(eq, ident))  # after the XML declaration
     text = "\n".join(out)
     model = L.Parser().parseModel(text)
     v = L.Validator()

@@ -23,11 +23,18 @@ constant of the file is a parameter named by its variable (``component.variable`
 the name is not unique); those in units of conductance per area or per capacitance, or
 of permeability (length per time), and in dimensionless files those named g..., G... or
 P<capital>..., are scalable.
+
+A file written by ``cable models NAME --cellml`` carries the package's own data of the
+model in a comment (:mod:`.cellml_export`): where the file's variables still have the
+units the export gave them, their unit strings, meanings, kinds, bounds and scalable flags
+are taken from it, and so are the citation, summary, threshold, temperature parameter and
+``current_states`` (a note says so).
 """
 
 from __future__ import annotations
 
 import re
+from dataclasses import replace
 from pathlib import Path
 
 import sympy
@@ -182,7 +189,40 @@ def build(path, potential: str | None = None, stimulus_current: str | None = Non
                      f"negative ({why}); potentials reported as V = {HH1952_REST:g} mV - V_file")
     V = sympy.Symbol(POTENTIAL, real=True)
     to_file = {sym[vkey]: c0 + c1 * V}
-    return _assemble(code, names, sym, eqs, values, vkey, (c0, c1, s_t), to_file, zero, voi, notes, name)
+    eq = _assemble(code, names, sym, eqs, values, vkey, (c0, c1, s_t), to_file, zero, voi, notes, name)
+    return _restore(eq, path) if (s_v, s_t, convention) == (1.0, 1.0, "modern") else eq
+
+
+def _restore(eq: Equations, path) -> Equations:
+    """``eq`` with the package's data of an exported model put back (see the module docstring)."""
+    from cable.membrane.equations.cellml_export import read_metadata
+
+    try:
+        meta = read_metadata(Path(path).read_text(encoding="utf-8", errors="replace"))
+    except OSError:
+        meta = None
+    if not meta:
+        return eq
+    pmeta, smeta = meta.get("parameters", {}), meta.get("states", {})
+
+    def same_units(entry, units):  # the variable still has the units the export gave it
+        return entry is not None and entry.get("file_units") == units
+
+    params = tuple(replace(p, units=e["units"], meaning=e["meaning"], quantity=e["quantity"], scalable=e["scalable"],
+                           minimum=e["minimum"], maximum=e["maximum"])
+                   if same_units(e := pmeta.get(p.name), p.units) else p for p in eq.parameters)
+    states = tuple(replace(s, units=e["units"], meaning=e["meaning"])
+                   if same_units(e := smeta.get(s.name), s.units) else s for s in eq.states)
+    names = {p.name for p in params}
+    temperature = meta.get("temperature_parameter")
+    kept = sum(a is not b for a, b in zip(params + states, eq.parameters + eq.states))
+    return replace(eq, citation=meta.get("citation", eq.citation), summary=meta.get("summary", eq.summary),
+                   threshold=float(meta.get("threshold", eq.threshold)), parameters=params, states=states,
+                   temperature_parameter=temperature if temperature in names else None,
+                   current_states=meta.get("current_states", eq.current_states),
+                   notes=eq.notes + (f"written by cable: the citation, threshold, current_states and the units, "
+                                     f"meanings and scalable flags of {kept} variables read from the file's "
+                                     f"cable-description comment",))
 
 
 def _check_dimensionless(code, variable, units, canonical):

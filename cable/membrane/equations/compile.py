@@ -11,57 +11,18 @@ libcellml and sympy when the file has not changed).
 
 from __future__ import annotations
 
-import hashlib
-import importlib.util
-import inspect
 import json
-import os
-import sys
-from dataclasses import dataclass
-from pathlib import Path
 
-import numpy as np
 import sympy
 
-from cable.membrane.base import FastPath, MembraneModel, Parameter, State
-from cable.membrane.equations import analysis, codegen, fastpath
+from cable.membrane.equations import analysis, cache, codegen
+from cable.membrane.equations.cache import (GeneratedModel, cache_dir, load_cached, model_from_module,  # noqa: F401
+                                            store_keyed, write_module)
 from cable.membrane.equations.description import Equations, EqParameter, EqState, parse
 
 
-@dataclass(frozen=True)
-class GeneratedModel(MembraneModel):
-    """A model generated from equations: the contract plus what ``cable models`` shows.
-
-    Attributes
-    ----------
-    integration : tuple of str
-        Per state: ``"rush-larsen"`` (derivative linear in the state) or ``"forward-euler"``.
-    notes : tuple of str
-        What an import recognised or decided.
-    capacitance : float or None
-        The model's own membrane capacitance [uF/cm^2], used when the case gives none.
-    equations : str
-        The description as JSON (:func:`equations_from_json`), for export.
-    """
-
-    integration: tuple[str, ...] = ()
-    notes: tuple[str, ...] = ()
-    capacitance: float | None = None
-    equations: str = ""
-
-
-def cache_dir() -> Path:
-    """The folder holding generated modules."""
-    root = os.environ.get("CABLE_CACHE_DIR")
-    base = Path(root) if root else Path.home() / ".cache" / "cable"
-    return base / "generated"
-
-
 def _compiler_hash() -> str:
-    h = hashlib.sha256()
-    for mod in (analysis, codegen, fastpath, sys.modules[__name__]):
-        h.update(inspect.getsource(mod).encode())
-    return h.hexdigest()[:12]
+    return cache.compiler_hash()
 
 
 def equations_to_json(eq: Equations) -> str:
@@ -116,68 +77,6 @@ def generate_source(eq: Equations) -> str:
     return codegen.module_source(an, info)
 
 
-def _import(path: Path):
-    name = f"cable_generated_{path.stem}"
-    if name in sys.modules:
-        return sys.modules[name]
-    spec = importlib.util.spec_from_file_location(name, path)
-    module = importlib.util.module_from_spec(spec)
-    sys.modules[name] = module  # before running it: numba and inspect look it up by name
-    try:
-        spec.loader.exec_module(module)
-    except BaseException:
-        del sys.modules[name]
-        raise
-    return module
-
-
-def write_module(source: str) -> Path:
-    """Write ``source`` into the cache folder (once per content) and return its path."""
-    folder = cache_dir()
-    folder.mkdir(parents=True, exist_ok=True)
-    digest = hashlib.sha256(source.encode()).hexdigest()[:20]
-    path = folder / f"m{digest}.py"
-    if not path.is_file():
-        tmp = path.with_suffix(f".{os.getpid()}.tmp")
-        tmp.write_text(source, encoding="utf-8")
-        os.replace(tmp, path)  # atomic: parallel workers never read half a file
-    return path
-
-
-def model_from_module(module, name: str | None = None) -> GeneratedModel:
-    """The model a generated module describes."""
-    info = module.INFO
-    eq = json.loads(info["equations"])
-    states = tuple(State(s["name"], float(s["initial"]), s["units"], s["meaning"]) for s in eq["states"])
-    params = tuple(Parameter(p["name"], float(p["default"]), p["units"], p["meaning"], p["quantity"],
-                             minimum=p["minimum"], maximum=p["maximum"]) for p in eq["parameters"])
-    point = module.point
-
-    def reference(v, s, p):
-        v = np.asarray(v, dtype=float)
-        ds = np.empty((v.shape[0], len(states)))
-        ion = np.empty(v.shape[0])
-        with np.errstate(all="ignore"):
-            for i in range(v.shape[0]):
-                d, ion[i] = point(v[i], s[i], p[i])
-                ds[i] = d
-        return None, ds, ion
-
-    return GeneratedModel(
-        name=name or eq["name"], citation=eq["citation"], summary=eq["summary"],
-        resting_potential=float(eq["resting_potential"]), states=states, parameters=params,
-        conductances=tuple(p["name"] for p in eq["parameters"] if p["scalable"]),
-        current_basis=eq["current_basis"], threshold=float(eq["threshold"]),
-        reaction=module.reaction, reference=reference, currents=module.currents,
-        current_names=tuple(n for n, _ in eq["currents"]),
-        temperature_parameter=eq["temperature_parameter"],
-        fast=FastPath(kernel=module.reaction_fast, build_table=module.build_table,
-                      table_parameters=tuple(module.TABLE_PARAMETERS), v_lo=-150.0, v_hi=100.0, dv=0.05,
-                      by_state=False),
-        integration=tuple(info["integration"]), notes=tuple(eq["notes"]),
-        capacitance=eq["capacitance"], equations=info["equations"])
-
-
 def build_model(eq: Equations, name: str | None = None) -> GeneratedModel:
     """Generate, cache and load the model described by ``eq``.
 
@@ -193,26 +92,4 @@ def build_model(eq: Equations, name: str | None = None) -> GeneratedModel:
         A description that cannot be compiled (unknown names, an algebraic loop...).
     """
     path = write_module(generate_source(eq))
-    return model_from_module(_import(path), name)
-
-
-def load_cached(key: str):
-    """The generated module stored under ``key`` (see :func:`store_keyed`), or None."""
-    link = cache_dir() / f"k{key}.txt"
-    if not link.is_file():
-        return None
-    path = cache_dir() / link.read_text().strip()
-    if not path.is_file():
-        return None
-    module = _import(path)
-    return module if module.INFO.get("compiler") == _compiler_hash() else None
-
-
-def store_keyed(key: str, source: str):
-    """Write ``source`` and remember it under ``key``; return the imported module."""
-    path = write_module(source)
-    link = cache_dir() / f"k{key}.txt"
-    tmp = link.with_suffix(f".{os.getpid()}.tmp")
-    tmp.write_text(path.name)
-    os.replace(tmp, link)
-    return _import(path)
+    return model_from_module(cache.import_path(path), name)

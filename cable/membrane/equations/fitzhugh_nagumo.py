@@ -1,8 +1,8 @@
 """The FitzHugh-Nagumo membrane written as equations (the description form of the built-in model).
 
 FitzHugh R (1961) Biophys J 1:445; Nagumo J, Arimoto S, Yoshizawa S (1962) Proc IRE 50:2061;
-in the dimensional form of cable/membrane/fitzhugh_nagumo.py (same parameters, defaults and
-meanings): u = (V - V_rest)/(V_peak - V_rest), dw/dt = epsilon (u - gamma w), and the ionic
+in the dimensional form of the hand-written model it replaced
+(tests/membrane/oracles/fitzhugh_nagumo.py, a test oracle; same parameters, defaults and meanings): u = (V - V_rest)/(V_peak - V_rest), dw/dt = epsilon (u - gamma w), and the ionic
 current per capacitance -(V_peak - V_rest) [k u (u - a)(1 - u) - c w] [uA/uF].
 
 The hand-written model has no per-current function; here the ionic current is written as

@@ -1,8 +1,9 @@
 """Luo & Rudy (1991) written as equations (the description form of the built-in model).
 
 Luo CH, Rudy Y (1991) Circ Res 68:1501-1526, phase-1 model: the currents, rates, Nernst
-potentials at 37 degC and calcium balance of cable/membrane/luo_rudy_1991.py, with the
-same parameters (G_K and G_K1 stored at K_o = 5.4 mM and multiplied by sqrt(K_o/5.4)),
+potentials at 37 degC and calcium balance of the hand-written model it replaced
+(tests/membrane/oracles/luo_rudy_1991.py, a test oracle), with the same parameters (G_K and
+G_K1 stored at K_o = 5.4 mM and multiplied by sqrt(K_o/5.4)),
 states and initial values (the quiescent fixed point that module computes at import,
 written here as numbers; the test checks they are the same), per membrane area.
 

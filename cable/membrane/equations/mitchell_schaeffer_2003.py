@@ -1,8 +1,8 @@
 """Mitchell & Schaeffer (2003) written as equations (the description form of the built-in model).
 
 Mitchell CC, Schaeffer DG (2003) Bull Math Biol 65:767-793, in the form of
-cable/membrane/mitchell_schaeffer_2003.py (same parameters, defaults and meanings, the
-package's factor ``g_in`` on J_in included): v = (V - V_rest)/(V_peak - V_rest),
+the hand-written model it replaced (tests/membrane/oracles/mitchell_schaeffer_2003.py, a test
+oracle; same parameters, defaults and meanings, the package's factor ``g_in`` on J_in included): v = (V - V_rest)/(V_peak - V_rest),
 J_in = g_in h v^2 (1 - v)/tau_in, J_out = -v/tau_out, I_ion = -(V_peak - V_rest)(J_in + J_out)
 [uA/uF], and the gate's switching rule dh/dt = (1 - h)/tau_open below v_gate,
 -h/tau_close at or above it, written as a piecewise expression. dh/dt is linear in h on

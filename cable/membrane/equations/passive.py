@@ -1,10 +1,10 @@
 """The passive membrane written as equations (the description form of the built-in model).
 
-A leak conductance only, I_L = g_L (V - E_L), with the parameters, defaults and meanings of
-cable/membrane/passive.py (linear membrane of cable theory: Jack, Noble & Tsien 1975,
-Electric Current Flow in Excitable Cells). No states: the generated kernel is the same
-forward-Euler step of V as the hand-written one. Used by the tests that compare the
-generated kernels with the hand-written ones and by the CellML export of ``passive``.
+A leak conductance only, I_L = g_L (V - E_L) (linear membrane of cable theory: Jack, Noble &
+Tsien 1975, Electric Current Flow in Excitable Cells), with the parameters, defaults and
+meanings of the hand-written model it replaced (tests/membrane/oracles/passive.py, a test
+oracle). No states: the generated kernel is the same forward-Euler step of V as the
+hand-written one. The registry's ``passive`` is generated from this file.
 """
 
 from cable.membrane.equations.description import EqParameter, Equations

@@ -4,17 +4,20 @@ A CellML model's registry name is the absolute path of its file, followed by the
 recognition options that differ from the guess, as ``?key=value&...``
 (:func:`cellml_model_name`); the name alone rebuilds the model in any process (the
 sweep workers included). ``equations:MODULE`` names the description
-``cable.membrane.equations.MODULE.EQUATIONS`` (``equations:hodgkin_huxley_1952``).
-The generated module of a CellML file is cached under the hash of the file's content,
-the options and the compiler (:func:`cable.membrane.equations.compile.load_cached`), so
-a second run reads neither libcellml nor sympy.
+``cable.membrane.equations.MODULE.EQUATIONS`` (``equations:hodgkin_huxley_1952``); the
+built-in models without a hand-written module are such descriptions too, under their
+registry names (:func:`load_description`). The generated module of a CellML file is cached
+under the hash of the file's content, the options and the compiler, that of a description
+under the hash of the description module's source and the compiler
+(:func:`cable.membrane.equations.cache.load_cached`), so a second run reads neither
+libcellml nor sympy.
 """
 
 from __future__ import annotations
 
 import functools
-import hashlib
 import importlib
+import json
 from pathlib import Path
 from urllib.parse import parse_qsl, urlencode
 
@@ -45,31 +48,64 @@ def split_name(name: str) -> tuple[Path, dict]:
     return Path(path), dict(parse_qsl(query))
 
 
-@functools.lru_cache(maxsize=None)
-def load(name: str):
-    """The model registered as ``name`` (a CellML name or ``equations:MODULE``)."""
-    from cable.membrane.equations import compile as comp
+def description_path(module: str) -> Path:
+    """The file of the description ``cable.membrane.equations.MODULE``."""
+    return Path(__file__).parent / f"{module}.py"
 
-    if name.startswith(PREFIX):
-        module = name[len(PREFIX):]
+
+@functools.lru_cache(maxsize=None)
+def load_description(module: str, name: str):
+    """The model described by ``cable.membrane.equations.MODULE``, registered as ``name``.
+
+    The generated module is filed under the hash of the description's source and the compiler
+    (:func:`cable.membrane.equations.cache.source_key`): found there, neither the description
+    nor sympy is imported. A description imports only :mod:`.description` (part of the compiler
+    hash), so its own source is all that can change its equations.
+    """
+    from cable.membrane.equations import cache
+
+    try:
+        if not module.isidentifier():
+            raise OSError(module)
+        source = description_path(module).read_bytes()
+    except OSError:
+        raise EquationError(f"'{name}': no description cable/membrane/equations/{module}.py.") from None
+    key = cache.source_key(b"description", source)
+    found = cache.load_cached(key)
+    if found is None:
+        from cable.membrane.equations import compile as comp
+
         try:
             eq = importlib.import_module(f"cable.membrane.equations.{module}").EQUATIONS
         except (ImportError, AttributeError):
             raise EquationError(f"'{name}': no description cable/membrane/equations/{module}.py.") from None
-        return comp.build_model(eq, name)
+        found = cache.store_keyed(key, comp.generate_source(eq))
+    model = cache.model_from_module(found, name)
+    declared = json.loads(found.INFO["equations"])["name"]
+    if not name.startswith(PREFIX) and declared != name:
+        raise RuntimeError(f"cable/membrane/equations/{module}.py declares the model name {declared!r}, "
+                           f"expected {name!r}")
+    return model
+
+
+@functools.lru_cache(maxsize=None)
+def load(name: str):
+    """The model registered as ``name`` (a CellML name or ``equations:MODULE``)."""
+    from cable.membrane.equations import cache
+
+    if name.startswith(PREFIX):
+        return load_description(name[len(PREFIX):], name)
     path, options = split_name(name)
     try:
         content = path.read_bytes()
     except OSError as exc:
         raise EquationError(f"CellML file '{path}' cannot be read: {exc.strerror or exc}.") from None
-    h = hashlib.sha256(content)
-    h.update(repr(sorted(options.items())).encode())
-    h.update(comp._compiler_hash().encode())
-    key = h.hexdigest()[:24]
-    module = comp.load_cached(key)
+    key = cache.source_key(content, repr(sorted(options.items())).encode())
+    module = cache.load_cached(key)
     if module is None:
+        from cable.membrane.equations import compile as comp
         from cable.membrane.equations.cellml_import import build
 
         eq = build(path, name=path.stem, **options)
-        module = comp.store_keyed(key, comp.generate_source(eq))
-    return comp.model_from_module(module, name)
+        module = cache.store_keyed(key, comp.generate_source(eq))
+    return cache.model_from_module(module, name)

@@ -1,6 +1,8 @@
 """CellML export: a model with equations written as CellML 2.0 (accepted by the libcellml validator,
 checked inside the export) and imported again gives the same results (round trip)."""
 
+import json
+
 import numpy as np
 import pytest
 
@@ -59,15 +61,22 @@ def test_imported_models_export_and_read_back(tmp_path, name):
 
 @pytest.mark.parametrize("name", ["passive", "fitzhugh-nagumo", "mitchell-schaeffer-2003", "luo-rudy-1991"])
 def test_described_builtins_export_and_read_back(tmp_path, name):
-    # the built-ins with a description (cable/membrane/equations/): exported by the CLI, imported
-    # again, the derivatives and I_ion of the hand-written reference at random states to 1e-12
+    # the built-ins generated from a description (cable/membrane/equations/): exported by the CLI,
+    # imported again, the derivatives and I_ion of the built-in's reference at random states to 1e-12
     # (rounding; libcellml rewrites the expressions). Only the plain-Python reference is compared
-    # here (no kernel compiled); the strand round trip is tested for HH above. The scheme choice
-    # current_states = "all" of luo-rudy-1991 is not part of a CellML file (the import takes the
-    # default, "gates").
+    # here (no kernel compiled); the strand round trip is tested for HH above and LR1 below.
     out = tmp_path / f"{name}.cellml"
     assert main(["models", name, "--cellml", str(out)]) == 0
     back, hand = cable.get_model(cellml_model_name(out)), cable.get_model(name)
+    # what CellML has no place for comes back from the export's cable-description comment
+    assert (back.citation, back.summary, back.threshold) == (hand.citation, hand.summary, hand.threshold)
+    assert json.loads(back.equations)["current_states"] == json.loads(hand.equations)["current_states"]
+    assert sorted(back.conductances) == sorted(hand.conductances)
+    assert back.temperature_parameter == hand.temperature_parameter
+    by_name = {p.name: p for p in back.parameters}
+    for p in hand.parameters:
+        assert by_name[p.name] == p  # default, unit string, meaning, kind, bounds
+    assert {s.name: (s.units, s.meaning) for s in back.states} == {s.name: (s.units, s.meaning) for s in hand.states}
     assert sorted(back.state_names) == sorted(hand.state_names)
     order = [back.state_names.index(n) for n in hand.state_names]
     np.testing.assert_allclose(back.initial_states()[order], hand.initial_states(), rtol=1e-15)
@@ -84,6 +93,29 @@ def test_described_builtins_export_and_read_back(tmp_path, name):
     _, ds2, ion2 = back.reference(v, s_back, p_back)
     np.testing.assert_allclose(ds2[:, order], ds1, rtol=1e-12, atol=1e-300)
     np.testing.assert_allclose(ion2, ion1, rtol=1e-12, atol=1e-12)
+
+
+@pytest.mark.slow
+def test_round_trip_of_lr1_in_a_strand(tmp_path):
+    # the issue's round trip for the built-in LR1 (its kernel takes the updated Ca_i,
+    # current_states = "all", carried by the export's comment): exported, imported, the same CV and
+    # APD90 in a strand to 1e-6 relative (exact rates in both: the import's hoisting of
+    # subexpressions differs, so its table does too)
+    out = tmp_path / "lr1.cellml"
+    assert main(["models", "luo-rudy-1991", "--cellml", str(out)]) == 0
+
+    def run(model):
+        ds = cable.simulate({
+            "membrane": {"model": model},
+            "fiber": {"length": 0.6, "dx": 0.02, "conductivity": 1000.0 / 162.0, "surface_to_volume": 4000.0},
+            "stimulus": [{"amplitude": 100.0, "duration": 1.0, "width": 0.06}],
+            "numerics": {"dt": 0.02, "rates": "exact"}, "run": {"duration": 420.0}, "output": {"every": 1.0}})
+        return float(ds.conduction_velocity[0]), float(np.nanmean(ds.apd.values))
+
+    back, built_in = run(cellml_model_name(out)), run("luo-rudy-1991")
+    assert np.isfinite(built_in).all() and built_in[1] > 300.0
+    for a, b in zip(back, built_in):
+        assert a == pytest.approx(b, rel=1e-6)
 
 
 def test_builtin_without_equations_is_refused(capsys):
