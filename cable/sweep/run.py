@@ -380,7 +380,7 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     if spec is None:
         raise CaseError("the case has no [sweep] section; add one, e.g. [sweep] \"membrane.scale.g_Na\" = "
                         "[1.0, 0.5], or use --vary KEY=VALUES.")
-    keep_fields = bool(case.raw.get("output", {}).get("keep_fields", False))
+    keep_fields = case.keep_fields
     if keep_fields and output is None:
         raise CaseError("output.keep_fields = true writes each point's fields next to the result; give an output "
                         "file (-o OUT.nc).")
