@@ -6,6 +6,7 @@ import numpy as np
 import xarray as xr
 
 from cable.io import schema
+from cable.io.netcdf import variable_attrs
 from cable.sweep.points import FAILURES, NO_RESULT, PER_POINT, REASON_ATTRS, STATUS, coord_attrs, status_attrs
 from cable.sweep.spec import SweepSpec
 
@@ -142,10 +143,35 @@ def no_result_code(flag_values=None) -> np.int8:
 
 
 def _strip(p: xr.Dataset, spec: SweepSpec) -> xr.Dataset:
+    """A point without its swept coordinates, its attributes in the form its point file holds them."""
     swept = [d for d in spec.dims if d in p.dims]
     if swept:
         p = p.isel({d: 0 for d in swept}, drop=True)
-    return p.drop_vars([a.name for a in spec.axes if a.name in p.coords])
+    p = p.drop_vars([a.name for a in spec.axes if a.name in p.coords]).copy(deep=False)
+    for var in p.variables.values():
+        var.attrs = as_stored(var.attrs, var.dtype)
+    return p
+
+
+def as_stored(attrs: dict, dtype) -> dict:
+    """A variable's attributes as a point file gives them back (:meth:`PointStore.write`).
+
+    A point kept in memory after it was written (a sweep does not read its new points
+    back) and the same point read from its file then give the result the same
+    attributes, so a result is the same, byte for byte, whether its points were
+    computed in this call or in an earlier one: CF spelling of units and flag values of
+    the variable's type (:func:`cable.io.netcdf.variable_attrs`), and whole numbers in
+    32 bits, as classic netCDF stores them.
+    """
+    out = variable_attrs(attrs, dtype)
+    for key, value in out.items():
+        if isinstance(value, (bool, np.bool_, str)):
+            continue
+        arr = np.asarray(value)
+        if arr.dtype.kind in "iu" and arr.dtype.itemsize > 4 and arr.size \
+                and np.iinfo(np.int32).min <= arr.min() and arr.max() <= np.iinfo(np.int32).max:
+            out[key] = arr.astype(np.int32) if arr.ndim else np.int32(arr)
+    return out
 
 
 def _attrs_of(pts, name) -> dict:

@@ -268,9 +268,6 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     if todo:
         _compute(spec, case.raw, todo, points, store, keep_fields, client, scheduler, workers, progress,
                  len(done), failed_before, n, say, int(batch))
-    if store is not None:  # the result is built from the files alone: the same after a resume
-        for k in todo:
-            points[k] = store.read(k)
     attrs = result_attrs(case, spec, ident)
     if store is not None:  # when the sweep was started: the same whether or not it was resumed
         attrs["date_created"] = store.created
@@ -348,6 +345,7 @@ def _compute(spec, raw, todo, points, store, keep_fields, client, scheduler, wor
         labelled = _store.label(data, spec, k)
         if store is not None:
             store.write(k, labelled, _store.point_attrs(meta))
+            points[k] = _store.without_fields(labelled)  # kept, not read back (see assemble.as_stored)
         else:
             points[k] = labelled
         bad = _store.is_failure(_store.status_of(data))  # no capture and block are outcomes, not failures

@@ -18,8 +18,11 @@ Dataset::
 
 A point file records the identity of its sweep (``sweep_id``, a hash of the case text
 with its ``[sweep]``); running the same sweep again with the same output computes only
-the points that have no file, and the assembled result is built from the files alone,
-so it is the same whether the sweep ran in one go or was interrupted and resumed.
+the points that have no file, and the assembled result is built from the points as their
+files hold them (the earlier points read from their files, the new ones kept in memory
+after they were written, their attributes in the stored form:
+:func:`cable.sweep.assemble.as_stored`), so it is the same, byte for byte, whether the
+sweep ran in one go or was interrupted and resumed.
 """
 
 from __future__ import annotations
@@ -184,9 +187,7 @@ class PointStore:
         path = self.path(index)
         try:
             with xr.open_dataset(path) as ds:
-                if not fields:
-                    ds = ds.drop_vars([v for v in ds.data_vars if "t" in ds[v].dims])
-                return ds.load()
+                return (ds if fields else without_fields(ds)).load()
         except Exception as exc:  # netCDF4/HDF5 raise OSError, ValueError, RuntimeError... for a damaged file
             raise CaseError(f"point file '{path}' is damaged ({exc.__class__.__name__}: {exc}); delete it and run "
                             f"the sweep again with the same output: that point will be computed again, the others "
@@ -246,6 +247,11 @@ def local_io():
 
     with dask.config.set(scheduler="synchronous"):
         yield
+
+
+def without_fields(ds: xr.Dataset) -> xr.Dataset:
+    """A point without its space-time fields (what :meth:`PointStore.read` gives by default)."""
+    return ds.drop_vars([v for v in ds.data_vars if "t" in ds[v].dims])
 
 
 def point_attrs(meta: dict) -> dict:
