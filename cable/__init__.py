@@ -36,7 +36,7 @@ _LAZY = {
     "convergence": "cable.protocols.converge",
     "calibrate": "cable.protocols.calibrate",
     "open_result": "cable.io.netcdf",
-    "rerun": "cable.io.netcdf",
+    "rerun": "cable.io.rerun",
     "plot": None,
 }
 

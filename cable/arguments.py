@@ -1,6 +1,6 @@
 """Checks of the Python API's keyword arguments: the package's own error, naming the argument.
 
-A wrong type given to :func:`cable.simulate`, :func:`cable.io.netcdf.rerun` or
+A wrong type given to :func:`cable.simulate`, :func:`cable.io.rerun.rerun` or
 :func:`cable.sweep.run.sweep` (``output=5``, ``progress=3``) would otherwise surface as
 a foreign ``TypeError`` deep inside netCDF4 or the time loop, after the case was
 prepared; checked here, at the call, it is a :class:`cable.case.CaseError` that says

@@ -200,7 +200,7 @@ def _derived(setup, output) -> CheckReport:
     from cable.case.describe import space_constant
     from cable.grid_check import upstroke_grid
     from cable.measure.velocity import window_nodes
-    from cable.simulate import forward_euler_dt_limit
+    from cable.fiber import forward_euler_dt_limit
 
     f = case.fiber
     report.dx, report.diffusivity = f.dx, f.diffusivity

@@ -23,7 +23,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from cable.case.load import CaseError, Key, _read_section, _resolved_table, register_section
+from cable.case.sections import Section
+from cable.case.values import CaseError, Key, read_section, resolved_table
 
 #: the keys of one [drug.NAME] entry
 DRUG_KEYS = {
@@ -74,16 +75,16 @@ def validate(raw, case) -> tuple[Drug, ...]:
     for name, table in raw.items():
         if not isinstance(table, dict):
             raise CaseError(f"drug.{name} = {table!r}: must be a table with concentration and block.")
-        d = _read_section(f"drug.{name}", table, DRUG_KEYS)
+        d = read_section(f"drug.{name}", table, DRUG_KEYS)
         if not d["block"]:
             raise CaseError(f"drug.{name}.block is empty; give at least one conductance, e.g. "
                             f"{{{model.conductances[0]} = {{ic50 = \"1 uM\", hill = 1}}}}.")
         block = {}
-        for g, spec in _resolved_table(d["block"], model, "conductance", f"drug.{name}.block").items():
+        for g, spec in resolved_table(d["block"], model, "conductance", f"drug.{name}.block").items():
             where = f"drug.{name}.block.{g}"
             if not isinstance(spec, dict):
                 raise CaseError(f"{where} = {spec!r}: must be a table {{ic50 = ..., hill = ...}}.")
-            b = _read_section(where, spec, BLOCK_KEYS)
+            b = read_section(where, spec, BLOCK_KEYS)
             block[g] = (b["ic50"], b["hill"])
         drugs.append(Drug(name, d["concentration"], block))
     return tuple(drugs)
@@ -120,5 +121,6 @@ def key_unit(key: str) -> str | None:
     return "1"
 
 
-register_section("drug", is_list=False, validate=validate)
+#: the [drug.NAME] section, as the loader reads it (see cable.case.sections)
+SECTION = Section("drug", is_list=False, validate=validate, keys=DRUG_KEYS)
 

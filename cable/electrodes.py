@@ -34,7 +34,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from cable.case.load import CaseError, Key, _read_section, register_section
+from cable.case.sections import Section
+from cable.case.values import CaseError, Key, read_section
 
 #: the keys of one [[electrode]] entry
 ELECTRODE_KEYS = {
@@ -85,7 +86,7 @@ def validate(raw, case) -> tuple[Electrode, ...]:
     out = []
     x = node_positions(fiber) if fiber is not None else np.zeros(0)
     for k, table in enumerate(raw):
-        e = _read_section(f"electrode.{k}", table, ELECTRODE_KEYS)
+        e = read_section(f"electrode.{k}", table, ELECTRODE_KEYS)
         if e["radius"] is None:
             if fiber.radius is None:
                 raise CaseError(f"electrode.{k}.radius is needed in the tissue form of [fiber] (no fiber.radius): "
@@ -218,4 +219,5 @@ def summary_lines(ds) -> list:
     return lines
 
 
-register_section("electrode", is_list=True, validate=validate)
+#: the [[electrode]] section, as the loader reads it (see cable.case.sections)
+SECTION = Section("electrode", is_list=True, validate=validate, keys=ELECTRODE_KEYS)

@@ -253,13 +253,36 @@ def _ring_grid(fiber: Fiber, coupling_factor=None) -> Grid:
 
 
 def forward_euler_limit(fiber: Fiber, numerics: Numerics) -> float:
-    """Largest stable dt [ms] for forward-Euler diffusion (uniform coupling).
+    """Largest stable dt [ms] for forward-Euler diffusion on a fibre's uniform grid.
 
-    The explicit step v + h L v is stable when h max_i (lo_i + up_i) <= 1; with the
-    Strang half steps unmerged the sub-step is dt/2.
+    The rate 2 D / dx^2 of every inner node; :func:`forward_euler_dt_limit` gives the
+    limit of a built grid (regions, discrete cells), from the same rule.
     """
-    rate = 2.0 * fiber.diffusivity / fiber.dx**2
-    limit = 1.0 / rate
-    if numerics.splitting == "strang" and not numerics.merge_half_steps:
-        limit *= 2.0
-    return limit
+    return _explicit_limit(2.0 * fiber.diffusivity / fiber.dx**2, numerics)
+
+
+def forward_euler_dt_limit(grid: Grid, numerics: Numerics) -> float:
+    """Largest stable dt [ms] of forward-Euler diffusion on this grid (region coupling included).
+
+    inf for a grid without coupling.
+    """
+    rate = float(np.max(grid.lo + grid.up)) if grid.lo.size else 0.0
+    return _explicit_limit(rate, numerics)
+
+
+def _explicit_limit(rate: float, numerics: Numerics) -> float:
+    """The explicit step v + h L v is stable when h max_i (lo_i + up_i) <= 1 (``rate`` that
+    maximum [1/ms]), with h = dt, or dt/2 for Strang splitting with its half steps unmerged."""
+    if not rate > 0.0:
+        return float("inf")
+    per_dt = 1.0 if (numerics.splitting == "godunov" or numerics.merge_half_steps) else 0.5
+    return 1.0 / (rate * per_dt)
+
+
+def check_forward_euler(fiber: Fiber, numerics: Numerics) -> None:
+    """Refuse a dt beyond the stability limit of forward-Euler diffusion (:func:`forward_euler_limit`)."""
+    limit = forward_euler_limit(fiber, numerics)
+    if numerics.dt > limit:
+        raise CaseError(f"numerics.dt = {numerics.dt:g} ms exceeds the stability limit of forward-Euler diffusion, "
+                        f"{limit:.4g} ms, for dx = {fiber.dx:g} cm and D = {fiber.diffusivity:.4g} cm^2/ms; "
+                        f"reduce dt or use diffusion = \"crank-nicolson\".")

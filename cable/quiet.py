@@ -91,7 +91,7 @@ def wanted(case, default: bool = False) -> bool:
     """
     if case.fiber is not None and case.fiber.closed:
         return False
-    if case.fiber is not None and case.raw.get("measure", {}).get("safety_factor", False):
+    if case.fiber is not None and case.safety_factor:
         return False
     given = getattr(case, "stop_when_quiet", None)
     return default if given is None else bool(given)

@@ -40,8 +40,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from cable.case.load import (CaseError, Key, _param_value, _read_section, _resolved_table, convert,
-                             register_section)
+from cable.case.sections import Section
+from cable.case.values import CaseError, Key, convert, param_value, read_section, resolved_table
 
 #: the keys of one [region.NAME] table
 REGION_KEYS = {
@@ -84,7 +84,7 @@ class Region:
 
 
 def validate(raw, case) -> tuple[Region, ...]:
-    """Validate the ``[region.NAME]`` tables of a case (registered with the case loader).
+    """Validate the ``[region.NAME]`` tables of a case (the loader's validator of :data:`SECTION`).
 
     Parameters
     ----------
@@ -117,18 +117,18 @@ def validate(raw, case) -> tuple[Region, ...]:
     out = []
     for k, table in raw.items():
         where = f"region.{k}"
-        r = _read_section(where, table, REGION_KEYS)
+        r = read_section(where, table, REGION_KEYS)
         tol = EDGE_TOLERANCE * max(1.0, length)
         if r["end"] > length + tol:
             raise CaseError(f"{where}.end = {table['end']!r}: lies outside the fibre (0 to {length:g} cm).")
         if not r["start"] < r["end"]:
             raise CaseError(f"{where}: start = {table['start']!r} must be less than end = {table['end']!r}.")
         scale = {name: convert(f"{where}.scale.{name}", value, Key("quantity", minimum=0.0)) for name, value
-                 in _resolved_table(r["scale"] or {}, model, "conductance", f"{where}.scale").items()}
+                 in resolved_table(r["scale"] or {}, model, "conductance", f"{where}.scale").items()}
         params = {}
-        for name, value in _resolved_table(r["parameters"] or {}, model, "parameter", f"{where}.parameters").items():
+        for name, value in resolved_table(r["parameters"] or {}, model, "parameter", f"{where}.parameters").items():
             par = model.parameter(name)
-            params[name] = par.encode(_param_value(f"{where}.parameters.{name}", value, par))
+            params[name] = par.encode(param_value(f"{where}.parameters.{name}", value, par))
         if not scale and not params and r["coupling"] is None:
             raise CaseError(f"{where} changes nothing: give scale (e.g. {{{model.conductances[0]} = 0.5}}), "
                             f"parameters or coupling.")
@@ -235,4 +235,5 @@ def node_fields(case, model, x: np.ndarray, p: np.ndarray) -> tuple[np.ndarray, 
             coupling_factors(x, regions))
 
 
-register_section("region", is_list=False, validate=validate)
+#: the [region.NAME] section, as the loader reads it (see cable.case.sections)
+SECTION = Section("region", is_list=False, validate=validate, keys=REGION_KEYS)

@@ -21,7 +21,7 @@ import xarray as xr
 from cable.arguments import check_call
 from cable.units import format_bytes
 from cable.case import Case, CaseError, load_case
-from cable.fiber import Grid, build_grid, node_positions
+from cable.fiber import Grid, build_grid, forward_euler_dt_limit, node_positions
 from cable.io import schema
 from cable.kernels import diffusion, fused, integrate, schemes, tables
 from cable.kernels.jit import specialise
@@ -282,17 +282,6 @@ def prepare(case) -> Setup:
 
             setup.safety = tracker_for(case, grid, v0, pulses, notes)
     return setup
-
-
-def forward_euler_dt_limit(grid: Grid, num) -> float:
-    """Largest stable dt [ms] of forward-Euler diffusion on this grid (region coupling included).
-
-    The explicit step v + h L v is stable when h max_i (lo_i + up_i) <= 1, with h = dt, or
-    dt/2 for Strang splitting with its half steps unmerged; inf for a grid without coupling.
-    """
-    rate = float(np.max(grid.lo + grid.up)) if grid.lo.size else 0.0
-    per_dt = 1.0 if (num.splitting == "godunov" or num.merge_half_steps) else 0.5
-    return 1.0 / (rate * per_dt) if rate > 0.0 else float("inf")
 
 
 def _ring_start(case, model, grid, p, v0, s0, pulses, cm, notes):

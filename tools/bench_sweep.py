@@ -49,6 +49,7 @@ import xarray as xr
 
 import cable
 from cable.case import dumps_toml
+from cable.machine import usable_cores
 
 POINTS = 8
 
@@ -203,7 +204,7 @@ def main(argv=None) -> None:
               f"(x{len(r['first'])}), others {np.mean(r['rest']):.3f} s")
         print(f"    warm per point / simulate = {warm / t_sim:5.2f}   cold per point / cable run = {cold / t_run:5.2f}")
     print(f"speed-up 1 -> 2 workers: warm {runs[1]['warm'] / runs[2]['warm']:.2f}, cold "
-          f"{runs[1]['cold'] / runs[2]['cold']:.2f} (cores available: {len(os.sched_getaffinity(0))}; "
+          f"{runs[1]['cold'] / runs[2]['cold']:.2f} (cores available: {usable_cores()}; "
           f"load average before: {os.getloadavg()[0]:.2f})")
     report_batching(batching)
 

@@ -1,12 +1,13 @@
-"""Case files: the schema of their keys and the loader that validates them."""
+"""Case files: the schema of their keys and the loader that validates them.
+
+The sections other modules own ([sweep], [region.NAME], [drug.NAME], [[electrode]])
+are declared by those modules and listed in :mod:`cable.case.sections`; the loader
+imports them when a case needs them.
+"""
 
 from cable.case.load import (Case, CaseError, Fiber, Membrane, Numerics, Stimulus, dumps_toml, load_case,
-                             parse_assignment, register_section, set_key)
+                             parse_assignment, set_key)
 from cable.case.schema import SECTIONS
-import cable.sweep.spec  # noqa: E402,F401  registers the [sweep] section
-import cable.regions  # noqa: E402,F401  registers the [region] section
-import cable.drugs  # noqa: E402,F401  registers the [drug] section
-import cable.electrodes  # noqa: E402,F401  registers the [[electrode]] section
 
 __all__ = ["Case", "CaseError", "Fiber", "Membrane", "Numerics", "Stimulus", "SECTIONS", "dumps_toml",
-           "load_case", "parse_assignment", "register_section", "set_key"]
+           "load_case", "parse_assignment", "set_key"]

@@ -3,26 +3,30 @@
 Units are converted here, once, to the canonical set of :mod:`cable.units`.
 Every problem raises :class:`CaseError` with a message that names the key, shows the
 value, says what is allowed and suggests the nearest valid name.
+
+The parts: :mod:`cable.case.validated` (the dataclasses), :mod:`cable.case.values`
+(one value or table against its schema), :mod:`cable.case.assign` (``--set``),
+:mod:`cable.case.toml_text` (TOML in and out), :mod:`cable.case.sections` (the
+sections other modules own). The names they define that callers import from here
+are imported here.
 """
 
 from __future__ import annotations
 
 import copy
-from cable.suggest import did_you_mean
 import math
-import os
-import tomllib
-from dataclasses import dataclass, field, replace
-from pathlib import Path
+from dataclasses import replace
 
-from cable import units
-from cable.case import names
-from cable.case.schema import LIST_SECTIONS, SECTIONS, Key
+from cable.case import names, sections
+from cable.case.assign import parse_assignment, set_key
+from cable.case.schema import SECTIONS, Key
+from cable.case.toml_text import MAX_DEPTH, anchor_cellml_path, dumps_toml, parse_toml, read_toml
+from cable.case.validated import Case, CaseError, Fiber, Membrane, Numerics, Stimulus
+from cable.case.values import (allowed_keys, convert, nearest, param_value, read_section, resolve_name,
+                               resolved_table)
 
-
-class CaseError(ValueError):
-    """A case that cannot be run, with a message written for the user."""
-
+__all__ = ["Case", "CaseError", "Fiber", "Key", "Membrane", "Numerics", "PREPACE_KEYS", "Stimulus", "convert",
+           "dumps_toml", "from_dict", "load_case", "parse_assignment", "resolve_name", "set_key"]
 
 #: refuse runs beyond these sizes (a mistyped unit, not a study): steps, and nodes x steps
 MAX_STEPS = 1e9
@@ -31,390 +35,6 @@ MAX_NODE_STEPS = 1e13
 PHYSIOLOGICAL_TEMPERATURE = (0.0, 42.0)
 
 
-# ----------------------------------------------------------------------------- dataclasses
-@dataclass(frozen=True)
-class Stimulus:
-    """A named current pulse train over a zone ``[x, x + width]`` (canonical units)."""
-
-    x: float
-    width: float
-    amplitude: float
-    duration: float
-    onset: float = 0.0
-    count: int = 1
-    cycle_length: float | None = None
-    name: str = ""
-
-    @property
-    def start(self) -> float:
-        """The first pulse's onset [ms] (the old name of :attr:`onset`)."""
-        return self.onset
-
-    def onsets(self) -> list[float]:
-        """Pulse onset times [ms]."""
-        cl = self.cycle_length or 0.0
-        return [self.onset + k * cl for k in range(self.count)]
-
-
-@dataclass(frozen=True)
-class Fiber:
-    """Fibre geometry and coupling (canonical units)."""
-
-    length: float
-    dx: float
-    capacitance: float = 1.0
-    radius: float | None = None
-    axial_resistivity: float | None = None
-    conductivity: float | None = None
-    surface_to_volume: float | None = None
-    cell_length: float | None = None
-    gap_junction_conductance: float | None = None
-    closed: bool = False      # a ring (periodic ends)
-    initial: str = "rest"     # "rest" or "one-way" (a ring's circulating start)
-
-    @property
-    def diffusivity(self) -> float:
-        """D [cm^2/ms]: a/(2 R_i C_m) (axon form) or sigma/(chi C_m) (tissue form)."""
-        if self.radius is not None:
-            # a [cm] / (ohm*cm) = S; S / (uF/cm^2) = cm^2 / (ohm*uF) = cm^2/us = 1e3 cm^2/ms
-            return self.radius / (2.0 * self.axial_resistivity * self.capacitance) * 1e3
-        return self.conductivity / (self.surface_to_volume * self.capacitance)
-
-    @property
-    def n_nodes(self) -> int:
-        # a ring has no node at x = length: that point is x = 0
-        return int(round(self.length / self.dx)) + (0 if self.closed else 1)
-
-
-@dataclass(frozen=True)
-class Membrane:
-    model: str
-    temperature: float | None = None
-    scale: dict = field(default_factory=dict)
-    parameters: dict = field(default_factory=dict)
-    prepace: dict | None = None
-    capacitance: float | None = None  # [uF/cm^2]; as given in [membrane] (see Case.capacitance)
-
-
-@dataclass(frozen=True)
-class Numerics:
-    dt: float = 0.01
-    splitting: str = "strang"
-    diffusion: str = "crank-nicolson"
-    gating: str = "rush-larsen"
-    merge_half_steps: bool = True
-    reaction: str = "rush-larsen"
-    rates: str = "tabulated"
-    dt_max: float | None = None
-
-    @property
-    def adaptive(self) -> bool:
-        """Whether the steps are chosen between dt and ``dt_max`` (at least two levels)."""
-        return self.dt_max is not None and self.dt_max >= 2.0 * self.dt * (1.0 - 1e-9)
-
-
-@dataclass(frozen=True)
-class Case:
-    """A validated case, every value in canonical units.
-
-    ``raw`` keeps the case as given (after ``--set`` overrides) so that it can be
-    written back as TOML into result files and rerun from them.
-    """
-
-    membrane: Membrane
-    fiber: Fiber | None
-    stimuli: tuple[Stimulus, ...]
-    numerics: Numerics
-    duration: float
-    output_every: float
-    output_states: tuple[str, ...]
-    threshold: float | None
-    cv_window: tuple[float, float] | None
-    apd_levels: tuple[float, ...]
-    raw: dict
-    notes: tuple[str, ...] = ()
-    extra: dict = field(default_factory=dict)  # validated sections owned by other modules
-    stop_when_quiet: bool | None = None  # run.stop_when_quiet; None: not given (the caller's default)
-    quiet_tolerance: float = 1.0         # run.quiet_tolerance [mV]
-
-    @property
-    def capacitance(self) -> float:
-        """Membrane capacitance C_m [uF/cm^2]: the fibre's, or a single cell's (default 1)."""
-        if self.fiber is not None:
-            return self.fiber.capacitance
-        return self.membrane.capacitance if self.membrane.capacitance is not None else 1.0
-
-    @property
-    def text(self) -> str:
-        """The case as TOML text."""
-        return dumps_toml(self.raw)
-
-    def __repr__(self) -> str:
-        from cable.case.describe import case_repr
-
-        return case_repr(self)
-
-    def _repr_html_(self) -> str:
-        """The case and what it implies, as a table (a notebook's display)."""
-        from cable.case.describe import case_html
-
-        return case_html(self)
-
-    def with_overrides(self, overrides) -> "Case":
-        """A new case with ``{"section.key": value}`` overrides applied to the raw case."""
-        raw = copy.deepcopy(self.raw)
-        for key, value in dict(overrides).items():
-            set_key(raw, key, value)
-        return from_dict(raw)
-
-
-# ----------------------------------------------------------------------------- helpers
-_nearest = did_you_mean
-
-
-def _allowed_keys(candidates) -> str:
-    return ", ".join(sorted(candidates))
-
-
-def _fmt(value) -> str:
-    return repr(value)
-
-
-def convert(where: str, value, spec: Key):
-    """Validate and convert one value against its :class:`Key` spec."""
-    kind = spec.kind
-    if kind == "quantity":
-        try:
-            out = units.to_canonical(value, spec.quantity)
-        except units.UnitError as exc:
-            raise CaseError(f"{where} = {_fmt(value)}: {exc}. Give a number in "
-                            f"{units.CANONICAL[spec.quantity]} or a string with a unit.") from None
-        if not math.isfinite(out):
-            raise CaseError(f"{where} = {_fmt(value)}: must be a finite number.")
-        _check_range(where, value, out, spec)
-        return out
-    if kind == "int":
-        if isinstance(value, bool) or not isinstance(value, int):
-            if isinstance(value, float) and value.is_integer():
-                value = int(value)
-            else:
-                raise CaseError(f"{where} = {_fmt(value)}: must be a whole number.")
-        _check_range(where, value, value, spec)
-        return value
-    if kind == "bool":
-        if not isinstance(value, bool):
-            raise CaseError(f"{where} = {_fmt(value)}: must be true or false.")
-        return value
-    if kind == "str":
-        if not isinstance(value, str):
-            raise CaseError(f"{where} = {_fmt(value)}: must be a string.")
-        return value
-    if kind == "choice":
-        if value not in spec.choices:
-            raise CaseError(f"{where} = {_fmt(value)}: allowed values are "
-                            f"{', '.join(repr(c) for c in spec.choices)}.{_nearest(value, spec.choices)}")
-        return value
-    if kind == "list_str":
-        if isinstance(value, str):
-            value = [value]
-        if not isinstance(value, (list, tuple)) or not all(isinstance(v, str) for v in value):
-            raise CaseError(f"{where} = {_fmt(value)}: must be a list of names.")
-        return tuple(value)
-    if kind == "list_quantity":
-        if not isinstance(value, (list, tuple)) or not value:
-            raise CaseError(f"{where} = {_fmt(value)}: must be a non-empty list.")
-        item = replace(spec, kind="quantity")
-        return tuple(convert(f"{where}[{k}]", v, item) for k, v in enumerate(value))
-    if kind == "table":
-        if not isinstance(value, dict):
-            raise CaseError(f"{where} = {_fmt(value)}: must be a table.")
-        return value
-    raise AssertionError(kind)
-
-
-def _check_range(where, given, value, spec: Key):
-    lo, hi = spec.minimum, spec.maximum
-    unit = units.CANONICAL.get(spec.quantity, "")
-    unit = "" if unit == "1" else f" {unit}"
-    if lo is not None:
-        if spec.exclusive_minimum and not value > lo:
-            raise CaseError(f"{where} = {_fmt(given)}: must be greater than {lo:g}{unit}.")
-        if not value >= lo:
-            raise CaseError(f"{where} = {_fmt(given)}: must be at least {lo:g}{unit}.")
-    if hi is not None and not value <= hi:
-        raise CaseError(f"{where} = {_fmt(given)}: must be at most {hi:g}{unit}.")
-
-
-def _read_section(name: str, table, specs: dict[str, Key]) -> dict:
-    if not isinstance(table, dict):
-        raise CaseError(f"[{name}] must be a table of keys, got {_fmt(table)}.")
-    out = {}
-    for key in table:
-        if key not in specs:
-            raise CaseError(f"unknown key '{name}.{key}'.{_nearest(key, specs)} "
-                            f"Keys of [{name}]: {_allowed_keys(specs)}.")
-    for key, spec in specs.items():
-        if key in table:
-            out[key] = convert(f"{name}.{key}", table[key], spec)
-        elif spec.required:
-            raise CaseError(f"missing key '{name}.{key}' ({spec.meaning}).")
-        else:
-            out[key] = spec.default
-    return out
-
-
-def _reaction_notes(num, model, given: dict) -> list[str]:
-    """Check ``numerics.reaction`` against the model and ``numerics.gating``; the stability warning."""
-    from cable.kernels import schemes
-
-    if num.reaction == schemes.DEFAULT:
-        return []
-    if model.kinetics is None:
-        raise CaseError(f"numerics.reaction = \"{num.reaction}\": model '{model.name}' supplies no kinetics "
-                        f"kernel, so only \"rush-larsen\" applies to it.")
-    if "gating" in given and num.gating != "rush-larsen":
-        raise CaseError(f"numerics.gating = \"{num.gating}\" selects the gate update of numerics.reaction = "
-                        f"\"rush-larsen\" only; with reaction = \"{num.reaction}\" leave gating out.")
-    note = schemes.stability_note(model.name, num.reaction, num.dt)
-    return [note] if note else []
-
-
-def _check_dt_max(num) -> None:
-    """Refuse ``numerics.dt_max`` below dt, and with the schemes adaptive steps are not safe with."""
-    if num.dt_max is None:
-        return
-    if num.dt_max < num.dt * (1.0 - 1e-9):
-        raise CaseError(f"numerics.dt_max = {num.dt_max:g} ms is shorter than numerics.dt = {num.dt:g} ms: dt is "
-                        f"the finest step and dt_max the longest; give dt_max >= dt (at least 2 dt to adapt), or "
-                        f"leave it out for fixed steps.")
-    if not num.adaptive:
-        return
-    unsafe = []
-    if num.gating != "rush-larsen":
-        unsafe.append(f"numerics.gating = \"{num.gating}\" (a forward-Euler gate is unstable beyond twice its "
-                      f"time constant, far below dt_max for the fast gates; use \"rush-larsen\")")
-    if num.reaction != "rush-larsen":
-        unsafe.append(f"numerics.reaction = \"{num.reaction}\" (adaptive steps use the model's own Rush-Larsen "
-                      f"step; use \"rush-larsen\")")
-    if num.diffusion == "forward-euler":
-        unsafe.append("numerics.diffusion = \"forward-euler\" (its stability limit holds for dt, not for the long "
-                      "steps; use \"crank-nicolson\")")
-    if unsafe:
-        raise CaseError(f"numerics.dt_max = {num.dt_max:g} ms: adaptive time steps are not available with "
-                        + "; nor with ".join(unsafe) + ". Or leave numerics.dt_max out.")
-
-
-# ----------------------------------------------------------------------------- --set
-def parse_assignment(text: str, option: str = "--set") -> tuple[str, object]:
-    """Split ``KEY=VALUE`` and read VALUE as a TOML value (a bare word is a string).
-
-    ``option`` names the command-line option in messages (``--set``, ``--vary``).
-    """
-    if not isinstance(text, str) or "=" not in text:
-        example = "membrane.scale.g_Na=[1,0.5]" if option in ("--over", "--vary") else "membrane.scale.g_Na=0.5"
-        raise CaseError(f"{option} {text!r}: expected KEY=VALUE, e.g. {example}.")
-    key, value = text.split("=", 1)
-    key, value = key.strip(), value.strip()
-    try:
-        parsed = tomllib.loads(f"v = {value}")["v"]
-    except tomllib.TOMLDecodeError:
-        parsed = value
-    except RecursionError:
-        raise CaseError(f"{option} {key}: the value is nested too deeply.") from None
-    return key, parsed
-
-
-def set_key(raw: dict, dotted: str, value, notes: list | None = None) -> None:
-    """Set ``section.key`` (named entries: ``stimulus.S1.amplitude``) in a raw case.
-
-    The key may use the other spellings of :mod:`cable.case.names` (``fibre.dx``, an
-    index ``stimulus.0.start``); a note on each old one is appended to ``notes``.
-    """
-    parts = dotted.split(".")
-    if not all(parts):
-        raise CaseError(f"key {dotted!r} is not a dotted case key such as membrane.scale.g_Na.")
-    dotted = names.canonical_key(dotted, raw, notes)
-    parts = dotted.split(".")
-    node = raw
-    for depth, part in enumerate(parts[:-1]):
-        nxt = parts[depth + 1]
-        if not isinstance(node, (dict, list)):
-            _not_a_table(dotted, parts[:depth], node)
-        if isinstance(node, list):
-            index = _index(dotted, part, node)
-            node = node[index]
-            continue
-        part = _spelt_as(node, part, parts[depth - 1] if depth else "")
-        if part not in node:
-            if depth == 0 and part not in SECTIONS and part not in _extra_sections():
-                raise CaseError(f"unknown section '{part}' in key {dotted!r}.{_nearest(part, _all_sections())}")
-            node[part] = [] if nxt.isdigit() else {}
-        node = node[part]
-        if isinstance(node, dict) and nxt.isdigit() and part in _list_sections():
-            raise CaseError(f"{dotted!r}: [{part}] is a single table; write [[{part}]] to index it.")
-    last = parts[-1]
-    if isinstance(node, list):
-        node[_index(dotted, last, node)] = value
-    elif isinstance(node, dict):
-        node[_spelt_as(node, last, parts[-2] if len(parts) > 1 else "")] = value
-    else:
-        _not_a_table(dotted, parts[:-1], node)
-
-
-#: tables keyed by a model's names (conductances, parameters), where case is not significant
-_NAME_TABLES = {"scale", "parameters", "block"}
-
-
-def _spelt_as(node: dict, part: str, parent: str) -> str:
-    """``part`` as the table already spells it: ``--set membrane.scale.g_Na`` replaces a
-    case's ``G_Na`` rather than adding a second entry (model names ignore case)."""
-    if parent not in _NAME_TABLES or part in node:
-        return part
-    same = [k for k in node if str(k).casefold() == part.casefold()]
-    return same[0] if len(same) == 1 else part
-
-
-def _not_a_table(dotted, head, node):
-    where = ".".join(head)
-    raise CaseError(f"key {dotted!r}: {where} = {_fmt(node)} is a value, not a table, so it has no key "
-                    f"'{dotted[len(where) + 1:]}'; set {where} itself, e.g. --set {where}=...")
-
-
-def _index(dotted, part, seq):
-    if not part.isdigit():
-        raise CaseError(f"key {dotted!r}: '{part}' must be a list index (0 to {len(seq) - 1}).")
-    index = int(part)
-    if index >= len(seq):
-        section = dotted.split(".")[0]
-        raise CaseError(f"key {dotted!r}: index {index} is out of range; the case has {len(seq)} "
-                        f"{'entry' if len(seq) == 1 else 'entries'} ({'none' if not seq else f'0 to {len(seq) - 1}'}). "
-                        f"To add one, give the whole list, e.g. --set '{section}=[{{...}}, {{...}}]'.")
-    return index
-
-
-# Other modules (regions, sweeps) register the sections they own here, at import of
-# cable.case; they are validated by the function given.
-_EXTERNAL: dict[str, tuple[bool, object]] = {}
-
-
-def register_section(name: str, *, is_list: bool, validate) -> None:
-    """Let another module own a case section: ``validate(raw_value, case_so_far) -> value``."""
-    _EXTERNAL[name] = (is_list, validate)
-
-
-def _extra_sections():
-    return set(_EXTERNAL)
-
-
-def _all_sections():
-    return set(SECTIONS) | set(_EXTERNAL)
-
-
-def _list_sections():
-    return set(LIST_SECTIONS) | {k for k, (is_list, _) in _EXTERNAL.items() if is_list}
-
-
-# ----------------------------------------------------------------------------- loading
 def load_case(source=None, overrides=(), *, text: str | None = None) -> Case:
     """Load and validate a case.
 
@@ -447,14 +67,14 @@ def load_case(source=None, overrides=(), *, text: str | None = None) -> Case:
             if not isinstance(text, str):
                 raise CaseError(f"load_case(text={text!r}): text must be a string of TOML, not "
                                 f"{type(text).__name__}.")
-            raw = _parse_toml(text, None)
+            raw = parse_toml(text, None)
         elif isinstance(source, Case):
             raw = copy.deepcopy(source.raw)
         elif isinstance(source, dict):
             raw = copy.deepcopy(source)
         else:
-            raw = _read_toml(source)
-            _anchor_cellml_path(raw, source)
+            raw = read_toml(source)
+            anchor_cellml_path(raw, source)
         notes = names.canonical_raw(raw) if isinstance(raw, dict) else []
         if isinstance(overrides, (str, bytes)):
             overrides = [overrides]
@@ -464,102 +84,66 @@ def load_case(source=None, overrides=(), *, text: str | None = None) -> Case:
         return from_dict(raw, notes=notes)
     except RecursionError:
         raise CaseError(f"the case is nested too deeply (tables or lists within lists more than "
-                        f"{_MAX_DEPTH} levels); a case has sections of keys and short lists.") from None
-
-
-#: deepest nesting of tables and lists accepted in a case
-_MAX_DEPTH = 32
-
-
-def _depth(value, limit: int = _MAX_DEPTH) -> int:
-    """Nesting depth of tables/lists, counted without recursion (stops past ``limit``)."""
-    stack, deepest = [(value, 0)], 0
-    while stack:
-        node, d = stack.pop()
-        deepest = max(deepest, d)
-        if deepest > limit:
-            return deepest
-        if isinstance(node, dict):
-            stack.extend((v, d + 1) for v in node.values())
-        elif isinstance(node, (list, tuple)):
-            stack.extend((v, d + 1) for v in node)
-    return deepest
-
-
-def _anchor_cellml_path(raw: dict, source) -> None:
-    """A CellML path in a case file is relative to the file: made absolute here."""
-    mem = raw.get("membrane") if isinstance(raw, dict) else None
-    is_file = isinstance(source, (str, os.PathLike)) and _names_file(os.fspath(source))
-    if not isinstance(mem, dict) or not is_file:
-        return
-    for key in ("cellml", "model"):
-        value = mem.get(key)
-        if isinstance(value, str) and value.split("?")[0].lower().endswith(".cellml") \
-                and not Path(value).expanduser().is_absolute():
-            mem[key] = str(Path(source).resolve().parent / value)
-
-
-def _read_toml(source) -> dict:
-    if isinstance(source, str) and "\n" in source.strip() and not _names_file(source):
-        return _parse_toml(source, None)  # TOML text given as source (several lines): as before
-    if not isinstance(source, (str, os.PathLike)):
-        raise CaseError(f"case = {source!r}: give a path to a TOML case file, a dict, a Case, or TOML text as "
-                        f"load_case(text=...); not {type(source).__name__}.")
-    path = Path(source)
-    if path.is_dir():
-        raise CaseError(f"case file '{source}' is a folder; give the TOML file inside it"
-                        + (f" (there: {', '.join(sorted(p.name for p in path.glob('*.toml'))[:5])})."
-                           if any(path.glob("*.toml")) else "."))
-    if not path.is_file():
-        if path.exists():
-            raise CaseError(f"case file '{source}' is not a regular file.")
-        raise CaseError(f"case file '{source}' not found.")
-    try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise CaseError(f"case file '{source}' cannot be read: {exc}.") from None
-    return _parse_toml(text, path)
-
-
-def _names_file(source: str) -> bool:
-    try:
-        return Path(source).is_file()
-    except (OSError, ValueError):  # a name too long, or with a NUL: not a file
-        return False
-
-
-def _parse_toml(text: str, path) -> dict:
-    where = f"case file '{path}'" if path else "case text"
-    try:
-        raw = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise CaseError(f"{where} is not valid TOML: {exc}.") from None
-    except RecursionError:
-        raise CaseError(f"{where} is nested too deeply (more than {_MAX_DEPTH} levels of tables or lists).") from None
-    if _depth(raw) > _MAX_DEPTH:
-        raise CaseError(f"{where} is nested too deeply (more than {_MAX_DEPTH} levels of tables or lists); a case "
-                        f"has sections of keys and short lists.")
-    return raw
+                        f"{MAX_DEPTH} levels); a case has sections of keys and short lists.") from None
 
 
 def from_dict(raw: dict, *, notes=()) -> Case:
     """Validate a raw case dict (see :func:`load_case`); ``notes`` are added to the case's."""
-    from cable.membrane import UnknownModelError, get_model
-
     if not isinstance(raw, dict):
         raise CaseError(f"a case must be a table of sections, got {_fmt(raw)}.")
     raw = copy.deepcopy(raw)
     notes = list(dict.fromkeys([*notes, *names.canonical_raw(raw)]))
+    known = sections.all_names()
     for name in raw:
-        if name not in _all_sections():
-            raise CaseError(f"unknown section [{name}].{_nearest(name, _all_sections())} "
-                            f"Sections: {_allowed_keys(_all_sections())}.")
+        if name not in known:
+            raise CaseError(f"unknown section [{name}].{nearest(name, known)} Sections: {allowed_keys(known)}.")
     if "membrane" not in raw:
         raise CaseError("missing section [membrane] (at least: model = \"hodgkin-huxley-1952\"; see `cable models`).")
     if "run" not in raw:
         raise CaseError("missing section [run] (duration = ... ms).")
 
-    mem = _read_section("membrane", raw["membrane"], SECTIONS["membrane"])
+    membrane, model = _read_membrane(raw, notes)
+    fiber = _read_fiber_section(raw, membrane, notes)
+    stimuli = _read_stimuli(raw, fiber)
+    num = _read_numerics(raw, model, notes)
+    run = read_section("run", raw["run"], SECTIONS["run"])
+    out = read_section("output", raw.get("output", {}), SECTIONS["output"])
+    meas = read_section("measure", raw.get("measure", {}), SECTIONS["measure"])
+
+    out["states"] = tuple(resolve_name(model, name, "state", "output.states", notes) for name in out["states"])
+    _check_size(num, run["duration"], membrane.prepace, fiber)
+    every = _output_every(out["every"], num, run["duration"], notes)
+    cv_window = _cv_window(meas["cv_window"], raw, fiber)
+    levels = _apd_levels(meas["apd_levels"])
+    if fiber is not None and num.diffusion == "forward-euler":
+        from cable.fiber import check_forward_euler
+
+        check_forward_euler(fiber, num)
+
+    case = Case(membrane=membrane, fiber=fiber, stimuli=stimuli, numerics=num,
+                duration=run["duration"], output_every=every, output_states=tuple(out["states"]),
+                threshold=meas["threshold"], cv_window=cv_window, apd_levels=levels, raw=copy.deepcopy(raw),
+                notes=tuple(notes), stop_when_quiet=run["stop_when_quiet"], quiet_tolerance=run["quiet_tolerance"],
+                safety_factor=meas["safety_factor"], safety_factor_length=meas["safety_factor_length"],
+                keep_fields=out["keep_fields"])
+    extra = {}
+    for owned in sections.owned():
+        if owned.name in raw:
+            extra[owned.name] = owned.validate(raw[owned.name], case)
+    if extra:
+        case = replace(case, extra=extra)
+    return case
+
+
+def _fmt(value) -> str:
+    return repr(value)
+
+
+def _read_membrane(raw: dict, notes: list):
+    """``[membrane]`` -> (Membrane, the model)."""
+    from cable.membrane import UnknownModelError, get_model
+
+    mem = read_section("membrane", raw["membrane"], SECTIONS["membrane"])
     mem["model"] = _model_name(mem)
     try:
         model = get_model(mem["model"])
@@ -572,37 +156,47 @@ def from_dict(raw: dict, *, notes=()) -> Case:
     scale = _read_scale(mem["scale"] or {}, model, notes)
     params = _read_parameters(mem["parameters"] or {}, model, notes)
     if mem["temperature"] is not None:
-        if model.temperature_parameter is None:
-            raise CaseError(f"membrane.temperature: model '{model.name}' has no temperature dependence; remove the key.")
-        if model.temperature_parameter in params:
-            # one quantity, two keys: refuse rather than let one of them win silently
-            given = next(v for k, v in raw["membrane"]["parameters"].items()
-                         if model.resolve(k)[0] == model.temperature_parameter)
-            raise CaseError(f"membrane.temperature = {raw['membrane']['temperature']!r} and "
-                            f"membrane.parameters.{model.temperature_parameter} = {given!r} both set the "
-                            f"temperature; give it once (either key).")
-        params[model.temperature_parameter] = _param_value("membrane.temperature", raw["membrane"]["temperature"],
-                                                           model.parameter(model.temperature_parameter))
-        t_c = params[model.temperature_parameter]
-        if not PHYSIOLOGICAL_TEMPERATURE[0] <= t_c <= PHYSIOLOGICAL_TEMPERATURE[1]:
-            notes.append(f"warning: membrane.temperature = {t_c:g} degC is outside the physiological range "
-                         f"{PHYSIOLOGICAL_TEMPERATURE[0]:g}-{PHYSIOLOGICAL_TEMPERATURE[1]:g} degC; the model's "
-                         f"temperature scaling was not validated there.")
+        _read_temperature(raw["membrane"], model, params, notes)
     prepace = _read_prepace(mem["prepace"]) if mem["prepace"] is not None else None
     if prepace is not None and prepace["beats"] == 0:
         prepace = None  # beats = 0 switches pre-pacing off (the nodes start as without [membrane.prepace])
-    membrane = Membrane(model.name, mem["temperature"], scale, params, prepace, mem["capacitance"])
+    return Membrane(model.name, mem["temperature"], scale, params, prepace, mem["capacitance"]), model
 
-    fiber = None
-    if "fiber" in raw:
-        fiber = _read_fiber(_read_section("fiber", raw["fiber"], SECTIONS["fiber"]), notes)
-        if mem["capacitance"] is not None:
-            given = raw["fiber"].get("capacitance")
-            if given is not None and fiber.capacitance != mem["capacitance"]:
-                raise CaseError(f"membrane.capacitance = {raw['membrane']['capacitance']!r} and fiber.capacitance = "
-                                f"{given!r} differ; give C_m once (either key).")
-            fiber = replace(fiber, capacitance=mem["capacitance"])
 
+def _read_temperature(given: dict, model, params: dict, notes: list) -> None:
+    """``membrane.temperature`` into the model's temperature parameter (in ``params``)."""
+    if model.temperature_parameter is None:
+        raise CaseError(f"membrane.temperature: model '{model.name}' has no temperature dependence; remove the key.")
+    if model.temperature_parameter in params:
+        # one quantity, two keys: refuse rather than let one of them win silently
+        twice = next(v for k, v in given["parameters"].items() if model.resolve(k)[0] == model.temperature_parameter)
+        raise CaseError(f"membrane.temperature = {given['temperature']!r} and "
+                        f"membrane.parameters.{model.temperature_parameter} = {twice!r} both set the "
+                        f"temperature; give it once (either key).")
+    params[model.temperature_parameter] = param_value("membrane.temperature", given["temperature"],
+                                                      model.parameter(model.temperature_parameter))
+    t_c = params[model.temperature_parameter]
+    if not PHYSIOLOGICAL_TEMPERATURE[0] <= t_c <= PHYSIOLOGICAL_TEMPERATURE[1]:
+        notes.append(f"warning: membrane.temperature = {t_c:g} degC is outside the physiological range "
+                     f"{PHYSIOLOGICAL_TEMPERATURE[0]:g}-{PHYSIOLOGICAL_TEMPERATURE[1]:g} degC; the model's "
+                     f"temperature scaling was not validated there.")
+
+
+def _read_fiber_section(raw: dict, membrane: Membrane, notes: list) -> Fiber | None:
+    """``[fiber]`` (None without one), its C_m reconciled with ``membrane.capacitance``."""
+    if "fiber" not in raw:
+        return None
+    fiber = _read_fiber(read_section("fiber", raw["fiber"], SECTIONS["fiber"]), notes)
+    if membrane.capacitance is not None:
+        given = raw["fiber"].get("capacitance")
+        if given is not None and fiber.capacitance != membrane.capacitance:
+            raise CaseError(f"membrane.capacitance = {raw['membrane']['capacitance']!r} and fiber.capacitance = "
+                            f"{given!r} differ; give C_m once (either key).")
+        fiber = replace(fiber, capacitance=membrane.capacitance)
+    return fiber
+
+
+def _read_stimuli(raw: dict, fiber: Fiber | None) -> tuple[Stimulus, ...]:
     stim_raw = raw.get("stimulus", {})
     if not isinstance(stim_raw, dict):
         raise CaseError("[stimulus] must hold named tables of keys, e.g. [stimulus.S1] with amplitude = ... and "
@@ -611,8 +205,11 @@ def from_dict(raw: dict, *, notes=()) -> Case:
     if fiber is not None and fiber.initial == "one-way" and not stimuli:
         raise CaseError("fiber.initial = \"one-way\" needs a [stimulus.S1]: the first stimulus starts the wave in "
                         "the open strand whose state begins the ring.")
+    return stimuli
 
-    num = Numerics(**_read_section("numerics", raw.get("numerics", {}), SECTIONS["numerics"]))
+
+def _read_numerics(raw: dict, model, notes: list) -> Numerics:
+    num = Numerics(**read_section("numerics", raw.get("numerics", {}), SECTIONS["numerics"]))
     notes.extend(_reaction_notes(num, model, raw.get("numerics", {})))
     _check_dt_max(num)
     if num.adaptive:
@@ -621,17 +218,17 @@ def from_dict(raw: dict, *, notes=()) -> Case:
         note = stability_note(model.name, num.dt, num.dt_max)
         if note:
             notes.append(note)
-    run = _read_section("run", raw["run"], SECTIONS["run"])
-    out = _read_section("output", raw.get("output", {}), SECTIONS["output"])
-    meas = _read_section("measure", raw.get("measure", {}), SECTIONS["measure"])
+    return num
 
-    out["states"] = tuple(resolve_name(model, name, "state", "output.states", notes) for name in out["states"])
-    if num.dt > run["duration"]:
-        raise CaseError(f"numerics.dt = {num.dt:g} ms is longer than run.duration = {run['duration']:g} ms.")
-    steps = run["duration"] / num.dt
+
+def _check_size(num: Numerics, duration: float, prepace: dict | None, fiber: Fiber | None) -> None:
+    """Refuse a run (or its pre-pacing) beyond :data:`MAX_STEPS` steps or :data:`MAX_NODE_STEPS`."""
+    if num.dt > duration:
+        raise CaseError(f"numerics.dt = {num.dt:g} ms is longer than run.duration = {duration:g} ms.")
+    steps = duration / num.dt
     if steps > MAX_STEPS:
         raise CaseError(f"numerics.dt = {num.dt:g} ms gives {steps:.3g} steps over run.duration = "
-                        f"{run['duration']:g} ms; at most {MAX_STEPS:.0e} are allowed. Increase dt or shorten the run.")
+                        f"{duration:g} ms; at most {MAX_STEPS:.0e} are allowed. Increase dt or shorten the run.")
     if prepace is not None:
         pdt = prepace["dt"] if prepace["dt"] is not None else num.dt
         psteps = prepace["beats"] * prepace["cycle_length"] / pdt
@@ -643,25 +240,36 @@ def from_dict(raw: dict, *, notes=()) -> Case:
         raise CaseError(f"the run needs {steps * fiber.n_nodes:.6g} node-steps ({fiber.n_nodes} nodes x {steps:.6g} "
                         f"steps); at most {MAX_NODE_STEPS:.6g} are allowed. Increase fiber.dx or numerics.dt, or "
                         f"shorten the fibre or the run.")
-    every = out["every"]
+
+
+def _output_every(every: float, num: Numerics, duration: float, notes: list) -> float:
+    """``output.every``, rounded to a whole number of steps (with a note)."""
     ratio = every / num.dt
     if abs(ratio - round(ratio)) > 1e-9 * max(1.0, ratio) or round(ratio) < 1:
         new_every = max(1, round(ratio)) * num.dt
         notes.append(f"output.every = {every:g} ms is not a multiple of numerics.dt = {num.dt:g} ms; "
                      f"using {new_every:g} ms.")
         every = new_every
-    if every > run["duration"]:
-        raise CaseError(f"output.every = {every:g} ms is longer than run.duration = {run['duration']:g} ms.")
-    cv_window = meas["cv_window"]
-    if cv_window is not None:
-        if len(cv_window) != 2 or not cv_window[0] < cv_window[1]:
-            raise CaseError(f"measure.cv_window = {raw['measure']['cv_window']!r}: give two positions, left < right.")
-        if fiber is None:
-            raise CaseError("measure.cv_window needs a [fiber].")
-        if cv_window[0] < 0 or cv_window[1] > fiber.length + 1e-12:
-            raise CaseError(f"measure.cv_window = {raw['measure']['cv_window']!r}: must lie inside the fibre "
-                            f"(0 to {fiber.length:g} cm).")
-    levels = tuple(meas["apd_levels"])
+    if every > duration:
+        raise CaseError(f"output.every = {every:g} ms is longer than run.duration = {duration:g} ms.")
+    return every
+
+
+def _cv_window(cv_window, raw: dict, fiber: Fiber | None) -> tuple[float, float] | None:
+    if cv_window is None:
+        return None
+    if len(cv_window) != 2 or not cv_window[0] < cv_window[1]:
+        raise CaseError(f"measure.cv_window = {raw['measure']['cv_window']!r}: give two positions, left < right.")
+    if fiber is None:
+        raise CaseError("measure.cv_window needs a [fiber].")
+    if cv_window[0] < 0 or cv_window[1] > fiber.length + 1e-12:
+        raise CaseError(f"measure.cv_window = {raw['measure']['cv_window']!r}: must lie inside the fibre "
+                        f"(0 to {fiber.length:g} cm).")
+    return tuple(cv_window)
+
+
+def _apd_levels(given) -> tuple[float, ...]:
+    levels = tuple(given)
     for lvl in levels:
         if not 0.0 < lvl < 100.0:
             raise CaseError(f"measure.apd_levels: {lvl:g} must be a percentage between 0 and 100 (e.g. 90).")
@@ -670,49 +278,7 @@ def from_dict(raw: dict, *, notes=()) -> Case:
                         f"level once, e.g. [50, 90].")
     if 90.0 not in levels:
         levels += (90.0,)  # the wavelength (CV x APD90) and the summaries need APD90
-    if fiber is not None and num.diffusion == "forward-euler":
-        from cable.fiber import forward_euler_limit
-
-        limit = forward_euler_limit(fiber, num)
-        if num.dt > limit:
-            raise CaseError(f"numerics.dt = {num.dt:g} ms exceeds the stability limit of forward-Euler diffusion, "
-                            f"{limit:.4g} ms, for dx = {fiber.dx:g} cm and D = {fiber.diffusivity:.4g} cm^2/ms; "
-                            f"reduce dt or use diffusion = \"crank-nicolson\".")
-
-    case = Case(membrane=membrane, fiber=fiber, stimuli=stimuli, numerics=num,
-                duration=run["duration"], output_every=every, output_states=tuple(out["states"]),
-                threshold=meas["threshold"], cv_window=tuple(cv_window) if cv_window else None,
-                apd_levels=levels, raw=copy.deepcopy(raw), notes=tuple(notes),
-                stop_when_quiet=run["stop_when_quiet"], quiet_tolerance=run["quiet_tolerance"])
-    extra = {}
-    for name, (is_list, validate) in _EXTERNAL.items():
-        if name in raw:
-            extra[name] = validate(raw[name], case)
-    if extra:
-        case = replace(case, extra=extra)
-    return case
-
-
-def _param_value(where, value, par):
-    if par.choices is not None:
-        if value not in par.choices:
-            raise CaseError(f"{where} = {_fmt(value)}: allowed values are "
-                            f"{', '.join(repr(c) for c in par.choices)}.{_nearest(value, par.choices)}")
-        return value
-    # converted to the parameter's own declared unit (the model's internal one), so that a
-    # value written in the unit `cable models` lists is accepted whatever its quantity kind
-    unit = par.units if par.units not in ("", "1") else "1"
-    try:
-        out = units.to_unit(value, unit, par.quantity)
-    except units.UnitError as exc:
-        raise CaseError(f"{where} = {_fmt(value)}: {exc}. Give a number in {unit} or a string with a unit.") from None
-    if not math.isfinite(out):
-        raise CaseError(f"{where} = {_fmt(value)}: must be a finite number.")
-    if par.minimum is not None and not out >= par.minimum:
-        raise CaseError(f"{where} = {_fmt(value)}: must be at least {par.minimum:g} {unit}.")
-    if par.maximum is not None and not out <= par.maximum:
-        raise CaseError(f"{where} = {_fmt(value)}: must be at most {par.maximum:g} {unit}.")
-    return out
+    return levels
 
 
 def _model_name(mem: dict) -> str:
@@ -734,51 +300,15 @@ def _model_name(mem: dict) -> str:
     return mem["model"]
 
 
-_KINDS = {"conductance": ("a scalable conductance", "Scalable", "conductances"),
-          "parameter": ("a parameter", "Parameters", "parameter_names"),
-          "state": ("a state", "States", "state_names")}
-
-
-def resolve_name(model, name, kind: str, where: str, notes: list | None = None) -> str:
-    """The model's name for a conductance, parameter or state as a case writes it.
-
-    Accepts what :meth:`cable.membrane.base.MembraneModel.resolve` accepts (``g_Na`` for
-    ``G_Na``; an earlier name, whose note is appended to ``notes``); anything else is a
-    CaseError naming ``where``, with the nearest name and the list of valid ones.
-    """
-    found, note = model.resolve(name, kind)
-    if found is None:
-        what, label, attr = _KINDS[kind]
-        valid = getattr(model, attr)
-        raise CaseError(f"{where}: '{name}' is not {what} of '{model.name}'.{_nearest(name, valid)} "
-                        f"{label}: {', '.join(valid) or '(none)'}.")
-    if note and notes is not None and note not in notes:
-        notes.append(note)
-    return found
-
-
-def _resolved_table(table: dict, model, kind: str, section: str, notes=None) -> dict:
-    """``{model's name: value}`` of a table keyed by names; a name given twice is refused."""
-    out, given = {}, {}
-    for name, value in table.items():
-        found = resolve_name(model, name, kind, f"{section}.{name}", notes)
-        if found in given:
-            raise CaseError(f"{section}: '{given[found]}' and '{name}' both name {model.name}'s '{found}'; "
-                            f"give it once.")
-        given[found] = name
-        out[found] = value
-    return out
-
-
 def _read_scale(table: dict, model, notes=None) -> dict:
-    table = _resolved_table(table, model, "conductance", "membrane.scale", notes)
+    table = resolved_table(table, model, "conductance", "membrane.scale", notes)
     return {name: convert(f"membrane.scale.{name}", value, Key("quantity", minimum=0.0))
             for name, value in table.items()}
 
 
 def _read_parameters(table: dict, model, notes=None) -> dict:
-    table = _resolved_table(table, model, "parameter", "membrane.parameters", notes)
-    return {name: _param_value(f"membrane.parameters.{name}", value, model.parameter(name))
+    table = resolved_table(table, model, "parameter", "membrane.parameters", notes)
+    return {name: param_value(f"membrane.parameters.{name}", value, model.parameter(name))
             for name, value in table.items()}
 
 
@@ -795,7 +325,7 @@ PREPACE_KEYS = {
 
 
 def _read_prepace(table) -> dict:
-    return _read_section("membrane.prepace", table, PREPACE_KEYS)
+    return read_section("membrane.prepace", table, PREPACE_KEYS)
 
 
 def _read_fiber(f: dict, notes: list) -> Fiber:
@@ -848,7 +378,7 @@ def _grid_pairs(length: float, dx: float) -> str:
 
 
 def _read_stimulus(k: str, table, fiber: Fiber | None) -> Stimulus:
-    s = _read_section(f"stimulus.{k}", table, SECTIONS["stimulus"])
+    s = read_section(f"stimulus.{k}", table, SECTIONS["stimulus"])
     if s["count"] > 1 and s["cycle_length"] is None:
         raise CaseError(f"stimulus.{k}.count = {s['count']} needs stimulus.{k}.cycle_length.")
     if s["cycle_length"] is not None and s["count"] > 1 and s["cycle_length"] < s["duration"]:
@@ -863,56 +393,42 @@ def _read_stimulus(k: str, table, fiber: Fiber | None) -> Stimulus:
     return Stimulus(**s, name=str(k))
 
 
-# ----------------------------------------------------------------------------- TOML out
-def dumps_toml(raw: dict) -> str:
-    """Write a raw case dict as TOML (the subset case files use)."""
-    lines: list[str] = []
+def _reaction_notes(num, model, given: dict) -> list[str]:
+    """Check ``numerics.reaction`` against the model and ``numerics.gating``; the stability warning."""
+    from cable.kernels import schemes
 
-    def value(v):
-        if isinstance(v, bool):
-            return "true" if v else "false"
-        if isinstance(v, (int, float)):
-            if isinstance(v, float) and not math.isfinite(v):
-                return "nan" if math.isnan(v) else ("inf" if v > 0 else "-inf")
-            return repr(v)
-        if isinstance(v, str):
-            return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
-        if isinstance(v, (list, tuple)):
-            return "[" + ", ".join(value(x) for x in v) + "]"
-        if isinstance(v, dict):
-            return "{" + ", ".join(f"{_bare(k)} = {value(x)}" for k, x in v.items()) + "}"
-        raise TypeError(f"cannot write {v!r} as TOML")
-
-    def table(prefix, d, header):
-        scalars = {k: v for k, v in d.items() if not isinstance(v, dict) and not _is_table_list(v)}
-        subs = {k: v for k, v in d.items() if isinstance(v, dict)}
-        lists = {k: v for k, v in d.items() if _is_table_list(v)}
-        # a table of named tables only ([stimulus] holding [stimulus.S1]) needs no header of its own
-        header = header if scalars or lists or not subs else None
-        if header:
-            lines.append(header)
-        for k, v in scalars.items():
-            lines.append(f"{_bare(k)} = {value(v)}")
-        if header or scalars:
-            lines.append("")
-        for k, v in subs.items():
-            name = f"{prefix}.{_bare(k)}" if prefix else _bare(k)
-            table(name, v, f"[{name}]")
-        for k, v in lists.items():
-            name = f"{prefix}.{_bare(k)}" if prefix else _bare(k)
-            for item in v:
-                table(name, item, f"[[{name}]]")
-
-    table("", raw, None)
-    return "\n".join(lines).strip() + "\n"
+    if num.reaction == schemes.DEFAULT:
+        return []
+    if model.kinetics is None:
+        raise CaseError(f"numerics.reaction = \"{num.reaction}\": model '{model.name}' supplies no kinetics "
+                        f"kernel, so only \"rush-larsen\" applies to it.")
+    if "gating" in given and num.gating != "rush-larsen":
+        raise CaseError(f"numerics.gating = \"{num.gating}\" selects the gate update of numerics.reaction = "
+                        f"\"rush-larsen\" only; with reaction = \"{num.reaction}\" leave gating out.")
+    note = schemes.stability_note(model.name, num.reaction, num.dt)
+    return [note] if note else []
 
 
-def _is_table_list(v):
-    return isinstance(v, list) and v and all(isinstance(x, dict) for x in v)
-
-
-def _bare(k: str) -> str:
-    k = str(k)
-    if k and all(ch.isalnum() or ch in "-_" for ch in k):
-        return k
-    return '"' + k.replace('"', '\\"') + '"'
+def _check_dt_max(num) -> None:
+    """Refuse ``numerics.dt_max`` below dt, and with the schemes adaptive steps are not safe with."""
+    if num.dt_max is None:
+        return
+    if num.dt_max < num.dt * (1.0 - 1e-9):
+        raise CaseError(f"numerics.dt_max = {num.dt_max:g} ms is shorter than numerics.dt = {num.dt:g} ms: dt is "
+                        f"the finest step and dt_max the longest; give dt_max >= dt (at least 2 dt to adapt), or "
+                        f"leave it out for fixed steps.")
+    if not num.adaptive:
+        return
+    unsafe = []
+    if num.gating != "rush-larsen":
+        unsafe.append(f"numerics.gating = \"{num.gating}\" (a forward-Euler gate is unstable beyond twice its "
+                      f"time constant, far below dt_max for the fast gates; use \"rush-larsen\")")
+    if num.reaction != "rush-larsen":
+        unsafe.append(f"numerics.reaction = \"{num.reaction}\" (adaptive steps use the model's own Rush-Larsen "
+                      f"step; use \"rush-larsen\")")
+    if num.diffusion == "forward-euler":
+        unsafe.append("numerics.diffusion = \"forward-euler\" (its stability limit holds for dt, not for the long "
+                      "steps; use \"crank-nicolson\")")
+    if unsafe:
+        raise CaseError(f"numerics.dt_max = {num.dt_max:g} ms: adaptive time steps are not available with "
+                        + "; nor with ".join(unsafe) + ". Or leave numerics.dt_max out.")

@@ -37,6 +37,6 @@ def report_text(case, output=None, timed_steps=None) -> str:
         raise CaseError(f"--timed-steps {timed_steps}: give 0 (no timed run) or more steps.")
     report = check_case(case, output=output, timed_steps=TIMED_STEPS if timed_steps is None else timed_steps)
     lines = report.lines()
-    if "sweep" in case.raw:
+    if "sweep" in case.extra:
         lines.append(SWEEP_NOTE)
     return "\n".join(lines)

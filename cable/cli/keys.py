@@ -63,7 +63,8 @@ def rows(name, keys):
 
 def run(args):
     from cable.case import CaseError
-    from cable.case.load import PREPACE_KEYS, _nearest
+    from cable.case.load import PREPACE_KEYS
+    from cable.case.values import nearest as _nearest
     from cable.case.names import section_name
     from cable.case.schema import LIST_SECTIONS, NAMED_SECTIONS, SECTIONS
     from cable.cli.models import table

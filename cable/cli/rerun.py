@@ -27,7 +27,7 @@ def add_arguments(p):
 
 def run(args):
     from cable.cli.summary import summarise
-    from cable.io.netcdf import COMPARED, rerun
+    from cable.io.rerun import COMPARED, rerun
 
     command = "cable " + " ".join(shlex.quote(a) for a in sys.argv[1:])
     report = rerun(args.result, args.output, overwrite=args.overwrite, command=command,

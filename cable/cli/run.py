@@ -44,7 +44,7 @@ def run(args):
 
         print(report_text(case, args.output))
         return 0
-    if "sweep" in case.raw:
+    if "sweep" in case.extra:
         say(args, SWEEP_NOTE)
     command = "cable " + " ".join(shlex.quote(a) for a in sys.argv[1:])
     ds = _simulate(args, case, command)

@@ -1,4 +1,4 @@
-"""netCDF output: streamed fields, CF attributes, atomic completion, rerun.
+"""netCDF output: streamed fields, CF attributes, atomic completion; reading.
 
 Fields (``vm`` and stored states) are written as float32, zlib-compressed, in chunks
 of :func:`chunk_shape`: about 256 KiB each, their time extent grown with the number of
@@ -13,17 +13,17 @@ CF conventions (CF-1.10): every variable has ``long_name`` and a ``units`` strin
 udunits reads (see :func:`cable.io.schema.cf_units`), ``standard_name`` only where CF
 defines one, flags carry ``flag_values``/``flag_meanings`` of the variable's type, and
 the global attributes carry ``Conventions``, ``history`` and the provenance (case text,
-versions, command line) from which :func:`rerun` repeats the run.
+versions, command line) from which :func:`cable.io.rerun.rerun` repeats the run.
+The checks of a target and the atomic renaming are :mod:`cable.io.files`; the rerun
+and its comparison :mod:`cable.io.rerun` (both importable from here as before).
 """
 
 from __future__ import annotations
 
 import math
-import os
 import sys
 import warnings
 import weakref
-from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -33,6 +33,7 @@ import xarray as xr
 
 from cable.case import CaseError
 from cable.io import OutputError, schema
+from cable.io.files import check_target, publish, temporary_name  # check_target: imported from here too
 
 #: elements per chunk (256 KiB of float32): big enough for zlib to work well, small
 #: enough that one trace or one profile does not decompress much more than it needs
@@ -45,13 +46,6 @@ BUFFER_BYTES = 8 * 2 ** 20
 #: nothing needs to stay cached, since the writer sends whole rows of chunks
 WRITE_CACHE_BYTES = 0
 WRITE_CACHE_SLOTS = 1
-#: the variables a rerun reports first (it compares every variable either file holds)
-COMPARED = ("activation_time", "conduction_velocity", "captured", "blocked", "block_x", "vm")
-#: global attributes that change from run to run of one case (time, machine, command
-#: line, library versions: the versions are reported apart), not compared by a rerun
-VOLATILE_ATTRS = ("history", "date_created", "command", "wall_time_s", "cable_version", "numpy_version",
-                  "numba_version", "netcdf4_python_version", "netcdf_library_version", "hdf5_version",
-                  "xarray_version", "python_version", "dask_version")
 
 
 def chunk_shape(n_t: int, n_x: int | None) -> tuple[int, ...]:
@@ -80,113 +74,8 @@ def chunk_shape(n_t: int, n_x: int | None) -> tuple[int, ...]:
     return (c_t, c_x)
 
 
-def check_target(path, overwrite: bool, inputs=()) -> None:
-    """Refuse an output that would lose something; check its folder.
-
-    Refused: an existing file without ``overwrite``; a target that is not a regular
-    file (a folder, a FIFO, a device such as /dev/null), even with ``overwrite``; a
-    target that is one of ``inputs`` (the case file). Temporaries of this output left
-    by runs that died (``.NAME.PID.tmp`` whose process is gone) are removed.
-    """
-    path = Path(path)
-    if path.is_dir():
-        raise CaseError(f"output '{path}' is a folder; give a file name such as '{path / 'result.nc'}'.")
-    for source in inputs:
-        if source is not None and path.exists() and Path(source).exists() and os.path.samefile(path, source):
-            raise CaseError(f"output '{path}' is the input file '{source}'; writing the result there would destroy "
-                            f"the input. Give another output name, e.g. '{path.with_suffix('.nc')}'"
-                            f"{'' if path.suffix != '.nc' else ' in another folder'}.")
-    _check_regular(path)
-    if path.exists() and not overwrite:
-        raise CaseError(f"output '{path}' exists; pass --overwrite (overwrite=True) to replace it.")
-    folder = path.parent if str(path.parent) else Path(".")
-    if not folder.is_dir():
-        above = next((p for p in folder.parents if p.exists()), None) if not folder.exists() else folder
-        if above is not None and not above.is_dir():
-            raise CaseError(f"output folder '{folder}': '{above}' is a file, not a folder.")
-        raise CaseError(f"output folder '{folder}' does not exist.")
-    if not os.access(folder, os.W_OK):
-        raise CaseError(f"output folder '{folder}' is not writable.")
-    remove_stale_temporaries(path)
-
-
-def _check_regular(path: Path) -> None:
-    """Refuse to replace something that is not a regular file (FIFO, device, socket)."""
-    if (path.exists() or path.is_symlink()) and not path.is_file():
-        raise CaseError(f"output '{path}' exists and is not a regular file (a FIFO, a device or a socket); "
-                        f"cable writes results only to regular files. Give a file name.")
-
-
-def temporary_name(path) -> Path:
-    """The name a result is built under before :func:`publish`: ``.NAME.PID.tmp`` beside it."""
-    path = Path(path)
-    return path.with_name(f".{path.name}.{os.getpid()}.tmp")
-
-
-def remove_stale_temporaries(path) -> list[Path]:
-    """Remove ``.NAME.PID.tmp`` files of ``path`` whose process no longer runs (killed with SIGKILL)."""
-    path = Path(path)
-    folder = path.parent if str(path.parent) else Path(".")
-    removed = []
-    for tmp in folder.glob(f".{glob_escape(path.name)}.*.tmp"):
-        pid = tmp.name[len(path.name) + 2:-len(".tmp")]
-        if not pid.isdigit() or int(pid) == os.getpid() or _alive(int(pid)):
-            continue
-        tmp.unlink(missing_ok=True)
-        removed.append(tmp)
-    return removed
-
-
-def glob_escape(name: str) -> str:
-    import glob
-
-    return glob.escape(name)
-
-
-def _alive(pid: int) -> bool:
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:  # someone else's process: alive
-        return True
-    return True
-
-
-def publish(tmp, path, overwrite: bool) -> None:
-    """Give the finished temporary file ``tmp`` its name ``path``, atomically.
-
-    Without ``overwrite`` the name is taken exclusively (a hard link, which fails if
-    the name exists), so of two runs to one output that both passed
-    :func:`check_target`, the second is refused here rather than silently replacing
-    the first's result. ``tmp`` is removed in every case.
-    """
-    tmp, path = Path(tmp), Path(path)
-    try:
-        if overwrite:
-            _check_regular(path)
-            os.replace(tmp, path)
-            return
-        try:
-            os.link(tmp, path)
-        except FileExistsError:
-            raise CaseError(f"output '{path}' was created by another run while this one ran; it is left as that "
-                            f"run wrote it and this run's result is not kept. Pass --overwrite (overwrite=True) "
-                            f"to replace it, or choose another output.") from None
-        except OSError:  # a file system without hard links: create the name exclusively, then fill it
-            try:
-                fd = os.open(path, os.O_CREAT | os.O_EXCL | os.O_WRONLY)
-            except FileExistsError:
-                raise CaseError(f"output '{path}' was created by another run while this one ran; this run's "
-                                f"result is not kept. Pass --overwrite to replace it.") from None
-            os.close(fd)
-            os.replace(tmp, path)
-    finally:
-        tmp.unlink(missing_ok=True)
-
-
 # ----------------------------------------------------------------------------- attributes
-def _encode_attr(value):
+def encode_attr(value):
     """A netCDF attribute value: bools as int8, sequences as arrays, dicts as text."""
     if isinstance(value, (bool, np.bool_)):
         return np.int8(value)
@@ -200,7 +89,7 @@ def _encode_attr(value):
 
 def _global_attrs(attrs: dict) -> dict:
     """The run's attributes plus the writer's own provenance (CF ``history``, library versions)."""
-    out = {k: _encode_attr(v) for k, v in attrs.items() if v is not None}
+    out = {k: encode_attr(v) for k, v in attrs.items() if v is not None}
     stamp = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
     command = attrs.get("command") or ("python " + " ".join(sys.argv)).strip() + " (cable Python API)"
     out.setdefault("history", f"{stamp} {command}")
@@ -488,246 +377,14 @@ def require(ds: xr.Dataset, names, path, purpose: str) -> None:
                         f"Its variables: {have}.")
 
 
-# ----------------------------------------------------------------------------- rerun
-@dataclass
-class RerunReport:
-    """The outcome of :func:`rerun`.
-
-    Attributes
-    ----------
-    source : pathlib.Path
-        The original result file.
-    result : xarray.Dataset
-        The new result (partial if the run failed again where the original did).
-    compared : dict
-        ``{name: (identical, largest absolute difference)}`` for every variable and
-        coordinate either file holds (:data:`COMPARED` first); ``identical`` counts
-        NaN = NaN; a variable only one holds is ``(False, inf)`` and listed in ``missing``.
-    versions : dict
-        ``{attribute: (recorded, now)}`` for versions that differ from the original's.
-    attributes : dict
-        ``{attribute: (original, rerun)}`` for global attributes the run determines
-        (all but :data:`VOLATILE_ATTRS`) that differ; None for one a file lacks.
-    missing : dict
-        ``{variable: "original" or "rerun"}``: the file that lacks it.
-    """
-
-    source: Path
-    result: xr.Dataset
-    compared: dict = field(default_factory=dict)
-    versions: dict = field(default_factory=dict)
-    attributes: dict = field(default_factory=dict)
-    missing: dict = field(default_factory=dict)
-
-    @property
-    def identical(self) -> bool:
-        """Whether every variable, coordinate and determined attribute is bit-for-bit the same."""
-        return bool(self.compared) and all(same for same, _ in self.compared.values()) and not self.attributes
+#: names of :mod:`cable.io.rerun` that callers import from here, where they were first
+_RERUN_NAMES = ("COMPARED", "VOLATILE_ATTRS", "RerunReport", "compare", "compare_attrs", "rerun")
 
 
-def _difference(a: np.ndarray, b: np.ndarray) -> tuple[bool, float]:
-    if a.shape != b.shape:
-        return False, math.inf
-    if a.dtype.kind in "iub" and b.dtype.kind in "iub":
-        same = bool(np.array_equal(a, b))
-        return same, float(np.max(np.abs(a.astype(np.int64) - b.astype(np.int64)), initial=0))
-    a, b = a.astype(np.float64), b.astype(np.float64)
-    nan_a, nan_b = np.isnan(a), np.isnan(b)
-    if not np.array_equal(nan_a, nan_b):
-        return False, math.inf
-    ok = ~nan_a
-    diff = float(np.max(np.abs(a[ok] - b[ok]), initial=0.0))
-    return bool(np.array_equal(a[ok], b[ok])), diff
+def __getattr__(name):
+    # imported on first use: cable.io.rerun imports this module
+    if name in _RERUN_NAMES:
+        from cable.io import rerun as _rerun
 
-
-def compare(original: xr.Dataset, new: xr.Dataset, names=None) -> dict:
-    """``{name: (identical, largest absolute difference)}``.
-
-    ``names`` None: every variable and coordinate either holds (:data:`COMPARED` first);
-    one that only one of them holds is a difference, ``(False, inf)``. Fields with a
-    ``t`` dimension are compared as float32 (as stored) in blocks of samples, so a long
-    result is not loaded whole.
-    """
-    if names is None:
-        every = list(dict.fromkeys([*original.variables, *new.variables]))
-        names = [n for n in COMPARED if n in every] + [n for n in every if n not in COMPARED]
-    out = {}
-    for name in names:
-        if name not in original.variables or name not in new.variables:
-            out[name] = (False, math.inf)
-            continue
-        a, b = original[name], new[name]
-        if name == "t" and a.sizes["t"] != b.sizes["t"]:
-            # a partial file keeps every sample time; a rerun stopped at the same step holds
-            # only those computed: the common times must agree, and the fields (compared
-            # below) must be NaN past them
-            n = min(a.sizes["t"], b.sizes["t"])
-            out[name] = _difference(a.values[:n], b.values[:n])
-            continue
-        if a.dtype.kind in "OSU" or b.dtype.kind in "OSU":
-            out[name] = (bool(np.array_equal(a.values.astype(str), b.values.astype(str))), math.nan)
-            continue
-        if "t" in a.dims:
-            if a.dims != b.dims or any(a.sizes[d] != b.sizes[d] for d in a.dims if d != "t"):
-                out[name] = (False, math.inf)
-                continue
-            step = max(1, BUFFER_BYTES // (4 * max(1, a.size // a.sizes["t"])))
-            n = min(a.sizes["t"], b.sizes["t"])
-            # a partial run's file keeps every sample time, NaN past the end of the run; the
-            # rerun stopped at the same point holds only the samples computed
-            longer = a if a.sizes["t"] > n else b
-            if not all(np.all(np.isnan(longer.isel(t=slice(k, k + step)).values))
-                       for k in range(n, longer.sizes["t"], step)):
-                out[name] = (False, math.inf)
-                continue
-            same, diff = True, 0.0
-            for k in range(0, n, step):
-                sl = {"t": slice(k, min(k + step, n))}
-                s, d = _difference(a.isel(sl).values.astype(np.float32), b.isel(sl).values.astype(np.float32))
-                same, diff = same and s, max(diff, d)
-            out[name] = (same, diff)
-        else:
-            out[name] = _difference(a.values, b.values)
-    return out
-
-
-def rerun(path, output=None, *, overwrite: bool = False, command: str | None = None, info=None) -> RerunReport:
-    """Repeat a run from its result file alone and compare the new result with it.
-
-    The case is read from the file's ``case`` attribute (the TOML text of the case as
-    run, after any ``--set`` overrides); nothing else is needed.
-
-    Parameters
-    ----------
-    path : str or pathlib.Path
-        A result file written by ``cable run`` or :func:`cable.simulate`.
-    output : str or pathlib.Path, optional
-        Where to write the new result (not the original's path); kept in memory if omitted.
-    overwrite : bool
-        Replace an existing ``output``.
-    command : str, optional
-        The command line, recorded in the new file.
-    info : callable, optional
-        Receives one-line notes, as in :func:`cable.simulate`.
-
-    Returns
-    -------
-    RerunReport
-        ``report.identical`` tells whether ``activation_time`` and the other compared
-        variables match the original exactly.
-
-    Raises
-    ------
-    CaseError
-        The file is not readable, holds no case, or its case no longer loads.
-    """
-    from cable.case import load_case
-    from cable.simulate import SimulationError, simulate
-
-    from cable.arguments import check_call
-
-    if not isinstance(path, (str, os.PathLike)):
-        raise CaseError(f"rerun(path={path!r}): path must be a result file (str or pathlib.Path), not "
-                        f"{type(path).__name__}.")
-    check_call("rerun", output=output, overwrite=overwrite, command=command, info=info)
-    path = Path(path)
-    if output is not None and Path(output).resolve() == path.resolve():
-        raise CaseError(f"rerun output '{output}' is the original file; give another name, e.g. "
-                        f"'{path.with_name(path.stem + '.rerun' + path.suffix)}'.")
-    with open_result(path) as original:
-        text = original.attrs.get("case")
-        what = _not_a_run(original)
-        if what:
-            raise CaseError(f"'{path}' is {what}, not the result of one run; `cable rerun` repeats runs made by "
-                            f"`cable run` or cable.simulate(output=...). Repeat it with the command that made it "
-                            f"(its case is in the file's 'case' attribute).")
-        if not text:
-            raise CaseError(f"'{path}' has no 'case' attribute, so the run cannot be repeated from it; "
-                            "only files written by `cable run` or cable.simulate(output=...) can.")
-        try:
-            case = load_case(text=str(text))
-        except CaseError as exc:
-            raise CaseError(f"the case stored in '{path}' no longer loads: {exc}") from None
-        import numba
-
-        now = {"cable_version": _package_version(), "numpy_version": np.__version__,
-               "numba_version": numba.__version__}
-        versions = {k: (str(original.attrs[k]), v) for k, v in now.items()
-                    if k in original.attrs and str(original.attrs[k]) != v}
-        try:
-            new = simulate(case, output=output, overwrite=overwrite, command=command, info=info)
-        except SimulationError as exc:
-            if exc.partial is None:
-                raise
-            new = exc.partial
-        compared = compare(original, new)
-        missing = {n: ("original" if n not in original.variables else "rerun")
-                   for n in compared if n not in original.variables or n not in new.variables}
-        attributes = compare_attrs(original.attrs, new.attrs)
-    return RerunReport(source=path, result=new, compared=compared, versions=versions, attributes=attributes,
-                       missing=missing)
-
-
-def compare_attrs(original: dict, new: dict) -> dict:
-    """``{name: (original, new)}`` for the global attributes that differ, as they would be stored.
-
-    Compared: every attribute but :data:`VOLATILE_ATTRS`; values are compared in their
-    stored form (:func:`_encode_attr`), so an in-memory result (bools, tuples) compares
-    equal to the file it would make. The case text is compared in the loader's spelling
-    and the notes without those on old spellings (:mod:`cable.case.names`), so that a file
-    written with ``[[stimulus]]`` reruns as identical.
-    """
-    out = {}
-    for name in dict.fromkeys([*original, *new]):
-        if name in VOLATILE_ATTRS:
-            continue
-        a, b = original.get(name), new.get(name)
-        ea = None if a is None else np.asarray(_encode_attr(_as_compared(name, a)))
-        eb = None if b is None else np.asarray(_encode_attr(_as_compared(name, b)))
-        if ea is None or eb is None:
-            same = ea is None and eb is None
-        elif ea.dtype.kind in "OSU" or eb.dtype.kind in "OSU":
-            same = ea.shape == eb.shape and bool(np.all(ea.astype(str) == eb.astype(str)))
-        else:
-            same = ea.shape == eb.shape and bool(np.array_equal(ea.astype(np.float64), eb.astype(np.float64)))
-        if not same:
-            out[name] = (a, b)
-    return out
-
-
-def _as_compared(name: str, value):
-    """An attribute as a rerun compares it: the case in the loader's spelling, notes without deprecations."""
-    from cable.case import names
-
-    if name == "notes" and isinstance(value, str):
-        return names.without_deprecations(value)
-    if name == "case" and isinstance(value, str):
-        import tomllib
-
-        from cable.case.load import dumps_toml
-
-        try:
-            raw = tomllib.loads(value)
-            names.canonical_raw(raw)
-            return dumps_toml(raw)
-        except (tomllib.TOMLDecodeError, ValueError, TypeError):
-            return value
-    return value
-
-
-def _not_a_run(ds: xr.Dataset) -> str:
-    """What a result file is when it is not one run's result ("" when it is one)."""
-    attrs = ds.attrs
-    if "sweep_id" in attrs:
-        return "a sweep result (or one of its point files)"
-    if attrs.get("protocol"):
-        return f"a {attrs['protocol']} protocol result"
-    if "t" not in ds.dims or "beat_onset" not in ds.variables:
-        return "a file without the 't' dimension and 'beat_onset' of a run"
-    return ""
-
-
-def _package_version() -> str:
-    from cable import __version__
-
-    return __version__
+        return getattr(_rerun, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

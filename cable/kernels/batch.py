@@ -106,7 +106,7 @@ def loop_key(case) -> tuple:
     """
     num = case.numerics
     cm = case.fiber.capacitance if case.fiber is not None else 1.0
-    alone = bool(case.raw.get("measure", {}).get("safety_factor", False)) and case.fiber is not None
+    alone = case.safety_factor and case.fiber is not None
     return (case.membrane.model, num.dt, num.splitting, num.diffusion, num.gating, num.reaction, num.merge_half_steps,
             num.rates, case.output_every, case.duration, case.threshold, tuple(case.apd_levels),
             tuple(case.output_states), cm, alone, num.dt_max if num.adaptive else None, case.stop_when_quiet,

@@ -308,18 +308,12 @@ def tracker_for(case, grid, v0, pulses, notes: list) -> SafetyTracker:
     notes : list of str
         Receives the warning of :func:`sampling_note`.
     """
-    from cable.case.load import convert
-    from cable.case.schema import SECTIONS
-
-    given = case.raw.get("measure", {}).get("safety_factor_length")
-    if given is not None:
-        length = convert("measure.safety_factor_length", given, SECTIONS["measure"]["safety_factor_length"])
-    else:
-        length = case.fiber.cell_length or DEFAULT_LENGTH
+    given = case.safety_factor_length  # converted to cm by the loader
+    length = given if given is not None else (case.fiber.cell_length or DEFAULT_LENGTH)
     if length >= case.fiber.length:
         from cable.case import CaseError
 
-        what = f"measure.safety_factor_length = {given!r}" if given is not None else \
+        what = f"measure.safety_factor_length = {given:g}" if given is not None else \
             f"the control volume (fiber.cell_length = {length:g} cm, the default)"
         raise CaseError(f"{what}: the control volume ({length:g} cm) must be shorter than the fibre "
                         f"({case.fiber.length:g} cm); give measure.safety_factor_length, e.g. 0.01 cm (one cell).")

@@ -5,7 +5,6 @@ from __future__ import annotations
 from cable.suggest import did_you_mean
 import re
 import textwrap
-import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -154,81 +153,49 @@ class Zone:
     border: float = 0.0
 
 
-def _model_units(raw: dict) -> dict:
-    """Parameter name -> typeset unit for the case's membrane model ({} when unknown)."""
-    try:
-        from cable.membrane import get_model
-
-        model = get_model(str(raw.get("membrane", {}).get("model")))
-    except Exception:    # an unknown or missing model: values are shown without units
-        return {}
-    return {p.name: unit_text(p.units) for p in model.parameters}
-
-
 def _value(value, unit: str) -> str:
-    if isinstance(value, str):
-        return value
     text = f"{value:.4g}" if isinstance(value, float) else str(value)
     return f"{text} {unit}" if unit else text
 
 
-def _describe(item: dict, name: str, start: float, end: float, units: dict) -> str:
-    """``"region 0, 2-4 mm: K_o = 12 mM, G_Na × 0.3"`` from a region table."""
-    parts = [f"{key} = {_value(value, units.get(key, ''))}" for key, value in (item.get("parameters") or {}).items()]
-    parts += [f"{key} × {value:g}" if isinstance(value, (int, float)) else f"{key} × {value}"
-              for key, value in (item.get("scale") or {}).items()]
-    if item.get("coupling") is not None:
-        parts.append(f"coupling × {item['coupling']}")
+def _describe(region, model, name: str) -> str:
+    """``"zone, 2-4 mm: K_o = 12 mM, G_Na × 0.3"`` from a validated region (values in the model's units)."""
+    parts = []
+    for key, value in region.parameters.items():
+        par = model.parameter(key)
+        shown = par.choices[int(value)] if par.choices is not None else value  # a label is stored by its index
+        parts.append(f"{key} = {_value(shown, unit_text(par.units))}")
+    parts += [f"{key} × {value:g}" for key, value in region.scale.items()]
+    if region.coupling is not None:
+        parts.append(f"coupling × {region.coupling:g}")
+    start, end = region.start, region.end
     where = f"{start * 10:.3g}–{end * 10:.3g} mm" if end < 1.0 else f"{start:.3g}–{end:.3g} cm"
     return f"{name}, {where}" + (": " + ", ".join(parts) if parts else "")
 
 
-def _region_items(raw: dict) -> list[tuple[str, dict]]:
-    """(name, table) of each region: ``[[region]]`` entries are "region 0", "region 1"...;
-    named tables ``[region.zone]`` keep their name."""
-    items = raw.get("region", [])
-    if isinstance(items, dict):
-        if items and all(isinstance(v, dict) for v in items.values()) and "start" not in items:
-            return [(str(k), v) for k, v in items.items()]
-        items = [items]
-    out = []
-    for k, item in enumerate(items if isinstance(items, list) else []):
-        if isinstance(item, dict):
-            out.append((str(item.get("name") or item.get("label") or f"region {k}"), item))
-    return out
-
-
 def regions(ds) -> list[Zone]:
-    """Regions of the fibre from the region tables of the case text, in order.
+    """Regions of the fibre, from the case stored with the result, in order.
 
-    The case text travels in the result's ``case`` attribute; a result without one,
-    or without regions, has none. Positions may carry units (``"1 cm"``). Each zone's
-    label names the region, its extent and what differs there, with units.
+    The case text travels in the result's ``case`` attribute and is loaded (validated)
+    here: the zones are the case's :class:`cable.regions.Region` entries, in canonical
+    units. A result without a case, or whose case has no regions or does not load (a
+    CellML file no longer where it was), has none. Each zone's label names the region,
+    its extent and what differs there, with units.
     """
-    from cable import units
-
     text = getattr(ds, "attrs", {}).get("case")
     if not text:
         return []
+    from cable.case import CaseError, load_case
+    from cable.membrane import get_model
+    from cable.regions import regions_of
+
     try:
-        raw = tomllib.loads(str(text))
-    except tomllib.TOMLDecodeError:
+        case = load_case(text=str(text))
+    except CaseError:
         return []
-    found = _region_items(raw)
-    model_units = _model_units(raw) if found else {}
-    out = []
-    for name, item in found:
-        if "start" not in item or "end" not in item:
-            continue
-        try:
-            a = units.to_canonical(item["start"], "length")
-            b = units.to_canonical(item["end"], "length")
-            border = units.to_canonical(item.get("border", 0.0), "length")
-        except units.UnitError:
-            continue
-        lo, hi = min(a, b), max(a, b)
-        out.append(Zone(lo, hi, _describe(item, name, lo, hi, model_units), max(border, 0.0)))
-    return out
+    found = regions_of(case)
+    model = get_model(case.membrane.model) if found else None
+    return [Zone(r.start, r.end, _describe(r, model, r.name), r.border) for r in found]
 
 
 #: legend entries are not wrapped narrower than this [characters]

@@ -39,7 +39,6 @@ import math
 import numpy as np
 import xarray as xr
 
-from cable import units
 from cable.case import Case, CaseError, load_case
 from cable.io import schema
 from cable.protocols._journal import Journal
@@ -91,33 +90,9 @@ class NoBracketError(CaseError):
 
 def key_units(case: Case, key: str) -> str:
     """The canonical unit of a dotted case key ("" when it cannot be told)."""
-    from cable.case.schema import SECTIONS
-    from cable.membrane import get_model
+    from cable.case.key_units import unit_of
 
-    from cable.case.names import canonical_key, entry_parts
-
-    try:
-        parts = entry_parts(canonical_key(key, case.raw))
-    except CaseError:
-        return ""
-    if len(parts) == 3 and parts[1] == "scale":
-        return "1"
-    if len(parts) == 3 and parts[1] == "parameters":
-        try:
-            return get_model(case.membrane.model).parameter(parts[2]).units
-        except KeyError:
-            return ""
-    if len(parts) == 2 and parts[0] == "region":
-        from cable.regions import REGION_KEYS
-
-        spec = REGION_KEYS.get(parts[1])
-    elif len(parts) == 2 and parts[0] in SECTIONS:
-        spec = SECTIONS[parts[0]].get(parts[1])
-    else:
-        spec = None
-    if spec is None or spec.kind not in ("quantity", "int"):
-        return ""
-    return units.CANONICAL.get(spec.quantity, "")
+    return unit_of(key, case).unit
 
 
 def _number(who, name, value) -> float:

@@ -1,7 +1,8 @@
 """Parameter sweeps on Dask: ``cable.sweep(case)`` runs every point of a case's ``[sweep]``.
 
-* :mod:`cable.sweep.spec` — the ``[sweep]`` section: swept keys -> points (imported
-  with :mod:`cable.case`, so that any loaded case may carry the section);
+* :mod:`cable.sweep.spec` — the ``[sweep]`` section: swept keys -> points (declared
+  as its ``SECTION``; the case loader imports it when a case has the section, see
+  :mod:`cable.case.sections`);
 * :mod:`cable.sweep.run` — the Dask driver and the worker-side point runner;
 * :mod:`cable.sweep.store` — one netCDF file per finished point (resume), the
   assembled result, :func:`open_points` (the point files, fields included, as one

@@ -1,18 +1,20 @@
 """Running a sweep on Dask: a local cluster by default, an existing scheduler when given.
 
 The missing points are split into tasks of at most ``batch`` points (a *chunk*), each
-run by :func:`run_chunk` on a worker, which loads the chunk's cases and calls
+run by :func:`cable.sweep.worker.run_chunk` on a worker, which takes the chunk's cases
+as the client loaded them and calls
 :func:`cable.kernels.batch.simulate_batch`: points that share a time loop (same model,
 numerics, output times... see :func:`cable.kernels.batch.group_key`) run as strands of
 one kernel call, and each point's result is bitwise the one :func:`cable.simulate`
 gives for it alone (``tests/kernels/test_batch.py``; ``tests/sweep/test_run.py``).
-Before chunking, the client loads every point's case and sorts the points by
-:func:`chunk_key` (about 0.5 ms a point), so that each chunk holds points that can
+Before chunking, the client loads every point's case (once: the worker runs that
+:class:`cable.case.Case`, it does not load it again) and sorts the points by
+:func:`cable.sweep.chunks.chunk_key` (about 0.5 ms a point), so that each chunk holds points that can
 share a loop; a point whose case does not load is recorded as
 ``invalid_case`` there and then, without a task. Each group of points with one key is
 cut into chunks of nearly equal size, at most ``batch`` points each, and at most
 ``ceil(group / workers)``, so that a small sweep still gives every worker work (see
-:func:`chunks`). ``batch = 1`` runs one :func:`cable.simulate` per point.
+:func:`cable.sweep.chunks.chunks`). ``batch = 1`` runs one :func:`cable.simulate` per point.
 
 Workers are separate processes that live for the whole sweep; the compiled time loop is
 held by the worker process once loaded (numba's on-disk cache turns a fresh process's
@@ -48,8 +50,13 @@ import xarray as xr
 from cable.case import CaseError, load_case
 from cable.io import schema
 from cable.sweep import store as _store
+from cable.sweep.chunks import chunk_key, chunks
 from cable.sweep.progress import ProgressBar
 from cable.sweep.spec import point_raw
+from cable.sweep.worker import run_chunk
+
+__all__ = ["BATCH", "ClusterError", "check_sweep_size", "chunk_key", "chunks", "connect", "point_raw", "run_chunk",
+           "sweep", "sweep_id"]
 
 class ClusterError(RuntimeError):
     """Points not computed because the cluster failed (lost connection, cancelled task,
@@ -83,162 +90,6 @@ CONNECT_TIMEOUT_S = 10
 #: most points per task (``cable sweep --batch``): 16 small strands share a kernel call
 #: for most of the batch's gain (``python tools/bench_sweep.py --batch-only``)
 BATCH = 16
-
-
-# ----------------------------------------------------------------------------- worker side
-def run_chunk(raws: list, keep_fields: bool) -> list[tuple[xr.Dataset, dict]]:
-    """Run a chunk of points (on a worker) through :func:`cable.kernels.batch.simulate_batch`.
-
-    Parameters
-    ----------
-    raws : list of dict
-        The points' raw cases (the case without ``[sweep]``, with the point's values).
-    keep_fields : bool
-        Keep the space-time fields.
-
-    Returns
-    -------
-    list of (xarray.Dataset, dict)
-        One entry per point, in order: the point's Dataset (see
-        :func:`cable.sweep.store.point_dataset`) and a record of the run:
-
-        * ``worker`` (host:pid);
-        * ``first_on_worker``: this chunk loaded a time loop of the point's model into
-          the worker process (the same for every point of the chunk);
-        * ``batch_size``: how many strands shared this point's kernel call (1: it ran
-          alone, as :func:`cable.simulate`; 0: it did not run, an invalid case);
-        * ``chunk_size``: points in the chunk;
-        * ``chunk_wall_time_s`` [s]: the chunk's wall time on the worker (loading,
-          running, keeping the results), and ``wall_time_s`` [s] its share per point
-          (that time divided by ``chunk_size``).
-
-        Invalid cases and numerical failures are returned as failed points, with the
-        message :func:`cable.simulate` gives for the point alone. An unexpected error of
-        the batch reruns the chunk point by point, so that it fails only its own point.
-    """
-    from cable.kernels.batch import simulate_batch
-
-    wall0 = time.perf_counter()
-    n = len(raws)
-    data: list = [None] * n
-    sizes = [0] * n
-    cases = {}
-    for i, raw in enumerate(raws):
-        try:
-            cases[i] = load_case(raw)
-        except CaseError as exc:
-            data[i] = _store.failed_dataset("invalid_case", str(exc))
-    unloaded = [fn for fn in _time_loops({(c.membrane.model, c.numerics.rates, c.numerics.reaction)
-                                         for c in cases.values()})
-                if not fn.signatures]
-    order = list(cases)
-    try:
-        results = simulate_batch([cases[i] for i in order], errors="return")
-    except Exception:  # a bug of the batch: each point on its own, so that it fails only itself
-        results = []
-        for i in order:
-            try:
-                results.extend(simulate_batch([cases[i]], errors="return"))
-            except Exception as exc:
-                results.append(exc)
-    for i, result in zip(order, results):
-        data[i], sizes[i] = _outcome(result, keep_fields)
-    first = any(fn.signatures for fn in unloaded)
-    wall = time.perf_counter() - wall0
-    worker = f"{socket.gethostname()}:{os.getpid()}"
-    return [(ds, {"worker": worker, "first_on_worker": first, "batch_size": size, "chunk_size": n,
-                  "chunk_wall_time_s": round(wall, 6), "wall_time_s": round(wall / n, 6)})
-            for ds, size in zip(data, sizes)]
-
-
-def _outcome(result, keep_fields: bool) -> tuple[xr.Dataset, int]:
-    """A point's Dataset and batch size from what ``simulate_batch`` returned for it."""
-    from cable.simulate import SimulationError
-
-    if isinstance(result, CaseError):
-        return _store.failed_dataset("invalid_case", str(result)), 0
-    if isinstance(result, SimulationError):
-        return _store.failed_dataset("numerical_failure", str(result)), 1
-    if isinstance(result, Exception):
-        return _store.failed_dataset("error", f"{result.__class__.__name__}: {result}"), 0
-    return _store.point_dataset(result, keep_fields), int(result.attrs.get("batch_size", 1))
-
-
-def _time_loops(models: set) -> list:
-    """Every compiled time loop a run of these (model, rates, reaction) triples may load: the
-    single strand's loops (fast path and reference, the latter also used to settle nodes) and
-    the batch's loop of strands laid end to end, for each reaction scheme asked for."""
-    from cable.kernels.batch import _segments_integrator
-    from cable.membrane import get_model
-    from cable.simulate import _fast_integrator, _integrator
-
-    loops = []
-    for name in sorted({key[0] for key in models}):
-        loops += [_integrator(name), _segments_integrator(name, False)]
-        if get_model(name).fast is not None:
-            loops += [_fast_integrator(name), _segments_integrator(name, True)]
-    for name, _, reaction in sorted(key for key in models if key[2:] and key[2] != "rush-larsen"):
-        loops += [_integrator(name, reaction), _segments_integrator(name, False, reaction)]
-        if get_model(name).fast is not None and get_model(name).fast.kinetics is not None:
-            loops += [_fast_integrator(name, reaction), _segments_integrator(name, True, reaction)]
-    return loops
-
-
-def chunk_key(case) -> tuple:
-    """The key by which points are chunked: :func:`cable.kernels.batch.loop_key` and, with
-    tabulated rates, the values of the rate table's parameters (``FastPath.table_parameters``,
-    e.g. the HH temperature), which :func:`cable.kernels.batch.group_key` also compares but
-    ``loop_key`` does not: without them a sweep over temperature would fill each chunk with
-    points that cannot share a loop.
-
-    Parameters
-    ----------
-    case : cable.case.Case
-        A loaded point.
-    """
-    from cable.kernels.batch import loop_key
-    from cable.membrane import get_model
-    from cable.simulate import node_parameters
-
-    key = loop_key(case)
-    model = get_model(case.membrane.model)
-    fast = model.fast
-    if case.numerics.rates in ("reference", "exact") or fast is None or fast.build_table is None:
-        return key
-    row = node_parameters(case, model, 1)[0]  # before regions: batch.group_key has the last word
-    return key + (tuple(float(row[model.parameter_names.index(name)]) for name in fast.table_parameters),)
-
-
-def chunks(keys: list, batch: int, workers: int) -> list[list[int]]:
-    """Split points into tasks: points of one key together, ``batch`` at most per task.
-
-    Parameters
-    ----------
-    keys : list of (int, hashable)
-        Each point's index and its grouping key (:func:`chunk_key`), in the order to run
-        them.
-    batch : int
-        Most points per task.
-    workers : int
-        Workers of the cluster: no task of a group holds more than ``ceil(group /
-        workers)`` points, so that a group of fewer than ``batch * workers`` points
-        still gives every worker a task (where it has that many points).
-
-    Returns
-    -------
-    list of list of int
-        The point indices of each task; groups in order of first appearance, each cut
-        into chunks of nearly equal size.
-    """
-    groups: dict = {}
-    for index, key in keys:
-        groups.setdefault(key, []).append(index)
-    out = []
-    for members in groups.values():
-        size = max(1, min(batch, -(-len(members) // max(1, workers))))
-        count = -(-len(members) // size)
-        out += [[int(i) for i in part] for part in np.array_split(np.array(members), count)]
-    return out
 
 
 # ----------------------------------------------------------------------------- client side
@@ -380,7 +231,7 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     if spec is None:
         raise CaseError("the case has no [sweep] section; add one, e.g. [sweep] \"membrane.scale.g_Na\" = "
                         "[1.0, 0.5], or use --vary KEY=VALUES.")
-    keep_fields = bool(case.raw.get("output", {}).get("keep_fields", False))
+    keep_fields = case.keep_fields
     if keep_fields and output is None:
         raise CaseError("output.keep_fields = true writes each point's fields next to the result; give an output "
                         "file (-o OUT.nc).")
@@ -417,9 +268,6 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
     if todo:
         _compute(spec, case.raw, todo, points, store, keep_fields, client, scheduler, workers, progress,
                  len(done), failed_before, n, say, int(batch))
-    if store is not None:  # the result is built from the files alone: the same after a resume
-        for k in todo:
-            points[k] = store.read(k)
     attrs = result_attrs(case, spec, ident)
     if store is not None:  # when the sweep was started: the same whether or not it was resumed
         attrs["date_created"] = store.created
@@ -497,6 +345,7 @@ def _compute(spec, raw, todo, points, store, keep_fields, client, scheduler, wor
         labelled = _store.label(data, spec, k)
         if store is not None:
             store.write(k, labelled, _store.point_attrs(meta))
+            points[k] = _store.without_fields(labelled)  # kept, not read back (see assemble.as_stored)
         else:
             points[k] = labelled
         bad = _store.is_failure(_store.status_of(data))  # no capture and block are outcomes, not failures
@@ -506,7 +355,7 @@ def _compute(spec, raw, todo, points, store, keep_fields, client, scheduler, wor
         if report is not None:
             report(done, failed, n)
 
-    raws, keys, invalid = {}, [], []
+    cases, keys, invalid = {}, [], []
     noted = time.perf_counter()
     if len(todo) > 1000:
         say(f"preparing {len(todo)} points (loading each case to group the points that share a time loop)...")
@@ -514,9 +363,9 @@ def _compute(spec, raw, todo, points, store, keep_fields, client, scheduler, wor
         if time.perf_counter() - noted > PREPARE_NOTE_S:
             say(f"preparing points: {j} of {len(todo)}")
             noted = time.perf_counter()
-        raws[k] = point_raw(raw, spec.overrides(k))
-        try:
-            keys.append((k, chunk_key(load_case(raws[k]))))
+        try:  # loaded once, here: the worker runs this Case as it is
+            cases[k] = load_case(point_raw(raw, spec.overrides(k)))
+            keys.append((k, chunk_key(cases[k])))
         except CaseError as exc:
             invalid.append((k, str(exc)))
     with connect(client, scheduler, workers, len(todo), say) as cl:
@@ -530,7 +379,7 @@ def _compute(spec, raw, todo, points, store, keep_fields, client, scheduler, wor
         n_workers = max(1, len(cl.scheduler_info().get("workers", {})))
         futures = {}
         for part in chunks(keys, batch, n_workers):
-            fut = cl.submit(run_chunk, [raws[k] for k in part], keep_fields, key=f"cable-chunk-{part[0]}-{tag}",
+            fut = cl.submit(run_chunk, [cases[k] for k in part], keep_fields, key=f"cable-chunk-{part[0]}-{tag}",
                             pure=False)
             futures[fut.key] = (part, fut)
         lost, why = [], ""

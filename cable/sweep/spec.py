@@ -38,9 +38,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from cable import units
-from cable.case.load import CaseError, from_dict, register_section, set_key
+from cable.case.load import CaseError, from_dict, set_key
+from cable.case.sections import Section
 from cable.case.names import canonical_key
-from cable.case.schema import SECTIONS
 from cable.io import schema
 
 MODES = ("grid", "zip")
@@ -243,35 +243,9 @@ def _axis_names(keys: list[str]) -> list[str]:
 
 def _quantity_of(key: str, case) -> str | None:
     """The quantity kind of a case key where the schema or the model knows it."""
-    from cable.case.names import entry_parts
+    from cable.case.key_units import unit_of
 
-    parts = entry_parts(key)
-    section = parts[0]
-    if section == "region" and len(parts) > 1:
-        if parts[1] in ("scale", "parameters"):  # region.NAME.scale.X, region.NAME.parameters.X: as [membrane]'s
-            parts, section = ["membrane"] + parts[1:], "membrane"
-        else:  # region.NAME.start, end, border, coupling
-            from cable.regions import REGION_KEYS
-
-            spec = REGION_KEYS.get(parts[1]) if len(parts) == 2 else None
-            if spec is None or spec.kind != "quantity":
-                return None
-            return spec.quantity or "dimensionless"
-    if section == "membrane" and len(parts) == 3 and parts[1] == "scale":
-        return "dimensionless"
-    if section == "membrane" and len(parts) == 3 and parts[1] == "parameters":
-        from cable.membrane import get_model
-
-        try:
-            par = get_model(case.membrane.model).parameter(parts[2])
-        except Exception:  # unknown parameter: the loader's message comes later
-            return None
-        return None if par.choices is not None else par.quantity
-    rest = [p for p in parts[1:] if not p.isdigit()]  # an [[electrode]]'s index
-    if section in SECTIONS and len(rest) == 1 and rest[0] in SECTIONS[section]:
-        spec = SECTIONS[section][rest[0]]
-        return spec.quantity if spec.kind == "quantity" else None
-    return None
+    return unit_of(key, case).quantity
 
 
 def _coordinate(key: str, values: list, case) -> tuple[np.ndarray, str | None]:
@@ -395,5 +369,6 @@ def _validate(table, case):
     return read_sweep(table, case)
 
 
-register_section("sweep", is_list=False, validate=_validate)
+#: the [sweep] section, as the loader reads it (see cable.case.sections)
+SECTION = Section("sweep", is_list=False, validate=_validate)
 

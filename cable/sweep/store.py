@@ -18,8 +18,11 @@ Dataset::
 
 A point file records the identity of its sweep (``sweep_id``, a hash of the case text
 with its ``[sweep]``); running the same sweep again with the same output computes only
-the points that have no file, and the assembled result is built from the files alone,
-so it is the same whether the sweep ran in one go or was interrupted and resumed.
+the points that have no file, and the assembled result is built from the points as their
+files hold them (the earlier points read from their files, the new ones kept in memory
+after they were written, their attributes in the stored form:
+:func:`cable.sweep.assemble.as_stored`), so it is the same, byte for byte, whether the
+sweep ran in one go or was interrupted and resumed.
 """
 
 from __future__ import annotations
@@ -34,142 +37,15 @@ import numpy as np
 import xarray as xr
 
 from cable.case import CaseError
-from cable.io import schema
 from cable.io.netcdf import chunk_shape, variable_attrs, write_dataset
-from cable.sweep.spec import SweepSpec
-
-#: status of a point (stored as int8 with CF flag attributes); "blocked" came last, so that the
-#: codes of files written before it keep their meaning
-STATUS = {"ok": 0, "no_capture": 1, "numerical_failure": 2, "invalid_case": 3, "error": 4, "not_computed": 5,
-          "blocked": 6}
-
-#: statuses of a point that ran: outcomes of the model (its measurements are stored), not failures
-OUTCOMES = ("ok", "no_capture", "blocked")
-#: statuses of a point that has no result because its run failed
-FAILURES = ("numerical_failure", "invalid_case", "error")
-
-
-def is_failure(code: int) -> bool:
-    """Whether a status code is a failed run (not an outcome such as no capture or block, nor not computed)."""
-    return int(code) in {STATUS[name] for name in FAILURES}
-
-#: int8 value of a flag (captured, blocked) where a point has no result
-NO_RESULT = np.int8(-1)
-
-#: attributes of ``failure_reason``
-REASON_ATTRS = {"long_name": "why the point failed, did not capture or blocked (empty if ok)"}
-
-PER_POINT = ("status", "failure_reason", "sample_x")
+# the point Datasets and the assembling have modules of their own; their names import from here too
+from cable.sweep.assemble import assemble, no_result_code  # noqa: F401
+from cable.sweep.points import (FAILURES, NO_RESULT, OUTCOMES, PER_POINT, REASON_ATTRS, STATUS,  # noqa: F401
+                                coord_attrs, failed_dataset, is_failure, label, point_dataset, status_attrs,
+                                status_of, _with_status)
 
 #: the store's record of its sweep (identity, start time) inside the point folder
 MARKER = "sweep.json"
-
-
-def status_of(ds: xr.Dataset) -> int:
-    """The status code of a point's Dataset (labelled or not)."""
-    return int(np.ravel(ds["status"].values)[0])
-
-
-def status_attrs() -> dict:
-    return {"long_name": "outcome of the sweep point", "flag_values": np.array(list(STATUS.values()), dtype=np.int8),
-            "flag_meanings": " ".join(STATUS)}
-
-
-# ----------------------------------------------------------------------------- one point
-def point_dataset(ds: xr.Dataset, keep_fields: bool) -> xr.Dataset:
-    """The part of a run's result that a sweep keeps (no swept coordinates yet).
-
-    Every data variable whose dimensions lie within ``(beat, level)`` is kept as it is;
-    those that also vary along ``x`` (but not ``t``) are taken at the node nearest the
-    centre of the CV window (the node :func:`cable.simulate.measurements` uses for the
-    wavelength), and that position is ``sample_x`` [cm]. Variables along ``t`` (the
-    fields) are kept only when ``keep_fields``.
-
-    Parameters
-    ----------
-    ds : xarray.Dataset
-        The result of :func:`cable.simulate`.
-    keep_fields : bool
-        Keep ``vm`` and the stored states.
-
-    Returns
-    -------
-    xarray.Dataset
-        With ``status``, ``failure_reason`` and ``sample_x`` besides the measurements.
-    """
-    centre = None
-    if "x" in ds.dims:
-        x = ds["x"].values
-        window = ds.attrs.get("cv_window_cm")
-        mid = 0.5 * (float(window[0]) + float(window[1])) if window is not None else 0.5 * (x[0] + x[-1])
-        centre = int(np.argmin(np.abs(x - mid)))
-    data = {}
-    for name, var in ds.data_vars.items():
-        dims = set(var.dims)
-        if "t" in dims:
-            if keep_fields:
-                data[name] = (var.dims, var.values, var.attrs)
-        elif dims <= {"beat", "level"}:
-            data[name] = (var.dims, var.values, var.attrs)
-        elif "x" in dims and dims - {"x"} <= {"beat", "level"}:
-            axis = var.dims.index("x")
-            data[name] = (tuple(d for d in var.dims if d != "x"), np.take(var.values, centre, axis=axis),
-                          dict(var.attrs, sampled_at="sample_x (node nearest the centre of the CV window)"))
-    used = {d for dims, _, _ in data.values() for d in dims}
-    coords = {c: ds[c].variable for c in ("beat", "level", "t", "x") if c in used and c in ds.coords}
-    captured = ds["captured"].values if "captured" in ds else np.array([])
-    blocked = ds["blocked"].values if "blocked" in ds else np.zeros(captured.size)
-    if captured.size == 0 or not captured[0]:
-        onset = float(ds["beat_onset"][0]) if captured.size else float("nan")
-        code, reason = "no_capture", f"the first stimulus (t = {onset:g} ms) did not excite the fibre"
-    elif blocked[0]:
-        where = float(ds["block_x"][0]) if "block_x" in ds else float("nan")
-        code, reason = "blocked", f"the first beat blocked at x = {where:.4g} cm"
-    else:
-        code, reason = "ok", ""
-    return _with_status(data, coords, code, reason, float(ds["x"][centre]) if centre is not None else float("nan"))
-
-
-def failed_dataset(code: str, reason: str) -> xr.Dataset:
-    """A point without a result: its status and reason only."""
-    return _with_status({}, {}, code, reason, float("nan"))
-
-
-def _with_status(data: dict, coords: dict, code: str, reason: str, sample_x: float) -> xr.Dataset:
-    head = {
-        "status": ((), np.int8(STATUS[code]), status_attrs()),
-        "failure_reason": ((), np.array(reason, dtype=object), REASON_ATTRS),
-        "sample_x": ((), sample_x, {"units": "cm", "long_name": "position where x-resolved measurements "
-                                                                "were sampled (centre of the CV window)"}),
-    }
-    return xr.Dataset({**head, **data}, coords=coords)
-
-
-def label(ds: xr.Dataset, spec: SweepSpec, index: int) -> xr.Dataset:
-    """Give a point's Dataset its swept coordinates as length-1 dimensions."""
-    labels = spec.labels(index)
-    if spec.mode == "zip":
-        out = ds.expand_dims(point=[index])
-        out = out.assign_coords({name: ("point", _one(value)) for name, value in labels.items()})
-    else:
-        out = ds.expand_dims({name: _one(value) for name, value in labels.items()})
-    for axis in spec.axes:
-        out[axis.name].attrs = coord_attrs(axis)
-    if spec.mode == "zip":
-        out["point"].attrs = {"long_name": "sweep point (keys paired, mode = \"zip\")"}
-    return out
-
-
-def _one(value) -> np.ndarray:
-    return np.array([value], dtype=object if isinstance(value, str) else None)
-
-
-def coord_attrs(axis) -> dict:
-    attrs = {"case_key": axis.key, "long_name": f"swept case key {axis.key}"}
-    if axis.units is not None:
-        attrs["units"] = axis.units
-    return attrs
-
 
 # ----------------------------------------------------------------------------- the store
 class PointStore:
@@ -311,9 +187,7 @@ class PointStore:
         path = self.path(index)
         try:
             with xr.open_dataset(path) as ds:
-                if not fields:
-                    ds = ds.drop_vars([v for v in ds.data_vars if "t" in ds[v].dims])
-                return ds.load()
+                return (ds if fields else without_fields(ds)).load()
         except Exception as exc:  # netCDF4/HDF5 raise OSError, ValueError, RuntimeError... for a damaged file
             raise CaseError(f"point file '{path}' is damaged ({exc.__class__.__name__}: {exc}); delete it and run "
                             f"the sweep again with the same output: that point will be computed again, the others "
@@ -355,139 +229,6 @@ def _sweep_id_of(path: Path) -> str | None:
         return None
 
 
-# ----------------------------------------------------------------------------- assembling
-def assemble(spec: SweepSpec, points: list, attrs: dict) -> xr.Dataset:
-    """One Dataset over the swept dimensions from the points' Datasets.
-
-    Parameters
-    ----------
-    spec : SweepSpec
-    points : list of xarray.Dataset or None
-        In point order; None for a point not computed. Swept coordinates, if present,
-        are dropped; fields are ignored.
-    attrs : dict
-        Global attributes of the result.
-
-    Returns
-    -------
-    xarray.Dataset
-        Dimensions: the swept dimensions, then ``beat`` and ``level`` where used.
-        Missing values: NaN (floats), -1 (flags such as ``captured``), -2 for
-        ``block_side`` (whose -1 means blocked leftward); each named ``no_result`` in
-        the variable's ``flag_meanings`` (see :func:`no_result_code`).
-    """
-    pts = [None if p is None else _strip(p, spec) for p in points]
-    names, template = [], {}
-    for p in pts:
-        for name in p.data_vars if p is not None else ():
-            if name not in template and name not in PER_POINT and "t" not in p[name].dims:
-                names.append(name)
-                template[name] = p[name]
-    nbeat = max([p.sizes.get("beat", 0) for p in pts if p is not None] + [0])
-    levels = []
-    for p in pts:
-        if p is not None and "level" in p.coords:
-            levels += [float(v) for v in p["level"].values if float(v) not in levels]
-    sizes = {"beat": nbeat, "level": len(levels)}
-    shape = spec.shape
-
-    status = np.full(shape, STATUS["not_computed"], dtype=np.int8)
-    reason = np.full(shape, "not computed yet", dtype=object)
-    sample_x = np.full(shape, np.nan)
-    arrays = {}
-    fills = {}
-    for name in names:
-        var = template[name]
-        full = shape + tuple(sizes[d] for d in var.dims)
-        if var.dtype == np.int8:
-            fills[name] = no_result_code(var.attrs.get("flag_values"))
-            arrays[name] = np.full(full, fills[name], dtype=np.int8)
-        else:
-            arrays[name] = np.full(full, np.nan, dtype=np.float64)
-    for k, p in enumerate(pts):
-        if p is None:
-            continue
-        where = np.unravel_index(k, shape)
-        status[where] = p["status"].values
-        reason[where] = str(p["failure_reason"].values)
-        sample_x[where] = p["sample_x"].values
-        for name in names:
-            if name not in p:
-                continue
-            var = p[name]
-            index = []
-            for d in var.dims:
-                if d == "beat":
-                    index.append(np.arange(p.sizes["beat"]))
-                else:
-                    index.append(np.array([levels.index(float(v)) for v in p["level"].values], dtype=int))
-            target = arrays[name][where]
-            if index:
-                target[np.ix_(*index)] = var.values
-            else:
-                arrays[name][where] = var.values
-
-    dims = spec.dims
-    data = {
-        "status": (dims, status, status_attrs()),
-        "failure_reason": (dims, reason, REASON_ATTRS),
-        "sample_x": (dims, sample_x, _attrs_of(pts, "sample_x")),
-    }
-    for name in names:
-        var = template[name]
-        a = dict(var.attrs)
-        if var.dtype == np.int8 and "flag_values" in a:
-            values = [int(v) for v in np.ravel(a["flag_values"])]
-            meanings = str(a.get("flag_meanings", "")).split()
-            a.update(flag_values=np.array([int(fills[name])] + values, dtype=np.int8),
-                     flag_meanings=" ".join(["no_result"] + meanings))
-        data[name] = (dims + var.dims, arrays[name], a)
-    coords = {}
-    if spec.mode == "zip":
-        coords["point"] = ("point", np.arange(len(spec)), {"long_name": "sweep point (keys paired, mode = \"zip\")"})
-        for axis in spec.axes:
-            coords[axis.name] = ("point", axis.coord, coord_attrs(axis))
-    else:
-        for axis in spec.axes:
-            coords[axis.name] = (axis.name, axis.coord, coord_attrs(axis))
-    if nbeat:
-        coords["beat"] = ("beat", np.arange(nbeat), schema.attrs("beat"))
-    if levels:
-        coords["level"] = ("level", np.array(levels), schema.attrs("level"))
-    out = xr.Dataset(data, coords=coords, attrs=dict(attrs))
-    out.attrs["n_failed"] = int(np.sum(np.isin(status, [STATUS[name] for name in FAILURES])))
-    out.attrs["n_no_capture"] = int(np.sum(status == STATUS["no_capture"]))
-    out.attrs["n_blocked"] = int(np.sum(status == STATUS["blocked"]))
-    out.attrs["n_not_computed"] = int(np.sum(status == STATUS["not_computed"]))
-    return out
-
-
-def no_result_code(flag_values=None) -> np.int8:
-    """The int8 value that marks "no result" in a variable with these ``flag_values``.
-
-    :data:`NO_RESULT` (-1) for the 0/1 flags; for a coded variable that uses -1 itself
-    (``block_side``: -1 = blocked leftward) the first value below its codes.
-    """
-    values = [int(v) for v in np.ravel(flag_values)] if flag_values is not None else []
-    if int(NO_RESULT) not in values:
-        return NO_RESULT
-    return np.int8(min(values) - 1)
-
-
-def _strip(p: xr.Dataset, spec: SweepSpec) -> xr.Dataset:
-    swept = [d for d in spec.dims if d in p.dims]
-    if swept:
-        p = p.isel({d: 0 for d in swept}, drop=True)
-    return p.drop_vars([a.name for a in spec.axes if a.name in p.coords])
-
-
-def _attrs_of(pts, name) -> dict:
-    for p in pts:
-        if p is not None and name in p:
-            return dict(p[name].attrs)
-    return {}
-
-
 def write_result(ds: xr.Dataset, output) -> None:
     """Write the assembled result (atomically, replacing an earlier one of the same sweep)."""
     with local_io():
@@ -506,6 +247,11 @@ def local_io():
 
     with dask.config.set(scheduler="synchronous"):
         yield
+
+
+def without_fields(ds: xr.Dataset) -> xr.Dataset:
+    """A point without its space-time fields (what :meth:`PointStore.read` gives by default)."""
+    return ds.drop_vars([v for v in ds.data_vars if "t" in ds[v].dims])
 
 
 def point_attrs(meta: dict) -> dict:

@@ -172,3 +172,15 @@ def test_conductance_and_parameter_names_ignore_case_where_unambiguous():
     assert axon.membrane.scale == {"g_Na": 0.5}
     with pytest.raises(CaseError, match=r"membrane.scale: 'G_Na' and 'g_na' both name .*'G_Na'; give it once"):
         load_case(path, ["membrane.scale={G_Na = 0.5, g_na = 0.5}"])
+
+
+def test_measure_and_output_switches_are_read_into_the_case():
+    # downstream code reads these from the validated Case (issue 14, item 5), not from the raw dict:
+    # the length arrives converted to cm (1 mm = 0.1 cm), the flags as given or their defaults
+    case = load_case(BASE, ["measure.safety_factor=true", "measure.safety_factor_length='1 mm'",
+                            "output.keep_fields=true"])
+    assert case.safety_factor is True and case.keep_fields is True
+    assert case.safety_factor_length == pytest.approx(0.1, rel=1e-12)
+    plain = load_case(BASE)
+    assert (plain.safety_factor, plain.safety_factor_length, plain.keep_fields) == (False, None, False)
+    assert plain.with_overrides({"measure.safety_factor": True}).safety_factor is True

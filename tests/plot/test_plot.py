@@ -116,6 +116,20 @@ def test_block_site_is_marked(blocked):
     assert any(t.get_text() == "block" for t in ax.texts)
 
 
+def test_regions_are_those_of_the_validated_case(normal):
+    # the zones are read from the loaded case, not parsed again from its text: the same positions as
+    # cable.regions.regions_of gives, and a case text that does not load marks nothing
+    from cable.regions import regions_of
+
+    text = normal.attrs["case"] + '\n[region.zone]\nstart = "4 mm"\nend = 0.6\nscale = {g_Na = 0.25}\n'
+    expected = regions_of(cable.load_case(text=text))
+    zones = _common.regions(normal.copy().assign_attrs(case=text))
+    assert [(z.start, z.end, z.border) for z in zones] == [(r.start, r.end, r.border) for r in expected]
+    assert zones[0].label.startswith("zone, 4–6 mm")
+    bad = text.replace("end = 0.6", "end = 99.0")  # beyond the fibre: the loader refuses the region
+    assert _common.regions(normal.copy().assign_attrs(case=bad)) == []
+
+
 def test_regions_from_the_case_text_are_marked_beside_the_map(normal):
     # regions come from [[region]] tables of the case text; positions may carry units (pint; common practice).
     # The field inside a region stays visible: the region is a hatched bar beside the map, and on the map
@@ -124,7 +138,9 @@ def test_regions_from_the_case_text_are_marked_beside_the_map(normal):
     ds.attrs = dict(normal.attrs, case=normal.attrs["case"] + '\n[[region]]\nstart = "0.5 cm"\nend = "10 mm"\n'
                                                               'border = "1 mm"\nparameters = {E_K = -70}\n'
                                                               'scale = {g_Na = 0.5}\n')
-    label = "region 0, 0.5–1 cm: E_K = -70 mV, g_Na × 0.5"     # the unit from the model (HH 1952: mV)
+    # the old [[region]] list's entries are named R1, R2... by the loader (cable.case.names), as the case
+    # text it stores in a result names them
+    label = "R1, 0.5–1 cm: E_K = -70 mV, g_Na × 0.5"     # the unit from the model (HH 1952: mV)
     assert _common.regions(ds) == [_common.Zone(0.5, 1.0, label, 0.1)]
     fig, ax, _, _ = render(lambda ax: cable.plot.space_time(ds, ax, colorbar=False), size=(6, 4))
     assert not [p for p in ax.patches if p.get_hatch()]             # nothing hatched over the field
