@@ -225,12 +225,16 @@ def _main_lines(an, pr, names, fp, cols, off) -> list:
     rest = [s.name for s in m.states if s.name not in gates]
     first = [n for n in needed(parsed, [parsed.derivatives[k] for k in rest] + [rl[k] for k in per_node])
              if n not in pre]
-    out += [f"{ind}{names[n]} = {pr.doprint_np(inter[n])}" for n in first]
+    one = _Reciprocals(pr, names, "r", ind, [inter[n] for n in first] + [parsed.derivatives[k] for k in rest]
+                       + [rl[k] for k in per_node])
+    for n in first:
+        out += one.line(names[n], inter[n])
     for k in rest:
         j = sidx[k]
-        out.append(f"{ind}d{j} = {pr.doprint_np(parsed.derivatives[k])}")
+        out += one.line(f"d{j}", parsed.derivatives[k])
         if k in per_node:
-            out.append(f"{ind}d{j} = d{j} * (_vexpm1r(({pr.doprint_np(rl[k])}) * dt) if gating == 0 else 1.0)")
+            out += one.line(f"b{j}", rl[k])
+            out.append(f"{ind}d{j} = d{j} * (_vexpm1r(b{j} * dt) if gating == 0 else 1.0)")
         elif k in rl:
             out.append(f"{ind}d{j} = d{j} * e{j}")
     every = m.current_states == "all"
@@ -247,10 +251,53 @@ def _main_lines(an, pr, names, fp, cols, off) -> list:
             out.append(f"{ind}{slot} = y{k} + dt * d{k}")
     cur = list(parsed.currents.values())
     after = [n for n in needed(parsed, cur) if n not in pre and (n in an.gate_dependent or n not in first)]
-    out += [f"{ind}{names[n]} = {pr.doprint_np(inter[n])}" for n in after]
-    out.append(f"{ind}ion = " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
+    two = _Reciprocals(pr, names, "q", ind, [inter[n] for n in after] + cur)
+    for n in after:
+        out += two.line(names[n], inter[n])
+    out += two.sum_line("ion", cur)
     out.append(f"{ind}B[{off['v']} + w] = V + dt * (B[{off['stim']} + w] - ion_scale * ion)")
     return out
+
+
+class _Reciprocals:
+    """Lines of a sequence of assignments in which a denominator met more than once is
+    divided once: r = 1/d, then a*r, b*r (a/d and b/d would each be a division, the
+    slowest arithmetic of the node loop; LLVM may not make the change itself without
+    fastmath). The product differs from the quotient by rounding only."""
+
+    def __init__(self, pr, names, prefix, indent, exprs):
+        count: dict = {}
+        for e in exprs:
+            for a in sympy.preorder_traversal(e):
+                if a.is_Pow and a.exp == -1 and not a.base.is_number:
+                    count[a] = count.get(a, 0) + 1
+        shared = [a for a, c in count.items() if c > 1]
+        self.map = {a: sympy.Symbol(f"_{prefix}{k}", real=True) for k, a in enumerate(shared)}
+        for a, sym in self.map.items():
+            names[str(sym)] = f"{prefix}{len(names)}"
+        self.pr, self.indent, self.done = pr, indent, set()
+
+    def _need(self, expr, out):
+        for a in sympy.preorder_traversal(expr):
+            if a in self.map and a not in self.done:
+                self.done.add(a)
+                base = a.base.xreplace(self.map)
+                self._need(base, out)
+                out.append(f"{self.indent}{self.pr.doprint_np(self.map[a])} = 1.0/({self.pr.doprint_np(base)})")
+
+    def line(self, target, expr) -> list:
+        out: list = []
+        self._need(expr, out)
+        out.append(f"{self.indent}{target} = {self.pr.doprint_np(expr.xreplace(self.map))}")
+        return out
+
+    def sum_line(self, target, exprs) -> list:
+        """``target`` = the sum of ``exprs``, in their order."""
+        out: list = []
+        for e in exprs:
+            self._need(e, out)
+        terms = " + ".join(f"({self.pr.doprint_np(e.xreplace(self.map))})" for e in exprs)
+        return out + [f"{self.indent}{target} = {terms}"]
 
 
 def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
