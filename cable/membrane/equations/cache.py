@@ -27,7 +27,7 @@ import numpy as np
 from cable.membrane.base import FastPath, MembraneModel, Parameter, State
 
 #: the compiler's modules: their sources make :func:`compiler_hash`
-COMPILER = ("description", "analysis", "codegen", "fastpath", "compile", "cache")
+COMPILER = ("description", "analysis", "codegen", "fastpath", "singular", "vecmath", "compile", "cache")
 
 
 @dataclass(frozen=True)
@@ -160,7 +160,7 @@ def model_from_module(module, name: str | None = None) -> GeneratedModel:
         temperature_parameter=eq["temperature_parameter"],
         fast=FastPath(kernel=module.reaction_fast, build_table=module.build_table,
                       table_parameters=tuple(module.TABLE_PARAMETERS), v_lo=-150.0, v_hi=100.0, dv=0.05,
-                      by_state=False),
+                      by_state=getattr(module, "FAST_BY_STATE", False)),
         kinetics=module.kinetics,
         integration=tuple(info["integration"]), notes=tuple(eq["notes"]),
         capacitance=eq["capacitance"], equations=info["equations"])

@@ -1,159 +1,444 @@
 """The fast path of a generated model: subexpressions of the potential alone, tabulated.
 
-The intermediates that depend on V and on parameters only (no state) are the candidates;
-the table holds those of them that the rest of the equations use directly (the
-"frontier": a gate's steady state and time constant rather than their parts), and, for
-each Rush-Larsen state whose coefficient b of dy/dt = a + b y depends on V alone, the
-factor (exp(b dt) - 1)/(b dt) of the update. Rows are potentials v_lo + j dv; a node
-between rows j and j+1 takes the linear interpolation (tabulated rate functions, common
-practice in cardiac simulation); a node outside the table, or a run without a table
-(``numerics.rates = "exact"``), evaluates the same expressions exactly. The kernel takes
-states and parameters by node (``FastPath.by_state = False``).
+What is done once, and what per node:
+
+* parameter-only intermediates (and the Rush-Larsen factors of states whose coefficient b
+  depends on parameters only) are computed once per call, before the node loop;
+* every intermediate of V and parameters alone (no state) that the rest of the equations
+  use directly (the "frontier": a gate's steady state rather than its parts) is a column
+  of the table; so are the coefficients of each *pure gate*, a Rush-Larsen state whose
+  derivative a + b y has a and b of V alone: the update is y <- A + B y with
+  A = a (exp(b dt) - 1)/b, B = exp(b dt) (forward Euler: A = a dt, B = 1 + b dt), and the
+  gate costs two columns and one multiply-add per node; and, for a Rush-Larsen state whose
+  b depends on V alone but whose a does not, the factor (exp(b dt) - 1)/(b dt);
+* the rest (state-dependent expressions) per node.
+
+Rows are potentials v_lo + j dv; a node between rows j and j+1 takes the linear
+interpolation (tabulated rate functions, common practice in cardiac simulation); a node
+outside the table, or a run without a table (``numerics.rates = "exact"``), evaluates the
+same columns exactly, with removable singularities (x/(exp(x) - 1) at x = 0) replaced by
+their series near the point (:mod:`cable.membrane.equations.singular`).
+
+Layout (``FastPath.by_state = True``): states by state, parameters by parameter. The
+columns of a block of nodes are written into a work array (interpolated, or exact), then
+one node loop of plain arithmetic reads them: every function in it is vectorisable
+(:mod:`cable.kernels.elementary`, :mod:`cable.membrane.equations.vecmath`; float powers
+as exp(e log x), integer powers as products), so LLVM turns it into SIMD code. When the
+parameters differ between nodes (``pT`` with n columns) each node goes through the same
+code as a one-node run: a batch gives each strand its result alone, bit for bit.
 """
 
 from __future__ import annotations
 
+import hashlib
+import inspect
+
+import sympy
+
+from cable.membrane.equations import singular, vecmath
 from cable.membrane.equations.analysis import Analysis, needed
 from cable.membrane.equations.description import POTENTIAL
 
-
-def plan(an: Analysis) -> dict:
-    """Which intermediates are tabulated, and the table's columns."""
-    parsed, m = an.parsed, an.parsed.model
-    params = {p.name for p in m.parameters}
-    inter = parsed.intermediates
-    tab = {n for n in inter if n not in an.state_dependent and _uses_v(n, inter)}
-    rl = {n: b for n, b in an.linear.items() if b is not None}
-    v_only_b = {n for n, b in rl.items() if all(str(s) in tab or str(s) in params or str(s) == POTENTIAL
-                                                for s in b.free_symbols) and _mentions_v(b, tab)}
-    users = list(parsed.derivatives.values()) + list(parsed.currents.values())
-    users += [b for n, b in rl.items() if n not in v_only_b]
-    users += [inter[n] for n in inter if n not in tab]
-    frontier = [n for n in inter if n in tab and any(n in {str(s) for s in e.free_symbols} for e in users)]
-    deps = set()
-    for n in needed(parsed, [inter[f] for f in frontier] + [rl[k] for k in v_only_b]):
-        deps |= {str(s) for s in inter[n].free_symbols if str(s) in params}
-    for k in v_only_b:
-        deps |= {str(s) for s in rl[k].free_symbols if str(s) in params}
-    for f in frontier:
-        deps |= {str(s) for s in inter[f].free_symbols if str(s) in params}
-    return {"tabulated": frontier, "factors": [s.name for s in m.states if s.name in v_only_b],
-            "parameters": sorted(deps, key=[p.name for p in m.parameters].index)}
+#: nodes per block: the work array of a block stays in the first-level cache
+BLOCK = 32
 
 
-def _uses_v(name, inter, _memo=None):
-    seen, todo = set(), [name]
+def _power_text(b: str, k: int) -> str:
+    if k == 1:
+        return b
+    if k % 2 == 0:
+        h = _power_text(b, k // 2)
+        return f"({h}*{h})"
+    return f"({_power_text(b, k - 1)}*{b})"
+
+
+def fast_printer(base):
+    """A printer of ``base``'s class whose functions are the vectorisable ones."""
+
+    class _Fast(type(base)):
+        def _print_Pow(self, expr, rational=False):
+            b, e = expr.as_base_exp()
+            k = int(e) if (e.is_Integer or (e.is_Float and float(e).is_integer())) else None
+            if k is not None and 1 < abs(k) <= 64:
+                # integer powers as products (pow() with a float exponent is a library call)
+                text = _power_text(self.parenthesize(b, 100), abs(k))
+                return text if k > 0 else f"(1.0/{text})"
+            if k is None and not (e.is_number and float(e) in (0.5, -0.5)):
+                ex = repr(float(e)) if e.is_number else self._print(e)
+                return f"_vpow({self._print(b)}, {ex})"
+            return super()._print_Pow(expr, rational=rational)
+
+        def doprint_np(self, expr) -> str:
+            text = super().doprint_np(expr)
+            return text.replace("np.exp(", "_vexp(").replace("np.log(", "_vlog(")
+
+    return _Fast(base._names)
+
+
+def _closure(name, inter):
+    """The base names (V, states, parameters) intermediate ``name`` depends on."""
+    seen, todo, out = set(), [name], set()
     while todo:
         n = todo.pop()
         for s in inter[n].free_symbols:
             k = str(s)
-            if k == POTENTIAL:
-                return True
-            if k in inter and k not in seen:
-                seen.add(k)
-                todo.append(k)
-    return False
-
-
-def _mentions_v(expr, tab):
-    return any(str(s) == POTENTIAL or str(s) in tab for s in expr.free_symbols)
-
-
-def kernel_lines(an: Analysis, pr, names, fp: dict) -> list:
-    """Source lines of ``reaction_fast`` and ``fill_table`` (see the module docstring)."""
-    parsed, m = an.parsed, an.parsed.model
-    inter = parsed.intermediates
-    rl = {n: b for n, b in an.linear.items() if b is not None}
-    frontier, factors = fp["tabulated"], fp["factors"]
-    sidx = {s.name: k for k, s in enumerate(m.states)}
-    ncol = len(frontier) + len(factors)
-    all_tab = needed(parsed, [parsed.sym[f] for f in frontier] + [rl[k] for k in factors])
-    tabset = set(frontier) | _tab_set(an, fp)
-    exact_tab = [n for n in all_tab if n in tabset]
-    pre = [n for n in all_tab if n not in tabset]  # parameters only
-    out = ["", "", "@jit", "def reaction_fast(v, s, p, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):",
-           "    top = table.shape[0] - 1.0", "    for i in range(v.shape[0]):", "        V = v[i]"]
-    out += [f"        y{k} = s[i, {k}]" for k in range(len(m.states))]
-    out += [f"        p{k} = p[i, {k}]" for k in range(len(m.parameters))]
-    out += [f"        {names[n]} = {pr.doprint_np(inter[n])}" for n in pre]
-    out += ["        xg = (V - v_lo) * inv_dv",
-            "        if top > 0.0 and xg >= 0.0 and xg < top:",
-            "            jr = np.int64(xg)", "            fr = xg - jr"]
-    for c, n in enumerate(frontier):
-        out.append(f"            {names[n]} = table[jr, {c}] + fr * (table[jr + 1, {c}] - table[jr, {c}])")
-    for c, n in enumerate(factors):
-        c2 = len(frontier) + c
-        out.append(f"            e{sidx[n]} = table[jr, {c2}] + fr * (table[jr + 1, {c2}] - table[jr, {c2}])")
-    out.append("        else:")
-    out += [f"            {names[n]} = {pr.doprint_np(inter[n])}" for n in exact_tab]
-    for n in factors:
-        k = sidx[n]
-        out.append(f"            b{k} = ({pr.doprint_np(rl[n])}) * dt")
-        out.append(f"            e{k} = np.expm1(b{k}) / b{k} if b{k} != 0.0 else 1.0")
-    if not exact_tab and not factors:
-        out.append("            pass")  # nothing tabulated (a model without rate functions)
-    # the rest as in the reaction kernel, with the tabulated names available
-    first = [n for n in needed(parsed, list(parsed.derivatives.values()) +
-                               [b for n, b in rl.items() if n not in factors]) if n not in tabset and n not in pre]
-    out += [f"        {names[n]} = {pr.doprint_np(inter[n])}" for n in first]
-    for k, s in enumerate(m.states):
-        out.append(f"        d{k} = {pr.doprint_np(parsed.derivatives[s.name])}")
-    if rl:
-        out.append("        if gating == 0:")
-        for k, s in enumerate(m.states):
-            if s.name in factors:
-                out.append(f"            d{k} = d{k} * e{k}")
-            elif s.name in rl:
-                out.append(f"            b{k} = ({pr.doprint_np(rl[s.name])}) * dt")
-                out.append(f"            d{k} = d{k} * (np.expm1(b{k}) / b{k} if b{k} != 0.0 else 1.0)")
-    every = m.current_states == "all"
-    for k, s in enumerate(m.states):
-        if s.name in rl or every:  # I_ion below takes its new value
-            out.append(f"        y{k} = y{k} + dt * d{k}")
-            out.append(f"        s[i, {k}] = y{k}")
-        else:
-            out.append(f"        s[i, {k}] = y{k} + dt * d{k}")
-    cur = list(parsed.currents.values())
-    after = [n for n in needed(parsed, cur) if n not in tabset and
-             (n in an.gate_dependent or (n not in first and n not in pre))]
-    out += [f"        {names[n]} = {pr.doprint_np(inter[n])}" for n in after]
-    out.append("        ion = " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
-    out.append("        v[i] = V + dt * (i_stim[i] - ion_scale * ion)")
-    # the table: row j is the mean of the values at V_j -+ dv/1000 (a removable singularity such
-    # as x/(exp(x) - 1) at x = 0 falling on a row would give 0/0, or a wrong finite value when
-    # rounding leaves the denominator a few ulps from zero; the mean is off by ~1e-7 dv^2 f'')
-    out += ["", "", "@jit", "def table_row(V, prow, dt, gating, row):"]
-    out += [f"    p{k} = prow[{k}]" for k in range(len(m.parameters))]
-    out += [f"    {names[n]} = {pr.doprint_np(inter[n])}" for n in all_tab]
-    for c, n in enumerate(frontier):
-        out.append(f"    row[{c}] = {names[n]}")
-    for c, n in enumerate(factors):
-        k = sidx[n]
-        out.append(f"    b{k} = ({pr.doprint_np(rl[n])}) * dt")
-        out.append(f"    row[{len(frontier) + c}] = (np.expm1(b{k}) / b{k} if b{k} != 0.0 else 1.0) "
-                   f"if gating == 0 else 1.0")
-    out.append("    return")
-    out += ["", "", "@jit", "def fill_table(table, prow, dt, gating, v_lo, dv):",
-            "    side = np.empty(table.shape[1])",
-            "    for j in range(table.shape[0]):",
-            "        V = v_lo + dv * j",
-            "        table_row(V - 1e-3 * dv, prow, dt, gating, side)",
-            "        table_row(V + 1e-3 * dv, prow, dt, gating, table[j])",
-            "        table[j] = 0.5 * (table[j] + side)"]
-    out += ["", "", f"TABLE_COLUMNS = {max(ncol, 1)}", f"TABLE_PARAMETERS = {tuple(fp['parameters'])!r}", "",
-            "", "def build_table(p_row, dt, gating, v_lo, v_hi, dv):",
-            '    """The table of the tabulated subexpressions (contract: cable.membrane.base.FastPath)."""',
-            "    rows = int(round((v_hi - v_lo) / dv)) + 1",
-            "    table = np.zeros((rows, TABLE_COLUMNS))",
-            "    fill_table(table, np.asarray(p_row, dtype=np.float64), float(dt), int(gating), float(v_lo), float(dv))",
-            "    return table"]
+            if k in inter:
+                if k not in seen:
+                    seen.add(k)
+                    todo.append(k)
+            else:
+                out.add(k)
     return out
 
 
-def _tab_set(an, fp):
-    """Every V-only intermediate (tabulated ones and those only they use)."""
-    parsed = an.parsed
+def _classify(an: Analysis):
+    """(V-only intermediates, parameter-only intermediates)."""
+    inter = an.parsed.intermediates
+    states = {s.name for s in an.parsed.model.states}
+    v_only, const = set(), set()
+    for n in inter:
+        base = _closure(n, inter)
+        if base & states:
+            continue
+        (v_only if POTENTIAL in base else const).add(n)
+    return v_only, const
+
+
+def plan(an: Analysis) -> dict:
+    """What is tabulated: columns (frontier intermediates, pure gates, factors), the rest."""
+    parsed, m = an.parsed, an.parsed.model
+    params = {p.name for p in m.parameters}
+    inter = parsed.intermediates
+    v_only, const = _classify(an)
+    free = v_only | const | params | {POTENTIAL}
+    rl = {n: b for n, b in an.linear.items() if b is not None}
+
+    def names(e):
+        return {str(s) for s in e.free_symbols}
+
+    def v_dep(e):
+        return POTENTIAL in names(e) or bool(names(e) & v_only)
+
+    gates, factors, const_factors = [], [], []
+    for s in m.states:
+        if s.name not in rl:
+            continue
+        b, f = rl[s.name], parsed.derivatives[s.name]
+        if names(b) <= free and names(f) <= free | {s.name} and v_dep(f):
+            gates.append(s.name)
+        elif names(b) <= free:
+            (factors if v_dep(b) else const_factors).append(s.name)
+    users = [parsed.derivatives[s.name] for s in m.states if s.name not in gates]
+    users += list(parsed.currents.values())
+    users += [rl[n] for n in rl if n not in gates and n not in factors and n not in const_factors]
+    users += [inter[n] for n in inter if n not in v_only and n not in const]
+    frontier = [n for n in inter if n in v_only and any(n in names(e) for e in users)]
+    col_exprs = [parsed.sym[f] for f in frontier] + [rl[k] for k in factors]
+    col_exprs += [parsed.derivatives[k] for k in gates] + [rl[k] for k in gates]
+    deps = set()
+    for n in needed(parsed, col_exprs):
+        deps |= names(inter[n]) & params
+    for e in col_exprs:
+        deps |= names(e) & params
+    return {"tabulated": frontier, "gates": gates, "factors": factors, "const_factors": const_factors,
+            "v_only": v_only, "const": const,
+            "parameters": sorted(deps, key=[p.name for p in m.parameters].index)}
+
+
+def _helpers_hash() -> str:
+    # the generated text carries the helpers' sources: an edited helper makes a new module
+    # (numba checks a cached function against its own file only)
+    from cable.kernels import elementary
+    h = hashlib.sha256()
+    for mod in (elementary, vecmath, singular):
+        h.update(inspect.getsource(mod).encode())
+    return h.hexdigest()[:12]
+
+
+def _column_lines(an, pr, names, fp, indent, store) -> list:
+    """Exact values of the table's columns at one node (V and p0.. set): ``store(c, text)``."""
+    parsed, m = an.parsed, an.parsed.model
     inter = parsed.intermediates
     rl = {n: b for n, b in an.linear.items() if b is not None}
-    inner = needed(parsed, [parsed.sym[f] for f in fp["tabulated"]] + [rl[k] for k in fp["factors"]])
-    return {n for n in inner if n not in an.state_dependent and _uses_v(n, inter)}
+    sidx = {s.name: k for k, s in enumerate(m.states)}
+    frontier, gates, factors = fp["tabulated"], fp["gates"], fp["factors"]
+    want = [parsed.sym[f] for f in frontier] + [rl[k] for k in factors + gates]
+    want += [parsed.derivatives[k] for k in gates]
+    out = []
+    use = needed(parsed, want)
+    guards = singular.guarded(an, use, fp["v_only"])
+    for n in use:
+        text = pr.doprint_np(inter[n])
+        if n in guards:
+            text = singular.text(pr, *guards[n], text, parsed.sym[POTENTIAL])
+        out.append(f"{indent}{names[n]} = {text}")
+    c = 0
+    for n in frontier:
+        out.append(store(c, names[n]))
+        c += 1
+    for n in factors:
+        k = sidx[n]
+        out.append(f"{indent}e{k} = _vexpm1r(({pr.doprint_np(rl[n])}) * dt) if gating == 0 else 1.0")
+        out.append(store(c, f"e{k}"))
+        c += 1
+    for n in gates:
+        k = sidx[n]
+        y = parsed.sym[n]
+        a = parsed.derivatives[n].xreplace({y: sympy.Integer(0)})
+        out.append(f"{indent}b{k} = ({pr.doprint_np(rl[n])}) * dt")
+        out.append(f"{indent}e{k} = _vexpm1r(b{k}) if gating == 0 else 1.0")
+        out.append(store(c, f"({pr.doprint_np(a)}) * dt * e{k}"))
+        out.append(store(c + 1, f"1.0 + b{k} * e{k}"))
+        c += 2
+    return out
+
+
+def _offsets(m, ncol):
+    """Offsets in the block buffer (segments of BLOCK values): states, columns, V, stimulus."""
+    ns = len(m.states)
+    return {"col": ns * BLOCK, "v": (ns + ncol) * BLOCK, "stim": (ns + ncol + 1) * BLOCK,
+            "size": (ns + ncol + 2) * BLOCK}
+
+
+def _main_lines(an, pr, names, fp, cols, off) -> list:
+    """The node loop of a block: every value in the buffer B at a constant offset, so that
+    the loop's memory accesses are provably independent and LLVM vectorises it."""
+    parsed, m = an.parsed, an.parsed.model
+    inter = parsed.intermediates
+    rl = {n: b for n, b in an.linear.items() if b is not None}
+    sidx = {s.name: k for k, s in enumerate(m.states)}
+    frontier, gates, factors = fp["tabulated"], fp["gates"], fp["factors"]
+    pre = set(fp["v_only"]) | set(fp["const"])
+    ind = "        "
+
+    def col(c):
+        return f"B[{off['col'] + c * BLOCK} + w]"
+
+    out = ["    for w in range(nb):", f"{ind}V = B[{off['v']} + w]"]
+    out += [f"{ind}y{k} = B[{k * BLOCK} + w]" for k in range(len(m.states))]
+    out += [f"{ind}{names[n]} = {col(c)}" for c, n in enumerate(frontier)]
+    c = len(frontier)
+    for n in factors:
+        out.append(f"{ind}e{sidx[n]} = {col(c)}")
+        c += 1
+    per_node = [n for n in rl if n not in gates and n not in factors and n not in fp["const_factors"]]
+    rest = [s.name for s in m.states if s.name not in gates]
+    first = [n for n in needed(parsed, [parsed.derivatives[k] for k in rest] + [rl[k] for k in per_node])
+             if n not in pre]
+    one = _Reciprocals(pr, names, "r", ind, [inter[n] for n in first] + [parsed.derivatives[k] for k in rest]
+                       + [rl[k] for k in per_node])
+    for n in first:
+        out += one.line(names[n], inter[n])
+    for k in rest:
+        j = sidx[k]
+        out += one.line(f"d{j}", parsed.derivatives[k])
+        if k in per_node:
+            out += one.line(f"b{j}", rl[k])
+            out.append(f"{ind}d{j} = d{j} * (_vexpm1r(b{j} * dt) if gating == 0 else 1.0)")
+        elif k in rl:
+            out.append(f"{ind}d{j} = d{j} * e{j}")
+    every = m.current_states == "all"
+    for s in m.states:
+        k = sidx[s.name]
+        slot = f"B[{k * BLOCK} + w]"
+        if s.name in gates:
+            out.append(f"{ind}y{k} = {col(cols[s.name])} + {col(cols[s.name] + 1)} * y{k}")
+            out.append(f"{ind}{slot} = y{k}")
+        elif s.name in rl or every:  # I_ion below takes its new value
+            out.append(f"{ind}y{k} = y{k} + dt * d{k}")
+            out.append(f"{ind}{slot} = y{k}")
+        else:
+            out.append(f"{ind}{slot} = y{k} + dt * d{k}")
+    cur = list(parsed.currents.values())
+    after = [n for n in needed(parsed, cur) if n not in pre and (n in an.gate_dependent or n not in first)]
+    two = _Reciprocals(pr, names, "q", ind, [inter[n] for n in after] + cur)
+    for n in after:
+        out += two.line(names[n], inter[n])
+    out += two.sum_line("ion", cur)
+    out.append(f"{ind}B[{off['v']} + w] = V + dt * (B[{off['stim']} + w] - ion_scale * ion)")
+    return out
+
+
+class _Reciprocals:
+    """Lines of a sequence of assignments in which a denominator met more than once is
+    divided once: r = 1/d, then a*r, b*r (a/d and b/d would each be a division, the
+    slowest arithmetic of the node loop; LLVM may not make the change itself without
+    fastmath). The product differs from the quotient by rounding only."""
+
+    def __init__(self, pr, names, prefix, indent, exprs):
+        count: dict = {}
+        for e in exprs:
+            for a in sympy.preorder_traversal(e):
+                if a.is_Pow and a.exp == -1 and not a.base.is_number:
+                    count[a] = count.get(a, 0) + 1
+        shared = [a for a, c in count.items() if c > 1]
+        self.map = {a: sympy.Symbol(f"_{prefix}{k}", real=True) for k, a in enumerate(shared)}
+        for a, sym in self.map.items():
+            names[str(sym)] = f"{prefix}{len(names)}"
+        self.pr, self.indent, self.done = pr, indent, set()
+
+    def _need(self, expr, out):
+        for a in sympy.preorder_traversal(expr):
+            if a in self.map and a not in self.done:
+                self.done.add(a)
+                base = a.base.xreplace(self.map)
+                self._need(base, out)
+                out.append(f"{self.indent}{self.pr.doprint_np(self.map[a])} = 1.0/({self.pr.doprint_np(base)})")
+
+    def line(self, target, expr) -> list:
+        out: list = []
+        self._need(expr, out)
+        out.append(f"{self.indent}{target} = {self.pr.doprint_np(expr.xreplace(self.map))}")
+        return out
+
+    def sum_line(self, target, exprs) -> list:
+        """``target`` = the sum of ``exprs``, in their order."""
+        out: list = []
+        for e in exprs:
+            self._need(e, out)
+        terms = " + ".join(f"({self.pr.doprint_np(e.xreplace(self.map))})" for e in exprs)
+        return out + [f"{self.indent}{target} = {terms}"]
+
+
+def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
+    """Source lines of ``reaction_fast``, ``build_table`` and their helpers (module docstring)."""
+    parsed, m = an.parsed, an.parsed.model
+    pr = fast_printer(base_printer)
+    rl = {n: b for n, b in an.linear.items() if b is not None}
+    sidx = {s.name: k for k, s in enumerate(m.states)}
+    nstate, nparam = len(m.states), len(m.parameters)
+    frontier, gates, factors = fp["tabulated"], fp["gates"], fp["factors"]
+    ncol = len(frontier) + len(factors) + 2 * len(gates)
+    cols, c = {}, len(frontier) + len(factors)
+    for n in gates:
+        cols[n] = c
+        c += 2
+    off = _offsets(m, ncol)
+    loads = [f"    p{k} = pT[{k}, 0]" for k in range(nparam)]
+    out = ["", "", f"# fast path (helpers {_helpers_hash()})",
+           "from cable.kernels.elementary import exp as _vexp",
+           "from cable.membrane.equations.vecmath import expm1_ratio as _vexpm1r, log as _vlog, power as _vpow",
+           "", f"TABLE_COLUMNS = {max(ncol, 1)}", f"TABLE_PARAMETERS = {tuple(fp['parameters'])!r}",
+           "FAST_BY_STATE = True", f"FAST_BLOCK = {BLOCK}", f"FAST_BUFFER = {off['size']}"]
+    # exact columns of the buffer's nodes w0..w1-1 (a run without a table, or nodes outside it)
+    out += ["", "", "@jit", "def exact_columns(B, pT, dt, gating, w0, w1):"]
+    out += loads
+    out += ["    for w in range(w0, w1):", f"        V = B[{off['v']} + w]"]
+    out += _column_lines(an, pr, names, fp, "        ",
+                         lambda c, t: f"        B[{off['col'] + c * BLOCK} + w] = {t}")
+    # the table: row j is the mean of the values at V_j -+ dv/1000 (a removable singularity
+    # falling on a row then needs no special case; the mean is off by ~1e-7 dv^2 f'')
+    out += ["", "", "@jit", "def table_row(V, pT, dt, gating, row):"]
+    out += loads
+    out += _column_lines(an, pr, names, fp, "    ", lambda c, t: f"    row[{c}] = {t}")
+    out.append("    return")
+    # the table holds each column's value and its slope to the next row (one multiply-add to
+    # interpolate); the last row's slopes are 0
+    out += ["", "", "@jit", "def fill_table(table, pT, dt, gating, v_lo, dv):",
+            "    nc = table.shape[1] // 2",
+            "    side = np.zeros(nc)",
+            "    here = np.zeros(nc)",
+            "    for j in range(table.shape[0]):",
+            "        V = v_lo + dv * j",
+            "        table_row(V - 1e-3 * dv, pT, dt, gating, side)",
+            "        table_row(V + 1e-3 * dv, pT, dt, gating, here)",
+            "        for c in range(nc):",
+            "            table[j, 2 * c] = 0.5 * (here[c] + side[c])",
+            "            table[j, 2 * c + 1] = 0.0",
+            "            if j > 0:",
+            "                table[j - 1, 2 * c + 1] = table[j, 2 * c] - table[j - 1, 2 * c]"]
+    out += ["", "", "def build_table(p_row, dt, gating, v_lo, v_hi, dv):",
+            '    """The table of the tabulated subexpressions (contract: cable.membrane.base.FastPath):',
+            '    per row, each column\'s value and its difference to the next row."""',
+            "    rows = int(round((v_hi - v_lo) / dv)) + 1",
+            "    table = np.zeros((rows, 2 * TABLE_COLUMNS))",
+            "    pT = np.ascontiguousarray(np.asarray(p_row, dtype=np.float64).reshape(-1, 1))",
+            "    fill_table(table, pT, float(dt), int(gating), float(v_lo), float(dv))",
+            "    return table"]
+    # the columns of a block: interpolated, exact for the nodes outside the table, or all exact
+    out += ["", "", "@jit", "def block_columns(B, pT, dt, gating, table, v_lo, inv_dv, nb):",
+            "    top = table.shape[0] - 1.0",
+            "    if top <= 0.0:",
+            "        exact_columns(B, pT, dt, gating, 0, nb)",
+            "        return",
+            "    inside = True",
+            "    for w in range(nb):",
+            f"        x = (B[{off['v']} + w] - v_lo) * inv_dv",
+            "        ok = (x >= 0.0) & (x < top)",
+            "        inside = inside & ok",
+            "        x = x if ok else 0.0  # (a node outside: any valid row, replaced below)",
+            "        j = np.int64(x)",
+            "        f = x - np.float64(j)",
+            f"        for c in range({ncol}):",
+            f"            B[{off['col']} + {BLOCK} * c + w] = table[j, 2 * c] + f * table[j, 2 * c + 1]",
+            "    if not inside:",
+            "        for w in range(nb):",
+            f"            x = (B[{off['v']} + w] - v_lo) * inv_dv",
+            "            if not (x >= 0.0 and x < top):",
+            "                exact_columns(B, pT, dt, gating, w, w + 1)"]
+    # the node loop of a block
+    out += ["", "", "@jit", "def block_step(B, pT, dt, ion_scale, gating, nb):"]
+    out += loads
+    const_needed = _const_needed(an, fp)
+    out += [f"    {names[n]} = {pr.doprint_np(parsed.intermediates[n])}" for n in const_needed]
+    for n in fp["const_factors"]:
+        k = sidx[n]
+        out.append(f"    e{k} = _vexpm1r(({pr.doprint_np(rl[n])}) * dt) if gating == 0 else 1.0")
+    out += _main_lines(an, pr, names, fp, cols, off)
+    out += ["", "", "@jit", "def uniform_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, B):",
+            "    n = v.shape[0]",
+            "    for lo in range(0, n, FAST_BLOCK):",
+            "        nb = min(FAST_BLOCK, n - lo)",
+            f"        for k in range({nstate}):",
+            "            for w in range(nb):",
+            f"                B[{BLOCK} * k + w] = sT[k, lo + w]",
+            "        for w in range(nb):",
+            f"            B[{off['v']} + w] = v[lo + w]",
+            f"            B[{off['stim']} + w] = i_stim[lo + w]",
+            "        block_columns(B, pT, dt, gating, table, v_lo, inv_dv, nb)",
+            "        block_step(B, pT, dt, ion_scale, gating, nb)",
+            f"        for k in range({nstate}):",
+            "            for w in range(nb):",
+            f"                sT[k, lo + w] = B[{BLOCK} * k + w]",
+            "        for w in range(nb):",
+            f"            v[lo + w] = B[{off['v']} + w]"]
+    out += ["", "", "@jit", "def reaction_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):",
+            '    """Fast reaction step (contract: cable.membrane.base.FastPath, by state)."""',
+            "    B = np.empty(FAST_BUFFER)",
+            "    if pT.shape[1] == 1:",
+            "        uniform_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, B)",
+            "        return",
+            "    # parameters that differ between nodes: each node as a run of its own (bitwise)",
+            "    v1 = np.empty(1)", "    i1 = np.empty(1)",
+            f"    s1 = np.empty(({nstate}, 1))", f"    p1 = np.empty(({nparam}, 1))",
+            "    for i in range(v.shape[0]):",
+            "        v1[0] = v[i]", "        i1[0] = i_stim[i]",
+            "        s1[:, 0] = sT[:, i]", "        p1[:, 0] = pT[:, i]",
+            "        uniform_step(v1, s1, p1, i1, dt, ion_scale, gating, table, v_lo, inv_dv, B)",
+            "        v[i] = v1[0]", "        sT[:, i] = s1[:, 0]"]
+    return out
+
+
+def _const_needed(an, fp) -> list:
+    """The parameter-only intermediates the node loop uses (computed once per call)."""
+    parsed = an.parsed
+    rl = {n: b for n, b in an.linear.items() if b is not None}
+    gates = set(fp["gates"])
+    exprs = [parsed.derivatives[s.name] for s in parsed.model.states if s.name not in gates]
+    exprs += list(parsed.currents.values()) + [rl[n] for n in rl if n not in gates]
+    exprs += [parsed.intermediates[n] for n in parsed.intermediates
+              if n not in fp["v_only"] and n not in fp["const"]]
+    want = set()
+    for e in exprs:
+        want |= {str(s) for s in e.free_symbols}
+    # the closure through parameter-only intermediates only
+    todo = [n for n in want if n in fp["const"]]
+    seen = set(todo)
+    while todo:
+        n = todo.pop()
+        for s in parsed.intermediates[n].free_symbols:
+            k = str(s)
+            if k in fp["const"] and k not in seen:
+                seen.add(k)
+                todo.append(k)
+    return [n for n in parsed.intermediates if n in seen]

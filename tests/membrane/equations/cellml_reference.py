@@ -119,6 +119,8 @@ def cell_run(model, t_end, dt, stimulus=(0.0, 0.0, 0.0), every=0.01, parameters=
     stride = max(1, int(round(every / dt)))
     out = np.full(nsteps // stride + 1, np.nan)
     ion_scale = model.ion_scale(model.capacitance or 1.0)
+    if model.fast.by_state:  # states by state, parameters by parameter (FastPath contract)
+        s, p = np.ascontiguousarray(s.T), np.ascontiguousarray(p.T)
     _drive(model.fast.kernel, v, s, p, dt, nsteps, stride, float(start), float(dur), float(amp),
            float(rest[0] if rest else 0.0), ion_scale, plan.table, plan.v_lo, plan.inv_dv, out)
     return np.arange(out.size) * stride * dt, out

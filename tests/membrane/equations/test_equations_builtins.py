@@ -152,6 +152,8 @@ def beat(model, name, dt=0.01, tabulated=False, step=None, t_end=None):
     if tabulated:
         fp = model.fast
         table = fp.build_table(p[0], dt, 0, fp.v_lo, fp.v_hi, fp.dv)
+        if fp.by_state:  # states by state, parameters by parameter (FastPath contract)
+            s, p = np.ascontiguousarray(s.T), np.ascontiguousarray(p.T)
     for k in range(steps):
         i_stim = np.array([amplitude if k < on else 0.0])
         if tabulated:

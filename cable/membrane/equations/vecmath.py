@@ -1,0 +1,132 @@
+"""A logarithm and (exp(x) - 1)/x that LLVM can vectorise, for the generated fast kernels.
+
+numba's ``np.log`` and ``np.expm1`` call the C library one value at a time, so a node loop
+holding them is never turned into SIMD code; :func:`cable.kernels.elementary.exp` solves
+this for the exponential, these two do the same for the other functions the generated
+models need (Nernst potentials, float powers as exp(e log x), Rush-Larsen factors whose
+coefficient depends on a state). Plain arithmetic and bit operations, no tables.
+
+Methods (common practice, Muller 2016, Elementary Functions, ch. 11; the argument
+reduction of fdlibm's ``log``):
+
+* ``log``: x = 2^k m with m in [sqrt(1/2), sqrt(2)), f = m - 1 (exact), s = f/(2 + f),
+  log(m) = 2 atanh(s) = f - s (f - R) with R = sum 2 s^(2j)/(2j + 1), j = 1..11
+  (|s| <= 0.172: the first term left out is below 1e-18 of the result); then
+  k ln2_hi + (log(m) + k ln2_lo). Measured against numpy in
+  ``tests/membrane/equations/test_vecmath.py``.
+* ``expm1_ratio``: (exp(x) - 1)/x, 1 at x = 0; for |x| <= 1/2 the Taylor series
+  sum x^j/(j + 1)!, j = 0..16 (the remainder is below 1e-19), otherwise
+  (exp(x) - 1)/x with the vectorisable ``exp`` (no cancellation there: |exp(x) - 1| > 0.39).
+"""
+
+import numpy as np
+from llvmlite import ir
+from numba import types
+from numba.extending import intrinsic
+
+from cable.kernels.elementary import exp, fma
+from cable.kernels.jit import jit_inline
+
+
+@intrinsic
+def _float_to_bits(typingctx, x):
+    """The int64 holding the IEEE 754 bit pattern of the float64 ``x``."""
+    sig = types.int64(types.float64)
+
+    def codegen(context, builder, signature, args):
+        return builder.bitcast(args[0], ir.IntType(64))
+
+    return sig, codegen
+
+
+@intrinsic
+def _bits_to_float(typingctx, bits):
+    """The float64 whose IEEE 754 bit pattern is the int64 ``bits``."""
+    sig = types.float64(types.int64)
+
+    def codegen(context, builder, signature, args):
+        return builder.bitcast(args[0], ir.DoubleType())
+
+    return sig, codegen
+
+
+LN2_HI = 0.6931471805599453          # ln 2 rounded to double
+LN2_LO = 2.3190468138462996e-17      # ln 2 - LN2_HI
+SQRT2 = 1.4142135623730951
+TINY = 2.2250738585072014e-308       # smallest normal double
+TWO54 = 18014398509481984.0          # 2^54: subnormals scaled into the normal range
+MANTISSA = (1 << 52) - 1
+ONE_BITS = 1023 << 52
+#: 2/(2j + 1), j = 1..11
+L1, L2, L3, L4, L5, L6 = 2.0 / 3.0, 2.0 / 5.0, 2.0 / 7.0, 2.0 / 9.0, 2.0 / 11.0, 2.0 / 13.0
+L7, L8, L9, L10, L11 = 2.0 / 15.0, 2.0 / 17.0, 2.0 / 19.0, 2.0 / 21.0, 2.0 / 23.0
+
+
+@jit_inline
+def log(x):
+    """Natural logarithm, vectorisable: NaN for x < 0 or NaN, -inf at 0, inf at inf."""
+    small = x < TINY
+    xs = x * TWO54 if small else x
+    bits = _float_to_bits(xs)
+    k = (bits >> 52) - (1023 + 54 if small else 1023)
+    m = _bits_to_float((bits & MANTISSA) | ONE_BITS)
+    big = m > SQRT2
+    m = 0.5 * m if big else m
+    kf = np.float64(k + 1 if big else k)
+    f = m - 1.0
+    s = f / (2.0 + f)
+    z = s * s
+    r = fma(L11, z, L10)
+    r = fma(r, z, L9)
+    r = fma(r, z, L8)
+    r = fma(r, z, L7)
+    r = fma(r, z, L6)
+    r = fma(r, z, L5)
+    r = fma(r, z, L4)
+    r = fma(r, z, L3)
+    r = fma(r, z, L2)
+    r = fma(r, z, L1)
+    r = r * z
+    lm = f - s * (f - r)
+    out = fma(kf, LN2_HI, lm + kf * LN2_LO)
+    out = -np.inf if x == 0.0 else out
+    out = x if x == np.inf else out
+    return np.nan if (x < 0.0) | (x != x) else out
+
+
+#: 1/(j + 1)!, j = 1..16
+_C = [1.0]
+for _j in range(2, 18):
+    _C.append(_C[-1] / _j)
+C1, C2, C3, C4, C5, C6, C7, C8 = _C[1:9]
+C9, C10, C11, C12, C13, C14, C15, C16 = _C[9:17]
+del _C, _j
+
+
+@jit_inline
+def expm1_ratio(x):
+    """(exp(x) - 1)/x (1 at x = 0), vectorisable; NaN for a NaN argument."""
+    p = fma(C16, x, C15)
+    p = fma(p, x, C14)
+    p = fma(p, x, C13)
+    p = fma(p, x, C12)
+    p = fma(p, x, C11)
+    p = fma(p, x, C10)
+    p = fma(p, x, C9)
+    p = fma(p, x, C8)
+    p = fma(p, x, C7)
+    p = fma(p, x, C6)
+    p = fma(p, x, C5)
+    p = fma(p, x, C4)
+    p = fma(p, x, C3)
+    p = fma(p, x, C2)
+    p = fma(p, x, C1)
+    p = fma(p, x, 1.0)
+    q = (exp(x) - 1.0) / x
+    return p if abs(x) <= 0.5 else q
+
+
+@jit_inline
+def power(x, e):
+    """x**e for a non-integer e, as exp(e log x) (vectorisable; NaN for x < 0)."""
+    return exp(e * log(x))
