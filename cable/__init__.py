@@ -23,7 +23,8 @@ __version__ = "0.1.0"
 
 from cable.case import Case, CaseError, load_case  # noqa: E402
 from cable.membrane import get_model, model_names  # noqa: E402
-from cable.simulate import SimulationError, prepare, simulate  # noqa: E402
+from cable.simulate import SimulationError, simulate  # noqa: E402
+from cable.preparation import prepare  # noqa: E402
 from cable.sweep import sweep  # noqa: E402  (the function; dask is imported on first call)
 
 # Imported on first use: they pull in dask, matplotlib or scipy, which a plain run does not need.

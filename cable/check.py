@@ -1,6 +1,6 @@
 """What a case implies, before it runs: :func:`check_case` (``cable check``, ``cable run --dry-run``).
 
-The check goes through the run's own preparation and validation (:func:`cable.simulate.prepare`,
+The check goes through the run's own preparation and validation (:func:`cable.preparation.prepare`,
 ``check_threshold``, ``check_size``), so it refuses exactly what the run refuses (a
 :class:`~cable.case.CaseError`), and then reports, without simulating the case, what it
 derives from it: nodes and steps, D, the space constant and dx against it, the upstroke's
@@ -164,7 +164,8 @@ def check_case(case, *, output=None, timed_steps: int = TIMED_STEPS) -> CheckRep
         or disk).
     """
     from cable.case import Case, load_case
-    from cable.simulate import check_size, check_threshold, needs_compiling, prepare
+    from cable.preparation import check_size, check_threshold, prepare
+    from cable.kernels.loops import needs_compiling
 
     from cable.kernels.jit import compile_timer
 
@@ -184,7 +185,7 @@ def check_case(case, *, output=None, timed_steps: int = TIMED_STEPS) -> CheckRep
 
 
 def _derived(setup, output) -> CheckReport:
-    from cable.simulate import probe_bytes, stored_bytes
+    from cable.preparation import probe_bytes, stored_bytes
 
     case, num = setup.case, setup.case.numerics
     spb = setup.steps_per_sample
@@ -233,7 +234,7 @@ def _runs(x, mask) -> list[NodeRange]:
 
 def _stimuli(setup) -> list:
     """(label, stimulated nodes, onsets before the run's end) per stimulus, as the run applies them."""
-    from cable.simulate import stimulus_pulses
+    from cable.preparation import stimulus_pulses
 
     case = setup.case
     t_end = (setup.n_samples - 1) * setup.steps_per_sample * case.numerics.dt

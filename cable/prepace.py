@@ -96,7 +96,7 @@ def _pace_cell_adaptive(model, p_row, v0, s_row, beats, cl, amp, dur, dt, dt_max
 
 def prepace_nodes(case, model, p, v0, s0):
     """Prepace every distinct parameter set; return (v0, s0, report)."""
-    from cable.simulate import _integrator
+    from cable.kernels.loops import _integrator
 
     cfg = case.membrane.prepace
     if not case.stimuli and (cfg["amplitude"] is None or cfg["duration"] is None):
@@ -209,7 +209,7 @@ def settle_nodes(case, model, p, v0, s0):
     v0, s0 : ndarray
     note : str or None
     """
-    from cable.simulate import _integrator
+    from cable.kernels.loops import _integrator
 
     default = model.default_parameters()
     rows, inverse = np.unique(p, axis=0, return_inverse=True)

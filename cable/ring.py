@@ -54,7 +54,8 @@ def one_way_start(case, model, grid, p, v0, s0, threshold, ion_scale):
     """
     from cable.kernels import diffusion, integrate
     from cable.kernels.state import loop_arrays, scheme_codes
-    from cable.simulate import _integrator, stimulus_pulses
+    from cable.kernels.loops import _integrator
+    from cable.preparation import stimulus_pulses
 
     _, strand = ring_cases(case)
     num = case.numerics

@@ -80,7 +80,7 @@ def settle_strand(case, model, p, grid, v0, s0, prepaced: bool):
     note : str or None
     """
     from cable.case import CaseError
-    from cable.simulate import _integrator
+    from cable.kernels.loops import _integrator
 
     if not needs_settling(v0):
         return v0, s0, None

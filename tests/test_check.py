@@ -57,7 +57,7 @@ def test_region_core_and_border_ramp_nodes():
 
 
 def test_memory_and_disk_from_the_stored_fields():
-    from cable.simulate import probe_bytes
+    from cable.preparation import probe_bytes
 
     fields = 9 * 101 * 8     # samples x nodes x float64, vm only
     probes = probe_bytes(101, 1, 1)

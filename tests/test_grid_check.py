@@ -4,7 +4,7 @@ import math
 
 import cable
 from cable import grid_check
-from cable.simulate import node_parameters, prepare
+from cable.preparation import node_parameters, prepare
 
 
 def _note(path, *sets):

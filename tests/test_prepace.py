@@ -11,7 +11,7 @@ import numpy as np
 import cable
 from cable.membrane import get_model
 from cable.prepace import _pace_cell, _pace_cell_adaptive
-from cable.simulate import _integrator
+from cable.kernels.loops import _integrator
 
 #: ten Tusscher & Panfilov (2006) epicardial cell at 600 ms: its APD90 still drifts from the
 #: published 1 Hz initial state (measured here: 16 beats to change by < 0.1 ms per beat)

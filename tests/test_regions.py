@@ -6,7 +6,7 @@ import pytest
 import cable
 from cable.fiber import build_grid
 from cable.regions import Region, apply_regions, coupling_factors
-from cable.simulate import prepare
+from cable.preparation import prepare
 
 #: CV resolves supernormal conduction when the rise exceeds this fraction; the LR1 strand
 #: at dx 50 um repeats CV to ~1e-4, so 1 % is far above numerical noise (common practice)

@@ -51,7 +51,7 @@ def space_constant(case, model) -> float | None:
     """
     import numpy as np
 
-    from cable.simulate import node_parameters
+    from cable.preparation import node_parameters
 
     if case.fiber is None:
         return None

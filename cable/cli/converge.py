@@ -46,7 +46,7 @@ def preflight(case, levels, ratio, beat, option: str | None = None) -> None:
         nodes or steps, or fields that do not fit in memory).
     """
     from cable.case import CaseError
-    from cable.simulate import check_case_size
+    from cable.preparation import check_case_size
 
     if case.fiber is None:
         return  # the protocol says why a single cell has no certificate

@@ -119,7 +119,7 @@ class StreamWriter:
     def __init__(self, path, setup, field_names, model, attrs, overwrite: bool = False, growing: bool = False):
         """``growing``: the run may stop before its last sample (``run.stop_when_quiet``):
         the ``t`` dimension is unlimited and holds the samples computed only."""
-        from cable.simulate import _field_attrs
+        from cable.results import _field_attrs
 
         self.path = Path(path)
         self.overwrite = overwrite
@@ -186,7 +186,7 @@ class StreamWriter:
             self.flush()
 
     def _times(self, a: int, b: int) -> np.ndarray:
-        """Sample times [ms] of samples a..b-1, computed as :attr:`cable.simulate.Setup.t` does."""
+        """Sample times [ms] of samples a..b-1, computed as :attr:`cable.preparation.Setup.t` does."""
         return np.arange(a, b) * self.setup.steps_per_sample * self.setup.case.numerics.dt
 
     def flush(self):

@@ -180,7 +180,7 @@ class Stepper:
     ----------
     advance : numba dispatcher
         The run's compiled loop (run block by block by ``adaptive_strand.driver``).
-    setup : cable.simulate.Setup
+    setup : cable.preparation.Setup
     arrays : cable.kernels.state.LoopArrays
     levels : sequence of float
         From :func:`step_levels`.

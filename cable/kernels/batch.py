@@ -19,7 +19,7 @@ interval, instead of one each per strand. How:
   arithmetic whatever the node's place in the batch (the pulse table keeps each
   strand's pulses in its own order);
 * each case is prepared (grid, parameters, settling or pre-pacing, pulses) by
-  ``cable.simulate.prepare``, as alone.
+  ``cable.preparation.prepare``, as alone.
 
 Cases are batched together when everything their time loop depends on is the same
 (:func:`group_key`): model, ``numerics`` (dt, splitting, diffusion, gating, reaction,
@@ -72,8 +72,8 @@ def group_key(setup) -> tuple | None:
 
     Parameters
     ----------
-    setup : cable.simulate.Setup
-        From :func:`cable.simulate.prepare`.
+    setup : cable.preparation.Setup
+        From :func:`cable.preparation.prepare`.
     """
     if getattr(setup, "safety", None) is not None or getattr(setup.grid, "closed", False) \
             or setup.case.extra.get("electrode"):
@@ -144,7 +144,8 @@ def simulate_batch(cases, *, errors: str = "raise") -> list:
         that case's own.
     """
     from cable.case import CaseError
-    from cable.simulate import SimulationError, prepare, simulate
+    from cable.simulate import SimulationError, simulate
+    from cable.preparation import prepare
 
     if errors not in ("raise", "return"):
         raise ValueError(f"errors = {errors!r}: allowed values are 'raise' and 'return'.")
@@ -257,7 +258,8 @@ def _run_batch(setups):
     """The strands of ``setups`` (one group key) in one time loop; None if any failed."""
     from cable.io import schema
     from cable.kernels import diffusion, integrate, tables
-    from cable.simulate import _fast_integrator, measurements, provenance
+    from cable.kernels.loops import _fast_integrator
+    from cable.results import measurements, provenance
 
     first = setups[0]
     model = first.model
@@ -353,7 +355,7 @@ def _run_batch(setups):
         own = {name: (arr[j, :n_done] if interleaved else arr[:n_done, sl]).copy() for name, arr in fields.items()}
         ds = _like(template, setup, own, meas, attrs)
         if ds is None:
-            from cable.simulate import assemble
+            from cable.results import assemble
 
             ds = assemble(setup, own, meas, attrs, model)
             template = (setup, ds, meas)
@@ -363,7 +365,7 @@ def _run_batch(setups):
 
 def _like(template, setup, fields, meas, attrs):
     """The result Dataset as a copy of an earlier one of the batch with the data replaced
-    (what ``cable.simulate.assemble`` builds, without building it again: its variables,
+    (what ``cable.results.assemble`` builds, without building it again: its variables,
     coordinates and attributes are the same); None when the coordinates or shapes differ."""
     if template is None:
         return None

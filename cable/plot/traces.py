@@ -92,7 +92,7 @@ def ionic_current(ds, name: str, node: float | None):
     """
     from cable.case import load_case
     from cable.membrane import get_model
-    from cable.simulate import node_parameters
+    from cable.preparation import node_parameters
 
     text = ds.attrs.get("case")
     if not text:

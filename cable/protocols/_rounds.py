@@ -59,9 +59,9 @@ def batchable(case) -> bool:
     decides: not a ring, no electrodes, no safety factor)."""
     if case.fiber is not None and case.fiber.closed:
         return False
-    if case.extra.get("electrode") or case.raw.get("electrode"):
+    if case.extra.get("electrode"):
         return False
-    return not (case.fiber is not None and case.raw.get("measure", {}).get("safety_factor", False))
+    return not (case.fiber is not None and case.safety_factor)
 
 
 def inside(passing: float, failing: float, points: int, tol: float, log: bool = False) -> list[float]:

@@ -226,7 +226,7 @@ class _InwardProbe:
     """Whether the net ionic current at one node turned inward between two times."""
 
     def __init__(self, case, node):
-        from cable.simulate import prepare
+        from cable.preparation import prepare
 
         self.model = get_model(case.membrane.model)
         self.node = node

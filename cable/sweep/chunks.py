@@ -19,7 +19,7 @@ def chunk_key(case) -> tuple:
     """
     from cable.kernels.batch import loop_key
     from cable.membrane import get_model
-    from cable.simulate import node_parameters
+    from cable.preparation import node_parameters
 
     key = loop_key(case)
     model = get_model(case.membrane.model)

@@ -53,7 +53,7 @@ def point_dataset(ds: xr.Dataset, keep_fields: bool) -> xr.Dataset:
 
     Every data variable whose dimensions lie within ``(beat, level)`` is kept as it is;
     those that also vary along ``x`` (but not ``t``) are taken at the node nearest the
-    centre of the CV window (the node :func:`cable.simulate.measurements` uses for the
+    centre of the CV window (the node :func:`cable.results.measurements` uses for the
     wavelength), and that position is ``sample_x`` [cm]. Variables along ``t`` (the
     fields) are kept only when ``keep_fields``.
 

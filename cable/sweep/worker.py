@@ -104,7 +104,7 @@ def _time_loops(models: set) -> list:
     the batch's loop of strands laid end to end, for each reaction scheme asked for."""
     from cable.kernels.batch import _segments_integrator
     from cable.membrane import get_model
-    from cable.simulate import _fast_integrator, _integrator
+    from cable.kernels.loops import _fast_integrator, _integrator
 
     loops = []
     for name in sorted({key[0] for key in models}):

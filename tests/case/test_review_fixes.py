@@ -7,7 +7,7 @@ import pytest
 
 import cable
 from cable.case import CaseError, load_case
-from cable.simulate import check_case_size
+from cable.preparation import check_case_size
 
 AXON = """
 [membrane]

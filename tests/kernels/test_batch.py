@@ -16,7 +16,7 @@ import xarray as xr
 import cable
 from cable.kernels import diffusion
 from cable.kernels.batch import group_key, loop_key, simulate_batch
-from cable.simulate import prepare
+from cable.preparation import prepare
 
 #: attributes that may differ: the loop's wall time is shared among the strands, and
 #: the batch says how many strands it held

@@ -287,7 +287,7 @@ def passive_without_fast_path(monkeypatch):
     def get_model(name):
         return model if str(name) == "passive-no-fast" else real(name)
 
-    for module in (cable.membrane, sys.modules["cable.simulate"], cable):
+    for module in (cable.membrane, sys.modules["cable.preparation"], sys.modules["cable.kernels.loops"], cable):
         monkeypatch.setattr(module, "get_model", get_model)
     return "passive-no-fast"
 

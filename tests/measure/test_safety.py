@@ -5,7 +5,7 @@ import pytest
 
 import cable
 from cable.measure import safety
-from cable.simulate import prepare
+from cable.preparation import prepare
 
 #: published normal-tissue value ~1.5 (Shaw & Rudy 1997, from memory, REFERENCES.md "M"),
 #: computed there with the LRd model; ours is LR1 in the same fibre geometry: allow 10 %

@@ -115,7 +115,7 @@ def _measure(t, V):
 def _prepaced(cells, beats):
     """(v, s) of each cell type after ``beats`` beats of the same protocol, paced by the
     package's compiled single-cell loop (``[membrane.prepace]``; the same kernel and pulse)."""
-    from cable.simulate import prepare
+    from cable.preparation import prepare
 
     v, s = [], []
     for cell in cells:
@@ -261,7 +261,7 @@ KI_LIMIT_PER_1000_BEATS = 0.005  # the issue's bound: under 0.5% over 1000 beats
 
 
 def test_long_pacing_conserves_potassium():
-    from cable.simulate import prepare
+    from cable.preparation import prepare
 
     case = {"membrane": {"model": MODEL.name, "prepace": {"beats": KI_BEATS, "cycle_length": BCL}},
             "stimulus": [{"amplitude": STIM, "duration": STIM_DURATION}],
@@ -278,7 +278,7 @@ def test_cell_type_conductances_mean_the_papers_values(cell, g_to, g_ks):
     # 0.073 (endo), G_Ks 0.392 (epi, endo) and 0.098 (M); the parameter means that value for
     # the chosen cell type, by default and when given (the endo G_to from the paper: 0.073)
     import cable
-    from cable.simulate import node_parameters
+    from cable.preparation import node_parameters
 
     def conductances(**given):
         case = cable.load_case({"membrane": {"model": MODEL.name, "parameters": dict(cell_type=cell, **given)},

@@ -206,7 +206,7 @@ def oracles_registered(monkeypatch):
             return made[name]
         return real(name)
 
-    for module in (cable.membrane, sys.modules["cable.simulate"], cable):
+    for module in (cable.membrane, sys.modules["cable.preparation"], sys.modules["cable.kernels.loops"], cable):
         monkeypatch.setattr(module, "get_model", get_model)
 
 
