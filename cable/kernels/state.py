@@ -66,7 +66,7 @@ def loop_arrays(model, fast: bool, v: np.ndarray, s0: np.ndarray, p: np.ndarray,
     n = v.shape[0]
     by_state = bool(fast and model.fast.by_state)
     if by_state:  # stored by state and by parameter (see cable.kernels.fused)
-        s = np.ascontiguousarray(s0.T)
+        s = np.array(s0.T, order="C")   # a copy: the transpose of one state is a view of s0
         p = tables.by_parameter(p)
     else:
         s = np.ascontiguousarray(s0.copy())

@@ -196,7 +196,7 @@ def test_fast_exact_kernel_matches_reaction(name, gating, rng):
     if not model.fast.by_state:
         layouts = [(p, False)]
     for pk, by_state in layouts:
-        v1, sk = v.copy(), np.ascontiguousarray(s.T if by_state else s)
+        v1, sk = v.copy(), np.array(s.T if by_state else s, order="C")  # a copy: s.T of one state is a view
         model.fast.kernel(v1, sk, pk, i_stim, dt, 1.0, gating, tables.no_table(), 0.0, 1.0)
         np.testing.assert_allclose(v1, v_ref, rtol=STEP_RTOL, atol=1e-12)
         np.testing.assert_allclose(sk.T if by_state else sk, s_ref, rtol=STEP_RTOL, atol=1e-12)
@@ -234,7 +234,7 @@ def test_tabulated_step_close_to_exact_and_exact_outside_the_table(name, gating,
     plan = tables.plan(model, p, dt, gating, "tabulated")
     assert plan.mode == "tabulated"
     pk = tables.by_parameter(p) if fast.by_state else p
-    states = (lambda a: np.ascontiguousarray(a.T)) if fast.by_state else (lambda a: a.copy())
+    states = (lambda a: np.array(a.T, order="C")) if fast.by_state else (lambda a: a.copy())  # copies
     ve, se = v.copy(), states(s)
     fast.kernel(ve, se, pk, np.zeros(n), dt, 1.0, gating, tables.no_table(), 0.0, 1.0)
     vt, st = v.copy(), states(s)
