@@ -281,8 +281,8 @@ class _Reciprocals:
         for a in sympy.preorder_traversal(expr):
             if a in self.map and a not in self.done:
                 self.done.add(a)
+                self._need(a.base, out)  # a shared denominator inside this one first
                 base = a.base.xreplace(self.map)
-                self._need(base, out)
                 out.append(f"{self.indent}{self.pr.doprint_np(self.map[a])} = 1.0/({self.pr.doprint_np(base)})")
 
     def line(self, target, expr) -> list:
