@@ -7,6 +7,7 @@ import pytest
 
 import cable
 from cable.kernels import tables
+from conftest import oracle
 
 GENERATED_LR1 = "equations:luo_rudy_1991"
 GENERATED_HH = "equations:hodgkin_huxley_1952"
@@ -23,8 +24,8 @@ def exact_step(model, v, s, p, dt=0.01, gating=0, table=None, v_lo=0.0, inv_dv=1
 def test_lr1_exact_rates_at_the_removable_singularities():
     # Luo & Rudy 1991 (Circ Res 68:1501): alpha_m = 0.32 (V + 47.13)/(1 - exp(-0.1 (V + 47.13)))
     # is 0/0 at -47.13 mV (limit 3.2 /ms), the I_K factor X_i at -77 mV; the hand-written kernel
-    # (cable/membrane/luo_rudy_1991.py, the test oracle) evaluates both by their limits
-    gen, hand = cable.get_model(GENERATED_LR1), cable.get_model("luo-rudy-1991")
+    # (tests/membrane/oracles/luo_rudy_1991.py, the test oracle) evaluates both by their limits
+    gen, hand = cable.get_model(GENERATED_LR1), oracle("luo-rudy-1991").MODEL
     v = np.array([-47.13, -47.13 + 1e-9, -47.13 - 5e-5, -77.0, -77.0 + 1e-9, -77.0 + 3e-4, -20.0])
     n = v.size
     s = np.tile(hand.initial_states(), (n, 1))
