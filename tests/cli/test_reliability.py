@@ -40,11 +40,19 @@ def start(case_path, out, *extra):
 
 
 def wait_for_tmp(folder, proc, timeout=300):
+    # until the temporary file has grown past its header: the time loop is running and has
+    # streamed samples (with a cold kernel cache the file exists while the loop still
+    # compiles, and a signal then would find no sample written yet)
     t0 = time.time()
+    first = None
     while time.time() - t0 < timeout:
-        if list(folder.glob(".*.tmp")):
-            time.sleep(1.0)  # let it stream a few blocks
-            return
+        tmp = list(folder.glob(".*.tmp"))
+        if tmp:
+            size = tmp[0].stat().st_size
+            first = size if first is None else first
+            if size > first:
+                time.sleep(0.5)  # let it stream a few more blocks
+                return
         if proc.poll() is not None:
             raise AssertionError(proc.stderr.read())
         time.sleep(0.1)
