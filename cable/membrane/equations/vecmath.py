@@ -24,7 +24,7 @@ from llvmlite import ir
 from numba import types
 from numba.extending import intrinsic
 
-from cable.kernels.elementary import exp, fma
+from cable.kernels.elementary import _bits_to_float, exp, fma
 from cable.kernels.jit import jit_inline
 
 
@@ -35,17 +35,6 @@ def _float_to_bits(typingctx, x):
 
     def codegen(context, builder, signature, args):
         return builder.bitcast(args[0], ir.IntType(64))
-
-    return sig, codegen
-
-
-@intrinsic
-def _bits_to_float(typingctx, bits):
-    """The float64 whose IEEE 754 bit pattern is the int64 ``bits``."""
-    sig = types.float64(types.int64)
-
-    def codegen(context, builder, signature, args):
-        return builder.bitcast(args[0], ir.DoubleType())
 
     return sig, codegen
 
