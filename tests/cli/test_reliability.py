@@ -34,9 +34,20 @@ every = 0.05
 """
 
 
+def interruptible():
+    """Start the child with SIGINT at its default disposition, as a foreground command has it.
+
+    A command started in the background by a non-interactive shell (``pytest ... &`` in a
+    script) inherits SIGINT as ignored (POSIX), and Python then installs no KeyboardInterrupt
+    handler: cable, like any program, keeps an inherited ignore, so without this the
+    SIGINT tests would wait for a run that never hears them."""
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
+
+
 def start(case_path, out, *extra):
     return subprocess.Popen([sys.executable, "-m", "cable", "run", str(case_path), "-o", str(out), *extra],
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=ROOT)
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=ROOT,
+                            preexec_fn=interruptible)
 
 
 def wait_for_tmp(folder, proc, timeout=300):
@@ -128,7 +139,8 @@ def test_second_signal_while_the_result_is_completed_still_leaves_a_partial_file
     case.write_text(LONG_CASE)
     out = tmp_path / "long.nc"
     proc = subprocess.Popen([sys.executable, "-c", SLOW_FINISH, "run", str(case), "-o", str(out)],
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=ROOT)
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=ROOT,
+                            preexec_fn=interruptible)
     wait_for_tmp(tmp_path, proc)
     proc.send_signal(signal.SIGTERM)
     line = ""
