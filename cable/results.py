@@ -1,7 +1,8 @@
 """The result of a run: per-beat measurements from the probes, attributes, the Dataset.
 
-:func:`measurements` follows each beat through the kernel's probes (activation, CV,
-block, APD, upstroke); :func:`provenance` and :func:`assemble` make the
+:func:`measurements` follows each beat through the kernel's probes (activation, APD,
+upstroke) and adds the registered measurements of :mod:`cable.measure` (CV, wavelength,
+block, safety factor, reentry); :func:`provenance` and :func:`assemble` make the
 ``xarray.Dataset`` of :mod:`cable.io.schema`'s variables.
 """
 
@@ -11,9 +12,9 @@ import numpy as np
 import xarray as xr
 
 from cable.io import schema
+from cable.measure import Inputs, measure_all
 from cable.measure.activation import assign_beats, per_beat
 from cable.measure.apd import ApdProbe
-from cable.measure.velocity import conduction_velocity
 from cable.membrane import MembraneModel
 from cable.preparation import Setup
 
@@ -42,28 +43,8 @@ def measurements(setup: Setup, act, nact, upstroke, tracker: ApdProbe, t_end=Non
     repol = per_beat(tracker.repol, beats.index)          # (nbeat, n, nlev)
     apd = np.moveaxis(repol, 2, 0) - beats.activation[None, :, :]
     out["apd"] = (("level", "beat", "x"), apd)
-    if setup.x is not None:
-        cv = conduction_velocity(beats.activation, setup.x, setup.cv_window)
-        out["conduction_velocity"] = (("beat",), cv)
-        centre = int(np.argmin(np.abs(setup.x - 0.5 * (setup.cv_window[0] + setup.cv_window[1]))))
-        levels = list(setup.case.apd_levels)
-        if 90.0 in levels:
-            apd90 = apd[levels.index(90.0), :, centre]
-            out["wavelength_apd"] = (("beat",), cv / 10.0 * apd90)  # m/s -> cm/ms, times ms
-        from cable.measure import block
-
-        out.update(block.outputs(beats))
-        ups = out["upstroke_velocity"][1]
-        out["slow_response"] = (("beat",), block.slow_response(ups, setup.x, setup.cv_window,
-                                                               out["conducted"][1] == 1).astype(np.int8))
-        if setup.safety is not None:
-            out["safety_factor"] = (("beat", "x"), setup.safety.per_beat(beats))
-        if grid_closed(setup):
-            from cable import ring
-
-            t_last = t_end if t_end is not None else setup.t[-1]
-            out.update(ring.outputs(setup.case.fiber.length, act, nact, tracker.repol, setup.case.apd_levels, t_last))
-    return out
+    # the rest: every registered measurement that applies (cable/measure/, in order)
+    return measure_all(Inputs(setup, beats, act, nact, tracker, t_end, out))
 
 
 def grid_closed(setup: Setup) -> bool:

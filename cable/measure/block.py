@@ -21,6 +21,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from cable.measure import Inputs, Measurement, on_a_strand
+
 #: codes of block_side
 NONE, RIGHT, LEFT, BOTH = 0, 1, -1, 2
 #: codes of outcome (cable.io.schema.CODES)
@@ -123,3 +125,17 @@ def conduction_pattern(conducted) -> str:
                 text = "no conduction" if passed == 0 else ("1:1" if passed == period else f"{period}:{passed}")
                 return text if skip == 0 else f"{text} from beat {skip}"
     return f"irregular ({int(c.sum())} of {total} conducted)"
+
+
+def _block(inputs: Inputs) -> dict:
+    out = outputs(inputs.beats)
+    ups = inputs.out["upstroke_velocity"][1]
+    setup = inputs.setup
+    out["slow_response"] = (("beat",), slow_response(ups, setup.x, setup.cv_window,
+                                                     out["conducted"][1] == 1).astype(np.int8))
+    return out
+
+
+OUTPUTS = ("conducted", "reached_left", "reached_right", "block_side", "outcome", "timed_out", "front_x",
+           "slow_response")
+MEASUREMENT = Measurement("block and conduction", OUTPUTS, _block, on_a_strand, order=30)

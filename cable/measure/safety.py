@@ -62,6 +62,7 @@ from __future__ import annotations
 import numpy as np
 
 from cable.kernels.jit import jit
+from cable.measure import Inputs, Measurement
 
 #: intervals whose axial inflow would depolarise the control volume by less than this are
 #: noise (at rest) and dropped [mV]
@@ -330,3 +331,14 @@ def tracker_for(case, grid, v0, pulses, notes: list) -> SafetyTracker:
                      f"tissue; refine dx to {0.5 * length:g} cm or less, or lengthen "
                      f"measure.safety_factor_length.")
     return SafetyTracker(grid, v0, pulses[:, 0], stimulated, length, capacity=max(32, 4 * pulses.shape[0] + 8))
+
+
+def _safety(inputs: Inputs) -> dict:
+    return {"safety_factor": (("beat", "x"), inputs.setup.safety.per_beat(inputs.beats))}
+
+
+def _asked(inputs: Inputs) -> bool:
+    return inputs.setup.x is not None and inputs.setup.safety is not None
+
+
+MEASUREMENT = Measurement("safety factor", ("safety_factor",), _safety, _asked, order=40)

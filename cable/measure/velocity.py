@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from cable.measure import Inputs, Measurement, on_a_strand
 from cable.units import CM_PER_MS_TO_M_PER_S
 
 #: fewest nodes a CV fit uses
@@ -39,3 +40,11 @@ def conduction_velocity(activation: np.ndarray, x: np.ndarray, window) -> np.nda
         slope = np.polyfit(t, xs, 1)[0]  # cm/ms
         out[b] = abs(slope) * CM_PER_MS_TO_M_PER_S
     return out
+
+
+def _velocity(inputs: Inputs) -> dict:
+    cv = conduction_velocity(inputs.beats.activation, inputs.setup.x, inputs.setup.cv_window)
+    return {"conduction_velocity": (("beat",), cv)}
+
+
+MEASUREMENT = Measurement("conduction velocity", ("conduction_velocity",), _velocity, on_a_strand, order=10)
