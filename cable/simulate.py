@@ -88,6 +88,11 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     Returns
     -------
     xarray.Dataset
+        In memory either way, its file (with ``output``) closed: without ``output`` the
+        run's arrays; with it, the content of the file as written (``vm`` and the
+        stored states in float32, as on file), read once the file is complete. (The
+        CLI, which prints only measurements, keeps the fields on file:
+        :func:`simulate_streamed`.)
         Coordinates ``t`` [ms], ``x`` [cm] (absent for a single cell), ``beat``;
         ``vm(t, x)``, ``activation_time(beat, x)``, ``conduction_velocity(beat)`` [m/s],
         ``captured``, ``blocked``, ``block_x`` and the APD family; see
@@ -99,7 +104,30 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
         Invalid case (nothing is run).
     SimulationError
         NaN or runaway potential; the partial result is attached (and written, marked
-        partial, when ``output`` is given).
+        partial, when ``output`` is given); in memory too.
+    """
+    try:
+        ds = simulate_streamed(case, output=output, overwrite=overwrite, progress=progress, command=command, info=info)
+    except SimulationError as exc:
+        if output is not None and exc.partial is not None:
+            exc.partial = _loaded(exc.partial)
+        raise
+    return ds if output is None else _loaded(ds)
+
+
+def _loaded(ds: xr.Dataset) -> xr.Dataset:
+    """A result opened from its file, read into memory and the file closed."""
+    with ds:
+        return ds.load()
+
+
+def simulate_streamed(case, *, output=None, overwrite: bool = False, progress=None, command: str | None = None,
+                      info=None) -> xr.Dataset:
+    """:func:`simulate`, but with ``output`` the returned Dataset is the file opened lazily
+    (:func:`cable.io.netcdf.open_result`: nothing but coordinates read; close it), so that the
+    fields are never held in memory: for ``cable run -o`` and ``cable rerun``, which read
+    only the measurements (a streamed run's memory does not grow with its duration,
+    ``tools/bench_memory.py``). Same parameters, errors and result values.
     """
     check_call("simulate", output=output, overwrite=overwrite, progress=progress, command=command, info=info)
     if not isinstance(case, (Case, dict, str, os.PathLike)):
