@@ -333,7 +333,10 @@ class _Run:
 def _intervals(run: _Run, progress):
     """Run the output intervals 1, 2, ... until the end, a numerical failure or a quiet stop;
     the failure (status, time [ms], node) or None. The loop of :func:`simulate`."""
-    setup, v, arrays, stepper, quiet = run.setup, run.v, run.arrays, run.stepper, run.quiet
+    setup, v, arrays, stepper, quiet, advance = run.setup, run.v, run.arrays, run.stepper, run.quiet, run.advance
+    grid, pulses, ion_scale, threshold, table_args = setup.grid, setup.pulses, setup.ion_scale, setup.threshold, \
+        run.table_args
+    theta, half, full, splitting, merge, gating = run.theta, run.half, run.full, run.splitting, run.merge, run.gating
     dt, spb = setup.case.numerics.dt, setup.steps_per_sample
     t_total = (setup.n_samples - 1) * spb * dt
     k_from = 1
@@ -348,8 +351,12 @@ def _intervals(run: _Run, progress):
             step, node = step - 1, 0
         elif stepper is not None:
             status, step, node = stepper.run(v, (k - 1) * spb, k * spb)
+        elif run.ecg_w is None:
+            status, step, node = advance(v, arrays.s, arrays.p, t0, spb, dt, pulses, grid.lo, grid.up, theta, half,
+                                         full, splitting, merge, gating, ion_scale, threshold, *arrays.probes(),
+                                         *table_args)
         else:
-            status, step, node = _fixed_interval(run, t0, k)
+            status, step, node = _steps_with_ecg(run, t0, k)
         if status != integrate.OK:
             return (status, t0 + (step + 1) * dt, node)
         t_k = k * spb * dt
@@ -364,15 +371,11 @@ def _intervals(run: _Run, progress):
     return None
 
 
-def _fixed_interval(run: _Run, t0: float, k: int):
-    """Output interval k in fixed steps from ``t0``: one call of the compiled loop, or one call
-    per step with [[electrode]] (the pseudo-ECG of every step); (status, step, node)."""
+def _steps_with_ecg(run: _Run, t0: float, k: int):
+    """Output interval k from ``t0`` one fixed step per call, the pseudo-ECG taken after each
+    ([[electrode]]); (status, step, node) as one call over the interval gives them."""
     setup, v, arrays, grid, ecg_w = run.setup, run.v, run.arrays, run.setup.grid, run.ecg_w
     dt, spb = setup.case.numerics.dt, setup.steps_per_sample
-    if ecg_w is None:
-        return run.advance(v, arrays.s, arrays.p, t0, spb, dt, setup.pulses, grid.lo, grid.up, run.theta, run.half,
-                           run.full, run.splitting, run.merge, run.gating, setup.ion_scale, setup.threshold,
-                           *arrays.probes(), *run.table_args)
     for j in range(spb):
         status, step, node = run.advance(v, arrays.s, arrays.p, t0 + j * dt, 1, dt, setup.pulses, grid.lo, grid.up,
                                          run.theta, run.half, run.full, run.splitting, run.merge, run.gating,
