@@ -286,3 +286,13 @@ def check_forward_euler(fiber: Fiber, numerics: Numerics) -> None:
         raise CaseError(f"numerics.dt = {numerics.dt:g} ms exceeds the stability limit of forward-Euler diffusion, "
                         f"{limit:.4g} ms, for dx = {fiber.dx:g} cm and D = {fiber.diffusivity:.4g} cm^2/ms; "
                         f"reduce dt or use diffusion = \"crank-nicolson\".")
+
+
+def check_grid_forward_euler(grid: Grid, numerics: Numerics) -> None:
+    """Refuse a dt beyond the stability limit of forward-Euler diffusion on a built grid
+    (:func:`forward_euler_dt_limit`: region coupling included), before a run starts."""
+    limit = forward_euler_dt_limit(grid, numerics)
+    if numerics.dt > limit:
+        raise CaseError(f"numerics.dt = {numerics.dt:g} ms exceeds the stability limit of forward-Euler diffusion "
+                        f"on this grid ({limit:.4g} ms); reduce dt or use "
+                        f"diffusion = \"crank-nicolson\".")

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from cable.case import Case, CaseError, load_case
-from cable.fiber import Grid, build_grid, forward_euler_dt_limit, node_positions
+from cable.fiber import Grid, build_grid, check_grid_forward_euler, node_positions
 from cable.kernels import integrate
 from cable.kernels.state import crossing_cap
 from cable.measure.velocity import default_window, window_nodes
@@ -89,6 +89,20 @@ def stimulus_pulses(case: Case, x: np.ndarray | None, notes: list) -> np.ndarray
     return pulses[np.argsort(pulses[:, 0], kind="stable")]
 
 
+def node_fields_of(case: Case, model: MembraneModel):
+    """(x, p, coupling) of a case: node positions [cm] (None for a single cell), the parameters
+    of every node (n, nparam) as :func:`prepare` gives them to the run (defaults, [membrane],
+    drugs, then regions; one row for a single cell) and the coupling factor per node (None:
+    uniform). What a result's parameters are, rebuilt from its case without preparing it."""
+    if case.fiber is None:
+        return None, node_parameters(case, model, 1), None
+    from cable.regions import node_fields
+
+    x = node_positions(case.fiber)
+    p, coupling = node_fields(case, model, x, node_parameters(case, model, x.size))
+    return x, p, coupling
+
+
 def prepare(case) -> Setup:
     """Turn a case (path, dict or Case) into the arrays of the run.
 
@@ -100,19 +114,49 @@ def prepare(case) -> Setup:
     case = case if isinstance(case, Case) else load_case(case)
     model = get_model(case.membrane.model)
     notes = list(case.notes)
-    num = case.numerics
-    if case.fiber is not None:
-        from cable.regions import node_fields
-
-        x = node_positions(case.fiber)
-        p, coupling = node_fields(case, model, x, node_parameters(case, model, x.size))
+    x, p, coupling = node_fields_of(case, model)
+    if x is not None:
         grid = build_grid(case.fiber, coupling_factor=coupling)
         cm = case.fiber.capacitance
     else:
-        x = None
         grid = Grid(x=np.zeros(1), lo=np.zeros(1), up=np.zeros(1))
         cm = case.capacitance
-        p = node_parameters(case, model, 1)
+    v0, s0, pre = _initial_state(case, model, p, grid, x, notes)
+    pulses = stimulus_pulses(case, x, notes)
+    if x is not None:
+        from cable.grid_check import coarse_grid_note
+
+        note = coarse_grid_note(case, model, p[0])  # said before the run (simulate prints the notes first)
+        if note:
+            notes.append(note)
+    if case.fiber is not None and case.fiber.closed:
+        v0, s0, pulses = _ring_start(case, model, grid, p, v0, s0, pulses, cm, notes)
+    spb, intervals, pulses = _sampling(case, pulses, notes)
+    cv_window = None
+    if x is not None:
+        cv_window = case.cv_window or default_window(case.fiber.length)
+        if window_nodes(x, cv_window).size < 3:
+            raise CaseError(f"measure.cv_window = {list(cv_window)} cm holds fewer than 3 nodes at dx = "
+                            f"{case.fiber.dx:g} cm; widen it or refine dx.")
+        if case.numerics.diffusion == "forward-euler":
+            check_grid_forward_euler(grid, case.numerics)
+    setup = Setup(case=case, model=model, x=x, grid=grid, v0=v0, s0=s0, p=p, pulses=pulses,
+                  threshold=case.threshold if case.threshold is not None else model.threshold,
+                  ion_scale=model.ion_scale(cm), steps_per_sample=spb, n_samples=intervals + 1,
+                  cv_window=cv_window, notes=notes, prepace=pre)
+    if case.safety_factor:
+        if x is None:
+            notes.append("measure.safety_factor needs a [fiber] (axial currents); ignored for a single cell.")
+        else:
+            from cable.measure.safety import tracker_for
+
+            setup.safety = tracker_for(case, grid, v0, pulses, notes)
+    return setup
+
+
+def _initial_state(case, model, p, grid, x, notes):
+    """(v0, s0, pre-pacing summary or None): the model's rest, settled per node or pre-paced
+    ([membrane.prepace]), then, on a strand, settled coupled (:mod:`cable.settle`)."""
     n = grid.n
     s0 = np.tile(model.initial_states(), (n, 1)).reshape(n, len(model.states))
     v0 = np.full(n, model.resting_potential)
@@ -133,15 +177,12 @@ def prepare(case) -> Setup:
         v0, s0, note = settle_strand(case, model, p, grid, v0, s0, prepaced=pre is not None)
         if note:
             notes.append(note)
-    pulses = stimulus_pulses(case, x, notes)
-    if x is not None:
-        from cable.grid_check import coarse_grid_note
+    return v0, s0, pre
 
-        note = coarse_grid_note(case, model, p[0])  # said before the run (simulate prints the notes first)
-        if note:
-            notes.append(note)
-    if case.fiber is not None and case.fiber.closed:
-        v0, s0, pulses = _ring_start(case, model, grid, p, v0, s0, pulses, cm, notes)
+
+def _sampling(case, pulses, notes):
+    """(steps per output interval, intervals, the pulses that start before the run ends)."""
+    num = case.numerics
     spb = max(1, int(round(case.output_every / num.dt)))
     intervals = int(round(case.duration / (spb * num.dt)))
     if abs(intervals * spb * num.dt - case.duration) > 1e-9 * case.duration:
@@ -153,31 +194,7 @@ def prepare(case) -> Setup:
         first = float(np.min(pulses[:, 0]))
         notes.append(f"warning: no stimulus starts before the run ends (the first at {first:g} ms, the run ends at "
                      f"{t_end:g} ms): nothing is stimulated; lengthen run.duration or move stimulus.NAME.onset.")
-    pulses = pulses[pulses[:, 0] < t_end]
-    cv_window = None
-    if x is not None:
-        cv_window = case.cv_window or default_window(case.fiber.length)
-        if window_nodes(x, cv_window).size < 3:
-            raise CaseError(f"measure.cv_window = {list(cv_window)} cm holds fewer than 3 nodes at dx = "
-                            f"{case.fiber.dx:g} cm; widen it or refine dx.")
-        if num.diffusion == "forward-euler":
-            limit = forward_euler_dt_limit(grid, num)
-            if num.dt > limit:
-                raise CaseError(f"numerics.dt = {num.dt:g} ms exceeds the stability limit of forward-Euler diffusion "
-                                f"on this grid ({limit:.4g} ms); reduce dt or use "
-                                f"diffusion = \"crank-nicolson\".")
-    setup = Setup(case=case, model=model, x=x, grid=grid, v0=v0, s0=s0, p=p, pulses=pulses,
-                  threshold=case.threshold if case.threshold is not None else model.threshold,
-                  ion_scale=model.ion_scale(cm), steps_per_sample=spb, n_samples=intervals + 1,
-                  cv_window=cv_window, notes=notes, prepace=pre)
-    if case.safety_factor:
-        if x is None:
-            notes.append("measure.safety_factor needs a [fiber] (axial currents); ignored for a single cell.")
-        else:
-            from cable.measure.safety import tracker_for
-
-            setup.safety = tracker_for(case, grid, v0, pulses, notes)
-    return setup
+    return spb, intervals, pulses[pulses[:, 0] < t_end]
 
 
 def _ring_start(case, model, grid, p, v0, s0, pulses, cm, notes):

@@ -88,6 +88,11 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
     Returns
     -------
     xarray.Dataset
+        In memory either way, its file (with ``output``) closed: without ``output`` the
+        run's arrays; with it, the content of the file as written (``vm`` and the
+        stored states in float32, as on file), read once the file is complete. (The
+        CLI, which prints only measurements, keeps the fields on file:
+        :func:`simulate_streamed`.)
         Coordinates ``t`` [ms], ``x`` [cm] (absent for a single cell), ``beat``;
         ``vm(t, x)``, ``activation_time(beat, x)``, ``conduction_velocity(beat)`` [m/s],
         ``captured``, ``blocked``, ``block_x`` and the APD family; see
@@ -99,22 +104,69 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
         Invalid case (nothing is run).
     SimulationError
         NaN or runaway potential; the partial result is attached (and written, marked
-        partial, when ``output`` is given).
+        partial, when ``output`` is given); in memory too.
     """
-    from cable.io import netcdf
+    try:
+        ds = simulate_streamed(case, output=output, overwrite=overwrite, progress=progress, command=command, info=info)
+    except SimulationError as exc:
+        if output is not None and exc.partial is not None:
+            exc.partial = _loaded(exc.partial)
+        raise
+    return ds if output is None else _loaded(ds)
 
+
+def _loaded(ds: xr.Dataset) -> xr.Dataset:
+    """A result opened from its file, read into memory and the file closed."""
+    with ds:
+        return ds.load()
+
+
+def simulate_streamed(case, *, output=None, overwrite: bool = False, progress=None, command: str | None = None,
+                      info=None) -> xr.Dataset:
+    """:func:`simulate`, but with ``output`` the returned Dataset is the file opened lazily
+    (:func:`cable.io.netcdf.open_result`: nothing but coordinates read; close it), so that the
+    fields are never held in memory: for ``cable run -o`` and ``cable rerun``, which read
+    only the measurements (a streamed run's memory does not grow with its duration,
+    ``tools/bench_memory.py``). Same parameters, errors and result values.
+    """
     check_call("simulate", output=output, overwrite=overwrite, progress=progress, command=command, info=info)
     if not isinstance(case, (Case, dict, str, os.PathLike)):
         raise CaseError(f"simulate(case={case!r}): give a case file path (str or pathlib.Path), a dict, a Case, or "
                         f"TOML text as cable.load_case(text=...); not {type(case).__name__}.")
     say = info or (lambda msg: None)
     case = case if isinstance(case, Case) else load_case(case)
+    run = _Run(_prepared(case, output, overwrite, say), output, overwrite, command, say)
+    run.sample(0)
+    failure = None
+    interrupted = False
+    wall0 = _time.perf_counter()
+    try:
+        failure = _intervals(run, progress)
+    except KeyboardInterrupt:
+        interrupted = True
+    wall = _time.perf_counter() - wall0
+    run.warn_if_uncrossed()
+    run.attrs["wall_time_s"] = round(wall, 4)
+    with _interrupts_held():  # a second Ctrl-C or SIGTERM waits until the file is complete
+        ds = run.finish(failure, interrupted)
+    if interrupted:
+        raise KeyboardInterrupt
+    if failure is not None:
+        setup = run.setup
+        pos = None if setup.x is None else float(setup.x[failure[2]])
+        raise SimulationError(run.attrs["partial_reason"], time=failure[1], position=pos, partial=ds)
+    return ds
+
+
+def _prepared(case: Case, output, overwrite: bool, say) -> Setup:
+    """The run's :class:`Setup`, its target and size checked and its notes said."""
+    from cable.io import netcdf
+
     if output is not None:
         netcdf.check_target(output, overwrite)
     # prepare() may already run the reference loop (settling, pre-pacing): say so before it
-    name = case.membrane.model
     if needs_compiling(case):
-        say(f"compiling the '{name}' kernels (first run only; later runs use the cache)...")
+        say(f"compiling the '{case.membrane.model}' kernels (first run only; later runs use the cache)...")
     setup = prepare(case)
     check_threshold(setup)
     check_size(setup, output)
@@ -122,179 +174,216 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
         say(note)
     if setup.prepace is not None:
         say(setup.prepace["summary"])
-    model = setup.model
-    num = case.numerics
-    dt = num.dt
-    gating, theta, splitting = scheme_codes(num)
-    rates = tables.plan(model, setup.p, dt, gating, num.rates, reaction=num.reaction)
-    if rates.note:
-        say(rates.note)
-    fast = rates.mode != "reference"
-    advance = _fast_integrator(model.name, num.reaction) if fast else _integrator(model.name, num.reaction)
+    return setup
 
-    state_names = list(case.output_states)
-    state_idx = [model.state_names.index(s) for s in state_names]
-    field_names = ["vm"] + [schema.STATE_PREFIX + s for s in state_names]
-    v = setup.v0.copy()
-    extra = 0
-    if grid_closed(setup):
-        from cable.ring import RING_PASSES as extra  # one crossing per revolution at every node
-    arrays = loop_arrays(model, fast, v, setup.s0, setup.p, setup.pulses.shape[0] + extra,
-                          case.apd_levels)
-    act, nact, upstroke = arrays.act, arrays.nact, arrays.upstroke
-    grid = setup.grid
-    half = diffusion.factor(grid.lo, grid.up, 0.5 * dt, theta)
-    full = diffusion.factor(grid.lo, grid.up, dt, theta)
 
-    attrs = provenance(setup, command)
-    attrs["rates"] = rates.mode
-    from cable import quiet as _quiet
+class _Run:
+    """One run between :func:`prepare` and its Dataset: the loop's arrays and constants, the
+    stepper (fixed steps, adaptive), the sink of the samples (memory or the streamed file),
+    the pseudo-ECG, the quiet check and the attributes written with the result."""
 
-    quiet = None
-    attrs["stop_when_quiet"] = int(_quiet.wanted(case))
-    if attrs["stop_when_quiet"]:
+    def __init__(self, setup: Setup, output, overwrite: bool, command, say):
+        case, model, num = setup.case, setup.model, setup.case.numerics
+        self.setup, self.output, self.say = setup, output, say
+        self.gating, self.theta, self.splitting = scheme_codes(num)
+        rates = tables.plan(model, setup.p, num.dt, self.gating, num.rates, reaction=num.reaction)
+        if rates.note:
+            say(rates.note)
+        fast = rates.mode != "reference"
+        self.advance = _fast_integrator(model.name, num.reaction) if fast else _integrator(model.name, num.reaction)
+        self.state_names = list(case.output_states)
+        self.state_idx = [model.state_names.index(s) for s in self.state_names]
+        self.field_names = ["vm"] + [schema.STATE_PREFIX + s for s in self.state_names]
+        self.v = setup.v0.copy()
+        extra = 0
+        if grid_closed(setup):
+            from cable.ring import RING_PASSES as extra  # one crossing per revolution at every node
+        self.arrays = loop_arrays(model, fast, self.v, setup.s0, setup.p, setup.pulses.shape[0] + extra,
+                                  case.apd_levels)
+        grid = setup.grid
+        self.half = diffusion.factor(grid.lo, grid.up, 0.5 * num.dt, self.theta)
+        self.full = diffusion.factor(grid.lo, grid.up, num.dt, self.theta)
+        self.attrs = provenance(setup, command)
+        self.attrs["rates"] = rates.mode
+        self.quiet = self._quiet_check()
+        self.sink = self._sink(overwrite)
+        self.highest = -np.inf  # the highest potential sampled: says why no node crossed a given threshold
+        self._electrodes()
+        self.table_args = (rates.table, rates.v_lo, rates.inv_dv, 1) if fast else ()
+        self.stepper = _stepper(setup, self.advance, self.arrays, rates if fast else None,
+                                (self.gating, self.theta, self.splitting, num.merge_half_steps), self.state_idx)
+        self.cell_chunk = _cell_chunk(setup, self.quiet) if getattr(self.stepper, "single_cell", False) else None
+        if self.stepper is not None:
+            self.attrs["dt_max_ms"] = num.dt_max
+
+    def _quiet_check(self):
+        """The run.stop_when_quiet check (:mod:`cable.quiet`), or None."""
+        from cable import quiet as _quiet
+
+        setup, case, arrays = self.setup, self.setup.case, self.arrays
+        self.attrs["stop_when_quiet"] = int(_quiet.wanted(case))
+        if not self.attrs["stop_when_quiet"]:
+            return None
         x_nodes = setup.x if setup.x is not None else np.zeros(1)
 
         def judge(t):  # no beat read as timed out if the run ended at t
-            return not np.any(assign_beats(act, nact, x_nodes, setup.pulses, t_end=t).timed_out)
+            return not np.any(assign_beats(arrays.act, arrays.nact, x_nodes, setup.pulses, t_end=t).timed_out)
 
-        quiet = _quiet.QuietCheck(setup.pulses, setup.v0, case.quiet_tolerance, len(case.apd_levels), judge=judge)
-    if output is not None:
-        sink = netcdf.StreamWriter(output, setup, field_names, model, attrs, overwrite=overwrite,
-                                   growing=quiet is not None)
-    else:
-        sink = _MemorySink(setup, field_names)
+        return _quiet.QuietCheck(setup.pulses, setup.v0, case.quiet_tolerance, len(case.apd_levels), judge=judge)
 
-    highest = [-np.inf]  # the highest potential sampled: says why no node crossed a given threshold
+    def _sink(self, overwrite: bool):
+        if self.output is None:
+            return _MemorySink(self.setup, self.field_names)
+        from cable.io import netcdf
 
-    ecg_w = None
-    if setup.x is not None:
-        from cable import electrodes
+        return netcdf.StreamWriter(self.output, self.setup, self.field_names, self.setup.model, self.attrs,
+                                   overwrite=overwrite, growing=self.quiet is not None)
 
-        ecg_w = electrodes.of_case(case, setup.x)
-    ecg = np.full((0 if ecg_w is None else ecg_w.shape[0], setup.n_samples), np.nan)
-    merge = num.merge_half_steps
-    if ecg_w is not None:
-        # QRS onset, T peak and QT from every step's profile, not only the output samples:
-        # the loop returns after each step, so half steps are not merged (the Strang scheme
-        # unmerged; its results differ from the merged one within the time step's error)
-        ecg_steps = np.full((ecg_w.shape[0], (setup.n_samples - 1) * setup.steps_per_sample + 1), np.nan)
-        ecg_steps[:, 0] = ecg_w @ v
-        if merge and num.splitting == "strang":
-            say("note: with [[electrode]] the pseudo-ECG is taken at every step, so the half steps are not "
-                "merged (numerics.merge_half_steps = false for this run).")
-        merge = False
+    def _electrodes(self):
+        """The pseudo-ECG's weights and its records at the output times and at every step."""
+        setup, num = self.setup, self.setup.case.numerics
+        self.ecg_w = None
+        if setup.x is not None:
+            from cable import electrodes
 
-    def sample(k, rows=None):
+            self.ecg_w = electrodes.of_case(setup.case, setup.x)
+        self.ecg = np.full((0 if self.ecg_w is None else self.ecg_w.shape[0], setup.n_samples), np.nan)
+        self.merge = num.merge_half_steps
+        if self.ecg_w is not None:
+            # QRS onset, T peak and QT from every step's profile, not only the output samples:
+            # the loop returns after each step, so half steps are not merged (the Strang scheme
+            # unmerged; its results differ from the merged one within the time step's error)
+            self.ecg_steps = np.full((self.ecg_w.shape[0], (setup.n_samples - 1) * setup.steps_per_sample + 1),
+                                     np.nan)
+            self.ecg_steps[:, 0] = self.ecg_w @ self.v
+            if self.merge and num.splitting == "strang":
+                self.say("note: with [[electrode]] the pseudo-ECG is taken at every step, so the half steps are not "
+                         "merged (numerics.merge_half_steps = false for this run).")
+            self.merge = False
+
+    def sample(self, k, rows=None):
         """Store output sample k (from v and the states), or the samples k, k + 1, ... of
         ``rows`` (the single-cell loop's: potential, then the output states)."""
+        sink, field_names = self.sink, self.field_names
         if rows is not None:
             if rows.shape[0]:
-                highest[0] = max(highest[0], float(np.max(rows[:, 0])))
+                self.highest = max(self.highest, float(np.max(rows[:, 0])))
                 if isinstance(sink, _MemorySink):
                     sink.write_rows(k, {name: rows[:, c:c + 1] for c, name in enumerate(field_names)})
                 else:    # streamed: one sample at a time into the writer's buffer
                     for r in range(rows.shape[0]):
                         sink.write(k + r, {name: rows[r, c:c + 1] for c, name in enumerate(field_names)})
             return
-        if ecg_w is not None:
-            ecg[:, k] = ecg_w @ v  # the pseudo-ECG from the full profile at each output time
-        highest[0] = max(highest[0], float(np.max(v)))
+        v = self.v
+        if self.ecg_w is not None:
+            self.ecg[:, k] = self.ecg_w @ v  # the pseudo-ECG from the full profile at each output time
+        self.highest = max(self.highest, float(np.max(v)))
         vals = {"vm": v}
-        for name, j in zip(state_names, state_idx):
-            vals[schema.STATE_PREFIX + name] = arrays.state(j)
+        for name, j in zip(self.state_names, self.state_idx):
+            vals[schema.STATE_PREFIX + name] = self.arrays.state(j)
         sink.write(k, vals)
 
-    table_args = (rates.table, rates.v_lo, rates.inv_dv, 1) if fast else ()
-    stepper = _stepper(setup, advance, arrays, rates if fast else None, (gating, theta, splitting,
-                                                                         num.merge_half_steps), state_idx)
-    cell_chunk = _cell_chunk(setup, quiet) if getattr(stepper, "single_cell", False) else None
-    if stepper is not None:
-        attrs["dt_max_ms"] = num.dt_max
-    sample(0)
-    failure = None
-    interrupted = False
-    spb = setup.steps_per_sample
-    t_total = (setup.n_samples - 1) * spb * dt
-    wall0 = _time.perf_counter()
-    try:
-        k_from = 1
-        if cell_chunk is not None:   # a single cell, adaptive: many intervals per call (until quiet may stop it)
-            k_from, failure = _run_cell(stepper, v, setup, cell_chunk, sample, progress, t_total)
-        for k in range(k_from, setup.n_samples if failure is None else 0):
-            t0 = (k - 1) * spb * dt
-            if cell_chunk is not None:
-                status, step, _ = stepper.run(v, (k - 1) * spb, k * spb)
-                step, node = step - 1, 0
-            elif stepper is not None:
-                status, step, node = stepper.run(v, (k - 1) * spb, k * spb)
-            elif ecg_w is None:
-                status, step, node = advance(v, arrays.s, arrays.p, t0, spb, dt, setup.pulses, grid.lo, grid.up,
-                                             theta, half, full, splitting, merge, gating, setup.ion_scale,
-                                             setup.threshold, *arrays.probes(), *table_args)
-            else:
-                for j in range(spb):
-                    status, step, node = advance(v, arrays.s, arrays.p, t0 + j * dt, 1, dt, setup.pulses, grid.lo,
-                                                 grid.up, theta, half, full, splitting, merge, gating,
-                                                 setup.ion_scale, setup.threshold, *arrays.probes(), *table_args)
-                    ecg_steps[:, (k - 1) * spb + j + 1] = ecg_w @ v
-                    if status != integrate.OK:
-                        step += j
-                        break
-            if status != integrate.OK:
-                failure = (status, t0 + (step + 1) * dt, node)
-                break
-            t_k = k * spb * dt
-            if setup.safety is not None: setup.safety.update(v, t_k, nact)  # noqa: E701
-            sample(k)
-            if progress is not None:
-                progress(t_k, t_total)
-            if quiet is not None and k < setup.n_samples - 1 and \
-                    quiet(t_k, v, act, nact, arrays.apd.pending):
-                attrs["stopped_when_quiet_ms"] = t_k  # nothing left to happen (cable/quiet.py)
-                break
-    except KeyboardInterrupt:
-        interrupted = True
-    wall = _time.perf_counter() - wall0
-    n_done = sink.filled
-    if case.threshold is not None and not np.any(nact) and setup.pulses.shape[0]:
-        say(f"warning: no node crossed measure.threshold = {case.threshold:g} mV (the highest potential sampled "
-            f"was {highest[0]:.4g} mV), so every beat reads as not captured; the model's default is "
-            f"{model.threshold:g} mV.")
-    attrs["wall_time_s"] = round(wall, 4)
-    with _interrupts_held():  # a second Ctrl-C or SIGTERM waits until the file is complete
+    def warn_if_uncrossed(self):
+        """Say so when a given measure.threshold was never crossed (every beat then reads as not captured)."""
+        case, setup = self.setup.case, self.setup
+        if case.threshold is not None and not np.any(self.arrays.nact) and setup.pulses.shape[0]:
+            self.say(f"warning: no node crossed measure.threshold = {case.threshold:g} mV (the highest potential "
+                     f"sampled was {self.highest:.4g} mV), so every beat reads as not captured; the model's "
+                     f"default is {setup.model.threshold:g} mV.")
+
+    def finish(self, failure, interrupted: bool) -> xr.Dataset:
+        """Measure, mark the status and write the result (called with the interrupts held)."""
+        setup, attrs, sink = self.setup, self.attrs, self.sink
+        n_done = sink.filled
+        t_done = (n_done - 1) * setup.steps_per_sample * setup.case.numerics.dt
         try:
-            arrays.apd.finish(nact)
-            meas = measurements(setup, act, nact, upstroke, arrays.apd, t_end=(n_done - 1) * spb * dt)
-            if stepper is not None:
-                meas.update(stepper.outputs())
-            if ecg_w is not None:
-                # a streamed file holds every sample time, unless the run may stop early (then n_done)
-                full = output is not None and quiet is None
-                n_steps_done = (n_done - 1) * spb + 1
-                meas.update(electrodes.outputs(case, setup.t[:n_done], ecg if full else ecg[:, :n_done],
-                                               meas["beat_onset"][1], meas["activation_time"][1],
-                                               t_steps=np.arange(n_steps_done) * dt,
-                                               phi_steps=ecg_steps[:, :n_steps_done]))
+            meas = self._measurements(n_done, t_done)
         except BaseException:
-            if output is not None:
+            if self.output is not None:
                 sink.abort()
             raise
         if failure is not None or interrupted:
             reason = "interrupted" if interrupted else _failure_message(setup, failure)
-            attrs.update(status="partial", partial_reason=reason, completed_until_ms=(n_done - 1) * spb * dt)
+            attrs.update(status="partial", partial_reason=reason, completed_until_ms=t_done)
         else:
             attrs["status"] = "complete"
-        if output is not None:
-            ds = sink.finish(meas, attrs, n_done)
+        if self.output is not None:
+            return sink.finish(meas, attrs, n_done)
+        return assemble(setup, {k_: v_[:n_done] for k_, v_ in sink.fields.items()}, meas, attrs, setup.model)
+
+    def _measurements(self, n_done: int, t_done: float) -> dict:
+        setup, arrays = self.setup, self.arrays
+        arrays.apd.finish(arrays.nact)
+        meas = measurements(setup, arrays.act, arrays.nact, arrays.upstroke, arrays.apd, t_end=t_done)
+        if self.stepper is not None:
+            meas.update(self.stepper.outputs())
+        if self.ecg_w is not None:
+            from cable import electrodes
+
+            # a streamed file holds every sample time, unless the run may stop early (then n_done)
+            every = self.output is not None and self.quiet is None
+            n_steps_done = (n_done - 1) * setup.steps_per_sample + 1
+            meas.update(electrodes.outputs(setup.case, setup.t[:n_done], self.ecg if every else self.ecg[:, :n_done],
+                                           meas["beat_onset"][1], meas["activation_time"][1],
+                                           t_steps=np.arange(n_steps_done) * setup.case.numerics.dt,
+                                           phi_steps=self.ecg_steps[:, :n_steps_done]))
+        return meas
+
+
+def _intervals(run: _Run, progress):
+    """Run the output intervals 1, 2, ... until the end, a numerical failure or a quiet stop;
+    the failure (status, time [ms], node) or None. The loop of :func:`simulate`."""
+    setup, v, arrays, stepper, quiet, advance = run.setup, run.v, run.arrays, run.stepper, run.quiet, run.advance
+    grid, pulses, ion_scale, threshold, table_args = setup.grid, setup.pulses, setup.ion_scale, setup.threshold, \
+        run.table_args
+    theta, half, full, splitting, merge, gating = run.theta, run.half, run.full, run.splitting, run.merge, run.gating
+    dt, spb = setup.case.numerics.dt, setup.steps_per_sample
+    t_total = (setup.n_samples - 1) * spb * dt
+    k_from = 1
+    if run.cell_chunk is not None:   # a single cell, adaptive: many intervals per call (until quiet may stop it)
+        k_from, failure = _run_cell(stepper, v, setup, run.cell_chunk, run.sample, progress, t_total)
+        if failure is not None:
+            return failure
+    for k in range(k_from, setup.n_samples):
+        t0 = (k - 1) * spb * dt
+        if run.cell_chunk is not None:
+            status, step, _ = stepper.run(v, (k - 1) * spb, k * spb)
+            step, node = step - 1, 0
+        elif stepper is not None:
+            status, step, node = stepper.run(v, (k - 1) * spb, k * spb)
+        elif run.ecg_w is None:
+            status, step, node = advance(v, arrays.s, arrays.p, t0, spb, dt, pulses, grid.lo, grid.up, theta, half,
+                                         full, splitting, merge, gating, ion_scale, threshold, *arrays.probes(),
+                                         *table_args)
         else:
-            ds = assemble(setup, {k_: v_[:n_done] for k_, v_ in sink.fields.items()}, meas, attrs, model)
-    if interrupted:
-        raise KeyboardInterrupt
-    if failure is not None:
-        pos = None if setup.x is None else float(setup.x[failure[2]])
-        raise SimulationError(attrs["partial_reason"], time=failure[1], position=pos, partial=ds)
-    return ds
+            status, step, node = _steps_with_ecg(run, t0, k)
+        if status != integrate.OK:
+            return (status, t0 + (step + 1) * dt, node)
+        t_k = k * spb * dt
+        if setup.safety is not None: setup.safety.update(v, t_k, arrays.nact)  # noqa: E701
+        run.sample(k)
+        if progress is not None:
+            progress(t_k, t_total)
+        if quiet is not None and k < setup.n_samples - 1 and \
+                quiet(t_k, v, arrays.act, arrays.nact, arrays.apd.pending):
+            run.attrs["stopped_when_quiet_ms"] = t_k  # nothing left to happen (cable/quiet.py)
+            break
+    return None
+
+
+def _steps_with_ecg(run: _Run, t0: float, k: int):
+    """Output interval k from ``t0`` one fixed step per call, the pseudo-ECG taken after each
+    ([[electrode]]); (status, step, node) as one call over the interval gives them."""
+    setup, v, arrays, grid, ecg_w = run.setup, run.v, run.arrays, run.setup.grid, run.ecg_w
+    dt, spb = setup.case.numerics.dt, setup.steps_per_sample
+    for j in range(spb):
+        status, step, node = run.advance(v, arrays.s, arrays.p, t0 + j * dt, 1, dt, setup.pulses, grid.lo, grid.up,
+                                         run.theta, run.half, run.full, run.splitting, run.merge, run.gating,
+                                         setup.ion_scale, setup.threshold, *arrays.probes(), *run.table_args)
+        run.ecg_steps[:, (k - 1) * spb + j + 1] = ecg_w @ v
+        if status != integrate.OK:
+            return status, step + j, node
+    return status, step, node
 
 
 def _cell_chunk(setup: Setup, quiet) -> tuple[int, int]:

@@ -1,6 +1,7 @@
 """The core solver against closed forms and published values."""
 
 import numpy as np
+import xarray as xr
 import pytest
 
 import cable
@@ -163,6 +164,25 @@ def test_streamed_file_equals_memory_result(tmp_path):
         np.testing.assert_allclose(disk.vm.values, mem.vm.values, rtol=1e-6, atol=1e-4)  # float32 on file
         assert disk.attrs["status"] == "complete"
     assert not list(tmp_path.glob(".*.tmp"))
+
+
+def test_streamed_run_returns_the_file_content_in_memory(tmp_path):
+    """simulate(output=...) gives what simulate() gives, an in-memory Dataset: the file's content,
+    the file closed (it can be replaced at once); simulate_streamed keeps the fields on file."""
+    from cable.simulate import simulate_streamed
+
+    case = hh_axon_case(length=0.4, dx=0.02, dt=0.01, duration=3.0)
+    out = tmp_path / "run.nc"
+    ds = cable.simulate(case, output=out)
+    assert all(ds[name].variable._in_memory for name in ds.variables)
+    with xr.open_dataset(out, decode_times=False, decode_timedelta=False) as on_file:
+        xr.testing.assert_identical(ds, on_file.load())
+        assert {n: ds[n].dtype for n in ds.variables} == {n: on_file[n].dtype for n in on_file.variables}
+    cable.simulate(case, output=out, overwrite=True)   # the first result holds no open file
+    lazy = simulate_streamed(case, output=tmp_path / "lazy.nc")
+    with lazy:
+        assert not lazy["vm"].variable._in_memory    # the fields stay on file until read
+        np.testing.assert_array_equal(lazy["vm"].values, ds["vm"].values)
 
 
 def test_single_cell_has_no_x():

@@ -9,8 +9,11 @@ sizes = importlib.util.module_from_spec(spec)
 spec.loader.exec_module(sizes)
 
 #: split or shortened under issue 14, item 9 (case/load.py, io/netcdf.py, sweep/run.py, sweep/store.py and the
-#: modules made from them); the other offenders are listed by `python tools/sizes.py`
-COMPLIANT = ["cable/case", "cable/io/netcdf.py", "cable/io/files.py", "cable/io/rerun.py", "cable/sweep"]
+#: modules made from them; simulate, prepare, batch._run_batch, cellml_import._assemble); the other offenders
+#: are listed by `python tools/sizes.py`
+COMPLIANT = ["cable/case", "cable/io/netcdf.py", "cable/io/files.py", "cable/io/rerun.py", "cable/sweep",
+             "cable/simulate.py", "cable/preparation.py", "cable/kernels/batch.py",
+             "cable/membrane/equations/cellml_import.py"]
 
 
 def test_the_split_modules_stay_within_the_sizes():

@@ -61,9 +61,9 @@ def run(args):
 
 def _simulate(args, case, command):
     """Run with the progress line on a terminal (not with -q) and say how long compiling took."""
-    from cable import simulate
     from cable.cli._progress import RunProgress
     from cable.kernels.jit import compile_timer
+    from cable.simulate import simulate_streamed
 
     progress = None if args.quiet else RunProgress(sys.stderr)
 
@@ -74,8 +74,9 @@ def _simulate(args, case, command):
 
     with compile_timer() as compiled:
         try:
-            return simulate(case, output=args.output, overwrite=args.overwrite, command=command, info=info,
-                            progress=progress if progress is not None and progress.tty else None)
+            # the fields stay on file (the summary reads the measurements): memory does not grow with the run
+            return simulate_streamed(case, output=args.output, overwrite=args.overwrite, command=command, info=info,
+                                     progress=progress if progress is not None and progress.tty else None)
         finally:
             if progress is not None:
                 progress.clear()

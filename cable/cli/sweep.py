@@ -1,6 +1,7 @@
 """``cable sweep CASE -o OUT.nc``: run every point of a case's ``[sweep]`` on Dask."""
 
 import argparse
+import importlib
 import logging
 
 import numpy as np
@@ -49,7 +50,7 @@ def run(args):
     _check_workers(args)
     # a lost scheduler makes the Dask client log each reconnection attempt with a traceback;
     # what failed is said once, by the ClusterError (exit 5)
-    import distributed  # noqa: F401 -- configures its loggers, each with its own level
+    importlib.import_module("distributed")  # configures its loggers, each with its own level
 
     for name in [n for n in logging.root.manager.loggerDict if n == "distributed" or n.startswith("distributed.")]:
         logging.getLogger(name).setLevel(logging.CRITICAL)

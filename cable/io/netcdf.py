@@ -20,6 +20,7 @@ and its comparison :mod:`cable.io.rerun` (both importable from here as before).
 
 from __future__ import annotations
 
+import contextlib
 import math
 import sys
 import warnings
@@ -138,7 +139,7 @@ class StreamWriter:
         # outside the caller's handlers), the temporary file goes when this writer does,
         # or at the latest when the interpreter exits
         self._discard = weakref.finalize(self, _discard, self.tmp, nc)
-        try:
+        with self._removed_on_error():
             nc.createDimension("t", None if growing else setup.n_samples)
             tv = nc.createVariable("t", "f8", ("t",))
             tv.setncatts(variable_attrs(schema.attrs("t"), "f8"))
@@ -162,12 +163,6 @@ class StreamWriter:
                 # leaving define mode (sync), where the HDF5 dataset's cache is created.
                 nc.variables[name].set_var_chunk_cache(size=WRITE_CACHE_BYTES, nelems=WRITE_CACHE_SLOTS,
                                                        preemption=1.0)
-        except Exception as exc:
-            self.abort()
-            raise _write_failure(self.path, exc) from None
-        except BaseException:
-            self.abort()
-            raise
         #: samples held before a write: one row of chunks, or a multiple of it
         rows = self.chunks[0]
         self.block = max(rows, (min(BUFFER_BYTES // (4 * setup.n), MAX_T_CHUNK) // rows) * rows)
@@ -206,7 +201,7 @@ class StreamWriter:
 
     def finish(self, meas: dict, attrs: dict, n_done: int) -> xr.Dataset:
         """Write the measurements and attributes, close, rename; return the opened file."""
-        try:
+        with self._removed_on_error():
             self.flush()
             nc = self.nc
             step = max(1, BUFFER_BYTES // 8)
@@ -241,19 +236,26 @@ class StreamWriter:
                 var[:] = arr
             nc.setncatts(_global_attrs(attrs))
             nc.close()
+        try:
+            publish(self.tmp, self.path, self.overwrite)
+        finally:
+            self._discard.detach()  # the name may be reused by a later run in this process
+        return open_result(self.path)
+
+    @contextlib.contextmanager
+    def _removed_on_error(self):
+        """Any error inside removes the temporary file (:meth:`abort`); a library's error is
+        raised as the write failure it is (OutputError: a full disk, exit 4)."""
+        try:
+            yield
         except OutputError:
-            raise
+            raise          # said and cleaned up already (flush)
         except Exception as exc:
             self.abort()
             raise _write_failure(self.path, exc) from None
         except BaseException:
             self.abort()
             raise
-        try:
-            publish(self.tmp, self.path, self.overwrite)
-        finally:
-            self._discard.detach()  # the name may be reused by a later run in this process
-        return open_result(self.path)
 
     def abort(self):
         """Close and remove the temporary file (after an error)."""

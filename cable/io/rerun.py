@@ -155,7 +155,7 @@ def rerun(path, output=None, *, overwrite: bool = False, command: str | None = N
         The file is not readable, holds no case, or its case no longer loads.
     """
     from cable.case import load_case
-    from cable.simulate import SimulationError, simulate
+    from cable.simulate import SimulationError, simulate_streamed
 
     from cable.arguments import check_call
 
@@ -188,7 +188,7 @@ def rerun(path, output=None, *, overwrite: bool = False, command: str | None = N
         versions = {k: (str(original.attrs[k]), v) for k, v in now.items()
                     if k in original.attrs and str(original.attrs[k]) != v}
         try:
-            new = simulate(case, output=output, overwrite=overwrite, command=command, info=info)
+            new = simulate_streamed(case, output=output, overwrite=overwrite, command=command, info=info)
         except SimulationError as exc:
             if exc.partial is None:
                 raise

@@ -256,20 +256,45 @@ def _tracker_part(tracker, sl):
 
 def _run_batch(setups):
     """The strands of ``setups`` (one group key) in one time loop; None if any failed."""
-    from cable.io import schema
-    from cable.kernels import diffusion, integrate, tables
-    from cable.kernels.loops import _fast_integrator
-    from cable.results import measurements, provenance
+    from cable.kernels import integrate
 
     first = setups[0]
-    model = first.model
-    case0 = first.case
-    num = case0.numerics
-    dt = num.dt
+    b = _batch_loop(setups)
+    arrays, v, num = b.arrays, b.v, first.case.numerics
+    fields, sample = _batch_fields(setups, b)
+    quiet = _batch_quiet(setups, b)
+    dt, spb = num.dt, first.steps_per_sample
+    sample(0)
+    n_done = first.n_samples
+    wall0 = _time.perf_counter()
+    for k in range(1, first.n_samples):
+        t0 = (k - 1) * spb * dt
+        status, _, _ = b.advance(v, arrays.s, arrays.p, t0, spb, dt, b.pulses, b.lo, b.up, b.theta, b.half, b.full,
+                                 b.splitting, num.merge_half_steps, b.gating, first.ion_scale, first.threshold,
+                                 *arrays.probes(), *b.extra)
+        if status != integrate.OK:
+            return None
+        sample(k)
+        if quiet is not None and k < first.n_samples - 1 and \
+                quiet(k * spb * dt, v, arrays.act, arrays.nact, arrays.apd.pending):
+            n_done = k + 1
+            break
+    wall = _time.perf_counter() - wall0
+    return _strand_results(setups, b, fields, n_done, wall, quiet is not None)
+
+
+def _batch_loop(setups) -> SimpleNamespace:
+    """The batch's time loop and its arguments: the strands placed side by side (:func:`_layout`),
+    their diffusion factors, pulses, initial state and probes, the one rate table."""
+    from cable.kernels import diffusion, tables
+    from cable.kernels.loops import _fast_integrator
+
+    first = setups[0]
+    model, num = first.model, first.case.numerics
     n = sum(s.n for s in setups)
     gating, theta, splitting = scheme_codes(num)
     # one table for the group: its table parameters are those of every member (group_key)
-    rates = tables.plan(model, first.p, dt, gating, num.rates, reaction=num.reaction)
+    rates = tables.plan(model, first.p, num.dt, gating, num.rates, reaction=num.reaction)
     fast = rates.mode != "reference"
     interleaved, slices = _layout(setups, fast)
     grids = [(s.grid.lo, s.grid.up) for s in setups]
@@ -280,84 +305,96 @@ def _run_batch(setups):
         advance = _segments_integrator(model.name, fast, num.reaction)
         factor = diffusion.factor_segments
         last = (np.concatenate([[0], np.cumsum([s.n for s in setups])]).astype(np.int64),)
-    half, full = factor(grids, 0.5 * dt, theta), factor(grids, dt, theta)
-    lo = _place([s.grid.lo for s in setups], slices, n)
-    up = _place([s.grid.up for s in setups], slices, n)
-    p_nodes = _place([np.broadcast_to(s.p, (s.n, s.p.shape[1])) for s in setups], slices, n)
-    pulses = _pulses(setups, slices, n)
     v = _place([s.v0 for s in setups], slices, n)
-    s0 = _place([s.s0 for s in setups], slices, n)
+    p_nodes = _place([np.broadcast_to(s.p, (s.n, s.p.shape[1])) for s in setups], slices, n)
     # the crossing cap is the same for every member (group_key)
-    arrays = loop_arrays(model, fast, v, s0, p_nodes, first.pulses.shape[0], case0.apd_levels)
-    act, nact, upstroke = arrays.act, arrays.nact, arrays.upstroke
-    extra = ((rates.table, rates.v_lo, rates.inv_dv) if fast else ()) + last
-    state_idx = [model.state_names.index(name) for name in case0.output_states]
-    field_names = ["vm"] + [schema.STATE_PREFIX + name for name in case0.output_states]
-    spb = first.steps_per_sample
-    count = len(setups)
-    if interleaved:   # stored per strand (strand, t, node), each strand's field contiguous
-        length = n // count
+    arrays = loop_arrays(model, fast, v, _place([s.s0 for s in setups], slices, n), p_nodes, first.pulses.shape[0],
+                         first.case.apd_levels)
+    return SimpleNamespace(
+        n=n, rates=rates, interleaved=interleaved, slices=slices, advance=advance, gating=gating, theta=theta,
+        splitting=splitting, half=factor(grids, 0.5 * num.dt, theta), full=factor(grids, num.dt, theta),
+        lo=_place([s.grid.lo for s in setups], slices, n), up=_place([s.grid.up for s in setups], slices, n),
+        pulses=_pulses(setups, slices, n), v=v, arrays=arrays,
+        extra=((rates.table, rates.v_lo, rates.inv_dv) if fast else ()) + last)
+
+
+def _batch_fields(setups, b):
+    """(fields, sample): the stored fields of the batch and the function storing sample k.
+
+    Interleaved strands are stored per strand (strand, t, node), each strand's field
+    contiguous; strands end to end as one (t, node) field."""
+    from cable.io import schema
+
+    first = setups[0]
+    model, states = first.model, first.case.output_states
+    state_idx = [model.state_names.index(name) for name in states]
+    field_names = ["vm"] + [schema.STATE_PREFIX + name for name in states]
+    if b.interleaved:
+        count = len(setups)
+        length = b.n // count
         fields = {name: np.empty((count, first.n_samples, length)) for name in field_names}
 
         def put(name, k, values):
             fields[name][:, k, :] = values.reshape(length, count).T
     else:
-        fields = {name: np.empty((first.n_samples, n)) for name in field_names}
+        fields = {name: np.empty((first.n_samples, b.n)) for name in field_names}
 
         def put(name, k, values):
             fields[name][k] = values
 
     def sample(k):
-        put("vm", k, v)
+        put("vm", k, b.v)
         for name, j in zip(field_names[1:], state_idx):
-            put(name, k, arrays.state(j))
+            put(name, k, b.arrays.state(j))
 
+    return fields, sample
+
+
+def _batch_quiet(setups, b):
+    """run.stop_when_quiet (the same for every member, group_key): the batch stops once every
+    strand is quiet; None when not asked."""
     from cable.quiet import QuietCheck, wanted
 
-    # run.stop_when_quiet (the same for every member, group_key): the batch stops once every strand is quiet
+    case0 = setups[0].case
+    if not wanted(case0):
+        return None
+    act, nact = b.arrays.act, b.arrays.nact
+
     def judge(t):  # no strand's beat read as timed out if the run ended at t
         from cable.measure.activation import assign_beats
 
         return not any(np.any(assign_beats(np.ascontiguousarray(act[sl]), nact[sl].copy(),
                                            s.x if s.x is not None else np.zeros(1), s.pulses, t_end=t).timed_out)
-                       for s, sl in zip(setups, slices))
+                       for s, sl in zip(setups, b.slices))
 
-    quiet = QuietCheck(pulses, v, case0.quiet_tolerance, len(case0.apd_levels), judge=judge) \
-        if wanted(case0) else None
-    sample(0)
-    n_done = first.n_samples
-    wall0 = _time.perf_counter()
-    for k in range(1, first.n_samples):
-        t0 = (k - 1) * spb * dt
-        status, _, _ = advance(v, arrays.s, arrays.p, t0, spb, dt, pulses, lo, up, theta, half, full, splitting,
-                               num.merge_half_steps, gating, first.ion_scale, first.threshold, *arrays.probes(),
-                               *extra)
-        if status != integrate.OK:
-            return None
-        sample(k)
-        if quiet is not None and k < first.n_samples - 1 and quiet(k * spb * dt, v, act, nact, arrays.apd.pending):
-            n_done = k + 1
-            break
-    wall = _time.perf_counter() - wall0
-    t_end = (n_done - 1) * spb * dt
+    return QuietCheck(b.pulses, b.v, case0.quiet_tolerance, len(case0.apd_levels), judge=judge)
+
+
+def _strand_results(setups, b, fields, n_done: int, wall: float, quiet: bool) -> list:
+    """Each strand's Dataset from the batch's fields and probes (its own slice of each)."""
+    from cable.results import measurements, provenance
+
+    first = setups[0]
+    arrays = b.arrays
+    t_end = (n_done - 1) * first.steps_per_sample * first.case.numerics.dt
     tracker = arrays.apd
-    tracker.finish(nact)
+    tracker.finish(arrays.nact)
     results = []
     template = None
-    for j, (setup, sl) in enumerate(zip(setups, slices)):
-        meas = measurements(setup, np.ascontiguousarray(act[sl]), nact[sl].copy(),
-                            np.ascontiguousarray(upstroke[sl]), _tracker_part(tracker, sl), t_end=t_end)
+    for j, (setup, sl) in enumerate(zip(setups, b.slices)):
+        meas = measurements(setup, np.ascontiguousarray(arrays.act[sl]), arrays.nact[sl].copy(),
+                            np.ascontiguousarray(arrays.upstroke[sl]), _tracker_part(tracker, sl), t_end=t_end)
         attrs = provenance(setup, None)
-        attrs.update(rates=rates.mode, wall_time_s=round(wall * setup.n / n, 6), status="complete",
-                     batch_size=len(setups), stop_when_quiet=int(quiet is not None))
+        attrs.update(rates=b.rates.mode, wall_time_s=round(wall * setup.n / b.n, 6), status="complete",
+                     batch_size=len(setups), stop_when_quiet=int(quiet))
         if n_done < first.n_samples:
             attrs["stopped_when_quiet_ms"] = t_end
-        own = {name: (arr[j, :n_done] if interleaved else arr[:n_done, sl]).copy() for name, arr in fields.items()}
+        own = {name: (arr[j, :n_done] if b.interleaved else arr[:n_done, sl]).copy() for name, arr in fields.items()}
         ds = _like(template, setup, own, meas, attrs)
         if ds is None:
             from cable.results import assemble
 
-            ds = assemble(setup, own, meas, attrs, model)
+            ds = assemble(setup, own, meas, attrs, first.model)
             template = (setup, ds, meas)
         results.append(ds)
     return results

@@ -92,7 +92,7 @@ def ionic_current(ds, name: str, node: float | None):
     """
     from cable.case import load_case
     from cable.membrane import get_model
-    from cable.preparation import node_parameters
+    from cable.preparation import node_fields_of
 
     text = ds.attrs.get("case")
     if not text:
@@ -114,15 +114,8 @@ def ionic_current(ds, name: str, node: float | None):
     v = np.ascontiguousarray(pick(ds["vm"]).values, dtype=np.float64)
     columns = [pick(ds[schema.STATE_PREFIX + st]).values for st in model.state_names]
     s = np.ascontiguousarray(np.stack(columns, axis=-1) if columns else np.zeros((v.size, 0)), dtype=np.float64)
-    if fibre:
-        from cable.fiber import node_positions
-        from cable.regions import node_fields
-
-        x = node_positions(case.fiber)
-        p_all, _ = node_fields(case, model, x, node_parameters(case, model, x.size))
-        row = p_all[int(np.argmin(np.abs(x - node)))]
-    else:
-        row = node_parameters(case, model, 1)[0]
+    x, p_all, _ = node_fields_of(case, model)  # the run's parameters, without preparing the run again
+    row = p_all[int(np.argmin(np.abs(x - node)))] if fibre else p_all[0]
     p = np.ascontiguousarray(np.tile(row, (v.size, 1)))
     out = np.zeros((v.size, len(model.current_names)))
     model.currents(v, s, p, out)

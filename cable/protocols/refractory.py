@@ -226,11 +226,12 @@ class _InwardProbe:
     """Whether the net ionic current at one node turned inward between two times."""
 
     def __init__(self, case, node):
-        from cable.preparation import prepare
+        from cable.preparation import node_fields_of
 
         self.model = get_model(case.membrane.model)
         self.node = node
-        self.p = np.ascontiguousarray(prepare(case).p[node:node + 1])
+        # the run's parameters at the node, without settling or pre-pacing a strand for them
+        self.p = np.ascontiguousarray(node_fields_of(case, self.model)[1][node:node + 1])
         self.scale = self.model.ion_scale(case.fiber.capacitance)
         self.overrides = {"output.states": list(self.model.state_names)}
         self.level = INWARD_RATE

@@ -269,7 +269,7 @@ def fit_weiss(durations, thresholds):
 
 def measured_rheobase(durations, thresholds, tolerance):
     """(plateau of the computed curve [uA/cm^2], whether it is reached) from the longest pulses."""
-    d, i = np.asarray(durations, float), np.asarray(thresholds, float)
+    i = np.asarray(thresholds, float)
     ok = np.isfinite(i)
     if not ok.any():
         return np.nan, False

@@ -39,10 +39,17 @@ import xarray as xr
 from cable.case import CaseError
 from cable.io.netcdf import chunk_shape, variable_attrs, write_dataset
 # the point Datasets and the assembling have modules of their own; their names import from here too
-from cable.sweep.assemble import assemble, no_result_code  # noqa: F401
-from cable.sweep.points import (FAILURES, NO_RESULT, OUTCOMES, PER_POINT, REASON_ATTRS, STATUS,  # noqa: F401
+from cable.sweep.assemble import assemble, no_result_code
+from cable.sweep.points import (FAILURES, NO_RESULT, OUTCOMES, PER_POINT, REASON_ATTRS, STATUS,
                                 coord_attrs, failed_dataset, is_failure, label, point_dataset, status_attrs,
                                 status_of, _with_status)
+
+__all__ = ["MARKER", "PointStore", "open_points", "write_result", "local_io", "without_fields", "point_attrs",
+           "stale_temporaries", "remove",
+           # re-exported from assemble.py and points.py
+           "assemble", "no_result_code", "FAILURES", "NO_RESULT", "OUTCOMES", "PER_POINT", "REASON_ATTRS", "STATUS",
+           "coord_attrs", "failed_dataset", "is_failure", "label", "point_dataset", "status_attrs", "status_of",
+           "_with_status"]
 
 #: the store's record of its sweep (identity, start time) inside the point folder
 MARKER = "sweep.json"

@@ -169,7 +169,7 @@ def export(eq: Equations) -> str:
     dv = f"<apply><divide/>{net}<ci>{cm}</ci></apply>" if eq.current_basis == "area" else net
     maths.append(eqn(POTENTIAL, rhs_xml=dv, diff=True))
 
-    out = [f'<?xml version="1.0" encoding="UTF-8"?>',
+    out = ['<?xml version="1.0" encoding="UTF-8"?>',
            f'<model xmlns="{_CELLML}" xmlns:cellml="{_CELLML}" name="{_ident(eq.name, set())}">']
     for uid, parts in units.items():
         if not parts:

@@ -313,36 +313,9 @@ def _assemble(code, names, sym, eqs, values, vkey, scales, to_file, zero, voi, n
         deriv.append((n, rates[k] / s_t))
     dvdt = rates[vkey[1]] / (c1 * s_t)  # mV/ms
 
-    cap = [s for s in rates[vkey[1]].free_symbols if str(s) in consts]
-    area = [(s, f) for s in cap for f in [_factor(code.model, _unit_of(info, names, str(s)), "capacitance_area")] if f]
-    absolute = [s for s in cap if _factor(code.model, _unit_of(info, names, str(s)), "capacitance")]
-    capacitance = None
-    if area:
-        s, f = area[0]
-        capacitance = consts[str(s)] * f
-        basis, k_ion = "area", s * f
-        notes.append(f"capacitance: {s} = {capacitance:g} uF/cm^2 (the model's C_m: used when the case gives "
-                     f"none; currents per membrane area, uA/cm^2)")
-    else:
-        basis, k_ion = "capacitance", sympy.Integer(1)
-        what = (f"{absolute[0]} (a capacitance, not per area): currents divided by it" if absolute
-                else "none in the potential's equation")
-        notes.append(f"capacitance: {what}; currents per capacitance, uA/uF")
+    basis, k_ion, capacitance = _capacitance(code, names, rates[vkey[1]], consts, notes)
     algebraic = {names[("algebraic_variables", k)] for k in range(len(info["algebraic_variables"]))}
-    expanded, terms = _current_terms(dvdt, inter, algebraic - {str(s) for s in zero})
-    currents = []
-    total = -k_ion * dvdt
-    for t in terms:
-        coef = sympy.diff(expanded, t)
-        if coef.free_symbols & set(terms):
-            currents = []
-            break
-        currents.append((str(t), -k_ion * coef * t))
-    rest = sympy.expand(-k_ion * expanded - sum(e for _, e in currents)) if currents else total
-    if not currents:
-        currents = [("I_ion", total)]
-    elif rest != 0:
-        currents.append(("I_other", rest))
+    currents = _currents(dvdt, inter, algebraic - {str(s) for s in zero}, k_ion)
 
     params = []
     for k, c in enumerate(info["constants"]):
@@ -356,6 +329,45 @@ def _assemble(code, names, sym, eqs, values, vkey, scales, to_file, zero, voi, n
         states=tuple(states), parameters=tuple(params), intermediates=tuple(inter.items()),
         derivatives=tuple(deriv), currents=tuple(currents), current_basis=basis, threshold=-20.0,
         capacitance=capacitance, notes=tuple(notes))
+
+
+def _capacitance(code, names, dv_rate, consts, notes):
+    """(current basis, factor from -dV/dt to the ionic current, C_m [uF/cm^2] or None) from the
+    capacitance among the constants of the potential's equation (per area, absolute or none)."""
+    info = code.info
+    cap = [s for s in dv_rate.free_symbols if str(s) in consts]
+    area = [(s, f) for s in cap for f in [_factor(code.model, _unit_of(info, names, str(s)), "capacitance_area")] if f]
+    absolute = [s for s in cap if _factor(code.model, _unit_of(info, names, str(s)), "capacitance")]
+    if area:
+        s, f = area[0]
+        capacitance = consts[str(s)] * f
+        notes.append(f"capacitance: {s} = {capacitance:g} uF/cm^2 (the model's C_m: used when the case gives "
+                     f"none; currents per membrane area, uA/cm^2)")
+        return "area", s * f, capacitance
+    what = (f"{absolute[0]} (a capacitance, not per area): currents divided by it" if absolute
+            else "none in the potential's equation")
+    notes.append(f"capacitance: {what}; currents per capacitance, uA/uF")
+    return "capacitance", sympy.Integer(1), None
+
+
+def _currents(dvdt, inter, algebraic, k_ion):
+    """The ionic currents (name, expression): the algebraic terms of dV/dt that enter it
+    linearly, the rest as I_other; one I_ion when the terms do not separate."""
+    expanded, terms = _current_terms(dvdt, inter, algebraic)
+    currents = []
+    total = -k_ion * dvdt
+    for t in terms:
+        coef = sympy.diff(expanded, t)
+        if coef.free_symbols & set(terms):
+            currents = []
+            break
+        currents.append((str(t), -k_ion * coef * t))
+    rest = sympy.expand(-k_ion * expanded - sum(e for _, e in currents)) if currents else total
+    if not currents:
+        currents = [("I_ion", total)]
+    elif rest != 0:
+        currents.append(("I_other", rest))
+    return currents
 
 
 def _unit_of(info, names, n):

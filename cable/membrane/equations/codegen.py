@@ -67,7 +67,6 @@ def _assign(pr, names, parsed, which, indent):
 def _body(an: Analysis, pr, names, indent, load_state, load_param, store_state):
     """Lines of one node's reaction step (gates, then the potential)."""
     parsed, m = an.parsed, an.parsed.model
-    nstate = len(m.states)
     lines = [f"{indent}{names[s.name]} = {load_state(k)}" for k, s in enumerate(m.states)]
     lines += [f"{indent}p{k} = {load_param(k)}" for k in range(len(m.parameters))]
     rl = {n: b for n, b in an.linear.items() if b is not None}

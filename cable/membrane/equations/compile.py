@@ -5,7 +5,7 @@
 the hash of its text, imports it and wraps its kernels. The folder is
 ``$CABLE_CACHE_DIR/generated`` or ``~/.cache/cable/generated``; numba keeps the compiled
 kernels beside the module (``cache=True``), so a second run compiles nothing.
-:func:`load_cached` imports a module already written (the CellML import uses it to skip
+:func:`cable.membrane.equations.cache.load_cached` imports a module already written (the CellML import uses it to skip
 libcellml and sympy when the file has not changed).
 """
 
@@ -16,8 +16,7 @@ import json
 import sympy
 
 from cable.membrane.equations import analysis, cache, codegen
-from cable.membrane.equations.cache import (GeneratedModel, cache_dir, load_cached, model_from_module,  # noqa: F401
-                                            store_keyed, write_module)
+from cable.membrane.equations.cache import GeneratedModel, model_from_module, write_module
 from cable.membrane.equations.description import Equations, EqParameter, EqState, parse
 
 

@@ -5,7 +5,6 @@ from __future__ import annotations
 
 import numpy as np
 
-from cable.case import CaseError
 from cable.plot import _common
 from cable.plot.protocol_figures._parts import (_RING, _at_foot, _legend, _plain_log, _require, _scalar,
                                                   _side_by_side, _units)
