@@ -205,7 +205,7 @@ def simulate(case, *, output=None, overwrite: bool = False, progress=None, comma
             vals[schema.STATE_PREFIX + name] = arrays.state(j)
         sink.write(k, vals)
 
-    table_args = (rates.table, rates.v_lo, rates.inv_dv, 1) if fast else ()
+    table_args = (rates.table, rates.v_lo, rates.inv_dv, rates.group, 1) if fast else ()
     stepper = _stepper(setup, advance, arrays, rates if fast else None, (gating, theta, splitting,
                                                                          num.merge_half_steps), state_idx)
     cell_chunk = _cell_chunk(setup, quiet) if getattr(stepper, "single_cell", False) else None
