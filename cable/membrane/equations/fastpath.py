@@ -212,9 +212,11 @@ def _parameter_loads(m, off, indent) -> list:
     return [f"{indent}p{k} = B[{off['par'] + k * BLOCK} + w]" for k in range(len(m.parameters))]
 
 
-def _main_lines(an, pr, names, fp, cols, off) -> list:
+def _main_lines(an, pr, names, fp, cols, off, by_node=True) -> list:
     """The node loop of a block: every value in the buffer B at a constant offset, so that
-    the loop's memory accesses are provably independent and LLVM vectorises it."""
+    the loop's memory accesses are provably independent and LLVM vectorises it.
+    ``by_node``: the parameters and parameter-only values read per node from the buffer
+    (else they are the caller's scalars p0.., x..)."""
     parsed, m = an.parsed, an.parsed.model
     inter = parsed.intermediates
     rl = {n: b for n, b in an.linear.items() if b is not None}
@@ -227,9 +229,10 @@ def _main_lines(an, pr, names, fp, cols, off) -> list:
         return f"B[{off['col'] + c * BLOCK} + w]"
 
     out = ["    for w in range(nb):", f"{ind}V = B[{off['v']} + w]"]
-    out += _parameter_loads(m, off, ind)
-    for c, name in enumerate(_const_names(an, fp, names, sidx)):
-        out.append(f"{ind}{name} = B[{off['const'] + c * BLOCK} + w]")
+    if by_node:
+        out += _parameter_loads(m, off, ind)
+        for c, name in enumerate(_const_names(an, fp, names, sidx)):
+            out.append(f"{ind}{name} = B[{off['const'] + c * BLOCK} + w]")
     out += [f"{ind}y{k} = B[{k * BLOCK} + w]" for k in range(len(m.states))]
     out += [f"{ind}{names[n]} = {col(c)}" for c, n in enumerate(frontier)]
     c = len(frontier)
@@ -373,27 +376,7 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
             "    return table"]
     # the columns of a block: interpolated in each node's table (G: its group), exact for the
     # nodes outside the table, or all exact
-    out += ["", "", "@jit", "def block_columns(B, G, dt, gating, table, v_lo, inv_dv, nb):",
-            "    top = table.shape[1] - 1.0",
-            "    if top <= 0.0:",
-            "        exact_columns(B, dt, gating, 0, nb)",
-            "        return",
-            "    inside = True",
-            "    for w in range(nb):",
-            f"        x = (B[{off['v']} + w] - v_lo) * inv_dv",
-            "        ok = (x >= 0.0) & (x < top)",
-            "        inside = inside & ok",
-            "        x = x if ok else 0.0  # (a node outside: any valid row, replaced below)",
-            "        j = np.int64(x)",
-            "        f = x - np.float64(j)",
-            "        g = G[w]",
-            f"        for c in range({ncol}):",
-            f"            B[{off['col']} + {BLOCK} * c + w] = table[g, j, 2 * c] + f * table[g, j, 2 * c + 1]",
-            "    if not inside:",
-            "        for w in range(nb):",
-            f"            x = (B[{off['v']} + w] - v_lo) * inv_dv",
-            "            if not (x >= 0.0 and x < top):",
-            "                exact_columns(B, dt, gating, w, w + 1)"]
+    out += _columns_lines(off, ncol, grouped=False) + _columns_lines(off, ncol, grouped=True)
     # the parameters of nodes lo..lo+nb-1 (pT with one column: the same for all) and the
     # values of parameters alone, per node
     out += ["", "", "@jit", "def block_parameters(B, pT, lo, nb):",
@@ -407,42 +390,87 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
     out += [f"        B[{off['const'] + c * BLOCK} + w] = {name}" for c, name in enumerate(consts)]
     if not consts:
         out.append("        pass")
-    # the node loop of a block
+    # the node loop of a block: parameters by node (from the buffer), or one set for all
+    # (scalars, as the loop-invariant operands LLVM keeps in registers: ~15% faster on LR1)
     out += ["", "", "@jit", "def block_step(B, dt, ion_scale, gating, nb):"]
     out += _main_lines(an, pr, names, fp, cols, off)
+    out += ["", "", "@jit", "def block_step_shared(B, pT, dt, ion_scale, gating, nb):"]
+    out += loads + _const_lines(an, pr, names, fp, sidx, "    ")
+    out += _main_lines(an, pr, names, fp, cols, off, by_node=False)
+    copy_in = [f"        for k in range({nstate}):",
+               "            for w in range(nb):",
+               f"                B[{BLOCK} * k + w] = sT[k, lo + w]",
+               "        for w in range(nb):",
+               f"            B[{off['v']} + w] = v[lo + w]",
+               f"            B[{off['stim']} + w] = i_stim[lo + w]"]
+    copy_out = [f"        for k in range({nstate}):",
+                "            for w in range(nb):",
+                f"                sT[k, lo + w] = B[{BLOCK} * k + w]",
+                "        for w in range(nb):",
+                f"            v[lo + w] = B[{off['v']} + w]"]
+    # the same parameters at every node (one column): put in the buffer once (for
+    # exact_columns), the node loop with them as scalars; one table
+    out += ["", "", "@jit", "def shared_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, B):",
+            "    n = v.shape[0]",
+            "    block_parameters(B, pT, 0, min(FAST_BLOCK, n))",
+            "    for lo in range(0, n, FAST_BLOCK):",
+            "        nb = min(FAST_BLOCK, n - lo)"] + copy_in + [
+            "        block_columns(B, dt, gating, table, v_lo, inv_dv, nb)",
+            "        block_step_shared(B, pT, dt, ion_scale, gating, nb)"] + copy_out
+    # parameters by node: loaded and worked out per block; each node in its group's table
+    out += ["", "", "@jit",
+            "def by_node_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group, B):",
+            "    n = v.shape[0]",
+            "    G = np.zeros(FAST_BLOCK, dtype=np.int64)",
+            "    for lo in range(0, n, FAST_BLOCK):",
+            "        nb = min(FAST_BLOCK, n - lo)",
+            "        block_parameters(B, pT, lo, nb)",
+            "        block_constants(B, dt, gating, nb)"] + copy_in + [
+            "        if table.shape[0] == 1:",
+            "            block_columns(B, dt, gating, table[0], v_lo, inv_dv, nb)",
+            "        else:",
+            "            for w in range(nb):",
+            "                G[w] = group[lo + w]",
+            "            group_columns(B, G, dt, gating, table, v_lo, inv_dv, nb)",
+            "        block_step(B, dt, ion_scale, gating, nb)"] + copy_out
     out += ["", "", "@jit", "def reaction_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group):",
             '    """Fast reaction step (contract: cable.membrane.base.FastPath, by state)."""',
             "    B = np.empty(FAST_BUFFER)",
-            "    G = np.zeros(FAST_BLOCK, dtype=np.int64)",
-            "    n = v.shape[0]",
-            "    each = pT.shape[1] > 1   # parameters by node: loaded and worked out per block",
-            "    if not each:             # the same parameters at every node: once per call",
-            "        block_parameters(B, pT, 0, min(FAST_BLOCK, n))",
-            "        block_constants(B, dt, gating, min(FAST_BLOCK, n))",
-            "        if table.shape[0] > 1:",
-            "            G[:] = group[0]",
-            "    for lo in range(0, n, FAST_BLOCK):",
-            "        nb = min(FAST_BLOCK, n - lo)",
-            "        if each:",
-            "            block_parameters(B, pT, lo, nb)",
-            "            block_constants(B, dt, gating, nb)",
-            "            if table.shape[0] > 1:   # (one table: group not read)",
-            "                for w in range(nb):",
-            "                    G[w] = group[lo + w]",
-            f"        for k in range({nstate}):",
-            "            for w in range(nb):",
-            f"                B[{BLOCK} * k + w] = sT[k, lo + w]",
-            "        for w in range(nb):",
-            f"            B[{off['v']} + w] = v[lo + w]",
-            f"            B[{off['stim']} + w] = i_stim[lo + w]",
-            "        block_columns(B, G, dt, gating, table, v_lo, inv_dv, nb)",
-            "        block_step(B, dt, ion_scale, gating, nb)",
-            f"        for k in range({nstate}):",
-            "            for w in range(nb):",
-            f"                sT[k, lo + w] = B[{BLOCK} * k + w]",
-            "        for w in range(nb):",
-            f"            v[lo + w] = B[{off['v']} + w]"]
+            "    if pT.shape[1] == 1:",
+            "        g = 0 if table.shape[0] == 1 else group[0]",
+            "        shared_step(v, sT, pT, i_stim, dt, ion_scale, gating, table[g], v_lo, inv_dv, B)",
+            "    else:",
+            "        by_node_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group, B)"]
     return out
+
+
+def _columns_lines(off, ncol, grouped) -> list:
+    """``block_columns`` (one table, (nrow, ncol)) or ``group_columns`` (node w of the block in
+    table G[w] of (ngroup, nrow, ncol)): the columns of a block interpolated, exact for the
+    nodes outside the table, or all exact (a table with no rows)."""
+    head = "def group_columns(B, G, dt, gating, table, v_lo, inv_dv, nb):" if grouped else \
+        "def block_columns(B, dt, gating, table, v_lo, inv_dv, nb):"
+    at = "table[g, j, 2 * c] + f * table[g, j, 2 * c + 1]" if grouped else "table[j, 2 * c] + f * table[j, 2 * c + 1]"
+    return ["", "", "@jit", head,
+            f"    top = table.shape[{1 if grouped else 0}] - 1.0",
+            "    if top <= 0.0:",
+            "        exact_columns(B, dt, gating, 0, nb)",
+            "        return",
+            "    inside = True",
+            "    for w in range(nb):",
+            f"        x = (B[{off['v']} + w] - v_lo) * inv_dv",
+            "        ok = (x >= 0.0) & (x < top)",
+            "        inside = inside & ok",
+            "        x = x if ok else 0.0  # (a node outside: any valid row, replaced below)",
+            "        j = np.int64(x)",
+            "        f = x - np.float64(j)"] + (["        g = G[w]"] if grouped else []) + [
+            f"        for c in range({ncol}):",
+            f"            B[{off['col']} + {BLOCK} * c + w] = {at}",
+            "    if not inside:",
+            "        for w in range(nb):",
+            f"            x = (B[{off['v']} + w] - v_lo) * inv_dv",
+            "            if not (x >= 0.0 and x < top):",
+            "                exact_columns(B, dt, gating, w, w + 1)"]
 
 
 def _const_names(an, fp, names, sidx) -> list:
