@@ -24,13 +24,15 @@ columns of a block of nodes are written into a work array (interpolated, or exac
 one node loop of plain arithmetic reads them: every function in it is vectorisable
 (:mod:`cable.kernels.elementary`, :mod:`cable.membrane.equations.vecmath`; float powers
 as exp(e log x), integer powers as products), so LLVM turns it into SIMD code. The
-node loop reads the parameters, and the values of parameters alone, from the buffer
-too: with one parameter column they are put there once per call, with parameters by
-node (``pT`` with n columns) once per block, by the same code per node. A node's
-arithmetic is then the same whatever its block-mates and whether its parameters are
-shared, so a batch gives each strand its result alone, bit for bit (IEEE arithmetic in
-every SIMD lane as in scalar code: numba compiles without fast-math). Each node
-interpolates in the table of its table group (``group``; see cable/kernels/tables.py).
+With one parameter column (``shared_step``) the parameters and the parameter-only
+values are scalars of the node loop, computed once per block. With parameters by node
+(``pT`` with n columns, ``by_node_step``) they are loaded into the buffer and worked out
+per block, per node, by the same expressions, and the node loop reads them from the
+buffer: still vectorised (before issue 15 such nodes went one at a time). A node's
+arithmetic is the same either way and whatever its block-mates, so a batch gives each
+strand its result alone, bit for bit (IEEE arithmetic in every SIMD lane as in scalar
+code: numba compiles without fast-math; tested). Each node interpolates in the table of
+its table group (``group``; see cable/kernels/tables.py).
 """
 
 from __future__ import annotations
@@ -40,12 +42,11 @@ import inspect
 
 import sympy
 
-from cable.membrane.equations import singular, vecmath
+from cable.membrane.equations import blocks, singular, vecmath
 from cable.membrane.equations.analysis import Analysis, needed
 from cable.membrane.equations.description import POTENTIAL
 
-#: nodes per block: the work array of a block stays in the first-level cache
-BLOCK = 32
+BLOCK = blocks.BLOCK
 
 
 def _power_text(b: str, k: int) -> str:
@@ -198,20 +199,6 @@ def _column_lines(an, pr, names, fp, indent, store) -> list:
     return out
 
 
-def _offsets(m, ncol, nconst):
-    """Offsets in the block buffer (segments of BLOCK values): states, columns, V, stimulus,
-    parameters, parameter-only values (intermediates and Rush-Larsen factors)."""
-    ns, npar = len(m.states), len(m.parameters)
-    par = (ns + ncol + 2) * BLOCK
-    return {"col": ns * BLOCK, "v": (ns + ncol) * BLOCK, "stim": (ns + ncol + 1) * BLOCK, "par": par,
-            "const": par + npar * BLOCK, "size": par + (npar + nconst) * BLOCK}
-
-
-def _parameter_loads(m, off, indent) -> list:
-    """The node's parameters, from the buffer (unused loads are dropped by the compiler)."""
-    return [f"{indent}p{k} = B[{off['par'] + k * BLOCK} + w]" for k in range(len(m.parameters))]
-
-
 def _main_lines(an, pr, names, fp, cols, off, by_node=True) -> list:
     """The node loop of a block: every value in the buffer B at a constant offset, so that
     the loop's memory accesses are provably independent and LLVM vectorises it.
@@ -230,7 +217,7 @@ def _main_lines(an, pr, names, fp, cols, off, by_node=True) -> list:
 
     out = ["    for w in range(nb):", f"{ind}V = B[{off['v']} + w]"]
     if by_node:
-        out += _parameter_loads(m, off, ind)
+        out += blocks.parameter_loads(len(m.parameters), off, ind)
         for c, name in enumerate(_const_names(an, fp, names, sidx)):
             out.append(f"{ind}{name} = B[{off['const'] + c * BLOCK} + w]")
     out += [f"{ind}y{k} = B[{k * BLOCK} + w]" for k in range(len(m.states))]
@@ -320,9 +307,8 @@ class _Reciprocals:
 
 def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
     """Source lines of ``reaction_fast``, ``build_table`` and their helpers (module docstring)."""
-    parsed, m = an.parsed, an.parsed.model
+    m = an.parsed.model
     pr = fast_printer(base_printer)
-    rl = {n: b for n, b in an.linear.items() if b is not None}
     sidx = {s.name: k for k, s in enumerate(m.states)}
     nstate, nparam = len(m.states), len(m.parameters)
     frontier, gates, factors = fp["tabulated"], fp["gates"], fp["factors"]
@@ -332,7 +318,7 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
         cols[n] = c
         c += 2
     consts = _const_names(an, fp, names, sidx)
-    off = _offsets(m, ncol, len(consts))
+    off = blocks.offsets(len(m.states), ncol, len(m.parameters), len(consts))
     loads = [f"    p{k} = pT[{k}, 0]" for k in range(nparam)]
     out = ["", "", f"# fast path (helpers {_helpers_hash()})",
            "from cable.kernels.elementary import exp as _vexp",
@@ -342,7 +328,7 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
     # exact columns of the buffer's nodes w0..w1-1 (a run without a table, or nodes outside it)
     out += ["", "", "@jit", "def exact_columns(B, dt, gating, w0, w1):"]
     out += ["    for w in range(w0, w1):", f"        V = B[{off['v']} + w]"]
-    out += _parameter_loads(m, off, "        ")
+    out += blocks.parameter_loads(len(m.parameters), off, "        ")
     out += _column_lines(an, pr, names, fp, "        ",
                          lambda c, t: f"        B[{off['col'] + c * BLOCK} + w] = {t}")
     # the table: row j is the mean of the values at V_j -+ dv/1000 (a removable singularity
@@ -376,101 +362,25 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
             "    return table"]
     # the columns of a block: interpolated in each node's table (G: its group), exact for the
     # nodes outside the table, or all exact
-    out += _columns_lines(off, ncol, grouped=False) + _columns_lines(off, ncol, grouped=True)
-    # the parameters of nodes lo..lo+nb-1 (pT with one column: the same for all) and the
-    # values of parameters alone, per node
-    out += ["", "", "@jit", "def block_parameters(B, pT, lo, nb):",
-            "    one = pT.shape[1] == 1",
-            f"    for k in range({nparam}):",
-            "        for w in range(nb):",
-            f"            B[{off['par']} + {BLOCK} * k + w] = pT[k, 0] if one else pT[k, lo + w]"]
+    out += blocks.columns_lines(off, ncol, grouped=False) + blocks.columns_lines(off, ncol, grouped=True)
+    # the parameters of nodes lo..lo+nb-1, and the values of parameters alone, per node
+    out += blocks.parameters_lines(off, nparam)
     out += ["", "", "@jit", "def block_constants(B, dt, gating, nb):", "    for w in range(nb):"]
-    out += _parameter_loads(m, off, "        ")
+    out += blocks.parameter_loads(len(m.parameters), off, "        ")
     out += _const_lines(an, pr, names, fp, sidx, "        ")
     out += [f"        B[{off['const'] + c * BLOCK} + w] = {name}" for c, name in enumerate(consts)]
     if not consts:
         out.append("        pass")
     # the node loop of a block: parameters by node (from the buffer), or one set for all
-    # (scalars, as the loop-invariant operands LLVM keeps in registers: ~15% faster on LR1)
+    # (scalars computed once per block, loop-invariant operands: the shared case's code as
+    # before issue 15)
     out += ["", "", "@jit", "def block_step(B, dt, ion_scale, gating, nb):"]
     out += _main_lines(an, pr, names, fp, cols, off)
     out += ["", "", "@jit", "def block_step_shared(B, pT, dt, ion_scale, gating, nb):"]
     out += loads + _const_lines(an, pr, names, fp, sidx, "    ")
     out += _main_lines(an, pr, names, fp, cols, off, by_node=False)
-    copy_in = [f"        for k in range({nstate}):",
-               "            for w in range(nb):",
-               f"                B[{BLOCK} * k + w] = sT[k, lo + w]",
-               "        for w in range(nb):",
-               f"            B[{off['v']} + w] = v[lo + w]",
-               f"            B[{off['stim']} + w] = i_stim[lo + w]"]
-    copy_out = [f"        for k in range({nstate}):",
-                "            for w in range(nb):",
-                f"                sT[k, lo + w] = B[{BLOCK} * k + w]",
-                "        for w in range(nb):",
-                f"            v[lo + w] = B[{off['v']} + w]"]
-    # the same parameters at every node (one column): put in the buffer once (for
-    # exact_columns), the node loop with them as scalars; one table
-    out += ["", "", "@jit", "def shared_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, B):",
-            "    n = v.shape[0]",
-            "    block_parameters(B, pT, 0, min(FAST_BLOCK, n))",
-            "    for lo in range(0, n, FAST_BLOCK):",
-            "        nb = min(FAST_BLOCK, n - lo)"] + copy_in + [
-            "        block_columns(B, dt, gating, table, v_lo, inv_dv, nb)",
-            "        block_step_shared(B, pT, dt, ion_scale, gating, nb)"] + copy_out
-    # parameters by node: loaded and worked out per block; each node in its group's table
-    out += ["", "", "@jit",
-            "def by_node_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group, B):",
-            "    n = v.shape[0]",
-            "    G = np.zeros(FAST_BLOCK, dtype=np.int64)",
-            "    for lo in range(0, n, FAST_BLOCK):",
-            "        nb = min(FAST_BLOCK, n - lo)",
-            "        block_parameters(B, pT, lo, nb)",
-            "        block_constants(B, dt, gating, nb)"] + copy_in + [
-            "        if table.shape[0] == 1:",
-            "            block_columns(B, dt, gating, table[0], v_lo, inv_dv, nb)",
-            "        else:",
-            "            for w in range(nb):",
-            "                G[w] = group[lo + w]",
-            "            group_columns(B, G, dt, gating, table, v_lo, inv_dv, nb)",
-            "        block_step(B, dt, ion_scale, gating, nb)"] + copy_out
-    out += ["", "", "@jit", "def reaction_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group):",
-            '    """Fast reaction step (contract: cable.membrane.base.FastPath, by state)."""',
-            "    B = np.empty(FAST_BUFFER)",
-            "    if pT.shape[1] == 1:",
-            "        g = 0 if table.shape[0] == 1 else group[0]",
-            "        shared_step(v, sT, pT, i_stim, dt, ion_scale, gating, table[g], v_lo, inv_dv, B)",
-            "    else:",
-            "        by_node_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group, B)"]
+    out += blocks.driver_lines(off, nstate)
     return out
-
-
-def _columns_lines(off, ncol, grouped) -> list:
-    """``block_columns`` (one table, (nrow, ncol)) or ``group_columns`` (node w of the block in
-    table G[w] of (ngroup, nrow, ncol)): the columns of a block interpolated, exact for the
-    nodes outside the table, or all exact (a table with no rows)."""
-    head = "def group_columns(B, G, dt, gating, table, v_lo, inv_dv, nb):" if grouped else \
-        "def block_columns(B, dt, gating, table, v_lo, inv_dv, nb):"
-    at = "table[g, j, 2 * c] + f * table[g, j, 2 * c + 1]" if grouped else "table[j, 2 * c] + f * table[j, 2 * c + 1]"
-    return ["", "", "@jit", head,
-            f"    top = table.shape[{1 if grouped else 0}] - 1.0",
-            "    if top <= 0.0:",
-            "        exact_columns(B, dt, gating, 0, nb)",
-            "        return",
-            "    inside = True",
-            "    for w in range(nb):",
-            f"        x = (B[{off['v']} + w] - v_lo) * inv_dv",
-            "        ok = (x >= 0.0) & (x < top)",
-            "        inside = inside & ok",
-            "        x = x if ok else 0.0  # (a node outside: any valid row, replaced below)",
-            "        j = np.int64(x)",
-            "        f = x - np.float64(j)"] + (["        g = G[w]"] if grouped else []) + [
-            f"        for c in range({ncol}):",
-            f"            B[{off['col']} + {BLOCK} * c + w] = {at}",
-            "    if not inside:",
-            "        for w in range(nb):",
-            f"            x = (B[{off['v']} + w] - v_lo) * inv_dv",
-            "            if not (x >= 0.0 and x < top):",
-            "                exact_columns(B, dt, gating, w, w + 1)"]
 
 
 def _const_names(an, fp, names, sidx) -> list:
