@@ -112,12 +112,6 @@ class Plan:
     group: np.ndarray = field(default_factory=one_group)
 
 
-def uniform_columns(p: np.ndarray, columns) -> bool:
-    """Whether the given parameter columns hold one value at every node."""
-    p = np.asarray(p)
-    return all(bool(np.all(p[:, c] == p[0, c])) for c in columns)
-
-
 def by_parameter(p: np.ndarray) -> np.ndarray:
     """Parameters stored by parameter: (nparam, 1) when every node has the same row."""
     p = np.asarray(p, dtype=np.float64)
