@@ -278,8 +278,8 @@ class _Reciprocals:
                     count[a] = count.get(a, 0) + 1
         shared = [a for a, c in count.items() if c > 1]
         self.map = {a: sympy.Symbol(f"_{prefix}{k}", real=True) for k, a in enumerate(shared)}
-        for a, sym in self.map.items():
-            names[str(sym)] = f"{prefix}{len(names)}"
+        for k, sym in enumerate(self.map.values()):
+            names[str(sym)] = f"{prefix}{k}"   # (unique per prefix, however often a loop is written)
         self.pr, self.indent, self.done = pr, indent, set()
 
     def _need(self, expr, out):
