@@ -209,7 +209,7 @@ class _Run:
         self.sink = self._sink(overwrite)
         self.highest = -np.inf  # the highest potential sampled: says why no node crossed a given threshold
         self._electrodes()
-        self.table_args = (rates.table, rates.v_lo, rates.inv_dv, 1) if fast else ()
+        self.table_args = (rates.table, rates.v_lo, rates.inv_dv, rates.group, 1) if fast else ()
         self.stepper = _stepper(setup, self.advance, self.arrays, rates if fast else None,
                                 (self.gating, self.theta, self.splitting, num.merge_half_steps), self.state_idx)
         self.cell_chunk = _cell_chunk(setup, self.quiet) if getattr(self.stepper, "single_cell", False) else None

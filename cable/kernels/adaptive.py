@@ -205,10 +205,12 @@ class Stepper:
         self.fulls = tuple(stack([f[1][j] for f in self.factors]) for j in range(3))
         fast = rates[0] is not None
         if fast:
-            self.tables = stack([r.table for r in rates])
+            self.tables = stack([r.table for r in rates])   # (level, group, row, column)
             self.v_lo, self.inv_dv = float(rates[0].v_lo), float(rates[0].inv_dv)
+            self.group = np.ascontiguousarray(rates[0].group)  # the table groups: the same at every level
         else:
-            self.tables, self.v_lo, self.inv_dv = np.zeros((len(self.levels), 0, 1)), 0.0, 1.0
+            self.tables, self.v_lo, self.inv_dv = np.zeros((len(self.levels), 1, 0, 1)), 0.0, 1.0
+            self.group = np.zeros(1, dtype=np.int64)
         from cable.kernels.adaptive_strand import driver
 
         self.driver = driver(advance, fast)
@@ -229,8 +231,8 @@ class Stepper:
         status, step, node = self.driver(
             v, a.s, a.p, n0, n1, self.dt, np.array(self.levels), s.pulses, s.grid.lo, s.grid.up, self.theta,
             self.halves, self.fulls, self.splitting, self.merge, self.gating, s.ion_scale, s.threshold,
-            *a.probes(), self.tables, self.v_lo, self.inv_dv, self.zones, self.fe, a.by_state, self.bounds, self.ctl,
-            self.t_block, self.s_before, self.counts, self.trace)
+            *a.probes(), self.tables, self.v_lo, self.inv_dv, self.group, self.zones, self.fe, a.by_state, self.bounds,
+            self.ctl, self.t_block, self.s_before, self.counts, self.trace)
         return int(status), int(step), int(node)
 
     def outputs(self) -> dict:

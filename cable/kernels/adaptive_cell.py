@@ -35,7 +35,7 @@ from cable.kernels.jit import jit_inline, specialise
 from cable.kernels.state import CHECK_EVERY
 
 
-def cell_reaction(v, s, p, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):  # bound by specialise()
+def cell_reaction(v, s, p, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group):  # bound by specialise()
     raise NotImplementedError
 
 
@@ -43,7 +43,7 @@ def reaction(v, s, p, i_stim, dt, ion_scale, gating):  # bound by specialise() (
     raise NotImplementedError
 
 
-def reference_reaction(v, s, p, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):
+def reference_reaction(v, s, p, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group):
     """The model's plain ``reaction`` with the fast kernels' arguments (the table unused)."""
     reaction(v, s, p, i_stim, dt, ion_scale, gating)
 
@@ -90,12 +90,13 @@ def _allowed(v, d, h_last, threshold, s, s_last, fe, dt_max, dv_step, reach, rel
     return step
 
 
-def advance_cell(v, s, p, n0, n1, dt, hs, tables, v_lo, inv_dv, pulses, zones, spb, gating, ion_scale, threshold,
+def advance_cell(v, s, p, n0, n1, dt, hs, tables, v_lo, inv_dv, group, pulses, zones, spb, gating, ion_scale, threshold,
                  fe, bounds, ctl, s_last, cols, out, counts, vprev, act, nact, pre_rate, open_up, upstroke, apd,
                  i_stim, lohi, check_every, trace):
     """Advance one cell from fine step ``n0`` to ``n1`` at the levels ``hs`` (dt x 2^k).
 
-    ``tables`` (nlev, rows, cols): the fast kernel's table per level (no rows: exact);
+    ``tables`` (nlev, 1, rows, cols): the fast kernel's table per level (no rows: exact), ``group``
+    the cell's table group (0);
     ``zones``: :class:`CellZones`; ``spb``: fine steps per output interval: at every
     multiple of it after ``n0`` the row ``out[r]`` gets the potential and the states
     ``cols``; ``fe``: 1 for the forward-Euler states; ``bounds``: (``DV_STEP_MV``,
@@ -154,7 +155,7 @@ def advance_cell(v, s, p, n0, n1, dt, hs, tables, v_lo, inv_dv, pulses, zones, s
         stim_on = any_on
         for j in range(sf.shape[0]):
             s_last[j] = sf[j]
-        cell_reaction(v, s, p, i_stim, h, ion_scale, gating, tables[kk], v_lo, inv_dv)
+        cell_reaction(v, s, p, i_stim, h, ion_scale, gating, tables[kk], v_lo, inv_dv, group)
         probe(v, vprev, t, h, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, (lohi, lohi, 0.5 * h, 1))
         counts[kk] += 1
         if ctl[2] < trace.shape[0]:
@@ -229,8 +230,9 @@ class CellStepper:
             self.tables = np.ascontiguousarray(np.stack([pl.table for pl in plans]))
             self.v_lo, self.inv_dv = float(plans[0].v_lo), float(plans[0].inv_dv)
         else:
-            self.tables = np.zeros((len(levels), 0, 1))
+            self.tables = np.zeros((len(levels), 1, 0, 1))
             self.v_lo, self.inv_dv = 0.0, 1.0
+        self.group = np.zeros(1, dtype=np.int64)   # one cell: one table group
         self.pulses = np.ascontiguousarray(pulses, dtype=np.float64)
         self.zones = CellZones.of(self.pulses, self.dt, n_end).zones
         self.spb = int(spb)
@@ -253,7 +255,7 @@ class CellStepper:
         rows = n1 // self.spb - n0 // self.spb
         out = np.empty((rows, 1 + self.cols.shape[0]))
         status, done, got = self.loop(v, a.s, a.p, n0, n1, self.dt, self.levels, self.tables, self.v_lo,
-                                      self.inv_dv, self.pulses, self.zones, self.spb, 0, self.ion_scale,
+                                      self.inv_dv, self.group, self.pulses, self.zones, self.spb, 0, self.ion_scale,
                                       self.threshold, self.fe, self.bounds, self.ctl, self.s_last, self.cols, out,
                                       self.counts, *a.probes()[:8], self.lohi, CHECK_EVERY,
                                       self.trace)

@@ -25,21 +25,24 @@ def loop(*args):  # bound by specialise(): the run's compiled time loop
 
 
 def run_block(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale, threshold,
-              vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table, v_lo, inv_dv):
+              vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table, v_lo, inv_dv,
+              group):
     # bound by specialise(): fast_block or reference_block
     raise NotImplementedError
 
 
 def fast_block(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale, threshold,
-               vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table, v_lo, inv_dv):
+               vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table, v_lo, inv_dv,
+              group):
     """One block of ``fused.advance_fast`` (one strand) at one level."""
     return loop(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale, threshold,
-                vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table, v_lo, inv_dv, 1)
+                vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table, v_lo, inv_dv,
+                group, 1)
 
 
 def reference_block(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale,
                     threshold, vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table,
-                    v_lo, inv_dv):
+                    v_lo, inv_dv, group):
     """One block of ``integrate.advance`` at one level (no table)."""
     return loop(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale, threshold,
                 vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every)
@@ -47,11 +50,12 @@ def reference_block(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitt
 
 def advance_levels(v, s, p, n0, n1, dt, hs, pulses, lo, up, theta, halves, fulls, splitting, merge, gating, ion_scale,
                    threshold, vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, tables,
-                   v_lo, inv_dv, zones, fe, by_state, bounds, ctl, t_block, s_before, counts, trace):
+                   v_lo, inv_dv, group, zones, fe, by_state, bounds, ctl, t_block, s_before, counts, trace):
     """Advance from fine step ``n0`` to ``n1`` in blocks (see the module docstring).
 
     ``hs``: the levels; ``halves``, ``fulls``: the factors of D(h/2) and D(h) per level
-    (each part stacked (nlev, ...)); ``tables`` (nlev, rows, cols); ``zones`` (m, 2):
+    (each part stacked (nlev, ...)); ``tables`` (nlev, ngroup, rows, cols), ``group`` each node's
+    table group; ``zones`` (m, 2):
     ``adaptive.stimulus_zones``; ``bounds``: (dv_step, reach, rel_step, dv_power,
     dv_fast); ``ctl``: [level of the last block, zone reached, blocks traced]; ``t_block``:
     [length of the last block, ms]; ``s_before``: the states at its start; ``counts``:
@@ -105,7 +109,7 @@ def advance_levels(v, s, p, n0, n1, dt, hs, pulses, lo, up, theta, halves, fulls
                                        (halves[0][k], halves[1][k], halves[2][k]),
                                        (fulls[0][k], fulls[1][k], fulls[2][k]), splitting, merge, gating, ion_scale,
                                        threshold, vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work,
-                                       check_every, tables[k], v_lo, inv_dv)
+                                       check_every, tables[k], v_lo, inv_dv, group)
         if status != 0:
             counts[k] += done + 1
             return status, n - n0 + (done + 1) * width - 1, node

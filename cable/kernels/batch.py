@@ -26,7 +26,7 @@ Cases are batched together when everything their time loop depends on is the sam
 merged half steps, rates), output interval and count, activation threshold, APD levels,
 stored states, ion scale (capacitance), crossings stored per node, and the rate table
 (tabulated rates: the values of the table's parameters, ``FastPath.table_parameters``,
-so that the batch's one table is the table each case builds alone). Grids,
+one set per table group, so that the batch's tables are those each case builds alone). Grids,
 conductances, region parameters, stimuli and initial states may all differ. A case
 that asks for what the batch does not do (``measure.safety_factor``, a ring, ``[[electrode]]``,
 adaptive steps ``numerics.dt_max``) runs alone.
@@ -36,6 +36,7 @@ from __future__ import annotations
 
 import functools
 import time as _time
+from dataclasses import replace
 from types import SimpleNamespace
 
 import numpy as np
@@ -61,10 +62,11 @@ def _rates_key(setup) -> tuple:
     if rates == "exact" or fast.build_table is None:
         return ("exact",)
     columns = [model.parameter_names.index(name) for name in fast.table_parameters]
-    if not tables.uniform_columns(setup.p, columns):
-        return ("exact", "table parameters differ between nodes")
-    # the bits of the values the table is built from (FastPath.table_parameters)
-    return ("tabulated", np.asarray(setup.p[0, columns], dtype=np.float64).tobytes())
+    # the bits of the values the tables are built from (FastPath.table_parameters), one row per
+    # table group: members share them, so the batch's tables (and whether they fit,
+    # tables.MAX_TABLE_BYTES) are those of each member alone
+    first, _ = tables.table_groups(setup.p, columns)
+    return ("tabulated", np.asarray(setup.p, dtype=np.float64)[first][:, columns].tobytes())
 
 
 def group_key(setup) -> tuple | None:
@@ -293,7 +295,7 @@ def _batch_loop(setups) -> SimpleNamespace:
     model, num = first.model, first.case.numerics
     n = sum(s.n for s in setups)
     gating, theta, splitting = scheme_codes(num)
-    # one table for the group: its table parameters are those of every member (group_key)
+    # the tables of the group: its table groups are those of every member (group_key)
     rates = tables.plan(model, first.p, num.dt, gating, num.rates, reaction=num.reaction)
     fast = rates.mode != "reference"
     interleaved, slices = _layout(setups, fast)
@@ -307,6 +309,8 @@ def _batch_loop(setups) -> SimpleNamespace:
         last = (np.concatenate([[0], np.cumsum([s.n for s in setups])]).astype(np.int64),)
     v = _place([s.v0 for s in setups], slices, n)
     p_nodes = _place([np.broadcast_to(s.p, (s.n, s.p.shape[1])) for s in setups], slices, n)
+    if rates.table.shape[0] > 1:   # each node's table group (numbered alike for every member: group_key)
+        rates = replace(rates, group=tables.node_groups(model, p_nodes))
     # the crossing cap is the same for every member (group_key)
     arrays = loop_arrays(model, fast, v, _place([s.s0 for s in setups], slices, n), p_nodes, first.pulses.shape[0],
                          first.case.apd_levels)
@@ -315,7 +319,7 @@ def _batch_loop(setups) -> SimpleNamespace:
         splitting=splitting, half=factor(grids, 0.5 * num.dt, theta), full=factor(grids, num.dt, theta),
         lo=_place([s.grid.lo for s in setups], slices, n), up=_place([s.grid.up for s in setups], slices, n),
         pulses=_pulses(setups, slices, n), v=v, arrays=arrays,
-        extra=((rates.table, rates.v_lo, rates.inv_dv) if fast else ()) + last)
+        extra=((rates.table, rates.v_lo, rates.inv_dv, rates.group) if fast else ()) + last)
 
 
 def _batch_fields(setups, b):

@@ -36,7 +36,7 @@ from cable.kernels.integrate import (GODUNOV, NONFINITE, OK, RUNAWAY, RUNAWAY_MV
 from cable.kernels.jit import jit, jit_inline
 
 
-def fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):  # bound by specialise()
+def fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group):  # bound by specialise()
     raise NotImplementedError
 
 
@@ -166,12 +166,13 @@ def _diffuse(v, lo, up, h, theta, pivot, elim, back, work, strands):
 
 def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, splitting, merge,
                  gating, ion_scale, threshold, vprev, act, nact, pre_rate, open_up, upstroke,
-                 apd, i_stim, work, check_every, table, v_lo, inv_dv, strands):
+                 apd, i_stim, work, check_every, table, v_lo, inv_dv, group, strands):
     """Advance the strand by ``nsteps`` steps of ``dt`` from time ``t0``.
 
     Arguments as for :func:`cable.kernels.integrate.advance`, with ``sT`` and ``pT``
-    stored by state and parameter, the rate table (``table``, ``v_lo`` [mV],
-    ``inv_dv`` [1/mV]; a table with no rows: exact rates), and ``strands``: 1 for one
+    stored by state and parameter, the rate tables (``table`` (ngroup, nrow, ncol),
+    ``v_lo`` [mV], ``inv_dv`` [1/mV]; a table with no rows: exact rates; ``group``: each
+    node's table group, see ``cable.kernels.tables``), and ``strands``: 1 for one
     strand (factors from ``diffusion.factor``), S for S strands of one length stored
     interleaved (factors from ``diffusion.factor_interleaved``, see
     ``diffusion.diffuse_interleaved``). Returns (status, step, node).
@@ -195,7 +196,7 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
         if stim_on and not any_on:
             i_stim[:] = 0.0
         stim_on = any_on
-        fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
+        fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group)
         block_probe(v, vprev, dnow, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid,
                     stim_on, level, ceiling, busy)
         dnow, apd = apd[0], (dnow,) + apd[1:]    # this step's changes are the next step's dlast
@@ -214,7 +215,7 @@ def advance_fast(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, s
 
 def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half, full, splitting, merge,
                           gating, ion_scale, threshold, vprev, act, nact, pre_rate, open_up, upstroke,
-                          apd, i_stim, work, check_every, table, v_lo, inv_dv, offsets):
+                          apd, i_stim, work, check_every, table, v_lo, inv_dv, group, offsets):
     """:func:`advance_fast` for strands laid end to end (strand j on nodes
     ``offsets[j]`` to ``offsets[j + 1] - 1``, factors from
     ``diffusion.factor_segments``): each strand's diffusion solved alone
@@ -238,7 +239,7 @@ def advance_fast_segments(v, sT, pT, t0, nsteps, dt, pulses, lo, up, theta, half
         if stim_on and not any_on:
             i_stim[:] = 0.0
         stim_on = any_on
-        fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
+        fast_reaction(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group)
         block_probe(v, vprev, dnow, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid,
                     stim_on, level, ceiling, busy)
         dnow, apd = apd[0], (dnow,) + apd[1:]    # this step's changes are the next step's dlast

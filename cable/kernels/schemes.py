@@ -179,8 +179,8 @@ def _flow_all(out, s, a, b, h):
             ok[i] = _flow_vector(sk[i], ak[i], bk[i], h)
 
 
-def rush_larsen_2_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):
-    """:func:`rush_larsen_2` over all nodes at once (``table`` unused: exact rates)."""
+def rush_larsen_2_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group):
+    """:func:`rush_larsen_2` over all nodes at once (``table`` and ``group`` unused: exact rates)."""
     m, n = sT.shape
     a = np.empty((m, n))
     b = np.empty((m, n))
@@ -198,7 +198,7 @@ def rush_larsen_2_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, in
         v[i] = v[i] + dt * (i_stim[i] - ion_scale * ion[i])
 
 
-def heun_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):
+def heun_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group):
     """:func:`heun` over all nodes at once."""
     m, n = sT.shape
     a = np.empty((m, n))
@@ -225,7 +225,7 @@ def heun_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):
         v[i] = v[i] + 0.5 * dt * (w[i] + (i_stim[i] - ion_scale * ion[i]))
 
 
-def rk4_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):
+def rk4_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group):
     """:func:`rk4` over all nodes at once."""
     m, n = sT.shape
     a = np.empty((m, n))

@@ -111,17 +111,20 @@ class FastPath:
 
     Kernel contract (``kernel``)::
 
-        kernel(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
+        kernel(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group)
 
         sT      float64[nstate, n]  states stored by state (each row contiguous, so
                                     that the node loop vectorises), updated in place
         pT      float64[nparam, n] or float64[nparam, 1] parameters stored by
                                     parameter (one column: the same parameters at
                                     every node)
-        table   float64[nrow, ncol] gate coefficients on a voltage grid; nrow = 0
-                                    means none: the rates are evaluated exactly
-        v_lo    float               potential of the table's first row [mV]
+        table   float64[ngroup, nrow, ncol] gate coefficients on a voltage grid, one
+                                    table per table group (see ``table_parameters``);
+                                    nrow = 0 means none: the rates are evaluated exactly
+        v_lo    float               potential of the tables' first row [mV]
         inv_dv  float               1 / row spacing [1/mV]
+        group   int64[n]            the table group of each node: node i uses
+                                    table[group[i]]; read only when ngroup > 1
         the other arguments as for ``reaction``.
 
     With no table the kernel gives the result of ``reaction`` to rounding (it may
@@ -140,8 +143,8 @@ class FastPath:
         the table for one parameter row [model units], reaction step dt [ms] and
         gating scheme (0 Rush-Larsen, 1 forward Euler).
     table_parameters : tuple of str
-        Parameters the table depends on; it is used only when each of them is the
-        same at every node (otherwise the exact rates are used, with a note).
+        Parameters the table depends on: nodes that differ in them are in different
+        table groups, each with its own table (``cable.kernels.tables.plan``).
     v_lo, v_hi, dv : float
         Default range and spacing of the table [mV].
     by_state : bool

@@ -195,16 +195,16 @@ def _ionic(V, m, h, n, g_na, g_k, g_l, e_na, e_k, e_l):
 
 
 @jit_inline
-def _tabulated_gates(table, j, f, m, h, n):
-    """y <- A + B y with A, B interpolated in row j at fraction f (columns A, dA, B, dB)."""
-    m = fma(fma(f, table[j, 3], table[j, 2]), m, fma(f, table[j, 1], table[j, 0]))
-    h = fma(fma(f, table[j, 7], table[j, 6]), h, fma(f, table[j, 5], table[j, 4]))
-    n = fma(fma(f, table[j, 11], table[j, 10]), n, fma(f, table[j, 9], table[j, 8]))
+def _tabulated_gates(table, g, j, f, m, h, n):
+    """y <- A + B y with A, B interpolated in row j of group g's table at fraction f (columns A, dA, B, dB)."""
+    m = fma(fma(f, table[g, j, 3], table[g, j, 2]), m, fma(f, table[g, j, 1], table[g, j, 0]))
+    h = fma(fma(f, table[g, j, 7], table[g, j, 6]), h, fma(f, table[g, j, 5], table[g, j, 4]))
+    n = fma(fma(f, table[g, j, 11], table[g, j, 10]), n, fma(f, table[g, j, 9], table[g, j, 8]))
     return m, h, n
 
 
 @jit_inline
-def reaction_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):
+def reaction_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group):
     """Fast reaction step (contract: cable.membrane.base.FastPath).
 
     Inlined into the time loop that calls it (``jit_inline``), so that the loop's cache
@@ -219,8 +219,8 @@ def reaction_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
         phi = _phi(pT[TEMPERATURE, 0])
         g_na, g_k, g_l = pT[G_NA, 0], pT[G_K, 0], pT[G_L, 0]
         e_na, e_k, e_l = pT[E_NA, 0], pT[E_K, 0], pT[E_L, 0]
-        if table.shape[0] > 1:
-            _tabulated_loop(v, ms, hs, ns, table, v_lo, inv_dv, phi, dt, gating)
+        if table.shape[1] > 1:
+            _tabulated_loop(v, ms, hs, ns, table, group, v_lo, inv_dv, pT[TEMPERATURE], dt, gating)
             for i in range(nn):
                 V = v[i]
                 ion = _ionic(V, ms[i], hs[i], ns[i], g_na, g_k, g_l, e_na, e_k, e_l)
@@ -238,9 +238,9 @@ def reaction_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
     g_na, g_k, g_l = pT[G_NA], pT[G_K], pT[G_L]
     e_na, e_k, e_l = pT[E_NA], pT[E_K], pT[E_L]
     temp = pT[TEMPERATURE]
-    if table.shape[0] > 1:
-        # the table is valid for every node (same temperature: see FastPath.table_parameters)
-        _tabulated_loop(v, ms, hs, ns, table, v_lo, inv_dv, _phi(temp[0]), dt, gating)
+    if table.shape[1] > 1:
+        # each node's table is its temperature's (its table group: see FastPath.table_parameters)
+        _tabulated_loop(v, ms, hs, ns, table, group, v_lo, inv_dv, temp, dt, gating)
         for i in range(nn):
             V = v[i]
             ion = _ionic(V, ms[i], hs[i], ns[i], g_na[i], g_k[i], g_l[i], e_na[i], e_k[i], e_l[i])
@@ -257,11 +257,13 @@ def reaction_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv)
 
 
 @jit_inline
-def _tabulated_loop(v, ms, hs, ns, table, v_lo, inv_dv, phi, dt, gating):
+def _tabulated_loop(v, ms, hs, ns, table, group, v_lo, inv_dv, temp, dt, gating):
     # rows and fractions first (a vectorised pass), then the gates (a scalar pass: each
-    # node reads its own rows); a node outside the table takes the exact rates
+    # node reads its own rows); a node outside the table takes the exact rates. Node i's
+    # table is table[group[i]] and its temperature temp[i] (one of each: every node's)
     nn = v.shape[0]
-    top = table.shape[0] - 1.0
+    top = table.shape[1] - 1.0
+    one = table.shape[0] == 1
     rows = np.empty(nn, dtype=np.int64)
     frac = np.empty(nn)
     inside = True
@@ -273,15 +275,16 @@ def _tabulated_loop(v, ms, hs, ns, table, v_lo, inv_dv, phi, dt, gating):
         frac[i] = x - np.float64(j)
     if inside:
         for i in range(nn):
-            ms[i], hs[i], ns[i] = _tabulated_gates(table, rows[i], frac[i], ms[i], hs[i], ns[i])
+            ms[i], hs[i], ns[i] = _tabulated_gates(table, 0 if one else group[i], rows[i], frac[i], ms[i], hs[i],
+                                                   ns[i])
         return
     for i in range(nn):
         V = v[i]
         x = (V - v_lo) * inv_dv
         if x >= 0.0 and x < top:
-            m, h, n = _tabulated_gates(table, rows[i], frac[i], ms[i], hs[i], ns[i])
+            m, h, n = _tabulated_gates(table, 0 if one else group[i], rows[i], frac[i], ms[i], hs[i], ns[i])
         else:
-            m, h, n = _exact_gates(V, phi, ms[i], hs[i], ns[i], dt, gating)
+            m, h, n = _exact_gates(V, _phi(temp[0 if temp.shape[0] == 1 else i]), ms[i], hs[i], ns[i], dt, gating)
         ms[i] = m
         hs[i] = h
         ns[i] = n

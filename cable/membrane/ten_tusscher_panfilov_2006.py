@@ -517,16 +517,17 @@ def _tabulated_currents(V, s, p, i, table, j, f):
 
 
 @jit
-def reaction_fast(v, s, p, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):
+def reaction_fast(v, s, p, i_stim, dt, ion_scale, gating, tables, v_lo, inv_dv, group):
     """Reaction step with tabulated rates (contract: cable.membrane.base.FastPath, by node).
 
     No table: ``reaction``. A node outside the table: ``reaction`` for that node.
     """
-    if table.shape[0] < 2:
+    if tables.shape[1] < 2:
         reaction(v, s, p, i_stim, dt, ion_scale, gating)
         return
-    top = table.shape[0] - 1.0
+    top = tables.shape[1] - 1.0
     for i in range(v.shape[0]):
+        table = tables[0 if tables.shape[0] == 1 else group[i]]   # the node's table group
         V = v[i]
         x = (V - v_lo) * inv_dv
         if not (x >= 0.0 and x < top):

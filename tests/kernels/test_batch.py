@@ -14,7 +14,7 @@ import pytest
 import xarray as xr
 
 import cable
-from cable.kernels import diffusion
+from cable.kernels import diffusion, tables
 from cable.kernels.batch import group_key, loop_key, simulate_batch
 from cable.preparation import prepare
 
@@ -134,6 +134,21 @@ def test_regions_in_a_batch_are_exact():
     cases.append(_hh(1.0, 1.0))           # no region
     batched = _check(cases, [4] * 4)
     assert batched[0].attrs["rates"] == "tabulated"
+
+
+def test_strands_with_table_groups_batch_exactly():
+    # a cooled zone with a ramped border (the temperature, the table's parameter, differs
+    # between nodes: one table per distinct temperature, cable/kernels/tables.py); strands
+    # with the same temperatures share a batch, interleaved (one length) or laid end to end
+    cases = []
+    for length, scale in ((1.0, 1.0), (1.0, 0.7), (1.0, 0.5), (1.2, 0.8)):
+        case = _hh(length, scale)
+        case["region"] = [{"start": 0.4, "end": 0.6, "border": 0.05, "parameters": {"temperature": 10.0}}]
+        cases.append(case)
+    setup = prepare(cases[0])
+    assert tables.plan(setup.model, setup.p, 0.005, 0, "tabulated").table.shape[0] > 2
+    assert _check(cases[:3], [3] * 3)[0].attrs["rates"] == "tabulated"
+    _check(cases, [4] * 4)
 
 
 def test_tables_are_shared_only_between_identical_tables():

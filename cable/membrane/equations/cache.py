@@ -27,7 +27,7 @@ import numpy as np
 from cable.membrane.base import FastPath, MembraneModel, Parameter, State
 
 #: the compiler's modules: their sources make :func:`compiler_hash`
-COMPILER = ("description", "analysis", "codegen", "fastpath", "singular", "vecmath", "compile", "cache")
+COMPILER = ("description", "analysis", "codegen", "fastpath", "blocks", "singular", "vecmath", "compile", "cache")
 
 
 @dataclass(frozen=True)

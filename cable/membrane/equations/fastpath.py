@@ -23,9 +23,16 @@ Layout (``FastPath.by_state = True``): states by state, parameters by parameter.
 columns of a block of nodes are written into a work array (interpolated, or exact), then
 one node loop of plain arithmetic reads them: every function in it is vectorisable
 (:mod:`cable.kernels.elementary`, :mod:`cable.membrane.equations.vecmath`; float powers
-as exp(e log x), integer powers as products), so LLVM turns it into SIMD code. When the
-parameters differ between nodes (``pT`` with n columns) each node goes through the same
-code as a one-node run: a batch gives each strand its result alone, bit for bit.
+as exp(e log x), integer powers as products), so LLVM turns it into SIMD code. The
+With one parameter column (``shared_step``) the parameters and the parameter-only
+values are scalars of the node loop, computed once per block. With parameters by node
+(``pT`` with n columns, ``by_node_step``) they are loaded into the buffer and worked out
+per block, per node, by the same expressions, and the node loop reads them from the
+buffer: still vectorised (before issue 15 such nodes went one at a time). A node's
+arithmetic is the same either way and whatever its block-mates, so a batch gives each
+strand its result alone, bit for bit (IEEE arithmetic in every SIMD lane as in scalar
+code: numba compiles without fast-math; tested). Each node interpolates in the table of
+its table group (``group``; see cable/kernels/tables.py).
 """
 
 from __future__ import annotations
@@ -35,12 +42,11 @@ import inspect
 
 import sympy
 
-from cable.membrane.equations import singular, vecmath
+from cable.membrane.equations import blocks, singular, vecmath
 from cable.membrane.equations.analysis import Analysis, needed
 from cable.membrane.equations.description import POTENTIAL
 
-#: nodes per block: the work array of a block stays in the first-level cache
-BLOCK = 32
+BLOCK = blocks.BLOCK
 
 
 def _power_text(b: str, k: int) -> str:
@@ -193,16 +199,11 @@ def _column_lines(an, pr, names, fp, indent, store) -> list:
     return out
 
 
-def _offsets(m, ncol):
-    """Offsets in the block buffer (segments of BLOCK values): states, columns, V, stimulus."""
-    ns = len(m.states)
-    return {"col": ns * BLOCK, "v": (ns + ncol) * BLOCK, "stim": (ns + ncol + 1) * BLOCK,
-            "size": (ns + ncol + 2) * BLOCK}
-
-
-def _main_lines(an, pr, names, fp, cols, off) -> list:
+def _main_lines(an, pr, names, fp, cols, off, by_node=True) -> list:
     """The node loop of a block: every value in the buffer B at a constant offset, so that
-    the loop's memory accesses are provably independent and LLVM vectorises it."""
+    the loop's memory accesses are provably independent and LLVM vectorises it.
+    ``by_node``: the parameters and parameter-only values read per node from the buffer
+    (else they are the caller's scalars p0.., x..)."""
     parsed, m = an.parsed, an.parsed.model
     inter = parsed.intermediates
     rl = {n: b for n, b in an.linear.items() if b is not None}
@@ -215,6 +216,10 @@ def _main_lines(an, pr, names, fp, cols, off) -> list:
         return f"B[{off['col'] + c * BLOCK} + w]"
 
     out = ["    for w in range(nb):", f"{ind}V = B[{off['v']} + w]"]
+    if by_node:
+        out += blocks.parameter_loads(len(m.parameters), off, ind)
+        for c, name in enumerate(_const_names(an, fp, names, sidx)):
+            out.append(f"{ind}{name} = B[{off['const'] + c * BLOCK} + w]")
     out += [f"{ind}y{k} = B[{k * BLOCK} + w]" for k in range(len(m.states))]
     out += [f"{ind}{names[n]} = {col(c)}" for c, n in enumerate(frontier)]
     c = len(frontier)
@@ -273,8 +278,8 @@ class _Reciprocals:
                     count[a] = count.get(a, 0) + 1
         shared = [a for a, c in count.items() if c > 1]
         self.map = {a: sympy.Symbol(f"_{prefix}{k}", real=True) for k, a in enumerate(shared)}
-        for a, sym in self.map.items():
-            names[str(sym)] = f"{prefix}{len(names)}"
+        for k, sym in enumerate(self.map.values()):
+            names[str(sym)] = f"{prefix}{k}"   # (unique per prefix, however often a loop is written)
         self.pr, self.indent, self.done = pr, indent, set()
 
     def _need(self, expr, out):
@@ -302,9 +307,8 @@ class _Reciprocals:
 
 def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
     """Source lines of ``reaction_fast``, ``build_table`` and their helpers (module docstring)."""
-    parsed, m = an.parsed, an.parsed.model
+    m = an.parsed.model
     pr = fast_printer(base_printer)
-    rl = {n: b for n, b in an.linear.items() if b is not None}
     sidx = {s.name: k for k, s in enumerate(m.states)}
     nstate, nparam = len(m.states), len(m.parameters)
     frontier, gates, factors = fp["tabulated"], fp["gates"], fp["factors"]
@@ -313,7 +317,8 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
     for n in gates:
         cols[n] = c
         c += 2
-    off = _offsets(m, ncol)
+    consts = _const_names(an, fp, names, sidx)
+    off = blocks.offsets(len(m.states), ncol, len(m.parameters), len(consts))
     loads = [f"    p{k} = pT[{k}, 0]" for k in range(nparam)]
     out = ["", "", f"# fast path (helpers {_helpers_hash()})",
            "from cable.kernels.elementary import exp as _vexp",
@@ -321,9 +326,9 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
            "", f"TABLE_COLUMNS = {max(ncol, 1)}", f"TABLE_PARAMETERS = {tuple(fp['parameters'])!r}",
            "FAST_BY_STATE = True", f"FAST_BLOCK = {BLOCK}", f"FAST_BUFFER = {off['size']}"]
     # exact columns of the buffer's nodes w0..w1-1 (a run without a table, or nodes outside it)
-    out += ["", "", "@jit", "def exact_columns(B, pT, dt, gating, w0, w1):"]
-    out += loads
+    out += ["", "", "@jit", "def exact_columns(B, dt, gating, w0, w1):"]
     out += ["    for w in range(w0, w1):", f"        V = B[{off['v']} + w]"]
+    out += blocks.parameter_loads(len(m.parameters), off, "        ")
     out += _column_lines(an, pr, names, fp, "        ",
                          lambda c, t: f"        B[{off['col'] + c * BLOCK} + w] = {t}")
     # the table: row j is the mean of the values at V_j -+ dv/1000 (a removable singularity
@@ -355,67 +360,40 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
             "    pT = np.ascontiguousarray(np.asarray(p_row, dtype=np.float64).reshape(-1, 1))",
             "    fill_table(table, pT, float(dt), int(gating), float(v_lo), float(dv))",
             "    return table"]
-    # the columns of a block: interpolated, exact for the nodes outside the table, or all exact
-    out += ["", "", "@jit", "def block_columns(B, pT, dt, gating, table, v_lo, inv_dv, nb):",
-            "    top = table.shape[0] - 1.0",
-            "    if top <= 0.0:",
-            "        exact_columns(B, pT, dt, gating, 0, nb)",
-            "        return",
-            "    inside = True",
-            "    for w in range(nb):",
-            f"        x = (B[{off['v']} + w] - v_lo) * inv_dv",
-            "        ok = (x >= 0.0) & (x < top)",
-            "        inside = inside & ok",
-            "        x = x if ok else 0.0  # (a node outside: any valid row, replaced below)",
-            "        j = np.int64(x)",
-            "        f = x - np.float64(j)",
-            f"        for c in range({ncol}):",
-            f"            B[{off['col']} + {BLOCK} * c + w] = table[j, 2 * c] + f * table[j, 2 * c + 1]",
-            "    if not inside:",
-            "        for w in range(nb):",
-            f"            x = (B[{off['v']} + w] - v_lo) * inv_dv",
-            "            if not (x >= 0.0 and x < top):",
-            "                exact_columns(B, pT, dt, gating, w, w + 1)"]
-    # the node loop of a block
-    out += ["", "", "@jit", "def block_step(B, pT, dt, ion_scale, gating, nb):"]
-    out += loads
-    const_needed = _const_needed(an, fp)
-    out += [f"    {names[n]} = {pr.doprint_np(parsed.intermediates[n])}" for n in const_needed]
-    for n in fp["const_factors"]:
-        k = sidx[n]
-        out.append(f"    e{k} = _vexpm1r(({pr.doprint_np(rl[n])}) * dt) if gating == 0 else 1.0")
+    # the columns of a block: interpolated in each node's table (G: its group), exact for the
+    # nodes outside the table, or all exact
+    out += blocks.columns_lines(off, ncol, grouped=False) + blocks.columns_lines(off, ncol, grouped=True)
+    # the parameters of nodes lo..lo+nb-1, and the values of parameters alone, per node
+    out += blocks.parameters_lines(off, nparam)
+    out += ["", "", "@jit", "def block_constants(B, dt, gating, nb):", "    for w in range(nb):"]
+    out += blocks.parameter_loads(len(m.parameters), off, "        ")
+    out += _const_lines(an, pr, names, fp, sidx, "        ")
+    out += [f"        B[{off['const'] + c * BLOCK} + w] = {name}" for c, name in enumerate(consts)]
+    if not consts:
+        out.append("        pass")
+    # the node loop of a block: parameters by node (from the buffer), or one set for all
+    # (scalars computed once per block, loop-invariant operands: the shared case's code as
+    # before issue 15)
+    out += ["", "", "@jit", "def block_step(B, dt, ion_scale, gating, nb):"]
     out += _main_lines(an, pr, names, fp, cols, off)
-    out += ["", "", "@jit", "def uniform_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, B):",
-            "    n = v.shape[0]",
-            "    for lo in range(0, n, FAST_BLOCK):",
-            "        nb = min(FAST_BLOCK, n - lo)",
-            f"        for k in range({nstate}):",
-            "            for w in range(nb):",
-            f"                B[{BLOCK} * k + w] = sT[k, lo + w]",
-            "        for w in range(nb):",
-            f"            B[{off['v']} + w] = v[lo + w]",
-            f"            B[{off['stim']} + w] = i_stim[lo + w]",
-            "        block_columns(B, pT, dt, gating, table, v_lo, inv_dv, nb)",
-            "        block_step(B, pT, dt, ion_scale, gating, nb)",
-            f"        for k in range({nstate}):",
-            "            for w in range(nb):",
-            f"                sT[k, lo + w] = B[{BLOCK} * k + w]",
-            "        for w in range(nb):",
-            f"            v[lo + w] = B[{off['v']} + w]"]
-    out += ["", "", "@jit", "def reaction_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):",
-            '    """Fast reaction step (contract: cable.membrane.base.FastPath, by state)."""',
-            "    B = np.empty(FAST_BUFFER)",
-            "    if pT.shape[1] == 1:",
-            "        uniform_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, B)",
-            "        return",
-            "    # parameters that differ between nodes: each node as a run of its own (bitwise)",
-            "    v1 = np.empty(1)", "    i1 = np.empty(1)",
-            f"    s1 = np.empty(({nstate}, 1))", f"    p1 = np.empty(({nparam}, 1))",
-            "    for i in range(v.shape[0]):",
-            "        v1[0] = v[i]", "        i1[0] = i_stim[i]",
-            "        s1[:, 0] = sT[:, i]", "        p1[:, 0] = pT[:, i]",
-            "        uniform_step(v1, s1, p1, i1, dt, ion_scale, gating, table, v_lo, inv_dv, B)",
-            "        v[i] = v1[0]", "        sT[:, i] = s1[:, 0]"]
+    out += ["", "", "@jit", "def block_step_shared(B, pT, dt, ion_scale, gating, nb):"]
+    out += loads + _const_lines(an, pr, names, fp, sidx, "    ")
+    out += _main_lines(an, pr, names, fp, cols, off, by_node=False)
+    out += blocks.driver_lines(off, nstate)
+    return out
+
+
+def _const_names(an, fp, names, sidx) -> list:
+    """Names of the parameter-only values the node loop reads (buffer order)."""
+    return [names[n] for n in _const_needed(an, fp)] + [f"e{sidx[n]}" for n in fp["const_factors"]]
+
+
+def _const_lines(an, pr, names, fp, sidx, indent) -> list:
+    """Lines computing the parameter-only values of :func:`_const_names` (p0.. set)."""
+    rl = {n: b for n, b in an.linear.items() if b is not None}
+    out = [f"{indent}{names[n]} = {pr.doprint_np(an.parsed.intermediates[n])}" for n in _const_needed(an, fp)]
+    for n in fp["const_factors"]:
+        out.append(f"{indent}e{sidx[n]} = _vexpm1r(({pr.doprint_np(rl[n])}) * dt) if gating == 0 else 1.0")
     return out
 
 

@@ -86,14 +86,14 @@ def period(t, v, level=-20.0):
 
 
 @numba.njit
-def _drive(kernel, v, s, p, dt, nsteps, stride, start, dur, amp, cycle, ion_scale, table, v_lo, inv_dv, out):
+def _drive(kernel, v, s, p, dt, nsteps, stride, start, dur, amp, cycle, ion_scale, table, v_lo, inv_dv, group, out):
     i_stim = np.zeros(1)
     out[0] = v[0]
     for k in range(nsteps):
         t = k * dt
         tc = (t - start) % cycle if cycle > 0.0 and t >= start else t - start
         i_stim[0] = amp if 0.0 <= tc < dur - 1e-9 else 0.0
-        kernel(v, s, p, i_stim, dt, ion_scale, 0, table, v_lo, inv_dv)
+        kernel(v, s, p, i_stim, dt, ion_scale, 0, table, v_lo, inv_dv, group)
         if (k + 1) % stride == 0:
             out[(k + 1) // stride] = v[0]
 
@@ -122,5 +122,5 @@ def cell_run(model, t_end, dt, stimulus=(0.0, 0.0, 0.0), every=0.01, parameters=
     if model.fast.by_state:  # states by state, parameters by parameter (FastPath contract)
         s, p = np.ascontiguousarray(s.T), np.ascontiguousarray(p.T)
     _drive(model.fast.kernel, v, s, p, dt, nsteps, stride, float(start), float(dur), float(amp),
-           float(rest[0] if rest else 0.0), ion_scale, plan.table, plan.v_lo, plan.inv_dv, out)
+           float(rest[0] if rest else 0.0), ion_scale, plan.table, plan.v_lo, plan.inv_dv, plan.group, out)
     return np.arange(out.size) * stride * dt, out

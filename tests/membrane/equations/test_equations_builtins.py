@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 import cable
-from cable.kernels import adaptive, schemes
+from cable.kernels import adaptive, schemes, tables
 from cable.kernels.jit import specialise
 from conftest import oracle
 
@@ -157,7 +157,7 @@ def beat(model, name, dt=0.01, tabulated=False, step=None, t_end=None):
     for k in range(steps):
         i_stim = np.array([amplitude if k < on else 0.0])
         if tabulated:
-            fp.kernel(v, s, p, i_stim, dt, 1.0, 0, table, fp.v_lo, 1.0 / fp.dv)
+            fp.kernel(v, s, p, i_stim, dt, 1.0, 0, table[None], fp.v_lo, 1.0 / fp.dv, tables.one_group())
         else:
             step(v, s, p, i_stim, dt, 1.0, 0)
         trace[k] = v[0]

@@ -75,7 +75,8 @@ def test_generated_kernels_follow_the_contract():
         a = (v.copy(), s.copy())
         b = (v.copy(), np.ascontiguousarray(s.T))
         m.reaction(*a, p, np.zeros(n), 0.01, 1.0, gating)
-        m.fast.kernel(*b, tables.by_parameter(p), np.zeros(n), 0.01, 1.0, gating, tables.no_table(), 0.0, 1.0)
+        m.fast.kernel(*b, tables.by_parameter(p), np.zeros(n), 0.01, 1.0, gating, tables.no_table(), 0.0, 1.0,
+                      tables.one_group())
         # the same formulas with the vectorisable exp and log (1 ulp, cable.kernels.elementary and
         # tests/membrane/equations/test_vecmath.py) and gates as y <- A + B y: rounding only; the
         # one looser place is -40.0001 mV, 1e-4 mV from alpha_m's 0/0, where the plain formula

@@ -13,11 +13,12 @@ GENERATED_LR1 = "equations:luo_rudy_1991"
 GENERATED_HH = "equations:hodgkin_huxley_1952"
 
 
-def exact_step(model, v, s, p, dt=0.01, gating=0, table=None, v_lo=0.0, inv_dv=1.0):
+def exact_step(model, v, s, p, dt=0.01, gating=0, table=None, v_lo=0.0, inv_dv=1.0, group=None):
     sT = np.ascontiguousarray(s.T)
     v = v.copy()
     model.fast.kernel(v, sT, p, np.zeros(v.size), dt, 1.0, gating,
-                      tables.no_table() if table is None else table, v_lo, inv_dv)
+                      tables.no_table() if table is None else table, v_lo, inv_dv,
+                      tables.one_group(v.size) if group is None else group)
     return v, sT.T
 
 
@@ -64,8 +65,9 @@ def test_hh_exact_rates_at_the_removable_singularities():
 
 @pytest.mark.parametrize("rates", ["exact", "tabulated"])
 def test_a_batch_gives_each_node_its_result_alone(rates):
-    # parameters by node (pT with n columns) go through the code of a one-node run: bit for bit
-    # (FastPath contract); 70 nodes: more than one block of the kernel, and a partial one
+    # parameters by node (pT with n columns), each node in the table of its group: bit for bit
+    # its run alone (FastPath contract); 70 nodes: more than one block of the kernel, and a
+    # partial one
     model = cable.get_model(GENERATED_LR1)
     rng = np.random.default_rng(4)
     n, dt = 70, 0.01
@@ -74,23 +76,30 @@ def test_a_batch_gives_each_node_its_result_alone(rates):
     p = np.tile(model.default_parameters(), (n, 1))
     g = model.parameter_names.index(model.conductances[0])
     p[:, g] *= rng.uniform(0.5, 1.5, n)  # a conductance: not a table parameter
+    k_o = model.parameter_names.index("K_o")   # a table parameter: three table groups
+    p[:, k_o] = rng.choice([5.4, 8.0, 12.0], n)
     plan = tables.plan(model, p, dt, 0, rates)
-    assert plan.mode == rates
+    assert plan.mode == rates and plan.table.shape[0] == (3 if rates == "tabulated" else 1)
     batch = (v.copy(), np.ascontiguousarray(s.T))
     model.fast.kernel(*batch, np.ascontiguousarray(p.T), np.zeros(n), dt, 1.0, 0, plan.table, plan.v_lo,
-                      plan.inv_dv)
+                      plan.inv_dv, plan.group)
+    own = {}   # each node alone with its own plan (one table)
     for i in range(n):
         alone = (v[i:i + 1].copy(), np.ascontiguousarray(s[i:i + 1].T))
-        model.fast.kernel(*alone, np.ascontiguousarray(p[i:i + 1].T), np.zeros(1), dt, 1.0, 0, plan.table,
-                          plan.v_lo, plan.inv_dv)
+        row = p[i, k_o]
+        own[row] = own.get(row) or tables.plan(model, p[i:i + 1], dt, 0, rates)
+        model.fast.kernel(*alone, np.ascontiguousarray(p[i:i + 1].T), np.zeros(1), dt, 1.0, 0, own[row].table,
+                          plan.v_lo, plan.inv_dv, own[row].group)
         assert alone[0][0] == batch[0][i]
         np.testing.assert_array_equal(alone[1][:, 0], batch[1][:, i])
     # and the same parameters everywhere (one column) as by node
     same = np.tile(model.default_parameters(), (n, 1))
+    plan = tables.plan(model, same, dt, 0, rates)
     one, each = (v.copy(), np.ascontiguousarray(s.T)), (v.copy(), np.ascontiguousarray(s.T))
-    model.fast.kernel(*one, tables.by_parameter(same), np.zeros(n), dt, 1.0, 0, plan.table, plan.v_lo, plan.inv_dv)
+    model.fast.kernel(*one, tables.by_parameter(same), np.zeros(n), dt, 1.0, 0, plan.table, plan.v_lo, plan.inv_dv,
+                      plan.group)
     model.fast.kernel(*each, np.ascontiguousarray(same.T), np.zeros(n), dt, 1.0, 0, plan.table, plan.v_lo,
-                      plan.inv_dv)
+                      plan.inv_dv, plan.group)
     np.testing.assert_array_equal(one[0], each[0])
     np.testing.assert_array_equal(one[1], each[1])
 
