@@ -144,7 +144,7 @@ def export(eq: Equations) -> str:
     if eq.current_basis == "area":
         variables.append((cm, "uF_per_cm2", eq.capacitance or 1.0))
     variables += [(s.name, var_units(s.units), s.initial) for s in eq.states]
-    variables += [(p.name, var_units(p.units), p.default) for p in eq.parameters]
+    variables += [(p.name, var_units(p.units), p.value) for p in eq.parameters]
     variables += [(n, "dimensionless", None) for n in parsed.intermediates]
     variables += [(cur[n], per, None) for n in parsed.currents]
 
