@@ -80,3 +80,28 @@ def oracle(name: str):
             del sys.modules[full]
             raise
     return sys.modules[full]
+
+
+@pytest.fixture
+def oracles_registered(monkeypatch):
+    """The hand-written oracles reachable by the registry as ``oracle-NAME`` (so that a strand
+    runs them through cable.simulate), each one object per process."""
+    import sys
+    from dataclasses import replace
+
+    import cable
+    import cable.membrane
+
+    real = cable.membrane.get_model
+    made = {}
+
+    def get_model(name):
+        name = str(name)
+        if name.startswith("oracle-"):
+            if name not in made:
+                made[name] = replace(oracle(name[len("oracle-"):]).MODEL, name=name)
+            return made[name]
+        return real(name)
+
+    for module in (cable.membrane, sys.modules["cable.preparation"], sys.modules["cable.kernels.loops"], cable):
+        monkeypatch.setattr(module, "get_model", get_model)

@@ -6,7 +6,6 @@ the cardiac models, a short strand (CV, APD90, upstroke velocity to 1e-6).
 
 Hodgkin-Huxley has its own tests in test_equations_compile.py (same pattern)."""
 
-from dataclasses import replace
 from importlib import import_module
 
 import numpy as np
@@ -205,29 +204,6 @@ def test_single_cell_trace_equals_the_hand_written_one(name):
         assert swing > (5.0 if name == "passive" else 80.0)
         # the issue's bound (1e-6 relative), on the whole potential trace relative to its swing
         assert np.max(np.abs(a - b)) <= 1e-6 * swing
-
-
-@pytest.fixture
-def oracles_registered(monkeypatch):
-    """The hand-written oracles reachable by the registry as ``oracle-NAME`` (so that a strand
-    runs them through cable.simulate), each one object per process."""
-    import sys
-
-    import cable.membrane
-
-    real = cable.membrane.get_model
-    made = {}
-
-    def get_model(name):
-        name = str(name)
-        if name.startswith("oracle-"):
-            if name not in made:
-                made[name] = replace(oracle(name[len("oracle-"):]).MODEL, name=name)
-            return made[name]
-        return real(name)
-
-    for module in (cable.membrane, sys.modules["cable.preparation"], sys.modules["cable.kernels.loops"], cable):
-        monkeypatch.setattr(module, "get_model", get_model)
 
 
 def strand(model, membrane=None, length=1.0, duration=450.0, **numerics):
