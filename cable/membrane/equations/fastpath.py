@@ -140,9 +140,14 @@ def plan(an: Analysis) -> dict:
         deps |= names(inter[n]) & params
     for e in col_exprs:
         deps |= names(e) & params
+    order = [p.name for p in m.parameters]
+    labelled = {p.name for p in m.parameters if p.choices is not None}
+    # a labelled parameter (a cell type) takes a few values: the columns are tabulated once per
+    # label, and each node reads those of its own label, so the table does not depend on it
     return {"tabulated": frontier, "gates": gates, "factors": factors, "const_factors": const_factors,
             "v_only": v_only, "const": const,
-            "parameters": sorted(deps, key=[p.name for p in m.parameters].index)}
+            "parameters": sorted(deps - labelled, key=order.index),
+            "labels": sorted(deps & labelled, key=order.index)}
 
 
 def _helpers_hash() -> str:
@@ -194,10 +199,12 @@ def _column_lines(an, pr, names, fp, indent, store) -> list:
 
 
 def _offsets(m, ncol):
-    """Offsets in the block buffer (segments of BLOCK values): states, columns, V, stimulus."""
+    """Offsets in the block buffer (segments of BLOCK values): states, columns, V, stimulus,
+    parameters (filled when they differ between nodes)."""
     ns = len(m.states)
+    npar = len(m.parameters)
     return {"col": ns * BLOCK, "v": (ns + ncol) * BLOCK, "stim": (ns + ncol + 1) * BLOCK,
-            "size": (ns + ncol + 2) * BLOCK}
+            "par": (ns + ncol + 2) * BLOCK, "size": (ns + ncol + 2 + npar) * BLOCK}
 
 
 def _main_lines(an, pr, names, fp, cols, off) -> list:
@@ -322,18 +329,29 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
         c += 2
     off = _offsets(m, ncol)
     loads = [f"    p{k} = pT[{k}, 0]" for k in range(nparam)]
+    own = [f"        p{k} = B[{off['par'] + k * BLOCK} + w]" for k in range(nparam)]  # per node
+    pidx = {p.name: k for k, p in enumerate(m.parameters)}
+    labels = [(pidx[n], len(m.parameters[pidx[n]].choices)) for n in fp["labels"]]
+    ncombo = 1
+    for _, size in labels:
+        ncombo *= size
     out = ["", "", f"# fast path (helpers {_helpers_hash()})",
            "from cable.kernels.elementary import exp as _vexp",
            "from cable.membrane.equations.vecmath import expm1_ratio as _vexpm1r, log as _vlog, power as _vpow",
            "from cable.membrane.equations.vecmath import buffered as _vbuffered",
            "", f"TABLE_COLUMNS = {max(ncol, 1)}", f"TABLE_PARAMETERS = {tuple(fp['parameters'])!r}",
+           f"TABLE_LABELS = {tuple(fp['labels'])!r}", f"TABLE_COMBINATIONS = {ncombo}",
            "FAST_BY_STATE = True", f"FAST_BLOCK = {BLOCK}", f"FAST_BUFFER = {off['size']}"]
-    # exact columns of the buffer's nodes w0..w1-1 (a run without a table, or nodes outside it)
+    store = lambda c, t: f"        B[{off['col'] + c * BLOCK} + w] = {t}"  # noqa: E731
+    # exact columns of the buffer's nodes w0..w1-1 (a run without a table, or nodes outside it):
+    # the parameters the same at every node (pT), or each node's own (in the buffer)
     out += ["", "", "@jit", "def exact_columns(B, pT, dt, gating, w0, w1):"]
     out += loads
     out += ["    for w in range(w0, w1):", f"        V = B[{off['v']} + w]"]
-    out += _column_lines(an, pr, names, fp, "        ",
-                         lambda c, t: f"        B[{off['col'] + c * BLOCK} + w] = {t}")
+    out += _column_lines(an, pr, names, fp, "        ", store)
+    out += ["", "", "@jit", "def exact_columns_own(B, dt, gating, w0, w1):"]
+    out += ["    for w in range(w0, w1):"] + own + [f"        V = B[{off['v']} + w]"]
+    out += _column_lines(an, pr, names, fp, "        ", store)
     # the table: row j is the mean of the values at V_j -+ dv/1000 (a removable singularity
     # falling on a row then needs no special case; the mean is off by ~1e-7 dv^2 f'')
     out += ["", "", "@jit", "def table_row(V, pT, dt, gating, row):"]
@@ -341,34 +359,53 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
     out += _column_lines(an, pr, names, fp, "    ", lambda c, t: f"    row[{c}] = {t}")
     out.append("    return")
     # the table holds each column's value and its slope to the next row (one multiply-add to
-    # interpolate); the last row's slopes are 0
+    # interpolate); the last row's slopes are 0; one set of columns per combination of labels
+    # (combination l0 + n0 (l1 + n1 (...)), l the label index of each labelled parameter)
     out += ["", "", "@jit", "def fill_table(table, pT, dt, gating, v_lo, dv):",
-            "    nc = table.shape[1] // 2",
+            "    nc = TABLE_COLUMNS",
             "    side = np.zeros(nc)",
             "    here = np.zeros(nc)",
-            "    for j in range(table.shape[0]):",
-            "        V = v_lo + dv * j",
-            "        table_row(V - 1e-3 * dv, pT, dt, gating, side)",
-            "        table_row(V + 1e-3 * dv, pT, dt, gating, here)",
-            "        for c in range(nc):",
-            "            table[j, 2 * c] = 0.5 * (here[c] + side[c])",
-            "            table[j, 2 * c + 1] = 0.0",
-            "            if j > 0:",
-            "                table[j - 1, 2 * c + 1] = table[j, 2 * c] - table[j - 1, 2 * c]"]
+            "    q = pT.copy()",
+            "    for combo in range(TABLE_COMBINATIONS):",
+            "        rest = combo"]
+    for k, size in labels:
+        out += [f"        q[{k}, 0] = np.float64(rest % {size})", f"        rest = rest // {size}"]
+    out += ["        base = 2 * nc * combo",
+            "        for j in range(table.shape[0]):",
+            "            V = v_lo + dv * j",
+            "            table_row(V - 1e-3 * dv, q, dt, gating, side)",
+            "            table_row(V + 1e-3 * dv, q, dt, gating, here)",
+            "            for c in range(nc):",
+            "                table[j, base + 2 * c] = 0.5 * (here[c] + side[c])",
+            "                table[j, base + 2 * c + 1] = 0.0",
+            "                if j > 0:",
+            "                    table[j - 1, base + 2 * c + 1] = table[j, base + 2 * c] - table[j - 1, base + 2 * c]"]
     out += ["", "", "def build_table(p_row, dt, gating, v_lo, v_hi, dv):",
             '    """The table of the tabulated subexpressions (contract: cable.membrane.base.FastPath):',
-            '    per row, each column\'s value and its difference to the next row."""',
+            '    per row, each column\'s value and its difference to the next row, per combination of labels."""',
             "    rows = int(round((v_hi - v_lo) / dv)) + 1",
-            "    table = np.zeros((rows, 2 * TABLE_COLUMNS))",
+            "    table = np.zeros((rows, 2 * TABLE_COLUMNS * TABLE_COMBINATIONS))",
             "    pT = np.ascontiguousarray(np.asarray(p_row, dtype=np.float64).reshape(-1, 1))",
             "    fill_table(table, pT, float(dt), int(gating), float(v_lo), float(dv))",
             "    return table"]
     # the columns of a block: interpolated, exact for the nodes outside the table, or all exact
-    out += ["", "", "@jit", "def block_columns(B, pT, dt, gating, table, v_lo, inv_dv, nb):",
+
+    def combo(source):
+        terms, mult = [], 1
+        for k, size in labels:
+            terms.append(f"{mult} * np.int64({source(k)})")
+            mult *= size
+        return " + ".join(terms) if terms else "0"
+
+    out += ["", "", "@jit", "def block_columns(B, pT, dt, gating, table, v_lo, inv_dv, nb, own):",
             "    top = table.shape[0] - 1.0",
             "    if top <= 0.0:",
-            "        exact_columns(B, pT, dt, gating, 0, nb)",
+            "        if own:",
+            "            exact_columns_own(B, dt, gating, 0, nb)",
+            "        else:",
+            "            exact_columns(B, pT, dt, gating, 0, nb)",
             "        return",
+            f"    base0 = 2 * TABLE_COLUMNS * ({combo(lambda k: f'pT[{k}, 0]')})",
             "    inside = True",
             "    for w in range(nb):",
             f"        x = (B[{off['v']} + w] - v_lo) * inv_dv",
@@ -376,24 +413,44 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
             "        inside = inside & ok",
             "        x = x if ok else 0.0  # (a node outside: any valid row, replaced below)",
             "        j = np.int64(x)",
-            "        f = x - np.float64(j)",
-            f"        for c in range({ncol}):",
-            f"            B[{off['col']} + {BLOCK} * c + w] = table[j, 2 * c] + f * table[j, 2 * c + 1]",
+            "        f = x - np.float64(j)"]
+    if labels:
+        poff = off["par"]
+        own_combo = combo(lambda k: f"B[{poff + k * BLOCK} + w]")
+        out.append(f"        base = 2 * TABLE_COLUMNS * ({own_combo}) if own else base0")
+    else:
+        out.append("        base = base0")
+    out += [f"        for c in range({ncol}):",
+            f"            B[{off['col']} + {BLOCK} * c + w] = table[j, base + 2 * c] + f * table[j, base + 2 * c + 1]",
             "    if not inside:",
             "        for w in range(nb):",
             f"            x = (B[{off['v']} + w] - v_lo) * inv_dv",
             "            if not (x >= 0.0 and x < top):",
-            "                exact_columns(B, pT, dt, gating, w, w + 1)"]
-    # the node loop of a block
-    out += ["", "", "@jit", "def block_step(B, pT, dt, ion_scale, gating, nb):"]
-    out += loads
+            "                if own:",
+            "                    exact_columns_own(B, dt, gating, w, w + 1)",
+            "                else:",
+            "                    exact_columns(B, pT, dt, gating, w, w + 1)"]
+    # the node loop of a block: parameter-only values once per call (the same parameters at every
+    # node), or per node from the buffer (the same arithmetic, so a node's result does not depend
+    # on which of the two ran: a batch is bitwise its runs alone)
     const_needed = _const_needed(an, fp)
-    out += [f"    {names[n]} = {pr.doprint_np(parsed.intermediates[n])}" for n in const_needed]
-    for n in fp["const_factors"]:
-        k = sidx[n]
-        out.append(f"    e{k} = _vexpm1r(({pr.doprint_np(rl[n])}) * dt) if gating == 0 else 1.0")
-    out += _main_lines(an, pr, names, fp, cols, off)
-    out += ["", "", "@jit", "def uniform_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, B):",
+
+    def constants(indent):
+        lines = [f"{indent}{names[n]} = {pr.doprint_np(parsed.intermediates[n])}" for n in const_needed]
+        for n in fp["const_factors"]:
+            k = sidx[n]
+            lines.append(f"{indent}e{k} = _vexpm1r(({pr.doprint_np(rl[n])}) * dt) if gating == 0 else 1.0")
+        return lines
+
+    main = _main_lines(an, pr, names, fp, cols, off)
+    out += ["", "", "@jit", "def block_step(B, pT, dt, ion_scale, gating, nb):"]
+    out += loads + constants("    ") + main
+    out += ["", "", "@jit", "def block_step_own(B, dt, ion_scale, gating, nb):"]
+    out += main[:1] + own + constants("        ") + main[1:]
+    out += ["", "", "@jit", "def reaction_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):",
+            '    """Fast reaction step (contract: cable.membrane.base.FastPath, by state)."""',
+            "    B = np.empty(FAST_BUFFER)",
+            "    own = pT.shape[1] != 1  # parameters that differ between nodes",
             "    n = v.shape[0]",
             "    for lo in range(0, n, FAST_BLOCK):",
             "        nb = min(FAST_BLOCK, n - lo)",
@@ -403,27 +460,20 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
             "        for w in range(nb):",
             f"            B[{off['v']} + w] = v[lo + w]",
             f"            B[{off['stim']} + w] = i_stim[lo + w]",
-            "        block_columns(B, pT, dt, gating, table, v_lo, inv_dv, nb)",
-            "        block_step(B, pT, dt, ion_scale, gating, nb)",
+            "        if own:",
+            f"            for k in range({nparam}):",
+            "                for w in range(nb):",
+            f"                    B[{off['par']} + {BLOCK} * k + w] = pT[k, lo + w]",
+            "        block_columns(B, pT, dt, gating, table, v_lo, inv_dv, nb, own)",
+            "        if own:",
+            "            block_step_own(B, dt, ion_scale, gating, nb)",
+            "        else:",
+            "            block_step(B, pT, dt, ion_scale, gating, nb)",
             f"        for k in range({nstate}):",
             "            for w in range(nb):",
             f"                sT[k, lo + w] = B[{BLOCK} * k + w]",
             "        for w in range(nb):",
             f"            v[lo + w] = B[{off['v']} + w]"]
-    out += ["", "", "@jit", "def reaction_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv):",
-            '    """Fast reaction step (contract: cable.membrane.base.FastPath, by state)."""',
-            "    B = np.empty(FAST_BUFFER)",
-            "    if pT.shape[1] == 1:",
-            "        uniform_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, B)",
-            "        return",
-            "    # parameters that differ between nodes: each node as a run of its own (bitwise)",
-            "    v1 = np.empty(1)", "    i1 = np.empty(1)",
-            f"    s1 = np.empty(({nstate}, 1))", f"    p1 = np.empty(({nparam}, 1))",
-            "    for i in range(v.shape[0]):",
-            "        v1[0] = v[i]", "        i1[0] = i_stim[i]",
-            "        s1[:, 0] = sT[:, i]", "        p1[:, 0] = pT[:, i]",
-            "        uniform_step(v1, s1, p1, i1, dt, ion_scale, gating, table, v_lo, inv_dv, B)",
-            "        v[i] = v1[0]", "        sT[:, i] = s1[:, 0]"]
     return out
 
 
