@@ -24,8 +24,15 @@ columns of a block of nodes are written into a work array (interpolated, or exac
 one node loop of plain arithmetic reads them: every function in it is vectorisable
 (:mod:`cable.kernels.elementary`, :mod:`cable.membrane.equations.vecmath`; float powers
 as exp(e log x), integer powers as products), so LLVM turns it into SIMD code. When the
-parameters differ between nodes (``pT`` with n columns) each node goes through the same
-code as a one-node run: a batch gives each strand its result alone, bit for bit.
+parameters differ between nodes (``pT`` with n columns) they are copied into the work array
+too and read per node by a second form of the same loop, in which the parameter-only values
+are computed per node with the same arithmetic: a batch gives each strand its result alone,
+bit for bit (without fastmath, a SIMD lane rounds as the scalar code does).
+
+A labelled parameter (``EqParameter.choices``: a cell type) takes only its labels' indices,
+so the columns that depend on it are tabulated once per label (every column, once per
+combination of labels): the table does not depend on it, and each node interpolates the
+columns of its own label (a transmural strand keeps its table).
 """
 
 from __future__ import annotations
