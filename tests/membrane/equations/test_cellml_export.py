@@ -125,9 +125,10 @@ def test_round_trip_of_lr1_in_a_strand(tmp_path):
 def test_round_trip_of_tp06_in_a_strand(tmp_path):
     # the round trip for TP06 (buffered calcium, the stimulus in the K_i balance, the cell type's
     # labels, all carried by the export's comment), for the M cell (its labelled defaults of G_Ks and
-    # the s gate): the same CV and APD90 in a strand to 1e-6 relative (the plain reaction kernels in both,
-    # rates = "reference": the imported model's fast path is not compiled: 64 s cold here, 155 s with exact rates; the
-    # generated fast path equals the reaction kernel elsewhere: test_equations_builtins.py)
+    # the s gate): the same CV and APD90 in a strand to 1e-6 relative, on the plain reaction kernels
+    # (rates = "reference": the imported model's fast path is not compiled, 64 s cold here against
+    # 155 s with exact rates; the generated fast path equals the reaction kernel in
+    # test_equations_builtins.py)
     out = tmp_path / "tp06.cellml"
     assert main(["models", "ten-tusscher-panfilov-2006", "--cellml", str(out)]) == 0
 
