@@ -65,7 +65,8 @@ def oracle(name: str):
     """The hand-written module of the built-in model ``name``, kept as a test oracle.
 
     ``tests/membrane/oracles/<name with _>.py`` (passive, fitzhugh-nagumo, mitchell-schaeffer-2003,
-    luo-rudy-1991: the models the package now generates from their descriptions).
+    luo-rudy-1991, ten-tusscher-panfilov-2006: the models the package now generates from their
+    descriptions).
     """
     stem = name.replace("-", "_")
     full = f"cable_oracle_{stem}"
@@ -79,3 +80,28 @@ def oracle(name: str):
             del sys.modules[full]
             raise
     return sys.modules[full]
+
+
+@pytest.fixture
+def oracles_registered(monkeypatch):
+    """The hand-written oracles reachable by the registry as ``oracle-NAME`` (so that a strand
+    runs them through cable.simulate), each one object per process."""
+    import sys
+    from dataclasses import replace
+
+    import cable
+    import cable.membrane
+
+    real = cable.membrane.get_model
+    made = {}
+
+    def get_model(name):
+        name = str(name)
+        if name.startswith("oracle-"):
+            if name not in made:
+                made[name] = replace(oracle(name[len("oracle-"):]).MODEL, name=name)
+            return made[name]
+        return real(name)
+
+    for module in (cable.membrane, sys.modules["cable.preparation"], sys.modules["cable.kernels.loops"], cable):
+        monkeypatch.setattr(module, "get_model", get_model)

@@ -1,5 +1,7 @@
 """``cable models [NAME]``: list the membrane models, or show one (a CellML file too)."""
 
+import json
+
 NAME = "models"
 HELP = "list membrane models, or show one model's states, parameters, currents and defaults"
 ORDER = 5
@@ -77,8 +79,14 @@ def run(args):
     schemes = getattr(m, "integration", ())
     if schemes:
         rl = [s.name for s, k in zip(m.states, schemes) if k == "rush-larsen"]
+        buffered = [s.name for s, k in zip(m.states, schemes) if k == "rapid-buffer"]
+        fe = [s.name for s in m.states if s.name not in rl and s.name not in buffered]
         extra.append(f"  Rush-Larsen (derivative linear in the state; numerics.gating): {', '.join(rl) or '(none)'}; "
-                     f"forward Euler: {', '.join(s.name for s in m.states if s.name not in rl) or '(none)'}")
+                     f"forward Euler: {', '.join(fe) or '(none)'}"
+                     + (f"; buffered (total by forward Euler, free from the rapid buffer equilibrium): "
+                        f"{', '.join(buffered)}" if buffered else ""))
+        if getattr(m, "equations", "") and json.loads(m.equations).get("euler_order") == "after-gates":
+            extra.append("  the concentrations of a step take the currents with the gates already updated")
         tabulated = ", ".join(getattr(m.fast, "table_parameters", ()) or ()) if m.fast is not None else ""
         extra.append("  rates: the potential-only subexpressions tabulated (numerics.rates = \"tabulated\", the default; "
                      "\"exact\" evaluates them)" + (f"; the table depends on {tabulated}" if tabulated else ""))

@@ -220,11 +220,12 @@ def test_an_invalid_case_is_returned_in_its_place():
 
 
 @pytest.mark.slow
-def test_a_model_stored_by_node_is_exact():
-    # ten Tusscher & Panfilov (2006) keeps its states by node on the fast path; tissue
-    # of ten Tusscher et al. (2004): 6.17 mS/cm, 2000 /cm, 2 uF/cm^2
+def test_a_model_stored_by_node_is_exact(oracles_registered):
+    # a fast path keeping its states by node (FastPath.by_state = False): the hand-written ten
+    # Tusscher & Panfilov (2006) kernel, now a test oracle (tests/membrane/oracles/; the generated
+    # model is by state); tissue of ten Tusscher et al. (2004): 6.17 mS/cm, 2000 /cm, 2 uF/cm^2
     def strand(length, g_na, amplitude):
-        return {"membrane": {"model": "ten-tusscher-panfilov-2006", "scale": {"G_Na": g_na}},
+        return {"membrane": {"model": "oracle-ten-tusscher-panfilov-2006", "scale": {"G_Na": g_na}},
                 "fiber": {"length": length, "dx": 0.01, "conductivity": 6.17, "surface_to_volume": 2000,
                           "capacitance": 2},
                 "stimulus": [{"amplitude": amplitude, "duration": 1.0, "width": 0.03}],

@@ -13,9 +13,12 @@ import pytest
 from scipy.integrate import solve_ivp
 
 from cable.membrane import get_model
-from cable.membrane import ten_tusscher_panfilov_2006 as tp06
+from cable.membrane.equations.ten_tusscher_panfilov_2006 import RTF
 
 MODEL = get_model("ten-tusscher-panfilov-2006")
+# indices of the parameters and states used below
+CELL_TYPE, K_O, G_TO, G_KS = (MODEL.parameter_names.index(n) for n in ("cell_type", "K_o", "G_to", "G_Ks"))
+K_I, R, S = (MODEL.state_names.index(n) for n in ("K_i", "r", "s"))
 CELLS = ("epi", "endo", "mid")
 
 DT = 0.02  # [ms] (common practice; TNNP 2004 used 0.01-0.02 ms in tissue, REFERENCES.md)
@@ -60,7 +63,7 @@ def _parameters(cells=CELLS, **values):
     """Parameter array (n, nparam): default parameters for each cell type in ``cells``."""
     p = np.tile(MODEL.default_parameters(), (len(cells), 1))
     cell_type = MODEL.parameter("cell_type")
-    p[:, tp06.CELL_TYPE] = [cell_type.encode(c) for c in cells]
+    p[:, CELL_TYPE] = [cell_type.encode(c) for c in cells]
     for name, value in values.items():
         p[:, MODEL.parameter_names.index(name)] = value
     return MODEL.fill_labelled_defaults(p, given=values)
@@ -242,10 +245,10 @@ REST_TIME = 2000.0  # [ms] unstimulated; V settles in tens of ms
 
 def test_rest_follows_potassium_nernst_potential():
     p = _parameters(("epi",) * len(KO_VALUES))
-    p[:, tp06.K_O] = KO_VALUES
+    p[:, K_O] = KO_VALUES
     trace, v, s = _pace(p, 1, bcl=REST_TIME, stim=0.0, record_states=(int(REST_TIME / DT) - 1,))
     rest = trace[-1]
-    e_k = tp06.RTF * np.log(np.asarray(KO_VALUES) / s[0, :, tp06.K_I])
+    e_k = RTF * np.log(np.asarray(KO_VALUES) / s[0, :, K_I])
     np.testing.assert_allclose(rest, e_k, atol=NERNST_ATOL)
     assert np.all(np.diff(rest) > 0)  # raising K_o depolarises
     # the shift follows E_K's (RT/F) ln(10/5.4) = 16.5 mV within the same margin
@@ -266,8 +269,8 @@ def test_long_pacing_conserves_potassium():
     case = {"membrane": {"model": MODEL.name, "prepace": {"beats": KI_BEATS, "cycle_length": BCL}},
             "stimulus": [{"amplitude": STIM, "duration": STIM_DURATION}],
             "run": {"duration": 1.0}, "numerics": {"dt": DT}, "output": {"every": 0.5}}
-    k0 = MODEL.initial_states()[tp06.K_I]
-    change = prepare(case).s0[0, tp06.K_I] / k0 - 1.0
+    k0 = MODEL.initial_states()[K_I]
+    change = prepare(case).s0[0, K_I] / k0 - 1.0
     assert abs(change) * 1000.0 / KI_BEATS < KI_LIMIT_PER_1000_BEATS
 
 
@@ -284,7 +287,7 @@ def test_cell_type_conductances_mean_the_papers_values(cell, g_to, g_ks):
         case = cable.load_case({"membrane": {"model": MODEL.name, "parameters": dict(cell_type=cell, **given)},
                                 "run": {"duration": 1.0}})
         row = node_parameters(case, MODEL, 1)[0]
-        return row[tp06.G_TO], row[tp06.G_KS]
+        return row[G_TO], row[G_KS]
 
     assert conductances() == pytest.approx((g_to, g_ks), rel=1e-12)
     assert conductances(G_to=0.073, G_Ks=0.098) == pytest.approx((0.073, 0.098), rel=1e-12)
@@ -292,10 +295,10 @@ def test_cell_type_conductances_mean_the_papers_values(cell, g_to, g_ks):
     p = _parameters((cell,), G_to=0.073)
     v = np.array([10.0])
     st = MODEL.initial_states().reshape(1, -1).copy()
-    st[0, tp06.R], st[0, tp06.S] = 0.5, 0.5
+    st[0, R], st[0, S] = 0.5, 0.5
     out = np.zeros((1, len(MODEL.current_names)))
     MODEL.currents(v, st, p, out)
-    e_k = tp06.RTF * np.log(5.4 / st[0, tp06.K_I])
+    e_k = RTF * np.log(5.4 / st[0, K_I])
     assert out[0, MODEL.current_names.index("I_to")] == pytest.approx(0.073 * 0.25 * (10.0 - e_k), rel=1e-12)
 
 

@@ -10,6 +10,10 @@ Run::
 
     python tools/bench/models.py
     python tools/bench/models.py --models hodgkin-huxley-1952 ten-tusscher-panfilov-2006 --repeat 5
+    python tools/bench/models.py --models ten-tusscher-panfilov-2006 --transmural
+
+``--transmural``: the TP06 strand in endocardial, M and epicardial thirds instead (the cell
+type, and the defaults of G_to and G_Ks that follow it, differ between nodes).
 """
 
 from __future__ import annotations
@@ -33,12 +37,17 @@ TISSUE = {"fiber": {"length": (NODES - 1) * 0.005, "dx": 0.005, "conductivity": 
           "numerics": {"dt": 0.01}, "run": {"duration": 100.0}, "output": {"every": 1.0}}
 
 
-def strand_case(name: str) -> dict:
+def strand_case(name: str, transmural: bool = False) -> dict:
     model = cable.get_model(name)
     case = copy.deepcopy(AXON if model.current_basis == "area" else TISSUE)
     case["membrane"] = {"model": name}
     if model.temperature_parameter:
         case["membrane"]["temperature"] = 18.5
+    if transmural:  # (a model with a cell_type: TP06)
+        length = case["fiber"]["length"]
+        case["membrane"]["parameters"] = {"cell_type": "endo"}
+        case["region"] = {"mid": {"start": length / 3, "end": 2 * length / 3, "parameters": {"cell_type": "mid"}},
+                          "epi": {"start": 2 * length / 3, "end": length, "parameters": {"cell_type": "epi"}}}
     return case
 
 
@@ -52,6 +61,7 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--models", nargs="*", default=None, help="model names (default: all registered)")
     ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--transmural", action="store_true", help="TP06 in endo, M and epi thirds (see above)")
     args = ap.parse_args(argv)
     names = args.models or cable.model_names()
     print(f"{'model':>28} {'rates':>10} {'nodes':>6} {'steps':>6} {'ns/node-step':>13} {'simulate_s':>11} "
@@ -59,7 +69,7 @@ def main(argv=None) -> int:
     for name in names:
         model = cable.get_model(name)
         for mode in modes(model):
-            case = strand_case(name)
+            case = strand_case(name, args.transmural)
             case["numerics"]["rates"] = mode
             try:
                 ds = cable.simulate(case)

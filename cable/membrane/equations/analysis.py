@@ -6,6 +6,9 @@
   advanced by the Rush-Larsen update y <- y + (dy/dt) (exp(b dt) - 1)/b, exact when a
   and b are constant over the step (Rush & Larsen 1978, IEEE Trans Biomed Eng 25:389;
   the same form covers gates written with rates or with y_inf and tau);
+* the states in rapid equilibrium with a buffer (``Equations.buffers``) are neither: their
+  total concentration is advanced by forward Euler and the free one recovered from the
+  buffer equilibrium (see :mod:`.description`);
 * which intermediates each expression needs, and which depend on the states or on the
   gates (the states advanced by Rush-Larsen; the ionic current is evaluated with the
   updated gates and the other states as they were at the start of the step, so only the
@@ -29,6 +32,17 @@ class Analysis:
     gate_dependent: set   # intermediate names that depend on a state updated before I_ion: a gate
     #                       (a state with a linear derivative), or any state with current_states "all"
     v_only: set           # intermediate names that depend on V (and constants) only
+
+    @property
+    def buffered(self) -> dict:
+        """State name -> (total buffer, dissociation constant) symbols (``Equations.buffers``)."""
+        return self.parsed.buffers
+
+    def integration(self, state: str) -> str:
+        """How the kernels advance ``state``: rush-larsen, forward-euler or rapid-buffer."""
+        if state in self.parsed.buffers:
+            return "rapid-buffer"
+        return "rush-larsen" if self.linear[state] is not None else "forward-euler"
 
 
 def _depends(parsed: Parsed) -> dict:
@@ -73,6 +87,35 @@ def _substitute_dependent(parsed: Parsed, expr, y: str, deps: dict):
     return expand(expr)
 
 
+def free_derivative(an: Analysis, name: str):
+    """The derivative of state ``name`` (for a buffered one, that of its free concentration)."""
+    f = an.parsed.derivatives[name]
+    if name not in an.buffered:
+        return f
+    buf, k = an.buffered[name]
+    y = an.parsed.sym[name]
+    return f / (1 + buf * k / (y + k) ** 2)
+
+
+def update_text(an: Analysis, pr, k: int, name: str, d: str) -> str:
+    """The new value of state ``name`` (index k, derivative in ``d``) after a step of forward
+    Euler (of the total concentration, for a buffered state)."""
+    if name in an.buffered:
+        buf, kd = an.buffered[name]
+        return f"_vbuffered(y{k}, dt * {d}, {pr.doprint_np(buf)}, {pr.doprint_np(kd)})"
+    return f"y{k} + dt * {d}"
+
+
+def split_states(an: Analysis) -> tuple[list, list]:
+    """(states whose derivatives are taken at the start of the step, the others): with
+    ``euler_order = "after-gates"`` the states not advanced by Rush-Larsen are the others."""
+    m = an.parsed.model
+    if m.euler_order == "after-gates":
+        rl = [s.name for s in m.states if an.linear[s.name] is not None]
+        return rl, [s.name for s in m.states if s.name not in rl]
+    return [s.name for s in m.states], []
+
+
 def analyse(parsed: Parsed) -> Analysis:
     linear = _linear(parsed, _depends(parsed))
     _hoist_v_only(parsed, linear)
@@ -92,6 +135,9 @@ def _linear(parsed: Parsed, deps: dict) -> dict:
     """State name -> b of dy/dt = a + b y (b free of y), or None."""
     linear = {}
     for name, f in parsed.derivatives.items():
+        if name in parsed.buffers:  # the total's derivative: advanced by the buffer update
+            linear[name] = None
+            continue
         y = parsed.sym[name]
         full = _substitute_dependent(parsed, f, name, deps)
         if y not in full.free_symbols:

@@ -148,8 +148,7 @@ def model_from_module(module, name: str | None = None) -> GeneratedModel:
     info = module.INFO
     eq = json.loads(info["equations"])
     states = tuple(State(s["name"], float(s["initial"]), s["units"], s["meaning"]) for s in eq["states"])
-    params = tuple(Parameter(p["name"], float(p["default"]), p["units"], p["meaning"], p["quantity"],
-                             minimum=p["minimum"], maximum=p["maximum"]) for p in eq["parameters"])
+    params = tuple(_parameter(p) for p in eq["parameters"])
     return GeneratedModel(
         name=name or eq["name"], citation=eq["citation"], summary=eq["summary"],
         resting_potential=float(eq["resting_potential"]), states=states, parameters=params,
@@ -163,4 +162,13 @@ def model_from_module(module, name: str | None = None) -> GeneratedModel:
                       by_state=getattr(module, "FAST_BY_STATE", False)),
         kinetics=module.kinetics,
         integration=tuple(info["integration"]), notes=tuple(eq["notes"]),
-        capacitance=eq["capacitance"], equations=info["equations"])
+        capacitance=eq["capacitance"], equations=info["equations"], old_names=dict(eq.get("old_names", {})))
+
+
+def _parameter(p: dict) -> Parameter:
+    """A model parameter from its JSON form (a labelled one keeps its label as default)."""
+    choices = tuple(p["choices"]) if p.get("choices") is not None else None
+    by_label = (p["by_label"][0], dict(p["by_label"][1])) if p.get("by_label") is not None else None
+    default = p["default"] if choices is not None else float(p["default"])
+    return Parameter(p["name"], default, p["units"], p["meaning"], p["quantity"], choices=choices,
+                     minimum=p["minimum"], maximum=p["maximum"], by_label=by_label)

@@ -10,7 +10,9 @@ again recognises V, the stimulus and C_m. The libcellml validator checks the res
 
 What CellML has no place for (the citation and summary, the activation threshold, each
 parameter's unit string, meaning, kind, bounds and whether it is scalable, each state's
-unit and meaning, the temperature parameter, ``current_states``) is written as one XML
+unit and meaning, the temperature parameter, ``current_states``, ``euler_order``, the earlier
+names, the labels of a labelled parameter and the defaults that follow them, the buffered
+states and the stimulus in a state's derivative) is written as one XML
 comment, ``<!-- cable-description: {JSON} -->`` (:data:`METADATA`), which CellML tools
 ignore and :mod:`.cellml_import` reads back (:func:`read_metadata`).
 """
@@ -24,7 +26,7 @@ import sympy
 from sympy.printing.mathml import MathMLContentPrinter
 
 from cable.membrane.equations.cellml_read import _decimal
-from cable.membrane.equations.description import POTENTIAL, Equations, parse
+from cable.membrane.equations.description import POTENTIAL, STIMULUS, Equations, parse
 from cable.membrane.equations.errors import EquationError
 
 _MATHML = "http://www.w3.org/1998/Math/MathML"
@@ -87,17 +89,21 @@ def _ident(name: str, taken: set) -> str:
 METADATA = "cable-description:"
 
 
-def _metadata(eq: Equations, ident) -> str:
+def _metadata(eq: Equations, ident, extra: dict) -> str:
     """The XML comment of the package's own data of ``eq`` (names as written in the file)."""
     data = {
         "citation": eq.citation, "summary": eq.summary, "threshold": eq.threshold,
-        "current_states": eq.current_states,
+        "current_states": eq.current_states, "euler_order": eq.euler_order,
+        "old_names": {old: ident(new) for old, new in eq.old_names.items()},
         "temperature_parameter": ident(eq.temperature_parameter) if eq.temperature_parameter else None,
         "states": {ident(s.name): {"units": s.units, "file_units": _units_id(s.units), "meaning": s.meaning}
                    for s in eq.states},
         "parameters": {ident(p.name): {"units": p.units, "file_units": _units_id(p.units), "meaning": p.meaning,
                                        "quantity": p.quantity, "scalable": p.scalable, "minimum": p.minimum,
-                                       "maximum": p.maximum} for p in eq.parameters},
+                                       "maximum": p.maximum, "choices": p.choices,
+                                       "by_label": [ident(p.by_label[0]), p.by_label[1]] if p.by_label else None}
+                       for p in eq.parameters},
+        **extra,
     }
     text = json.dumps(data, sort_keys=True).replace("--", "-\\u002d")  # "--" may not occur in a comment
     return f"<!-- {METADATA} {text} -->"
@@ -144,7 +150,7 @@ def export(eq: Equations) -> str:
     if eq.current_basis == "area":
         variables.append((cm, "uF_per_cm2", eq.capacitance or 1.0))
     variables += [(s.name, var_units(s.units), s.initial) for s in eq.states]
-    variables += [(p.name, var_units(p.units), p.default) for p in eq.parameters]
+    variables += [(p.name, var_units(p.units), p.value) for p in eq.parameters]
     variables += [(n, "dimensionless", None) for n in parsed.intermediates]
     variables += [(cur[n], per, None) for n in parsed.currents]
 
@@ -156,12 +162,36 @@ def export(eq: Equations) -> str:
         left = (f"<apply><diff/><bvar><ci>{t}</ci></bvar><ci>{lhs}</ci></apply>" if diff else f"<ci>{lhs}</ci>")
         return f"<apply><eq/>{left}{body}</apply>"
 
+    # the stimulus in a derivative (a charge balance): the file's I_stim, in mV/ms
+    stim = sympy.Symbol(istim, real=True)
+    names[istim] = istim
+    if eq.current_basis == "area":
+        names[cm] = cm
+        stim = stim / sympy.Symbol(cm, real=True)
+    deriv = {n: e.xreplace({parsed.sym[STIMULUS]: stim}) for n, e in parsed.derivatives.items()}
+    # a buffered state: the derivative of its total is a variable of its own, the free one's follows
+    # from the rapid equilibrium, d[y]/dt = J/(1 + B K/([y] + K)^2)
+    buffers = []
+    for y, (buf, k) in parsed.buffers.items():
+        flux = _ident(f"{y}_total_flux", taken)
+        variables.append((flux, "dimensionless", None))
+        names[flux] = flux
+        maths_flux = eqn(flux, deriv[y])
+        ysym = parsed.sym[y]
+        deriv[y] = (maths_flux, sympy.Symbol(flux, real=True) / (1 + buf * k / (ysym + k) ** 2))
+        buffers.append([ident(y), ident(str(buf)), ident(str(k)), flux])
+    used = any(parsed.sym[STIMULUS] in e.free_symbols for e in parsed.derivatives.values())
+    extra = {"buffers": buffers, "stimulus": istim if used else None,
+             "stimulus_capacitance": cm if used and eq.current_basis == "area" else None}
     maths = []
     for n, e in parsed.intermediates.items():
         maths.append(eqn(ident(n), e))
     for n, e in parsed.currents.items():
         maths.append(eqn(cur[n], e))
-    for n, e in parsed.derivatives.items():
+    for n, e in deriv.items():
+        if isinstance(e, tuple):
+            maths.append(e[0])
+            e = e[1]
         maths.append(eqn(ident(n), e, diff=True))
     total = "".join(f"<ci>{cur[n]}</ci>" for n in parsed.currents)
     maths.append(eqn(iion, rhs_xml=f"<apply><plus/>{total}</apply>" if len(parsed.currents) > 1 else total))
@@ -185,7 +215,7 @@ def export(eq: Equations) -> str:
     out.append(f'    <math xmlns="{_MATHML}">')
     out += ["      " + m for m in maths]
     out += ["    </math>", "  </component>", "</model>", ""]
-    out.insert(1, _metadata(eq, ident))  # after the XML declaration
+    out.insert(1, _metadata(eq, ident, extra))  # after the XML declaration
     text = "\n".join(out)
     model = L.Parser().parseModel(text)
     v = L.Validator()

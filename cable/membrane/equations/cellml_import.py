@@ -40,7 +40,7 @@ from pathlib import Path
 import sympy
 
 from cable.membrane.equations.cellml_read import CellMLCode, equations, initial_values, read
-from cable.membrane.equations.description import POTENTIAL, EqParameter, EqState, Equations
+from cable.membrane.equations.description import POTENTIAL, STIMULUS, EqParameter, EqState, Equations
 from cable.membrane.equations.errors import EquationError
 
 CONVENTIONS = ("modern", "hodgkin-huxley-1952")
@@ -216,13 +216,55 @@ def _restore(eq: Equations, path) -> Equations:
     names = {p.name for p in params}
     temperature = meta.get("temperature_parameter")
     kept = sum(a is not b for a, b in zip(params + states, eq.parameters + eq.states))
+    params = tuple(_labelled(p, pmeta.get(p.name), names) for p in params)
+    derivatives, buffers, params = _restore_balances(eq, meta, params)
+    state_names = {s.name for s in states}
+    old = {k: v for k, v in meta.get("old_names", {}).items() if v in names | state_names}
     return replace(eq, citation=meta.get("citation", eq.citation), summary=meta.get("summary", eq.summary),
                    threshold=float(meta.get("threshold", eq.threshold)), parameters=params, states=states,
                    temperature_parameter=temperature if temperature in names else None,
                    current_states=meta.get("current_states", eq.current_states),
+                   euler_order=meta.get("euler_order", eq.euler_order), derivatives=derivatives,
+                   buffers=buffers, old_names=old,
                    notes=eq.notes + (f"written by cable: the citation, threshold, current_states and the units, "
                                      f"meanings and scalable flags of {kept} variables read from the file's "
                                      f"cable-description comment",))
+
+
+def _labelled(p: EqParameter, entry, names) -> EqParameter:
+    """``p`` with the labels (and the defaults that follow a label) the export recorded."""
+    if not entry:
+        return p
+    choices = entry.get("choices")
+    by_label = entry.get("by_label")
+    if choices and float(p.default).is_integer() and 0 <= int(p.default) < len(choices):
+        p = replace(p, default=choices[int(p.default)], choices=tuple(choices), minimum=None, maximum=None)
+    if by_label and by_label[0] in names:
+        p = replace(p, by_label=(by_label[0], dict(by_label[1])))
+    return p
+
+
+def _restore_balances(eq: Equations, meta: dict, params):
+    """The derivatives, buffers and parameters of an exported model with its buffered states (the
+    total's derivative, a variable of the file) and its stimulus in a derivative put back."""
+    inter = {n for n, _ in eq.intermediates}
+    pnames = {p.name for p in params}
+    deriv = dict(eq.derivatives)
+    buffers = []
+    for y, buf, k, flux in meta.get("buffers", []):
+        if y in deriv and flux in inter and buf in pnames and k in pnames:
+            deriv[y] = sympy.Symbol(flux, real=True)
+            buffers.append((y, buf, k))
+    stim = meta.get("stimulus")
+    if stim in pnames:
+        sym = sympy.Symbol(stim, real=True)
+        cap = meta.get("stimulus_capacitance")  # area basis: the file's I_stim = i_stim C_m
+        value = sympy.Symbol(STIMULUS, real=True) * (sympy.Symbol(cap, real=True) if cap in pnames else 1)
+        deriv = {n: e.xreplace({sym: value}) if isinstance(e, sympy.Basic) else e for n, e in deriv.items()}
+        used = [e for _, e in eq.intermediates + eq.currents if isinstance(e, sympy.Basic) and sym in e.free_symbols]
+        if not used:
+            params = tuple(p for p in params if p.name != stim)
+    return tuple((n, deriv[n]) for n, _ in eq.derivatives), tuple(buffers), params
 
 
 def _check_dimensionless(code, variable, units, canonical):

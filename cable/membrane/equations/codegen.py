@@ -15,8 +15,8 @@ import json
 from sympy.printing.pycode import PythonCodePrinter
 
 from cable.membrane.equations import fastpath
-from cable.membrane.equations.analysis import Analysis, needed
-from cable.membrane.equations.description import POTENTIAL
+from cable.membrane.equations.analysis import Analysis, free_derivative, needed, split_states, update_text
+from cable.membrane.equations.description import POTENTIAL, STIMULUS
 
 #: math functions whose numpy names differ
 _NUMPY_NAMES = {"asin": "arcsin", "acos": "arccos", "atan": "arctan", "atan2": "arctan2",
@@ -53,7 +53,7 @@ class _Printer(PythonCodePrinter):
 
 def _names(an: Analysis) -> dict:
     m = an.parsed.model
-    names = {POTENTIAL: "V"}
+    names = {POTENTIAL: "V", STIMULUS: "istim"}
     names.update({s.name: f"y{k}" for k, s in enumerate(m.states)})
     names.update({p.name: f"p{k}" for k, p in enumerate(m.parameters)})
     names.update({n: f"x{k}" for k, n in enumerate(an.parsed.intermediates)})
@@ -65,15 +65,17 @@ def _assign(pr, names, parsed, which, indent):
 
 
 def _body(an: Analysis, pr, names, indent, load_state, load_param, store_state):
-    """Lines of one node's reaction step (gates, then the potential)."""
+    """Lines of one node's reaction step (gates, then the other states and the potential)."""
     parsed, m = an.parsed, an.parsed.model
+    sidx = {s.name: k for k, s in enumerate(m.states)}
     lines = [f"{indent}{names[s.name]} = {load_state(k)}" for k, s in enumerate(m.states)]
     lines += [f"{indent}p{k} = {load_param(k)}" for k in range(len(m.parameters))]
     rl = {n: b for n, b in an.linear.items() if b is not None}
-    first = needed(parsed, list(parsed.derivatives.values()) + list(rl.values()))
+    early, late = split_states(an)
+    first = needed(parsed, [parsed.derivatives[n] for n in early] + list(rl.values()))
     lines += _assign(pr, names, parsed, first, indent)
-    for k, s in enumerate(m.states):
-        lines.append(f"{indent}d{k} = {pr.doprint_np(parsed.derivatives[s.name])}")
+    for n in early:
+        lines.append(f"{indent}d{sidx[n]} = {pr.doprint_np(parsed.derivatives[n])}")
     if rl:
         lines.append(f"{indent}if gating == 0:")
         for k, s in enumerate(m.states):
@@ -82,16 +84,23 @@ def _body(an: Analysis, pr, names, indent, load_state, load_param, store_state):
                 # (exp(b dt) - 1)/(b dt) -> 1 as b dt -> 0 (no gate dynamics at all)
                 lines.append(f"{indent}    d{k} = d{k} * (np.expm1(b{k}) / b{k} if b{k} != 0.0 else 1.0)")
     every = m.current_states == "all"
-    for k, s in enumerate(m.states):
-        if s.name in rl or every:  # I_ion below takes its new value
-            lines.append(f"{indent}y{k} = y{k} + dt * d{k}")
+    for n in early:
+        k = sidx[n]
+        if n in rl or every:  # I_ion (and the late derivatives) below take its new value
+            lines.append(f"{indent}y{k} = {update_text(an, pr, k, n, f'd{k}')}")
             lines.append(f"{indent}{store_state(k)} = y{k}")
         else:
-            lines.append(f"{indent}{store_state(k)} = y{k} + dt * d{k}")
+            lines.append(f"{indent}{store_state(k)} = {update_text(an, pr, k, n, f'd{k}')}")
     cur = list(parsed.currents.values())
-    after = [n for n in needed(parsed, cur) if n in an.gate_dependent or n not in first]
+    exprs = [parsed.derivatives[n] for n in late] + cur
+    after = [n for n in needed(parsed, exprs) if n in an.gate_dependent or n not in first]
     lines += _assign(pr, names, parsed, after, indent)
+    for n in late:
+        lines.append(f"{indent}d{sidx[n]} = {pr.doprint_np(parsed.derivatives[n])}")
     lines.append(f"{indent}ion = " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
+    for n in late:
+        k = sidx[n]
+        lines.append(f"{indent}{store_state(k)} = {update_text(an, pr, k, n, f'd{k}')}")
     return lines
 
 
@@ -106,6 +115,7 @@ def _kinetics(an: Analysis, pr, names) -> list:
            '    """dy_k/dt = a_k - b_k y_k and I_ion of node i at (V, y) (contract: cable.membrane.base)."""']
     out += [f"    y{k} = y[{k}]" for k in range(len(m.states))]
     out += [f"    p{k} = p[i, {k}]" for k in range(len(m.parameters))]
+    out.append("    istim = 0.0  # (no stimulus in this contract)")
     use = needed(parsed, list(parsed.derivatives.values()) + list(rl.values()) + cur)
     out += _assign(pr, names, parsed, use, "    ")
     for k, s in enumerate(m.states):
@@ -114,7 +124,7 @@ def _kinetics(an: Analysis, pr, names) -> list:
             out.append(f"    a[{k}] = {pr.doprint_np(parsed.derivatives[s.name])} + b[{k}] * y{k}")
         else:
             out.append(f"    b[{k}] = 0.0")
-            out.append(f"    a[{k}] = {pr.doprint_np(parsed.derivatives[s.name])}")
+            out.append(f"    a[{k}] = {pr.doprint_np(free_derivative(an, s.name))}")
     out.append("    return " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
     return out
 
@@ -126,10 +136,11 @@ def module_source(an: Analysis, info: dict) -> str:
     pr = _Printer(names)
     nstate, nparam = len(m.states), len(m.parameters)
     out = [f'"""Generated by cable.membrane.equations for the model {m.name!r}; do not edit."""', "",
-           "import numpy as np", "", "from cable.kernels.jit import jit, jit_inline", "",
+           "import numpy as np", "", "from cable.kernels.jit import jit, jit_inline",
+           "from cable.membrane.equations.vecmath import buffered as _vbuffered", "",
            f"INFO = json.loads({json.dumps(json.dumps(info))})".replace("json.loads", "_json.loads"),
            "", "", "@jit", "def reaction(v, s, p, i_stim, dt, ion_scale, gating):",
-           "    for i in range(v.shape[0]):", "        V = v[i]"]
+           "    for i in range(v.shape[0]):", "        V = v[i]", "        istim = i_stim[i]"]
     out += _body(an, pr, names, "        ", lambda k: f"s[i, {k}]", lambda k: f"p[i, {k}]",
                  lambda k: f"s[i, {k}]")
     out += ["        v[i] = V + dt * (i_stim[i] - ion_scale * ion)", ""]
@@ -144,8 +155,9 @@ def module_source(an: Analysis, info: dict) -> str:
             '    """State derivatives [unit/ms] and I_ion at one node (plain Python)."""']
     out += [f"    y{k} = y[{k}]" for k in range(nstate)]
     out += [f"    p{k} = p[{k}]" for k in range(nparam)]
+    out.append("    istim = 0.0")
     out += _assign(pr, names, parsed, needed(parsed, list(parsed.derivatives.values()) + cur), "    ")
-    out.append("    ds = [" + ", ".join(pr.doprint_np(parsed.derivatives[s.name]) for s in m.states) + "]")
+    out.append("    ds = [" + ", ".join(pr.doprint_np(free_derivative(an, s.name)) for s in m.states) + "]")
     out.append("    return ds, " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
     out += _kinetics(an, pr, names)
     out += fastpath.kernel_lines(an, pr, names, fastpath.plan(an))

@@ -37,6 +37,7 @@ def equations_to_json(eq: Equations) -> str:
         "resting_potential": eq.resting_potential, "current_basis": eq.current_basis,
         "threshold": eq.threshold, "temperature_parameter": eq.temperature_parameter,
         "capacitance": eq.capacitance, "notes": list(eq.notes), "current_states": eq.current_states,
+        "euler_order": eq.euler_order, "buffers": [list(b) for b in eq.buffers], "old_names": dict(eq.old_names),
         "states": [vars(s) for s in eq.states], "parameters": [vars(p) for p in eq.parameters],
         "intermediates": [[n, text(inter[n])] for n, _ in eq.intermediates],
         "derivatives": [[n, text(parsed.derivatives[n])] for n, _ in eq.derivatives],
@@ -55,13 +56,25 @@ def equations_from_json(text: str) -> Equations:
         name=d["name"], citation=d["citation"], summary=d["summary"],
         resting_potential=d["resting_potential"],
         states=tuple(EqState(**s) for s in d["states"]),
-        parameters=tuple(EqParameter(**p) for p in d["parameters"]),
+        parameters=tuple(_parameter(p) for p in d["parameters"]),
         intermediates=tuple((n, expr(e)) for n, e in d["intermediates"]),
         derivatives=tuple((n, expr(e)) for n, e in d["derivatives"]),
         currents=tuple((n, expr(e)) for n, e in d["currents"]),
         current_basis=d["current_basis"], threshold=d["threshold"],
         temperature_parameter=d["temperature_parameter"], capacitance=d["capacitance"],
-        notes=tuple(d["notes"]), current_states=d.get("current_states", "gates"))
+        notes=tuple(d["notes"]), current_states=d.get("current_states", "gates"),
+        euler_order=d.get("euler_order", "start"), buffers=tuple(tuple(b) for b in d.get("buffers", ())),
+        old_names=d.get("old_names", {}))
+
+
+def _parameter(d: dict) -> EqParameter:
+    """An EqParameter from its JSON form (lists back to tuples)."""
+    d = dict(d)
+    if d.get("choices") is not None:
+        d["choices"] = tuple(d["choices"])
+    if d.get("by_label") is not None:
+        d["by_label"] = (d["by_label"][0], dict(d["by_label"][1]))
+    return EqParameter(**d)
 
 
 def generate_source(eq: Equations) -> str:
@@ -69,8 +82,7 @@ def generate_source(eq: Equations) -> str:
     an = analysis.analyse(parse(eq))
     info = {
         "equations": equations_to_json(eq),
-        "integration": ["rush-larsen" if an.linear[s.name] is not None else "forward-euler"
-                        for s in eq.states],
+        "integration": [an.integration(s.name) for s in eq.states],
         "compiler": _compiler_hash(),
     }
     return codegen.module_source(an, info)

@@ -31,8 +31,17 @@ from cable.membrane.equations.errors import EquationError
 #: the name of the membrane potential in every description [mV]
 POTENTIAL = "V"
 
+#: the name of the applied stimulus in a derivative [mV/ms] (positive depolarises,
+#: dV/dt = i_stim - ion_scale I_ion): a balance that carries the stimulus charge (the K+ of
+#: ten Tusscher & Panfilov 2006) uses it; the reaction kernels give it the step's stimulus,
+#: the reference and ``kinetics`` (whose contracts have no stimulus) 0
+STIMULUS = "i_stim"
+
 #: the values of ``Equations.current_states``
 CURRENT_STATES = ("gates", "all")
+
+#: the values of ``Equations.euler_order``
+EULER_ORDERS = ("start", "after-gates")
 
 
 @dataclass(frozen=True)
@@ -50,13 +59,24 @@ class EqParameter:
     """A parameter: default, unit, meaning, quantity kind (a key of cable.units.CANONICAL)."""
 
     name: str
-    default: float
+    default: float | str
     units: str
     meaning: str
     quantity: str = "dimensionless"
     scalable: bool = False
     minimum: float | None = None
     maximum: float | None = None
+    #: labels of a labelled parameter (a cell type): ``default`` is one of them, and the
+    #: expressions see the index of the chosen label (0, 1, ...)
+    choices: tuple[str, ...] | None = None
+    #: (name of a labelled parameter, {label: default}): the default follows that label
+    #: (:attr:`cable.membrane.base.Parameter.by_label`)
+    by_label: tuple[str, dict] | None = None
+
+    @property
+    def value(self) -> float:
+        """The default as the expressions see it (a label's index)."""
+        return float(self.choices.index(self.default)) if self.choices is not None else float(self.default)
 
 
 @dataclass(frozen=True)
@@ -71,6 +91,19 @@ class Equations:
     of a step takes at their updated value: ``"gates"`` (the states advanced by Rush-Larsen;
     the others as they were at the start of the step) or ``"all"`` (every state updated
     first, as the hand-written Luo-Rudy 1991 kernel does with Ca_i).
+
+    ``euler_order`` says what the derivatives of the states not advanced by Rush-Larsen see:
+    ``"start"`` (every state as it was at the start of the step) or ``"after-gates"`` (the
+    Rush-Larsen states already updated, the others as they were: the concentrations of a step
+    then take the same currents as the potential, as the hand-written ten Tusscher-Panfilov
+    kernel does). ``buffers`` lists ``(state, total buffer, dissociation constant)`` (names of
+    parameters) for the concentrations in rapid equilibrium with a buffer:
+    the derivative given for such a state is that of its *total* (free + bound)
+    concentration; the kernels advance the total by forward Euler and recover the free one
+    from the quadratic of the buffer equilibrium (ten Tusscher & Panfilov 2006), the reference
+    and ``kinetics`` give the free derivative d[y]/dt = J/(1 + B K/([y] + K)^2), its dt -> 0
+    limit. ``old_names`` maps earlier names of states and parameters to the present ones
+    (:attr:`cable.membrane.base.MembraneModel.old_names`).
     """
 
     name: str
@@ -89,10 +122,13 @@ class Equations:
     notes: tuple[str, ...] = ()
     current_states: str = "gates"
     meanings: dict = field(default_factory=dict)  # intermediate name -> meaning (optional)
+    euler_order: str = "start"
+    buffers: tuple[tuple[str, str, str], ...] = ()
+    old_names: dict = field(default_factory=dict)
 
     def symbols(self) -> dict[str, sympy.Symbol]:
-        """The declared names as sympy symbols (potential, states, parameters, intermediates)."""
-        names = [POTENTIAL] + [s.name for s in self.states] + [p.name for p in self.parameters]
+        """The declared names as sympy symbols (potential, stimulus, states, parameters, intermediates)."""
+        names = [POTENTIAL, STIMULUS] + [s.name for s in self.states] + [p.name for p in self.parameters]
         names += [n for n, _ in self.intermediates]
         seen = set()
         for n in names:
@@ -108,6 +144,10 @@ def parse(model: Equations) -> "Parsed":
     if model.current_states not in CURRENT_STATES:
         raise EquationError(f"model {model.name}: current_states = {model.current_states!r}; "
                             f"allowed: {', '.join(CURRENT_STATES)}.")
+    if model.euler_order not in EULER_ORDERS:
+        raise EquationError(f"model {model.name}: euler_order = {model.euler_order!r}; "
+                            f"allowed: {', '.join(EULER_ORDERS)}.")
+    _check_labels(model)
     local = dict(sym)
     # sympy would read these names as its own objects (the imaginary unit, a beta function...)
     for name in ("E", "I", "N", "O", "Q", "S", "beta", "gamma", "zeta", "lambda"):
@@ -140,7 +180,37 @@ def parse(model: Equations) -> "Parsed":
     curr = {n: conv(f"current '{n}'", e) for n, e in model.currents}
     if not curr:
         raise EquationError(f"model {model.name}: no ionic current declared.")
-    return Parsed(model, sym, _sorted(model.name, inter, sym), deriv, curr)
+    for where, exprs in (("intermediate", inter), ("current", curr)):
+        for n, e in exprs.items():
+            if sym[STIMULUS] in e.free_symbols:
+                raise EquationError(f"model {model.name}: {where} '{n}' uses the stimulus {STIMULUS}; "
+                                    f"only a state's derivative may (a charge balance carrying it).")
+    buffers = {}
+    for entry in model.buffers:
+        state, total, k = entry
+        if state not in states or state in buffers:
+            raise EquationError(f"model {model.name}: buffer {entry!r}: '{state}' is not a state "
+                                f"(or is buffered twice); states: {', '.join(states)}.")
+        for n in (total, k):
+            if n not in {p.name for p in model.parameters}:
+                raise EquationError(f"model {model.name}: buffer {entry!r}: '{n}' is not a parameter.")
+        buffers[state] = (sym[total], sym[k])
+    return Parsed(model, sym, _sorted(model.name, inter, sym), deriv, curr, buffers)
+
+
+def _check_labels(model: Equations) -> None:
+    """Labelled parameters: a default among the choices; ``by_label`` names one, with every label."""
+    params = {p.name: p for p in model.parameters}
+    for p in model.parameters:
+        if p.choices is not None and p.default not in p.choices:
+            raise EquationError(f"model {model.name}: parameter '{p.name}' has the default {p.default!r}; "
+                                f"allowed: {', '.join(p.choices)}.")
+        if p.by_label is not None:
+            label, values = p.by_label
+            owner = params.get(label)
+            if owner is None or owner.choices is None or set(values) != set(owner.choices):
+                raise EquationError(f"model {model.name}: parameter '{p.name}': by_label must name a labelled "
+                                    f"parameter and give a default for each of its labels.")
 
 
 @dataclass
@@ -150,6 +220,7 @@ class Parsed:
     intermediates: dict  # name -> expr, in dependency order
     derivatives: dict
     currents: dict
+    buffers: dict = field(default_factory=dict)  # state -> (total buffer, constant) symbols
 
 
 def _sorted(model_name: str, inter: dict, sym: dict) -> dict:

@@ -23,7 +23,7 @@ Layout (``FastPath.by_state = True``): states by state, parameters by parameter.
 columns of a block of nodes are written into a work array (interpolated, or exact), then
 one node loop of plain arithmetic reads them: every function in it is vectorisable
 (:mod:`cable.kernels.elementary`, :mod:`cable.membrane.equations.vecmath`; float powers
-as exp(e log x), integer powers as products), so LLVM turns it into SIMD code. The
+as exp(e log x), integer powers as products), so LLVM turns it into SIMD code.
 With one parameter column (``shared_step``) the parameters and the parameter-only
 values are scalars of the node loop, computed once per block. With parameters by node
 (``pT`` with n columns, ``by_node_step``) they are loaded into the buffer and worked out
@@ -32,7 +32,9 @@ buffer: still vectorised (before issue 15 such nodes went one at a time). A node
 arithmetic is the same either way and whatever its block-mates, so a batch gives each
 strand its result alone, bit for bit (IEEE arithmetic in every SIMD lane as in scalar
 code: numba compiles without fast-math; tested). Each node interpolates in the table of
-its table group (``group``; see cable/kernels/tables.py).
+its table group (``group``; see cable/kernels/tables.py); a labelled parameter (a cell
+type) the columns depend on is a table parameter like the others, so the nodes of each
+label interpolate in their own table (a transmural strand keeps its tables).
 """
 
 from __future__ import annotations
@@ -43,7 +45,7 @@ import inspect
 import sympy
 
 from cable.membrane.equations import blocks, singular, vecmath
-from cable.membrane.equations.analysis import Analysis, needed
+from cable.membrane.equations.analysis import Analysis, needed, split_states, update_text
 from cable.membrane.equations.description import POTENTIAL
 
 BLOCK = blocks.BLOCK
@@ -146,6 +148,8 @@ def plan(an: Analysis) -> dict:
         deps |= names(inter[n]) & params
     for e in col_exprs:
         deps |= names(e) & params
+    # a labelled parameter (a cell type) the columns depend on is a table parameter like any
+    # other: the nodes of each label are a table group of their own (cable/kernels/tables.py)
     return {"tabulated": frontier, "gates": gates, "factors": factors, "const_factors": const_factors,
             "v_only": v_only, "const": const,
             "parameters": sorted(deps, key=[p.name for p in m.parameters].index)}
@@ -215,7 +219,7 @@ def _main_lines(an, pr, names, fp, cols, off, by_node=True) -> list:
     def col(c):
         return f"B[{off['col'] + c * BLOCK} + w]"
 
-    out = ["    for w in range(nb):", f"{ind}V = B[{off['v']} + w]"]
+    out = ["    for w in range(nb):", f"{ind}V = B[{off['v']} + w]", f"{ind}istim = B[{off['stim']} + w]"]
     if by_node:
         out += blocks.parameter_loads(len(m.parameters), off, ind)
         for c, name in enumerate(_const_names(an, fp, names, sidx)):
@@ -227,7 +231,8 @@ def _main_lines(an, pr, names, fp, cols, off, by_node=True) -> list:
         out.append(f"{ind}e{sidx[n]} = {col(c)}")
         c += 1
     per_node = [n for n in rl if n not in gates and n not in factors and n not in fp["const_factors"]]
-    rest = [s.name for s in m.states if s.name not in gates]
+    early, late = split_states(an)
+    rest = [n for n in early if n not in gates]
     first = [n for n in needed(parsed, [parsed.derivatives[k] for k in rest] + [rl[k] for k in per_node])
              if n not in pre]
     one = _Reciprocals(pr, names, "r", ind, [inter[n] for n in first] + [parsed.derivatives[k] for k in rest]
@@ -243,23 +248,29 @@ def _main_lines(an, pr, names, fp, cols, off, by_node=True) -> list:
         elif k in rl:
             out.append(f"{ind}d{j} = d{j} * e{j}")
     every = m.current_states == "all"
-    for s in m.states:
-        k = sidx[s.name]
+    for name in early:
+        k = sidx[name]
         slot = f"B[{k * BLOCK} + w]"
-        if s.name in gates:
-            out.append(f"{ind}y{k} = {col(cols[s.name])} + {col(cols[s.name] + 1)} * y{k}")
+        if name in gates:
+            out.append(f"{ind}y{k} = {col(cols[name])} + {col(cols[name] + 1)} * y{k}")
             out.append(f"{ind}{slot} = y{k}")
-        elif s.name in rl or every:  # I_ion below takes its new value
-            out.append(f"{ind}y{k} = y{k} + dt * d{k}")
+        elif name in rl or every:  # I_ion (and the late derivatives) below take its new value
+            out.append(f"{ind}y{k} = {update_text(an, pr, k, name, f'd{k}')}")
             out.append(f"{ind}{slot} = y{k}")
         else:
-            out.append(f"{ind}{slot} = y{k} + dt * d{k}")
+            out.append(f"{ind}{slot} = {update_text(an, pr, k, name, f'd{k}')}")
     cur = list(parsed.currents.values())
-    after = [n for n in needed(parsed, cur) if n not in pre and (n in an.gate_dependent or n not in first)]
-    two = _Reciprocals(pr, names, "q", ind, [inter[n] for n in after] + cur)
+    late_d = [parsed.derivatives[k] for k in late]
+    after = [n for n in needed(parsed, late_d + cur) if n not in pre and (n in an.gate_dependent or n not in first)]
+    two = _Reciprocals(pr, names, "q", ind, [inter[n] for n in after] + late_d + cur)
     for n in after:
         out += two.line(names[n], inter[n])
+    for k in late:
+        out += two.line(f"d{sidx[k]}", parsed.derivatives[k])
     out += two.sum_line("ion", cur)
+    for name in late:
+        k = sidx[name]
+        out.append(f"{ind}B[{k * BLOCK} + w] = {update_text(an, pr, k, name, f'd{k}')}")
     out.append(f"{ind}B[{off['v']} + w] = V + dt * (B[{off['stim']} + w] - ion_scale * ion)")
     return out
 
@@ -323,6 +334,7 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
     out = ["", "", f"# fast path (helpers {_helpers_hash()})",
            "from cable.kernels.elementary import exp as _vexp",
            "from cable.membrane.equations.vecmath import expm1_ratio as _vexpm1r, log as _vlog, power as _vpow",
+           "from cable.membrane.equations.vecmath import buffered as _vbuffered",
            "", f"TABLE_COLUMNS = {max(ncol, 1)}", f"TABLE_PARAMETERS = {tuple(fp['parameters'])!r}",
            "FAST_BY_STATE = True", f"FAST_BLOCK = {BLOCK}", f"FAST_BUFFER = {off['size']}"]
     # exact columns of the buffer's nodes w0..w1-1 (a run without a table, or nodes outside it)

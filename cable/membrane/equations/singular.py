@@ -72,7 +72,7 @@ def guarded(an, names, v_only) -> dict:
     parsed = an.parsed
     inter = parsed.intermediates
     V = parsed.sym[POTENTIAL]
-    defaults = {parsed.sym[p.name]: p.default for p in parsed.model.parameters}
+    defaults = {parsed.sym[p.name]: p.value for p in parsed.model.parameters}
     cache: dict = {}
     out = {}
     for n in names:

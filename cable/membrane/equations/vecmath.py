@@ -119,3 +119,15 @@ def expm1_ratio(x):
 def power(x, e):
     """x**e for a non-integer e, as exp(e log x) (vectorisable; NaN for x < 0)."""
     return exp(e * log(x))
+
+
+@jit_inline
+def buffered(c, d_total, buf, k):
+    """The free concentration of a species in rapid equilibrium with a buffer (total ``buf``,
+    dissociation constant ``k``) after its total concentration c + buf c/(c + k) changed by
+    ``d_total``: the positive root of c'^2 + (buf + k - T) c' - k T = 0, T the new total, in
+    the form without cancellation (ten Tusscher & Panfilov 2006; the hand-written kernel's)."""
+    bc = buf - buf * c / (c + k) - d_total - c + k
+    cc = k * (buf * c / (c + k) + d_total + c)
+    root = np.sqrt(bc * bc + 4.0 * cc)
+    return 2.0 * cc / (root + bc) if bc >= 0.0 else 0.5 * (root - bc)

@@ -63,17 +63,23 @@ def test_hh_exact_rates_at_the_removable_singularities():
     np.testing.assert_allclose(b[1], a[1], rtol=1e-9, atol=1e-15)
 
 
+@pytest.mark.parametrize("name", [GENERATED_LR1, "ten-tusscher-panfilov-2006"])
 @pytest.mark.parametrize("rates", ["exact", "tabulated"])
-def test_a_batch_gives_each_node_its_result_alone(rates):
+def test_a_batch_gives_each_node_its_result_alone(rates, name):
     # parameters by node (pT with n columns), each node in the table of its group: bit for bit
     # its run alone (FastPath contract); 70 nodes: more than one block of the kernel, and a
-    # partial one
-    model = cable.get_model(GENERATED_LR1)
+    # partial one; TP06: each node its own cell type too (a labelled parameter: the table
+    # holds the columns of every label)
+    model = cable.get_model(name)
     rng = np.random.default_rng(4)
     n, dt = 70, 0.01
     v = rng.uniform(-90.0, 40.0, n)
     s = np.tile(model.initial_states(), (n, 1)) * rng.uniform(0.8, 1.2, (n, len(model.states)))
     p = np.tile(model.default_parameters(), (n, 1))
+    for j, par in enumerate(model.parameters):
+        if par.choices:
+            p[:, j] = rng.integers(0, len(par.choices), n)
+    model.fill_labelled_defaults(p)
     g = model.parameter_names.index(model.conductances[0])
     p[:, g] *= rng.uniform(0.5, 1.5, n)  # a conductance: not a table parameter
     k_o = model.parameter_names.index("K_o")   # a table parameter: three table groups
