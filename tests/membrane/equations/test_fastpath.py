@@ -89,10 +89,10 @@ def test_a_batch_gives_each_node_its_result_alone(rates, name):
     batch = (v.copy(), np.ascontiguousarray(s.T))
     model.fast.kernel(*batch, np.ascontiguousarray(p.T), np.zeros(n), dt, 1.0, 0, plan.table, plan.v_lo,
                       plan.inv_dv, plan.group)
-    own = {}   # each node alone with its own plan (one table)
-    for i in range(n):
-        alone = (v[i:i + 1].copy(), np.ascontiguousarray(s[i:i + 1].T))
-        row = p[i, k_o]
+    own = {}   # each node alone with its own plan (one table), shared by nodes with equal parameters
+    for i in range(n):  # but the conductance: K_o and, for TP06, the cell type (a single-node plan fills
+        alone = (v[i:i + 1].copy(), np.ascontiguousarray(s[i:i + 1].T))  # the columns of its label only)
+        row = tuple(np.delete(p[i], g))
         own[row] = own.get(row) or tables.plan(model, p[i:i + 1], dt, 0, rates)
         model.fast.kernel(*alone, np.ascontiguousarray(p[i:i + 1].T), np.zeros(1), dt, 1.0, 0, own[row].table,
                           plan.v_lo, plan.inv_dv, own[row].group)
