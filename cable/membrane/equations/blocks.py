@@ -121,6 +121,8 @@ def driver_lines(off: dict, nstate: int) -> list:
             "    B = np.empty(FAST_BUFFER)",
             "    if pT.shape[1] == 1:",
             "        g = 0 if table.shape[0] == 1 else group[0]",
+            "        if array_step(v, sT, pT, i_stim, dt, ion_scale, gating, table[g], v_lo, inv_dv):",
+            "            return",
             "        shared_step(v, sT, pT, i_stim, dt, ion_scale, gating, table[g], v_lo, inv_dv, B)",
             "    else:",
             "        by_node_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group, B)"]
