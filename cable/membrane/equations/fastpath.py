@@ -44,7 +44,7 @@ import inspect
 
 import sympy
 
-from cable.membrane.equations import blocks, singular, vecmath
+from cable.membrane.equations import blocks, exponentials, singular, vecmath
 from cable.membrane.equations.analysis import Analysis, needed, split_states, update_text
 from cable.membrane.equations.description import POTENTIAL
 
@@ -165,8 +165,10 @@ def _helpers_hash() -> str:
     return h.hexdigest()[:12]
 
 
-def _column_lines(an, pr, names, fp, indent, store) -> list:
-    """Exact values of the table's columns at one node (V and p0.. set): ``store(c, text)``."""
+def _column_lines(an, pr, names, fp, indent, store, hoisted=None) -> list:
+    """Exact values of the table's columns at one node (V and p0.. set): ``store(c, text)``.
+    ``hoisted``: a list that takes the lines of the parameter-only intermediates instead
+    (computed once, before a node loop, when every node has the same parameters)."""
     parsed, m = an.parsed, an.parsed.model
     inter = parsed.intermediates
     rl = {n: b for n, b in an.linear.items() if b is not None}
@@ -177,27 +179,39 @@ def _column_lines(an, pr, names, fp, indent, store) -> list:
     out = []
     use = needed(parsed, want)
     guards = singular.guarded(an, use, fp["v_only"])
+    V = parsed.sym[POTENTIAL]
+    bases, shared = exponentials.share([inter[n] for n in use] + want, V)
+    for base, slope in bases:
+        names[str(base)] = str(base)[1:]
+        out.append(f"{indent}{names[str(base)]} = _vexp({slope!r} * V)")
     for n in use:
-        text = pr.doprint_np(inter[n])
+        text = pr.doprint_np(inter[n].xreplace(shared))
         if n in guards:
-            text = singular.text(pr, *guards[n], text, parsed.sym[POTENTIAL])
-        out.append(f"{indent}{names[n]} = {text}")
+            f, points = guards[n]
+            # its values beside the point in terms of the parameter-only intermediates
+            # (computed once), not written out again
+            f = f.xreplace(singular.written_out(parsed, fp["const"]))
+            text = singular.text(pr, f, points, text, parsed.sym[POTENTIAL])
+        if hoisted is not None and n in fp["const"]:
+            hoisted.append(f"    {names[n]} = {text}")
+        else:
+            out.append(f"{indent}{names[n]} = {text}")
     c = 0
     for n in frontier:
         out.append(store(c, names[n]))
         c += 1
     for n in factors:
         k = sidx[n]
-        out.append(f"{indent}e{k} = _vexpm1r(({pr.doprint_np(rl[n])}) * dt) if gating == 0 else 1.0")
+        out.append(f"{indent}e{k} = _vexpm1r(({pr.doprint_np(rl[n].xreplace(shared))}) * dt) if gating == 0 else 1.0")
         out.append(store(c, f"e{k}"))
         c += 1
     for n in gates:
         k = sidx[n]
         y = parsed.sym[n]
         a = parsed.derivatives[n].xreplace({y: sympy.Integer(0)})
-        out.append(f"{indent}b{k} = ({pr.doprint_np(rl[n])}) * dt")
+        out.append(f"{indent}b{k} = ({pr.doprint_np(rl[n].xreplace(shared))}) * dt")
         out.append(f"{indent}e{k} = _vexpm1r(b{k}) if gating == 0 else 1.0")
-        out.append(store(c, f"({pr.doprint_np(a)}) * dt * e{k}"))
+        out.append(store(c, f"({pr.doprint_np(a.xreplace(shared))}) * dt * e{k}"))
         out.append(store(c + 1, f"1.0 + b{k} * e{k}"))
         c += 2
     return out
@@ -227,6 +241,28 @@ class _InBuffer:
     def gate(self, k, c):
         """The new value of pure gate k (table columns c, c + 1 hold A, B of y <- A + B y)."""
         return f"{self.col(c)} + {self.col(c + 1)} * y{k}"
+
+
+class _InLocals(_InBuffer):
+    """Where the node loop of ``array_exact`` finds its values: the strand's arrays (node i),
+    and the columns as the locals c0, c1, .. computed just before (exact)."""
+
+    loop = "    for i in range(n):"
+
+    def __init__(self):
+        pass
+
+    def v(self):
+        return "v[i]"
+
+    def stim(self):
+        return "i_stim[i]"
+
+    def state(self, k):
+        return f"sT[{k}, i]"
+
+    def col(self, c):
+        return f"c{c}"
 
 
 class _InArrays:
@@ -324,6 +360,21 @@ def _main_lines(an, pr, names, fp, cols, where, by_node=True, off=None) -> list:
         out.append(f"{ind}{where.state(k)} = {update_text(an, pr, k, name, f'd{k}')}")
     out.append(f"{ind}{where.v()} = V + dt * ({where.stim()} - ion_scale * ion)")
     return out
+
+
+def _array_exact_lines(an, pr, names, fp, cols, loads) -> list:
+    """``array_exact``: the shared-parameter step without a table over the whole strand, in
+    one node loop (the columns exact, as locals; the parameter-only values computed once):
+    no buffer, and a loop LLVM vectorises. The arithmetic of a node is that of
+    ``exact_columns`` and ``block_step_shared``."""
+    m = an.parsed.model
+    sidx = {s.name: k for k, s in enumerate(m.states)}
+    hoisted: list = []
+    columns = _column_lines(an, pr, names, fp, "        ", lambda c, t: f"        c{c} = {t}", hoisted)
+    body = _main_lines(an, pr, names, fp, cols, _InLocals(), by_node=False)
+    out = ["", "", "@jit", "def array_exact(v, sT, pT, i_stim, dt, ion_scale, gating):", "    n = v.shape[0]"]
+    out += loads + hoisted + _const_lines(an, pr, names, fp, sidx, "    ")
+    return out + body[:2] + columns + body[2:]
 
 
 def _array_lines(an, pr, names, fp, cols, loads) -> list:
@@ -490,7 +541,7 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
     out += ["", "", "@jit", "def block_step_shared(B, pT, dt, ion_scale, gating, nb):"]
     out += loads + _const_lines(an, pr, names, fp, sidx, "    ")
     out += _main_lines(an, pr, names, fp, cols, _InBuffer(off), by_node=False)
-    out += _array_lines(an, pr, names, fp, cols, loads)
+    out += _array_lines(an, pr, names, fp, cols, loads) + _array_exact_lines(an, pr, names, fp, cols, loads)
     out += blocks.driver_lines(off, nstate)
     return out
 
