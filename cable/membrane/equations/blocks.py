@@ -120,7 +120,12 @@ def driver_lines(off: dict, nstate: int) -> list:
             '    """Fast reaction step (contract: cable.membrane.base.FastPath, by state)."""',
             "    B = np.empty(FAST_BUFFER)",
             "    if pT.shape[1] == 1:",
+            "        if table.shape[1] <= 1:",
+            "            array_exact(v, sT, pT, i_stim, dt, ion_scale, gating)",
+            "            return",
             "        g = 0 if table.shape[0] == 1 else group[0]",
+            "        if array_step(v, sT, pT, i_stim, dt, ion_scale, gating, table[g], v_lo, inv_dv):",
+            "            return",
             "        shared_step(v, sT, pT, i_stim, dt, ion_scale, gating, table[g], v_lo, inv_dv, B)",
             "    else:",
             "        by_node_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group, B)"]

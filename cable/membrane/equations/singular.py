@@ -120,3 +120,11 @@ def text(pr, f, points, plain: str, V) -> str:
                 f"* {0.5 / DELTA!r}")
         body = f"({line} if abs(V - ({v0})) < {DELTA!r} else ({body}))"
     return body
+
+
+def written_out(parsed, which) -> dict:
+    """The written-out form (see :func:`guarded`) of each intermediate of ``which`` ->
+    its symbol: ``f.xreplace`` of it writes a guarded form back in terms of them."""
+    inter = parsed.intermediates
+    cache: dict = {}
+    return {_expand(inter[n], inter, cache): parsed.sym[n] for n in inter if n in which}
