@@ -292,11 +292,17 @@ class StreamWriter:
                 if arr.dtype == np.int8:
                     var = nc.createVariable(name, "i1", dims)
                     dtype = "i1"
+                elif arr.dtype.kind in "iu":
+                    var = nc.createVariable(name, "i4", dims)
+                    dtype = "i4"
+                elif arr.dtype.kind in "OU":  # names (parameter_name)
+                    var = nc.createVariable(name, str, dims)
+                    dtype = None
                 else:
                     var = nc.createVariable(name, "f8", dims, zlib=True, fill_value=np.nan)
                     dtype = "f8"
-                var.setncatts(variable_attrs(schema.attrs(name), dtype))
-                var[:] = arr
+                var.setncatts(variable_attrs(schema.attrs(name), dtype) if dtype else schema.attrs(name))
+                var[:] = arr if dtype else arr.astype(object)
             nc.setncatts(_global_attrs(attrs))
             nc.close()
         try:
