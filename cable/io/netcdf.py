@@ -114,13 +114,14 @@ def variable_attrs(attrs: dict, dtype) -> dict:
     return out
 
 
-def stored_attr(value):
+def stored_attr(value, classic: bool = False):
     """An attribute as netCDF-4 stores it and reads it back (after :func:`encode_attr`).
 
     Text stays ``str`` (a sequence of texts becomes one, see :func:`encode_attr`);
     numbers become numpy scalars of their type (a Python ``int`` 64 bits, a ``float`` 64
     bits); arrays are flattened and one of a single element reads back as that element;
-    bools are int8.
+    bools are int8. ``classic``: as a classic (netCDF-3) file stores it, which has no
+    64-bit integers: whole numbers that fit in 32 bits are 32 bits.
     """
     value = encode_attr(value)
     if isinstance(value, bytes):
@@ -130,6 +131,9 @@ def stored_attr(value):
     arr = np.asarray(value).ravel()
     if arr.dtype.kind == "b":
         arr = arr.astype(np.int8)
+    if classic and arr.dtype.kind in "iu" and arr.dtype.itemsize > 4 and arr.size \
+            and np.iinfo(np.int32).min <= arr.min() and arr.max() <= np.iinfo(np.int32).max:
+        arr = arr.astype(np.int32)
     if arr.size == 1:
         return arr[0]
     return arr
