@@ -44,7 +44,27 @@ def measurements(setup: Setup, act, nact, upstroke, tracker: ApdProbe, t_end=Non
     apd = np.moveaxis(repol, 2, 0) - beats.activation[None, :, :]
     out["apd"] = (("level", "beat", "x"), apd)
     # the rest: every registered measurement that applies (cable/measure/, in order)
-    return measure_all(Inputs(setup, beats, act, nact, tracker, t_end, out))
+    out = measure_all(Inputs(setup, beats, act, nact, tracker, t_end, out))
+    out.update(parameter_table(setup))
+    return out
+
+
+def parameter_table(setup: Setup) -> dict:
+    """The nodes' membrane parameters as ``{name: (dims, array)}`` when the currents can be recomputed.
+
+    Stored only when the model has currents and every state is stored (what
+    :func:`cable.plot.traces.ionic_current` needs); as the distinct rows of ``setup.p``
+    and each node's row index, since a strand has few distinct rows (one per region).
+    """
+    model = setup.model
+    if model.currents is None or set(setup.case.output_states) < set(model.state_names):
+        return {}
+    rows, index = np.unique(setup.p, axis=0, return_inverse=True)
+    return {
+        "membrane_parameters": (("parameter_set", "parameter"), rows),
+        "parameter_name": (("parameter",), np.array(model.parameter_names, dtype=object)),
+        "node_parameter_set": (("x",), np.ravel(index).astype(np.int32)),
+    }
 
 
 def grid_closed(setup: Setup) -> bool:

@@ -105,3 +105,22 @@ def oracles_registered(monkeypatch):
 
     for module in (cable.membrane, sys.modules["cable.preparation"], sys.modules["cable.kernels.loops"], cable):
         monkeypatch.setattr(module, "get_model", get_model)
+
+
+def assert_stored_alike(mine, stored):
+    """``mine`` equals a Dataset read from a file in values, dtypes and attribute types.
+
+    ``xarray.testing.assert_identical`` compares values and attributes, not the dtype of a
+    variable nor the type of an attribute (``np.int64(1) == 1``, ``[1] == np.array([1])``).
+    """
+    import xarray as xr
+
+    xr.testing.assert_identical(mine, stored)
+
+    def kind(value):
+        return (type(value), value.dtype, value.shape) if isinstance(value, np.ndarray) else type(value)
+
+    assert {k: kind(v) for k, v in mine.attrs.items()} == {k: kind(v) for k, v in stored.attrs.items()}
+    for name, var in mine.variables.items():
+        assert var.dtype == stored[name].dtype, (name, var.dtype, stored[name].dtype)
+        assert {k: kind(v) for k, v in var.attrs.items()} == {k: kind(v) for k, v in stored[name].attrs.items()}, name

@@ -77,12 +77,13 @@ def chunk_shape(n_t: int, n_x: int | None) -> tuple[int, ...]:
 
 # ----------------------------------------------------------------------------- attributes
 def encode_attr(value):
-    """A netCDF attribute value: bools as int8, sequences as arrays, dicts as text."""
+    """A netCDF attribute value: bools as int8, sequences of numbers as arrays, other
+    sequences (texts) and dicts as one text."""
     if isinstance(value, (bool, np.bool_)):
         return np.int8(value)
-    if isinstance(value, (list, tuple)):
+    if isinstance(value, (list, tuple)) or (isinstance(value, np.ndarray) and value.dtype.kind in "USO"):
         arr = np.asarray(value)
-        return arr if arr.dtype.kind in "iuf" else ", ".join(str(v) for v in value)
+        return arr if arr.dtype.kind in "iuf" else ", ".join(str(v) for v in np.ravel(arr).tolist())
     if isinstance(value, dict):
         return "; ".join(f"{k} = {v}" for k, v in value.items())
     return value
@@ -110,6 +111,72 @@ def variable_attrs(attrs: dict, dtype) -> dict:
         out["units"] = schema.cf_units(str(out["units"]))
     if "flag_values" in out:
         out["flag_values"] = np.asarray(out["flag_values"], dtype=dtype)
+    return out
+
+
+def stored_attr(value, classic: bool = False):
+    """An attribute as netCDF-4 stores it and reads it back (after :func:`encode_attr`).
+
+    Text stays ``str`` (a sequence of texts becomes one, see :func:`encode_attr`);
+    numbers become numpy scalars of their type (a Python ``int`` 64 bits, a ``float`` 64
+    bits); arrays are flattened and one of a single element reads back as that element;
+    bools are int8. ``classic``: as a classic (netCDF-3) file stores it, which has no
+    64-bit integers: whole numbers that fit in 32 bits are 32 bits.
+    """
+    value = encode_attr(value)
+    if isinstance(value, bytes):
+        return value.decode()
+    if isinstance(value, str):
+        return str(value)
+    arr = np.asarray(value).ravel()
+    if arr.dtype.kind == "b":
+        arr = arr.astype(np.int8)
+    if classic and arr.dtype.kind in "iu" and arr.dtype.itemsize > 4 and arr.size \
+            and np.iinfo(np.int32).min <= arr.min() and arr.max() <= np.iinfo(np.int32).max:
+        arr = arr.astype(np.int32)
+    if arr.size == 1:
+        return arr[0]
+    return arr
+
+
+def _is_field(ds: xr.Dataset, name) -> bool:
+    """A float data variable over ``t`` (and at most one more dimension): float32 on disk."""
+    var = ds[name]
+    return name in ds.data_vars and var.dtype.kind == "f" and bool(var.dims) and var.dims[0] == "t" \
+        and var.ndim <= 2
+
+
+def stored_form(ds: xr.Dataset) -> xr.Dataset:
+    """The Dataset :func:`write_dataset` stores, as ``xarray.open_dataset`` gives it back.
+
+    What writing and reading back would change, done in memory: the writer's global
+    attributes (``history``, ``date_created``, library versions; kept where given), CF
+    attributes of each variable (:func:`variable_attrs`), every attribute in its stored
+    type (:func:`stored_attr`), fields in float32, text in fixed-width unicode (netCDF-4
+    variable-length strings read back so). Applying it twice changes nothing, and
+    :func:`write_dataset` writes its result unchanged, so a caller that returns it
+    returns what the file holds without reading the file.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+
+    Returns
+    -------
+    xarray.Dataset
+        A new Dataset; ``ds`` is not changed.
+    """
+    out = ds.copy(deep=False)
+    for name, var in ds.variables.items():
+        dtype = np.dtype("f4") if _is_field(ds, name) else var.dtype
+        data = var.data
+        if var.dtype.kind == "O" or var.dtype.kind == "U":
+            data = np.asarray(var.values).astype(str)  # max length, at least 1 (as the reader gives)
+        elif dtype != var.dtype:
+            data = var.data.astype(dtype)
+        attrs = {k: stored_attr(v) for k, v in variable_attrs(var.attrs, dtype).items() if v is not None}
+        out[name] = xr.Variable(var.dims, data, attrs)
+    out.attrs = {k: stored_attr(v) for k, v in _global_attrs(ds.attrs).items()}
     return out
 
 
@@ -229,11 +296,17 @@ class StreamWriter:
                 if arr.dtype == np.int8:
                     var = nc.createVariable(name, "i1", dims)
                     dtype = "i1"
+                elif arr.dtype.kind in "iu":
+                    var = nc.createVariable(name, "i4", dims)
+                    dtype = "i4"
+                elif arr.dtype.kind in "OU":  # names (parameter_name)
+                    var = nc.createVariable(name, str, dims)
+                    dtype = None
                 else:
                     var = nc.createVariable(name, "f8", dims, zlib=True, fill_value=np.nan)
                     dtype = "f8"
-                var.setncatts(variable_attrs(schema.attrs(name), dtype))
-                var[:] = arr
+                var.setncatts(variable_attrs(schema.attrs(name), dtype) if dtype else schema.attrs(name))
+                var[:] = arr if dtype else arr.astype(object)
             nc.setncatts(_global_attrs(attrs))
             nc.close()
         try:
@@ -307,21 +380,18 @@ def write_dataset(ds: xr.Dataset, path, overwrite: bool = False) -> None:
     path = Path(path)
     tmp = temporary_name(path)
     encoding = {}
-    out = ds.copy()
-    for name, var in ds.data_vars.items():
+    out = stored_form(ds)
+    for name, var in out.data_vars.items():
         enc = {}
         if var.dtype.kind == "f":
             enc = {"zlib": True, "complevel": 4, "_FillValue": np.nan}
-            if var.dims and var.dims[0] == "t" and len(var.dims) <= 2:
+            if _is_field(out, name):
                 enc["dtype"] = "f4"
                 n_x = ds.sizes[var.dims[1]] if len(var.dims) == 2 else None
                 enc["chunksizes"] = chunk_shape(ds.sizes["t"], n_x)
         encoding[name] = enc
-        out[name].attrs = variable_attrs(var.attrs, np.dtype(enc.get("dtype", var.dtype)))
-    for name, coord in ds.coords.items():
+    for name in out.coords:
         encoding[name] = {"_FillValue": None}
-        out[name].attrs = variable_attrs(coord.attrs, coord.dtype)
-    out.attrs = _global_attrs(ds.attrs)
     try:
         try:
             out.to_netcdf(tmp, engine="netcdf4", encoding=encoding)

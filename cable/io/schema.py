@@ -81,7 +81,16 @@ VARIABLES = {
     "qt_interval": (("electrode", "beat"), "ms", "QT interval: QRS onset to the end of the T wave", None),
     "t_peak": (("electrode", "beat"), "ms", "time of the T-wave peak", None),
     "t_amplitude": (("electrode", "beat"), "mV", "T-wave peak amplitude (signed)", None),
+    # the membrane parameters the nodes ran with, stored when every state is (the currents can then be
+    # recomputed: cable.plot.traces.ionic_current); the distinct rows and each node's row
+    "membrane_parameters": (("parameter_set", "parameter"), "1", "distinct rows of the nodes' membrane parameters, "
+                            "each in its unit in the model (cable models NAME; names in parameter_name)", None),
+    "parameter_name": (("parameter",), "1", "name of the membrane model's parameter", None),
+    "node_parameter_set": (("x",), "1", "row of membrane_parameters the node ran with", None),
 }
+
+#: the variables of the nodes' membrane parameters (not measurements: a sweep does not keep them)
+PARAMETER_TABLE = ("membrane_parameters", "parameter_name", "node_parameter_set")
 
 #: long names of state variables come from the model; units from the model too
 STATE_PREFIX = "state_"

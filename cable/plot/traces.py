@@ -67,7 +67,9 @@ def ionic_current(ds, name: str, node: float | None):
 
     The currents are not stored; they are recomputed with the model's ``currents``
     kernel from ``vm`` and the stored states (all of them must be stored: the case's
-    ``output.states``), with the node's parameters as the case (its ``[membrane]`` and
+    ``output.states``), with the parameters the node ran with: those the result stores
+    (``membrane_parameters``, ``node_parameter_set``: :func:`cable.results.parameter_table`),
+    or, for a result written before they were stored, as the case (its ``[membrane]`` and
     ``[region.NAME]`` tables, read from the result's ``case`` attribute) sets them. The
     stored samples are float32, so the currents carry that rounding.
 
@@ -90,16 +92,11 @@ def ionic_current(ds, name: str, node: float | None):
     CaseError
         The result holds no case, the model has no such current, or a state is not stored.
     """
-    from cable.case import load_case
-    from cable.membrane import get_model
-    from cable.preparation import node_fields_of
-
-    text = ds.attrs.get("case")
-    if not text:
-        raise CaseError(f"current {name!r}: the result has no 'case' attribute, so the model and its parameters "
-                        "are unknown; draw currents from files written by cable.")
-    case = load_case(text=str(text))
-    model = get_model(case.membrane.model)
+    stored = _stored_parameters(ds)
+    if stored is not None:
+        model, rows_of = stored
+    else:
+        model, rows_of = _parameters_from_case(ds, name)
     if model.currents is None or name not in model.current_names:
         have = ", ".join(model.current_names) or "(none)"
         raise CaseError(f"current {name!r} is not a current of '{model.name}'."
@@ -114,13 +111,56 @@ def ionic_current(ds, name: str, node: float | None):
     v = np.ascontiguousarray(pick(ds["vm"]).values, dtype=np.float64)
     columns = [pick(ds[schema.STATE_PREFIX + st]).values for st in model.state_names]
     s = np.ascontiguousarray(np.stack(columns, axis=-1) if columns else np.zeros((v.size, 0)), dtype=np.float64)
-    x, p_all, _ = node_fields_of(case, model)  # the run's parameters, without preparing the run again
-    row = p_all[int(np.argmin(np.abs(x - node)))] if fibre else p_all[0]
+    row = rows_of(node if fibre else None)
     p = np.ascontiguousarray(np.tile(row, (v.size, 1)))
     out = np.zeros((v.size, len(model.current_names)))
     model.currents(v, s, p, out)
     units = CURRENT_UNITS[model.current_basis]
     return out[:, model.current_names.index(name)], units, f"{name} (inward negative)"
+
+
+def _stored_parameters(ds):
+    """(model, node -> parameter row) from the parameters a result stores, or None.
+
+    None for a result without them (written before they were stored, or not storing every
+    state), or whose model no longer has the parameters they name: then the case is read."""
+    from cable.membrane import get_model
+
+    if "membrane_parameters" not in ds.variables or "node_parameter_set" not in ds.variables:
+        return None
+    try:
+        model = get_model(str(ds.attrs.get("model", "")))
+    except (CaseError, KeyError, OSError, ValueError):  # a model no longer found by its name: the case says
+        return None
+    if [str(n) for n in np.ravel(ds["parameter_name"].values)] != list(model.parameter_names):
+        return None
+    rows = np.asarray(ds["membrane_parameters"].values, dtype=np.float64)
+    index = ds["node_parameter_set"]
+
+    def rows_of(node):
+        return rows[int(index.sel(x=node, method="nearest").values if node is not None else index.values)]
+
+    return model, rows_of
+
+
+def _parameters_from_case(ds, name: str):
+    """(model, node -> parameter row) rebuilt from the case a result stores (its text)."""
+    from cable.case import load_case
+    from cable.membrane import get_model
+    from cable.preparation import node_fields_of
+
+    text = ds.attrs.get("case")
+    if not text:
+        raise CaseError(f"current {name!r}: the result has no 'case' attribute, so the model and its parameters "
+                        "are unknown; draw currents from files written by cable.")
+    case = load_case(text=str(text))
+    model = get_model(case.membrane.model)
+    x, p_all, _ = node_fields_of(case, model)  # the run's parameters, without preparing the run again
+
+    def rows_of(node):
+        return p_all[int(np.argmin(np.abs(x - node)))] if node is not None else p_all[0]
+
+    return model, rows_of
 
 
 def traces(ds, at, ax=None, *, states=(), currents=(), t_window=None, legend: bool = True):

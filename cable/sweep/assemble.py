@@ -6,7 +6,7 @@ import numpy as np
 import xarray as xr
 
 from cable.io import schema
-from cable.io.netcdf import variable_attrs
+from cable.io.netcdf import stored_attr, variable_attrs
 from cable.sweep.points import FAILURES, NO_RESULT, PER_POINT, REASON_ATTRS, STATUS, coord_attrs, status_attrs
 from cable.sweep.spec import SweepSpec
 
@@ -160,18 +160,11 @@ def as_stored(attrs: dict, dtype) -> dict:
     back) and the same point read from its file then give the result the same
     attributes, so a result is the same, byte for byte, whether its points were
     computed in this call or in an earlier one: CF spelling of units and flag values of
-    the variable's type (:func:`cable.io.netcdf.variable_attrs`), and whole numbers in
-    32 bits, as classic netCDF stores them.
+    the variable's type (:func:`cable.io.netcdf.variable_attrs`), every value in the type
+    a classic netCDF file gives back (:func:`cable.io.netcdf.stored_attr`: whole numbers
+    in 32 bits).
     """
-    out = variable_attrs(attrs, dtype)
-    for key, value in out.items():
-        if isinstance(value, (bool, np.bool_, str)):
-            continue
-        arr = np.asarray(value)
-        if arr.dtype.kind in "iu" and arr.dtype.itemsize > 4 and arr.size \
-                and np.iinfo(np.int32).min <= arr.min() and arr.max() <= np.iinfo(np.int32).max:
-            out[key] = arr.astype(np.int32) if arr.ndim else np.int32(arr)
-    return out
+    return {k: stored_attr(v, classic=True) for k, v in variable_attrs(attrs, dtype).items()}
 
 
 def _attrs_of(pts, name) -> dict:

@@ -11,6 +11,7 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
+from cable.io import schema
 from cable.sweep.spec import SweepSpec
 
 #: status of a point (stored as int8 with CF flag attributes); "blocked" came last, so that the
@@ -78,6 +79,8 @@ def point_dataset(ds: xr.Dataset, keep_fields: bool) -> xr.Dataset:
     data = {}
     for name, var in ds.data_vars.items():
         dims = set(var.dims)
+        if name in schema.PARAMETER_TABLE:
+            continue  # how the nodes ran, not a measurement
         if "t" in dims:
             if keep_fields:
                 data[name] = (var.dims, var.values, var.attrs)

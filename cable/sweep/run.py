@@ -49,6 +49,7 @@ import xarray as xr
 
 from cable.case import CaseError, load_case
 from cable.io import schema
+from cable.io.netcdf import stored_form
 from cable.sweep import store as _store
 from cable.sweep.chunks import chunk_key, chunks
 from cable.sweep.progress import ProgressBar
@@ -278,12 +279,11 @@ def sweep(case, *, client=None, output=None, workers=None, scheduler=None, progr
         if left:
             say(f"{left} of {n} points not computed yet; run the sweep again with the same output to continue.")
         else:
+            result = stored_form(result)  # what the file holds, exactly (in memory: the file is not read back)
             _store.write_result(result, output)
             a = result.attrs
             say(f"wrote {output} ({n} points: {a['n_failed']} failed; of those that ran, {a['n_blocked']} blocked, "
                 f"{a['n_no_capture']} not captured)")
-            with xr.open_dataset(output) as ds:  # what the file holds, exactly
-                result = ds.load()
     return result
 
 

@@ -331,6 +331,44 @@ def test_traces_of_ionic_currents_follow_the_model(tmp_path):
         cable.plot.traces(ds, [0.5], list(axes), currents=["I_Na"])
 
 
+def test_currents_use_the_parameters_the_file_stores(tmp_path, monkeypatch):
+    # a region halves g_Na (I_Na = g_Na m^3 h (V - E_Na), Hodgkin & Huxley 1952, eq. 3): the file stores
+    # the two distinct parameter rows and each node's row, and the currents are recomputed from them
+    # without loading the case; a file without them (written before) gives the same from its case
+    import importlib
+
+    traces_module = importlib.import_module("cable.plot.traces")  # the module (cable.plot.traces is a function)
+
+    case = hh_axon_case(length=1.0, dx=0.02, dt=0.01, duration=3.0)
+    case["output"] = {"every": 0.05, "states": ["m", "h", "n"]}
+    case["region"] = [{"start": 0.4, "end": 0.6, "scale": {"g_Na": 0.5}}]
+    path = tmp_path / "axon.nc"
+    cable.simulate(case, output=path).close()
+    model = cable.get_model("hodgkin-huxley-1952")
+    g_na, e_na = model.parameter("g_Na").default, model.parameter("E_Na").default
+    with cable.open_result(path) as ds:
+        ds = ds.load()
+    assert ds["membrane_parameters"].shape == (2, len(model.parameter_names))
+    assert list(ds["parameter_name"].values) == list(model.parameter_names)
+    assert ds["node_parameter_set"].sizes["x"] == ds.sizes["x"]
+    from_case = {node: traces_module.ionic_current(ds.drop_vars(list(cable.io.schema.PARAMETER_TABLE)), "I_Na",
+                                                   node)[0] for node in (0.2, 0.5)}
+
+    def no_case(*args, **kwargs):
+        raise AssertionError("the case was loaded although the file stores the parameters")
+
+    monkeypatch.setattr(traces_module, "_parameters_from_case", no_case)
+    for node, scale in ((0.2, 1.0), (0.5, 0.5)):
+        at = ds.sel(x=node)
+        v, m, h = (at[k].values.astype(float) for k in ("vm", "state_m", "state_h"))
+        stored = traces_module.ionic_current(ds, "I_Na", node)[0]
+        np.testing.assert_allclose(stored, scale * g_na * m**3 * h * (v - e_na), rtol=1e-9, atol=1e-9)
+        np.testing.assert_array_equal(stored, from_case[node])  # the same rows, whichever way found
+    # no parameters stored where the currents cannot be recomputed (not every state stored)
+    case["output"]["states"] = ["h"]
+    assert "membrane_parameters" not in cable.simulate(case)
+
+
 def test_sweep_outcomes_without_a_value_sit_in_a_strip_below_the_axes():
     # block and no capture are outcomes, not values (common practice): they are drawn in a strip of their
     # own below the axes, one row per outcome, never on the value axis

@@ -12,7 +12,7 @@ import cable
 from cable.cli import main as cli_main
 from cable.sweep import run as sweep_run
 from cable.sweep.store import STATUS
-from conftest import hh_axon_case
+from conftest import assert_stored_alike, hh_axon_case
 
 distributed = pytest.importorskip("distributed")
 
@@ -104,6 +104,15 @@ def test_values_equal_a_cable_run_of_the_same_point(uninterrupted, tmp_path):
                                       ref["activation_time"].isel(x=centre_index(ref)).values)
 
 
+def test_result_returned_is_the_file_without_reading_it(uninterrupted):
+    # the sweep returns its result in the stored form (cable.io.netcdf.stored_form), not read
+    # back: the same values, dtypes and attribute types as the file (issue 14)
+    out, ds = uninterrupted
+    assert not ds["status"].encoding and not ds.encoding  # in memory: nothing from a file
+    with xr.open_dataset(out) as on_file:
+        assert_stored_alike(ds, on_file.load())
+
+
 def test_jit_once_per_worker_not_per_point(uninterrupted):
     out, _ = uninterrupted
     attrs = point_files(out)
@@ -139,7 +148,8 @@ def test_interrupted_sweep_resumes_to_the_same_result(uninterrupted, client, tmp
         xr.testing.assert_identical(on_file.drop_attrs(deep=False).assign_attrs(
             {k: v for k, v in on_file.attrs.items() if k not in WHEN}),
             reference.drop_attrs(deep=False).assign_attrs({k: v for k, v in reference.attrs.items() if k not in WHEN}))
-    xr.testing.assert_identical(resumed, xr.open_dataset(out).load())
+    with xr.open_dataset(out) as on_file:
+        assert_stored_alike(resumed, on_file.load())
     digest = hashlib.sha256(out.read_bytes()).hexdigest()
     again = cable.sweep(hh_sweep_case(), client=client, output=out, progress=False)
     assert hashlib.sha256(out.read_bytes()).hexdigest() == digest  # byte for byte

@@ -126,19 +126,57 @@ def _units_id(u: str) -> str:
 
 def export(eq: Equations) -> str:
     """CellML 2.0 text of ``eq`` (validated by libcellml; EquationError if refused)."""
-    import libcellml as L
-
     parsed = parse(eq)
     taken: set = set()
     names = {n: _ident(n, taken) for n in parsed.sym}
     t, istim, cm, iion = (_ident(n, taken) for n in ("time", "I_stim", "Cm", "I_ion"))
     cur = {n: _ident(n, taken) for n in parsed.currents}
-    pr = _Printer(names)
     per = "uA_per_cm2" if eq.current_basis == "area" else "uA_per_uF"
-    units = {"mV": [("volt", "milli", 1)], "ms": [("second", "milli", 1)],
-             "uA_per_cm2": [("ampere", "micro", 1), ("metre", "centi", -2)],
-             "uA_per_uF": [("ampere", "micro", 1), ("farad", "micro", -1)],
-             "uF_per_cm2": [("farad", "micro", 1), ("metre", "centi", -2)]}
+    units = _base_units()
+    variables = _variables(eq, parsed, units, per, t, istim, cm, iion, cur)
+    maths = _Maths(_Printer(names), names, t)
+    # the stimulus in a derivative (a charge balance): the file's I_stim, in mV/ms
+    stim = sympy.Symbol(istim, real=True)
+    names[istim] = istim
+    if eq.current_basis == "area":
+        names[cm] = cm
+        stim = stim / sympy.Symbol(cm, real=True)
+    deriv = {n: e.xreplace({parsed.sym[STIMULUS]: stim}) for n, e in parsed.derivatives.items()}
+    buffers = _buffered(parsed, deriv, maths, variables, taken)
+    used = any(parsed.sym[STIMULUS] in e.free_symbols for e in parsed.derivatives.values())
+    extra = {"buffers": buffers, "stimulus": istim if used else None,
+             "stimulus_capacitance": cm if used and eq.current_basis == "area" else None}
+    equations = _equations(eq, parsed, deriv, maths, cur, istim, cm, iion)
+    text = _document(eq, units, variables, equations, maths.ident, extra)
+    _validate(eq, text)
+    return text
+
+
+class _Maths:
+    """MathML equations of the export: the printer of expressions, the variables' names, the time."""
+
+    def __init__(self, printer, names: dict, t: str):
+        self.printer, self.names, self.t = printer, names, t
+
+    def ident(self, n):
+        return self.names.get(n, n)
+
+    def eqn(self, lhs, rhs_expr=None, rhs_xml=None, diff=False):
+        body = rhs_xml if rhs_xml is not None else self.printer.doprint(rhs_expr)
+        left = (f"<apply><diff/><bvar><ci>{self.t}</ci></bvar><ci>{lhs}</ci></apply>" if diff else f"<ci>{lhs}</ci>")
+        return f"<apply><eq/>{left}{body}</apply>"
+
+
+def _base_units() -> dict:
+    """``{units id: [(unit, prefix, exponent)]}`` of the canonical units (the description's join them)."""
+    return {"mV": [("volt", "milli", 1)], "ms": [("second", "milli", 1)],
+            "uA_per_cm2": [("ampere", "micro", 1), ("metre", "centi", -2)],
+            "uA_per_uF": [("ampere", "micro", 1), ("farad", "micro", -1)],
+            "uF_per_cm2": [("farad", "micro", 1), ("metre", "centi", -2)]}
+
+
+def _variables(eq, parsed, units: dict, per: str, t, istim, cm, iion, cur) -> list:
+    """``[(name, units id, initial value or None)]`` of the component; adds the description's units to ``units``."""
 
     def var_units(u):
         uid = _units_id(u)
@@ -153,52 +191,46 @@ def export(eq: Equations) -> str:
     variables += [(p.name, var_units(p.units), p.value) for p in eq.parameters]
     variables += [(n, "dimensionless", None) for n in parsed.intermediates]
     variables += [(cur[n], per, None) for n in parsed.currents]
+    return variables
 
-    def ident(n):
-        return names.get(n, n)
 
-    def eqn(lhs, rhs_expr=None, rhs_xml=None, diff=False):
-        body = rhs_xml if rhs_xml is not None else pr.doprint(rhs_expr)
-        left = (f"<apply><diff/><bvar><ci>{t}</ci></bvar><ci>{lhs}</ci></apply>" if diff else f"<ci>{lhs}</ci>")
-        return f"<apply><eq/>{left}{body}</apply>"
+def _buffered(parsed, deriv: dict, maths: _Maths, variables: list, taken: set) -> list:
+    """Rewrite the derivatives of rapidly buffered states in ``deriv``; their metadata entries.
 
-    # the stimulus in a derivative (a charge balance): the file's I_stim, in mV/ms
-    stim = sympy.Symbol(istim, real=True)
-    names[istim] = istim
-    if eq.current_basis == "area":
-        names[cm] = cm
-        stim = stim / sympy.Symbol(cm, real=True)
-    deriv = {n: e.xreplace({parsed.sym[STIMULUS]: stim}) for n, e in parsed.derivatives.items()}
-    # a buffered state: the derivative of its total is a variable of its own, the free one's follows
-    # from the rapid equilibrium, d[y]/dt = J/(1 + B K/([y] + K)^2)
+    A buffered state: the derivative of its total is a variable of its own, the free one's
+    follows from the rapid equilibrium, d[y]/dt = J/(1 + B K/([y] + K)^2).
+    """
     buffers = []
     for y, (buf, k) in parsed.buffers.items():
         flux = _ident(f"{y}_total_flux", taken)
         variables.append((flux, "dimensionless", None))
-        names[flux] = flux
-        maths_flux = eqn(flux, deriv[y])
+        maths.names[flux] = flux
+        maths_flux = maths.eqn(flux, deriv[y])
         ysym = parsed.sym[y]
         deriv[y] = (maths_flux, sympy.Symbol(flux, real=True) / (1 + buf * k / (ysym + k) ** 2))
-        buffers.append([ident(y), ident(str(buf)), ident(str(k)), flux])
-    used = any(parsed.sym[STIMULUS] in e.free_symbols for e in parsed.derivatives.values())
-    extra = {"buffers": buffers, "stimulus": istim if used else None,
-             "stimulus_capacitance": cm if used and eq.current_basis == "area" else None}
-    maths = []
-    for n, e in parsed.intermediates.items():
-        maths.append(eqn(ident(n), e))
-    for n, e in parsed.currents.items():
-        maths.append(eqn(cur[n], e))
+        buffers.append([maths.ident(y), maths.ident(str(buf)), maths.ident(str(k)), flux])
+    return buffers
+
+
+def _equations(eq, parsed, deriv: dict, maths: _Maths, cur: dict, istim, cm, iion) -> list:
+    """The MathML equations: intermediates, currents, derivatives, I_ion and the potential's."""
+    out = [maths.eqn(maths.ident(n), e) for n, e in parsed.intermediates.items()]
+    out += [maths.eqn(cur[n], e) for n, e in parsed.currents.items()]
     for n, e in deriv.items():
-        if isinstance(e, tuple):
-            maths.append(e[0])
+        if isinstance(e, tuple):  # a buffered state: its total flux first
+            out.append(e[0])
             e = e[1]
-        maths.append(eqn(ident(n), e, diff=True))
+        out.append(maths.eqn(maths.ident(n), e, diff=True))
     total = "".join(f"<ci>{cur[n]}</ci>" for n in parsed.currents)
-    maths.append(eqn(iion, rhs_xml=f"<apply><plus/>{total}</apply>" if len(parsed.currents) > 1 else total))
+    out.append(maths.eqn(iion, rhs_xml=f"<apply><plus/>{total}</apply>" if len(parsed.currents) > 1 else total))
     net = f"<apply><minus/><ci>{istim}</ci><ci>{iion}</ci></apply>"
     dv = f"<apply><divide/>{net}<ci>{cm}</ci></apply>" if eq.current_basis == "area" else net
-    maths.append(eqn(POTENTIAL, rhs_xml=dv, diff=True))
+    out.append(maths.eqn(POTENTIAL, rhs_xml=dv, diff=True))
+    return out
 
+
+def _document(eq, units: dict, variables: list, equations: list, ident, extra: dict) -> str:
+    """The CellML 2.0 file: units, one component ``membrane`` with its variables and maths, metadata."""
     out = ['<?xml version="1.0" encoding="UTF-8"?>',
            f'<model xmlns="{_CELLML}" xmlns:cellml="{_CELLML}" name="{_ident(eq.name, set())}">']
     for uid, parts in units.items():
@@ -213,10 +245,16 @@ def export(eq: Equations) -> str:
         iv = f' initial_value="{_decimal(float(init))}"' if init is not None else ""
         out.append(f'    <variable name="{ident(n)}" units="{u}"{iv}/>')
     out.append(f'    <math xmlns="{_MATHML}">')
-    out += ["      " + m for m in maths]
+    out += ["      " + m for m in equations]
     out += ["    </math>", "  </component>", "</model>", ""]
     out.insert(1, _metadata(eq, ident, extra))  # after the XML declaration
-    text = "\n".join(out)
+    return "\n".join(out)
+
+
+def _validate(eq, text: str) -> None:
+    """Raise EquationError when libcellml's validator refuses the file (its first three reasons)."""
+    import libcellml as L
+
     model = L.Parser().parseModel(text)
     v = L.Validator()
     v.validateModel(model)
@@ -224,7 +262,6 @@ def export(eq: Equations) -> str:
         msgs = [v.error(i).description() for i in range(min(3, v.errorCount()))]
         raise EquationError(f"model {eq.name}: the CellML export is refused by the libcellml validator: "
                             + "; ".join(msgs))
-    return text
 
 
 def equations_of(model) -> Equations:
