@@ -77,10 +77,11 @@ def columns_lines(off: dict, ncol: int, grouped: bool) -> list:
             "                exact_columns(B, dt, gating, w, w + 1)"]
 
 
-def driver_lines(off: dict, nstate: int) -> list:
+def driver_lines(off: dict, nstate: int, array: bool = True) -> list:
     """``shared_step``, ``by_node_step`` and ``reaction_fast`` (module docstring); they call
     ``block_parameters``, ``block_constants``, the columns functions, ``block_step`` (parameters
-    from the buffer) and ``block_step_shared`` (parameters as scalars)."""
+    from the buffer) and ``block_step_shared`` (parameters as scalars); with ``array``, the
+    shared case first tries ``array_exact`` / ``array_step`` (cable/membrane/equations/fastpath.py)."""
     copy_in = [f"        for k in range({nstate}):",
                "            for w in range(nb):",
                f"                B[{BLOCK} * k + w] = sT[k, lo + w]",
@@ -120,12 +121,13 @@ def driver_lines(off: dict, nstate: int) -> list:
             '    """Fast reaction step (contract: cable.membrane.base.FastPath, by state)."""',
             "    B = np.empty(FAST_BUFFER)",
             "    if pT.shape[1] == 1:",
+            ] + ([
             "        if table.shape[1] <= 1:",
             "            array_exact(v, sT, pT, i_stim, dt, ion_scale, gating)",
-            "            return",
-            "        g = 0 if table.shape[0] == 1 else group[0]",
+            "            return"] if array else []) + [
+            "        g = 0 if table.shape[0] == 1 else group[0]"] + ([
             "        if array_step(v, sT, pT, i_stim, dt, ion_scale, gating, table[g], v_lo, inv_dv):",
-            "            return",
+            "            return"] if array else []) + [
             "        shared_step(v, sT, pT, i_stim, dt, ion_scale, gating, table[g], v_lo, inv_dv, B)",
             "    else:",
             "        by_node_step(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, group, B)"]

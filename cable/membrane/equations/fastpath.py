@@ -49,6 +49,9 @@ from cable.membrane.equations.analysis import Analysis, needed, split_states, up
 from cable.membrane.equations.description import POTENTIAL
 
 BLOCK = blocks.BLOCK
+#: models with at most this many states get the whole-strand steps (``array_step``,
+#: ``array_exact``) besides the block path
+ARRAY_STATES = 20
 
 
 def _power_text(b: str, k: int) -> str:
@@ -541,8 +544,14 @@ def kernel_lines(an: Analysis, base_printer, names, fp: dict) -> list:
     out += ["", "", "@jit", "def block_step_shared(B, pT, dt, ion_scale, gating, nb):"]
     out += loads + _const_lines(an, pr, names, fp, sidx, "    ")
     out += _main_lines(an, pr, names, fp, cols, _InBuffer(off), by_node=False)
-    out += _array_lines(an, pr, names, fp, cols, loads) + _array_exact_lines(an, pr, names, fp, cols, loads)
-    out += blocks.driver_lines(off, nstate)
+    # the whole-strand steps for models up to ARRAY_STATES states: each is one more copy of
+    # the node loop (and array_exact of the columns) to compile, which for O'Hara-Rudy 2011
+    # (41 states) added minutes to the cold compile (measured here)
+    array = nstate <= ARRAY_STATES
+    out.append(f"ARRAY_STEPS = {array}")
+    if array:
+        out += _array_lines(an, pr, names, fp, cols, loads) + _array_exact_lines(an, pr, names, fp, cols, loads)
+    out += blocks.driver_lines(off, nstate, array)
     return out
 
 
