@@ -169,7 +169,7 @@ def euler_states(model, v0: float, s0: np.ndarray, p: np.ndarray, gating: int) -
     a = np.zeros(nstate)
     b = np.zeros(nstate)
     model.kinetics(float(v0), np.ascontiguousarray(s0, dtype=np.float64), np.ascontiguousarray(p, dtype=np.float64),
-                   0, a, b)
+                   0, 0.0, a, b)
     return (b == 0.0).astype(np.int64)
 
 

@@ -68,7 +68,7 @@ STABLE_DT: dict = {
 }
 
 
-def kinetics(V, y, p, i, a, b):  # bound by specialise()
+def kinetics(V, y, p, i, istim, a, b):  # bound by specialise()
     raise NotImplementedError
 
 
@@ -90,10 +90,10 @@ def rush_larsen_2(v, s, p, i_stim, dt, ion_scale, gating):
     for i in range(v.shape[0]):
         V = v[i]
         si = s[i]
-        ion = kinetics(V, si, p, i, a, b)
+        ion = kinetics(V, si, p, i, i_stim[i], a, b)
         for k in range(m):
             y[k] = _flow(si[k], a[k], b[k], h)
-        ion = kinetics(V + h * (i_stim[i] - ion_scale * ion), y, p, i, a, b)
+        ion = kinetics(V + h * (i_stim[i] - ion_scale * ion), y, p, i, i_stim[i], a, b)
         for k in range(m):
             si[k] = _flow(si[k], a[k], b[k], dt)
         v[i] = V + dt * (i_stim[i] - ion_scale * ion)
@@ -109,11 +109,11 @@ def heun(v, s, p, i_stim, dt, ion_scale, gating):
     for i in range(v.shape[0]):
         V = v[i]
         si = s[i]
-        dv0 = i_stim[i] - ion_scale * kinetics(V, si, p, i, a, b)
+        dv0 = i_stim[i] - ion_scale * kinetics(V, si, p, i, i_stim[i], a, b)
         for k in range(m):
             k0[k] = a[k] - b[k] * si[k]
             y[k] = si[k] + dt * k0[k]
-        dv1 = i_stim[i] - ion_scale * kinetics(V + dt * dv0, y, p, i, a, b)
+        dv1 = i_stim[i] - ion_scale * kinetics(V + dt * dv0, y, p, i, i_stim[i], a, b)
         for k in range(m):
             si[k] = si[k] + 0.5 * dt * (k0[k] + (a[k] - b[k] * y[k]))
         v[i] = V + 0.5 * dt * (dv0 + dv1)
@@ -131,7 +131,7 @@ def rk4(v, s, p, i_stim, dt, ion_scale, gating):
         V = v[i]
         si = s[i]
         # stage 1
-        dv = i_stim[i] - ion_scale * kinetics(V, si, p, i, a, b)
+        dv = i_stim[i] - ion_scale * kinetics(V, si, p, i, i_stim[i], a, b)
         dv_sum = dv
         for k in range(m):
             d = a[k] - b[k] * si[k]
@@ -139,7 +139,7 @@ def rk4(v, s, p, i_stim, dt, ion_scale, gating):
             y[k] = si[k] + h * d
         # stages 2 and 3 (the midpoint twice; the third's result reaches the end of the step)
         for stage in range(2):
-            dv = i_stim[i] - ion_scale * kinetics(V + h * dv, y, p, i, a, b)
+            dv = i_stim[i] - ion_scale * kinetics(V + h * dv, y, p, i, i_stim[i], a, b)
             dv_sum += 2.0 * dv
             step = h if stage == 0 else dt
             for k in range(m):
@@ -147,7 +147,7 @@ def rk4(v, s, p, i_stim, dt, ion_scale, gating):
                 acc[k] += 2.0 * d
                 y[k] = si[k] + step * d
         # stage 4
-        dv = i_stim[i] - ion_scale * kinetics(V + dt * dv, y, p, i, a, b)
+        dv = i_stim[i] - ion_scale * kinetics(V + dt * dv, y, p, i, i_stim[i], a, b)
         dv_sum += dv
         for k in range(m):
             si[k] = si[k] + dt / 6.0 * (acc[k] + (a[k] - b[k] * y[k]))
@@ -160,7 +160,7 @@ def rk4(v, s, p, i_stim, dt, ion_scale, gating):
 # vectorises (the exponential of the gates from cable.kernels.elementary, 1 ulp). The
 # signature is that of FastPath.kernel, so the fast time loop runs them unchanged.
 
-def fast_kinetics(v, sT, pT, a, b, ion):  # bound by specialise()
+def fast_kinetics(v, sT, pT, i_stim, a, b, ion):  # bound by specialise()
     raise NotImplementedError
 
 
@@ -188,11 +188,11 @@ def rush_larsen_2_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, in
     ion = np.empty(n)
     w = np.empty(n)
     h = 0.5 * dt
-    fast_kinetics(v, sT, pT, a, b, ion)
+    fast_kinetics(v, sT, pT, i_stim, a, b, ion)
     _flow_all(y, sT, a, b, h)
     for i in range(n):
         w[i] = v[i] + h * (i_stim[i] - ion_scale * ion[i])
-    fast_kinetics(w, y, pT, a, b, ion)
+    fast_kinetics(w, y, pT, i_stim, a, b, ion)
     _flow_all(sT, sT, a, b, dt)
     for i in range(n):
         v[i] = v[i] + dt * (i_stim[i] - ion_scale * ion[i])
@@ -206,7 +206,7 @@ def heun_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, gro
     y = np.empty((m, n))
     ion = np.empty(n)
     w = np.empty(n)
-    fast_kinetics(v, sT, pT, a, b, ion)
+    fast_kinetics(v, sT, pT, i_stim, a, b, ion)
     for k in range(m):
         yk, sk, ak, bk = y[k], sT[k], a[k], b[k]
         for i in range(n):
@@ -216,7 +216,7 @@ def heun_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, gro
     for i in range(n):
         w[i] = i_stim[i] - ion_scale * ion[i]
     a1 = np.empty((m, n))
-    fast_kinetics(v + dt * w, y, pT, a1, b, ion)
+    fast_kinetics(v + dt * w, y, pT, i_stim, a1, b, ion)
     for k in range(m):
         sk, ak, a1k, bk, yk = sT[k], a[k], a1[k], b[k], y[k]
         for i in range(n):
@@ -238,7 +238,7 @@ def rk4_fast(v, sT, pT, i_stim, dt, ion_scale, gating, table, v_lo, inv_dv, grou
     h = 0.5 * dt
     for stage in range(4):
         src = sT if stage == 0 else y
-        fast_kinetics(v if stage == 0 else w, src, pT, a, b, ion)
+        fast_kinetics(v if stage == 0 else w, src, pT, i_stim, a, b, ion)
         step = dt if stage == 2 else h
         weight = 1.0 if stage == 0 or stage == 3 else 2.0
         for i in range(n):

@@ -37,11 +37,14 @@ old potential and the updated gates (the usual Rush-Larsen ordering; Rush & Lars
 
 Kinetics contract (``kinetics``)::
 
-    kinetics(V, y, p, i, a, b) -> i_ion
+    kinetics(V, y, p, i, istim, a, b) -> i_ion
 
     V       float              membrane potential of node i [mV] (any stage value)
     y       float64[nstate]    the node's states (any stage value), read only
     p       float64[n, nparam] parameters; row i is the node's
+    istim   float              the node's stimulus over the step [mV/ms], for a state whose
+                               balance carries the stimulus charge (the K_i of ten Tusscher
+                               & Panfilov 2006); models without one ignore it
     a, b    float64[nstate]    filled: dy_k/dt = a_k - b_k y_k, with a_k and b_k not
                                depending on y_k; b_k >= 0 is the gate's rate
                                1/tau_k (a_k = y_inf,k / tau_k), b_k = 0 for a state that
@@ -59,8 +62,8 @@ Reference contract (``reference``)::
     reference(v, s, p) -> (dv_ion, ds, i_ion)
 
 with ``v`` of shape (n,), ``s`` (n, nstate), ``p`` (n, nparam); ``ds`` the state
-derivatives [unit/ms], ``i_ion`` in the model's basis and ``dv_ion = -ion_scale*i_ion``
-left to the caller (so ``dv_ion`` is returned as ``None``).
+derivatives [unit/ms] with no stimulus applied, ``i_ion`` in the model's basis and
+``dv_ion = -ion_scale*i_ion`` left to the caller (so ``dv_ion`` is returned as ``None``).
 """
 
 from __future__ import annotations
@@ -156,10 +159,11 @@ class FastPath:
         once, for the vectorised loop of the reaction schemes other than
         ``"rush-larsen"`` (:mod:`cable.kernels.schemes`)::
 
-            kinetics(v, sT, pT, a, b, ion)
+            kinetics(v, sT, pT, i_stim, a, b, ion)
 
             v       float64[n]          potentials (any stage value) [mV]
             sT, pT                      as for ``kernel`` (sT read only)
+            i_stim  float64[n]          the stimulus over the step [mV/ms], as above
             a, b    float64[nstate, n]  filled as ``MembraneModel.kinetics`` fills them
             ion     float64[n]          filled with I_ion
 

@@ -359,8 +359,9 @@ MODEL = MembraneModel(
 
 # ----------------------------------------------------------------------------- kinetics
 @jit_inline
-def kinetics(V, y, p, i, a, b):
-    """Right-hand side of node i for the loop's reaction schemes (contract: cable.membrane.base)."""
+def kinetics(V, y, p, i, istim, a, b):
+    """Right-hand side of node i for the loop's reaction schemes (contract: cable.membrane.base;
+    no state carries the stimulus, so ``istim`` is unused)."""
     phi = 3.0 ** ((p[i, TEMPERATURE] - 6.3) / 10.0)
     am, bm, ah, bh, an, bn = _rates(V, phi)
     a[0] = am
@@ -391,8 +392,9 @@ def _node_kinetics(V, m, h, n, phi, g_na, g_k, g_l, e_na, e_k, e_l):
 
 
 @jit_inline
-def kinetics_fast(v, sT, pT, a, b, ion):
-    """a, b (3, n) and I_ion (n) of every node (contract: cable.membrane.base.FastPath.kinetics)."""
+def kinetics_fast(v, sT, pT, i_stim, a, b, ion):
+    """a, b (3, n) and I_ion (n) of every node (contract: cable.membrane.base.FastPath.kinetics;
+    ``i_stim`` unused)."""
     nn = v.shape[0]
     ms, hs, ns = sT[0], sT[1], sT[2]
     am, ah, an = a[0], a[1], a[2]

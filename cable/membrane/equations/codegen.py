@@ -105,17 +105,17 @@ def _body(an: Analysis, pr, names, indent, load_state, load_param, store_state):
 
 
 def _kinetics(an: Analysis, pr, names) -> list:
-    """Lines of ``kinetics(V, y, p, i, a, b)`` (contract: cable.membrane.base): for a state whose
+    """Lines of ``kinetics(V, y, p, i, istim, a, b)`` (contract: cable.membrane.base): for a state whose
     derivative is linear in itself, f = A + B y, the rate b = -B and a = f + b y (= A, to rounding);
     for the others b = 0 and a = f; I_ion with every state as given."""
     parsed, m = an.parsed, an.parsed.model
     rl = {n: b for n, b in an.linear.items() if b is not None}
     cur = list(parsed.currents.values())
-    out = ["", "", "@jit_inline", "def kinetics(V, y, p, i, a, b):",
-           '    """dy_k/dt = a_k - b_k y_k and I_ion of node i at (V, y) (contract: cable.membrane.base)."""']
+    out = ["", "", "@jit_inline", "def kinetics(V, y, p, i, istim, a, b):",
+           '    """dy_k/dt = a_k - b_k y_k and I_ion of node i at (V, y) with the stimulus istim '
+           '(contract: cable.membrane.base)."""']
     out += [f"    y{k} = y[{k}]" for k in range(len(m.states))]
     out += [f"    p{k} = p[i, {k}]" for k in range(len(m.parameters))]
-    out.append("    istim = 0.0  # (no stimulus in this contract)")
     use = needed(parsed, list(parsed.derivatives.values()) + list(rl.values()) + cur)
     out += _assign(pr, names, parsed, use, "    ")
     for k, s in enumerate(m.states):
@@ -151,11 +151,11 @@ def module_source(an: Analysis, info: dict) -> str:
     out += [f"        p{k} = p[i, {k}]" for k in range(nparam)]
     out += _assign(pr, names, parsed, use, "        ")
     out += [f"        out[i, {j}] = {pr.doprint_np(e)}" for j, e in enumerate(cur)]
-    out += ["", "", "def point(V, y, p):",
-            '    """State derivatives [unit/ms] and I_ion at one node (plain Python)."""']
+    out += ["", "", "def point(V, y, p, istim=0.0):",
+            '    """State derivatives [unit/ms] and I_ion at one node with the stimulus istim [mV/ms] '
+            '(plain Python)."""']
     out += [f"    y{k} = y[{k}]" for k in range(nstate)]
     out += [f"    p{k} = p[{k}]" for k in range(nparam)]
-    out.append("    istim = 0.0")
     out += _assign(pr, names, parsed, needed(parsed, list(parsed.derivatives.values()) + cur), "    ")
     out.append("    ds = [" + ", ".join(pr.doprint_np(free_derivative(an, s.name)) for s in m.states) + "]")
     out.append("    return ds, " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))

@@ -33,8 +33,8 @@ POTENTIAL = "V"
 
 #: the name of the applied stimulus in a derivative [mV/ms] (positive depolarises,
 #: dV/dt = i_stim - ion_scale I_ion): a balance that carries the stimulus charge (the K+ of
-#: ten Tusscher & Panfilov 2006) uses it; the reaction kernels give it the step's stimulus,
-#: the reference and ``kinetics`` (whose contracts have no stimulus) 0
+#: ten Tusscher & Panfilov 2006) uses it; the reaction kernels and ``kinetics`` give it the
+#: step's stimulus, the reference (whose contract has no stimulus) 0
 STIMULUS = "i_stim"
 
 #: the values of ``Equations.current_states``

@@ -124,10 +124,11 @@ def test_kinetics_on_random_states_equal_the_hand_written_ones(name):
     v, s = random_states(hand, n, rng)
     p = parameter_sets(hand, n)[-1]  # (TP06: the M cell)
     m = len(hand.states)
+    stim = rng.uniform(-60.0, 60.0, n)  # [mV/ms]: TP06's K_i carries it
     for i in range(n):
         a1, b1, a2, b2 = (np.empty(m) for _ in range(4))
-        ion1 = hand.kinetics(v[i], s[i], p, i, a1, b1)
-        ion2 = gen.kinetics(v[i], s[i], p, i, a2, b2)
+        ion1 = hand.kinetics(v[i], s[i], p, i, stim[i], a1, b1)
+        ion2 = gen.kinetics(v[i], s[i], p, i, stim[i], a2, b2)
         assert ion2 == pytest.approx(ion1, rel=1e-12, abs=1e-12)
         np.testing.assert_array_equal(b2 == 0.0, b1 == 0.0)
         np.testing.assert_allclose(b2, b1, rtol=1e-12, atol=0.0)

@@ -78,7 +78,7 @@ MODEL = MembraneModel(
 
 
 @jit_inline
-def kinetics(V, y, p, i, a, b):
+def kinetics(V, y, p, i, istim, a, b):
     """Right-hand side of node i for the loop's reaction schemes (contract: cable.membrane.base)."""
     span = p[i, V_PEAK] - p[i, V_REST]
     u = (V - p[i, V_REST]) / span

@@ -379,7 +379,7 @@ MODEL = MembraneModel(
 # ---------------------------------------------------------------------------------------
 
 @jit_inline
-def kinetics(V, y, p, i, a, b):
+def kinetics(V, y, p, i, istim, a, b):
     """Right-hand side of node i: the six gates as a - b y, Ca_i as its derivative (b = 0)."""
     am, bm, ah, bh, aj, bj, ad, bd, af, bf, ax, bx = _rates(V)
     a[S_M] = am

@@ -55,7 +55,7 @@ MODEL = MembraneModel(
 
 
 @jit_inline
-def kinetics(V, y, p, i, a, b):
+def kinetics(V, y, p, i, istim, a, b):
     """I_L of node i (no states; contract: cable.membrane.base)."""
     return p[i, G_L] * (V - p[i, E_L])
 

@@ -632,10 +632,10 @@ MODEL = MembraneModel(
 # The right-hand side for the loop's reaction schemes (contract: cable.membrane.base):
 # gates and R-bar as a - b y, the free calcium concentrations with the rapid-buffering
 # derivative of ``reference`` (the dt -> 0 limit of the buffered update of ``reaction``),
-# Na_i and K_i as their derivatives.
+# Na_i and K_i as their derivatives (K_i with the stimulus it carries).
 
 @jit_inline
-def kinetics(V, y, p, i, a, b):
+def kinetics(V, y, p, i, istim, a, b):
     """Right-hand side of node i (contract: cable.membrane.base)."""
     s = y.reshape((1, y.shape[0]))
     q = p[i:i + 1]
@@ -664,7 +664,7 @@ def kinetics(V, y, p, i, a, b):
     kb = p[i, K_BUFSS]
     a[CA_SS] = d_ca_ss / (1.0 + p[i, BUF_SS] * kb / ((Ca_ss + kb) * (Ca_ss + kb)))
     a[NA_I] = -(I_Na + I_bNa + 3.0 * I_NaK + 3.0 * I_NaCa) * NA_FLUX
-    a[K_I] = -(I_K1 + I_to + I_Kr + I_Ks - 2.0 * I_NaK + I_pK) * NA_FLUX
+    a[K_I] = -(I_K1 + I_to + I_Kr + I_Ks - 2.0 * I_NaK + I_pK - istim) * NA_FLUX
     for k in range(CA_I, K_I + 1):
         b[k] = 0.0
     return I_Na + I_to + I_Kr + I_Ks + I_K1 + I_NaCa + I_NaK + I_pCa + I_pK + I_bNa + I_bCa + I_CaL
