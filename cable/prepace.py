@@ -13,23 +13,27 @@ import numpy as np
 
 from cable.case import CaseError
 from cable.kernels import diffusion, integrate
-from cable.measure.apd import ApdProbe, no_probe
+from cable.kernels.loop import Grid, Probes, Stimulus, no_rates
+from cable.kernels.state import step_of, unprobed
+from cable.measure.apd import ApdProbe
 
 
-def _pace_cell(advance, model, p_row, v0, s_row, beats, cl, amp, dur, dt, ion_scale, until_change=None):
+def _pace_cell(advance, model, p_row, v0, s_row, beats, cl, amp, dur, dt, ion_scale, until_change=None, gating=0):
     """Pace one cell; (v, states, state at the end of each beat, APD90 of each beat [ms]).
 
-    With ``until_change`` [ms], stop after the first beat whose APD90 differs from the
-    previous beat's by less than that (``beats`` is then the cap). The APD probe only
-    reads the potential: the states reached do not depend on it.
+    ``advance``: the reference loop of the case's reaction scheme (``loops.loop``), with
+    ``gating`` its code (``state.scheme_codes``). With ``until_change`` [ms], stop after the
+    first beat whose APD90 differs from the previous beat's by less than that (``beats`` is
+    then the cap). The APD probe only reads the potential: the states reached do not depend on it.
     """
     n = 1
     v = np.array([v0], dtype=np.float64)
     s = np.ascontiguousarray(s_row.reshape(1, -1).copy())
     p = np.ascontiguousarray(p_row.reshape(1, -1))
     lo = np.zeros(1)
-    up = np.zeros(1)
-    fac = diffusion.factor(lo, up, dt, 0.5)
+    fac = diffusion.factor(lo, lo, dt, 0.5)
+    grid = Grid(lo, lo, 0.5, fac, fac, np.zeros(1), 1)
+    step = step_of(dt, integrate.GODUNOV, False, gating, ion_scale, 200)   # one cell: no diffusion to split
     cap = 4
     act = np.full((n, cap), np.nan)
     nact = np.zeros(n, dtype=np.int64)
@@ -41,13 +45,13 @@ def _pace_cell(advance, model, p_row, v0, s_row, beats, cl, amp, dur, dt, ion_sc
         nact[:] = 0
         act[:] = np.nan
         probe = ApdProbe(v, cap, (90.0,))
-        status, step, node = advance(v, s, p, 0.0, steps, dt, pulses, lo, up, 0.5, fac, fac,
-                                     integrate.GODUNOV, False, 0, ion_scale, model.threshold,
-                                     v.copy(), act, nact, np.zeros(1), np.zeros(1, dtype=np.int64), ups,
-                                     probe.args(), np.zeros(1), np.zeros(1), 200)
+        probes = Probes(model.threshold, v.copy(), act, nact, np.zeros(1), np.zeros(1, dtype=np.int64), ups,
+                        probe.args())
+        status, step_at, node = advance(v, s, p, 0.0, steps, grid, step, Stimulus(pulses, np.zeros(1)), probes,
+                                        no_rates())
         if status != integrate.OK:
             raise CaseError(f"membrane.prepace: the single cell became unstable in beat {b + 1} "
-                            f"(t = {(step + 1) * dt:g} ms); reduce membrane.prepace.dt or check the parameters.")
+                            f"(t = {(step_at + 1) * dt:g} ms); reduce membrane.prepace.dt or check the parameters.")
         ends.append(np.concatenate([v, s[0]]))
         apds.append(float(probe.repol[0, 0, 0] - act[0, 0]) if nact[0] >= 1 else float("nan"))
         if until_change is not None and len(apds) >= 2 and abs(apds[-1] - apds[-2]) < until_change:
@@ -96,7 +100,8 @@ def _pace_cell_adaptive(model, p_row, v0, s_row, beats, cl, amp, dur, dt, dt_max
 
 def prepace_nodes(case, model, p, v0, s0):
     """Prepace every distinct parameter set; return (v0, s0, report)."""
-    from cable.kernels.loops import _integrator
+    from cable.kernels import loops
+    from cable.kernels.state import scheme_codes
 
     cfg = case.membrane.prepace
     if not case.stimuli and (cfg["amplitude"] is None or cfg["duration"] is None):
@@ -107,7 +112,9 @@ def prepace_nodes(case, model, p, v0, s0):
     cm = case.capacitance
     if dur >= cfg["cycle_length"]:
         raise CaseError(f"membrane.prepace.cycle_length = {cfg['cycle_length']:g} ms must exceed the pulse duration {dur:g} ms.")
-    advance = _integrator(model.name)
+    # the case's reaction scheme and gating (its splitting and diffusion do not apply to one cell)
+    advance = loops.loop(model.name, case.numerics.reaction)
+    gating = scheme_codes(case.numerics)[0]
     rows, inverse = np.unique(p, axis=0, return_inverse=True)
     inverse = np.asarray(inverse).reshape(-1)
     v_out = v0.copy()
@@ -128,7 +135,7 @@ def prepace_nodes(case, model, p, v0, s0):
         else:
             v_end, s_end, ends, apds = _pace_cell(advance, model, rows[r], v0[node], s0[node], cfg["beats"],
                                                   cfg["cycle_length"], amp / cm, dur, dt, model.ion_scale(cm),
-                                                  until_change=until)
+                                                  until_change=until, gating=gating)
         v_out[inverse == r] = v_end
         s_out[inverse == r] = s_end
         taken.append(len(ends))
@@ -175,19 +182,18 @@ def _settle_cell(advance, model, p_row, v0, s0, dt, ion_scale):
     """Integrate one unstimulated cell until dV/dt < SETTLE_RATE; None if it diverged."""
     lo = np.zeros(1)
     fac = diffusion.factor(lo, lo, dt, 0.5)
+    grid = Grid(lo, lo, 0.5, fac, fac, np.zeros(1), 1)
+    step = step_of(dt, integrate.GODUNOV, False, 0, ion_scale, 200)
     steps = max(1, int(round(SETTLE_CHUNK / dt)))
     v = np.array([v0])
     s = np.ascontiguousarray(np.asarray(s0).reshape(1, -1).copy())
     prow = np.ascontiguousarray(p_row.reshape(1, -1))
+    stimulus = Stimulus(np.zeros((0, 5)), np.zeros(1))
     t = 0.0
     rate = np.inf
     while t < SETTLE_MAX:
         before = v[0]
-        status, _, _ = advance(v, s, prow, 0.0, steps, dt, np.zeros((0, 5)), lo, lo, 0.5, fac, fac,
-                               integrate.GODUNOV, False, 0, ion_scale, 1e9, v.copy(),
-                               np.full((1, 1), np.nan), np.zeros(1, dtype=np.int64), np.zeros(1),
-                               np.zeros(1, dtype=np.int64), np.full((1, 1), np.nan), no_probe(1, 1), np.zeros(1),
-                               np.zeros(1), 200)
+        status, _, _ = advance(v, s, prow, 0.0, steps, grid, step, stimulus, unprobed(v), no_rates())
         t += steps * dt
         if status != integrate.OK or not np.all(np.isfinite(s)):
             return None
@@ -209,7 +215,7 @@ def settle_nodes(case, model, p, v0, s0):
     v0, s0 : ndarray
     note : str or None
     """
-    from cable.kernels.loops import _integrator
+    from cable.kernels import loops
 
     default = model.default_parameters()
     rows, inverse = np.unique(p, axis=0, return_inverse=True)
@@ -217,7 +223,8 @@ def settle_nodes(case, model, p, v0, s0):
     changed = [r for r in range(rows.shape[0]) if not np.array_equal(rows[r], default)]
     if not changed:
         return v0, s0, None
-    advance = _integrator(model.name)
+    # Rush-Larsen whatever numerics.reaction: a rest is a fixed point of every scheme
+    advance = loops.loop(model.name)
     cm = case.capacitance
     # The rest reached does not depend on dt (at a fixed point of the Rush-Larsen step the
     # gates sit at their steady values and I_ion = 0), so a coarse step is tried first and

@@ -54,7 +54,9 @@ def one_way_start(case, model, grid, p, v0, s0, threshold, ion_scale):
     """
     from cable.kernels import diffusion, integrate
     from cable.kernels.state import loop_arrays, scheme_codes
-    from cable.kernels.loops import _integrator
+    from cable.kernels import loops
+    from cable.kernels.loop import no_rates
+    from cable.kernels.state import step_of
     from cable.preparation import stimulus_pulses
 
     _, strand = ring_cases(case)
@@ -67,12 +69,14 @@ def one_way_start(case, model, grid, p, v0, s0, threshold, ion_scale):
     half, full = diffusion.factor(lo, up, 0.5 * dt, theta), diffusion.factor(lo, up, dt, theta)
     v = v0.copy()
     arrays = loop_arrays(model, False, v, s0, p, pulses.shape[0])
-    advance = _integrator(model.name)
+    advance = loops.loop(model.name)
+    loop_grid = arrays.grid(lo, up, theta, half, full)
+    step = step_of(dt, splitting, num.merge_half_steps, gating, ion_scale)
+    stimulus, probes = arrays.stimulus(pulses), arrays.probes(threshold)
     t = 0.0
     n = v.size
     while t < case.duration:
-        status, _, _ = advance(v, arrays.s, arrays.p, t, CHECK_STEPS, dt, pulses, lo, up, theta, half, full,
-                               splitting, num.merge_half_steps, gating, ion_scale, threshold, *arrays.probes())
+        status, _, _ = advance(v, arrays.s, arrays.p, t, CHECK_STEPS, loop_grid, step, stimulus, probes, no_rates())
         t += CHECK_STEPS * dt
         if status != integrate.OK:
             raise CaseError("fiber.initial = \"one-way\": the open strand run that starts the ring failed "

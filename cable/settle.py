@@ -18,7 +18,8 @@ from __future__ import annotations
 import numpy as np
 
 from cable.kernels import diffusion, integrate
-from cable.measure.apd import no_probe
+from cable.kernels.loop import Grid, Stimulus, no_rates
+from cable.kernels.state import step_of, unprobed
 
 #: settle in chunks of this much time [ms], until max |dV/dt| < RATE [mV/ms], at most
 #: LONGEST ms; RATE is 1/10 of the drift a 100 ms run could show within 0.1 mV
@@ -39,16 +40,15 @@ def needs_settling(v0: np.ndarray) -> bool:
 def _settle(advance, model, p, grid, v0, s0, dt, ion_scale):
     v = v0.copy()
     s = np.ascontiguousarray(s0.copy())
-    n = v.size
     fac = diffusion.factor(grid.lo, grid.up, dt, 0.5)
+    loop_grid = Grid(grid.lo, grid.up, 0.5, fac, fac, np.zeros(v.size), 1)
+    step = step_of(dt, integrate.GODUNOV, False, 0, ion_scale, 200)
+    stimulus = Stimulus(np.zeros((0, 5)), np.zeros(v.size))
     steps = max(1, int(round(CHUNK / dt)))
     t, rate = 0.0, np.inf
     while t < LONGEST:
         before = v.copy()
-        status, _, _ = advance(v, s, p, 0.0, steps, dt, np.zeros((0, 5)), grid.lo, grid.up, 0.5, fac, fac,
-                               integrate.GODUNOV, False, 0, ion_scale, 1e9, v.copy(), np.full((n, 1), np.nan),
-                               np.zeros(n, dtype=np.int64), np.zeros(n), np.zeros(n, dtype=np.int64),
-                               np.full((n, 1), np.nan), no_probe(n, 1), np.zeros(n), np.zeros(n), 200)
+        status, _, _ = advance(v, s, p, 0.0, steps, loop_grid, step, stimulus, unprobed(v), no_rates())
         t += steps * dt
         if status != integrate.OK or not np.all(np.isfinite(s)):
             return None
@@ -80,11 +80,11 @@ def settle_strand(case, model, p, grid, v0, s0, prepaced: bool):
     note : str or None
     """
     from cable.case import CaseError
-    from cable.kernels.loops import _integrator
+    from cable.kernels import loops
 
     if not needs_settling(v0):
         return v0, s0, None
-    advance = _integrator(model.name)
+    advance = loops.loop(model.name)   # Rush-Larsen: a rest is a fixed point of every scheme
     p = np.ascontiguousarray(np.broadcast_to(p, (v0.size, p.shape[1])))
     ion_scale = model.ion_scale(case.fiber.capacitance)
     for dt in (COARSE_DT, min(max(case.numerics.dt, 1e-3), 0.01)):

@@ -20,9 +20,10 @@ import xarray as xr
 from cable.arguments import check_call
 from cable.case import Case, CaseError, load_case
 from cable.io import schema
-from cable.kernels import diffusion, integrate, tables
-from cable.kernels.loops import _fast_integrator, _integrator, needs_compiling
-from cable.kernels.state import loop_arrays, scheme_codes
+from cable.kernels import diffusion, integrate, loops, tables
+from cable.kernels.loop import Rates, no_rates
+from cable.kernels.loops import needs_compiling
+from cable.kernels.state import loop_arrays, scheme_codes, step_of
 from cable.measure.activation import assign_beats
 from cable.preparation import Setup, check_size, check_threshold, prepare
 from cable.results import assemble, grid_closed, measurements, provenance
@@ -190,7 +191,7 @@ class _Run:
         if rates.note:
             say(rates.note)
         fast = rates.mode != "reference"
-        self.advance = _fast_integrator(model.name, num.reaction) if fast else _integrator(model.name, num.reaction)
+        self.advance = loops.loop(model.name, num.reaction, fast)
         self.state_names = list(case.output_states)
         self.state_idx = [model.state_names.index(s) for s in self.state_names]
         self.field_names = ["vm"] + [schema.STATE_PREFIX + s for s in self.state_names]
@@ -209,7 +210,11 @@ class _Run:
         self.sink = self._sink(overwrite)
         self.highest = -np.inf  # the highest potential sampled: says why no node crossed a given threshold
         self._electrodes()
-        self.table_args = (rates.table, rates.v_lo, rates.inv_dv, rates.group, 1) if fast else ()
+        self.rates = Rates(rates.table, rates.v_lo, rates.inv_dv, rates.group) if fast else no_rates()
+        self.grid = self.arrays.grid(grid.lo, grid.up, self.theta, self.half, self.full)
+        self.step = step_of(num.dt, self.splitting, self.merge, self.gating, setup.ion_scale)
+        self.stimulus = self.arrays.stimulus(setup.pulses)
+        self.probes = self.arrays.probes(setup.threshold)
         self.stepper = _stepper(setup, self.advance, self.arrays, rates if fast else None,
                                 (self.gating, self.theta, self.splitting, num.merge_half_steps), self.state_idx)
         self.cell_chunk = _cell_chunk(setup, self.quiet) if getattr(self.stepper, "single_cell", False) else None
@@ -334,9 +339,6 @@ def _intervals(run: _Run, progress):
     """Run the output intervals 1, 2, ... until the end, a numerical failure or a quiet stop;
     the failure (status, time [ms], node) or None. The loop of :func:`simulate`."""
     setup, v, arrays, stepper, quiet, advance = run.setup, run.v, run.arrays, run.stepper, run.quiet, run.advance
-    grid, pulses, ion_scale, threshold, table_args = setup.grid, setup.pulses, setup.ion_scale, setup.threshold, \
-        run.table_args
-    theta, half, full, splitting, merge, gating = run.theta, run.half, run.full, run.splitting, run.merge, run.gating
     dt, spb = setup.case.numerics.dt, setup.steps_per_sample
     t_total = (setup.n_samples - 1) * spb * dt
     k_from = 1
@@ -352,9 +354,8 @@ def _intervals(run: _Run, progress):
         elif stepper is not None:
             status, step, node = stepper.run(v, (k - 1) * spb, k * spb)
         elif run.ecg_w is None:
-            status, step, node = advance(v, arrays.s, arrays.p, t0, spb, dt, pulses, grid.lo, grid.up, theta, half,
-                                         full, splitting, merge, gating, ion_scale, threshold, *arrays.probes(),
-                                         *table_args)
+            status, step, node = advance(v, arrays.s, arrays.p, t0, spb, run.grid, run.step, run.stimulus,
+                                         run.probes, run.rates)
         else:
             status, step, node = _steps_with_ecg(run, t0, k)
         if status != integrate.OK:
@@ -374,12 +375,11 @@ def _intervals(run: _Run, progress):
 def _steps_with_ecg(run: _Run, t0: float, k: int):
     """Output interval k from ``t0`` one fixed step per call, the pseudo-ECG taken after each
     ([[electrode]]); (status, step, node) as one call over the interval gives them."""
-    setup, v, arrays, grid, ecg_w = run.setup, run.v, run.arrays, run.setup.grid, run.ecg_w
+    setup, v, arrays, ecg_w = run.setup, run.v, run.arrays, run.ecg_w
     dt, spb = setup.case.numerics.dt, setup.steps_per_sample
     for j in range(spb):
-        status, step, node = run.advance(v, arrays.s, arrays.p, t0 + j * dt, 1, dt, setup.pulses, grid.lo, grid.up,
-                                         run.theta, run.half, run.full, run.splitting, run.merge, run.gating,
-                                         setup.ion_scale, setup.threshold, *arrays.probes(), *run.table_args)
+        status, step, node = run.advance(v, arrays.s, arrays.p, t0 + j * dt, 1, run.grid, run.step, run.stimulus,
+                                         run.probes, run.rates)
         run.ecg_steps[:, (k - 1) * spb + j + 1] = ecg_w @ v
         if status != integrate.OK:
             return status, step + j, node

@@ -2,8 +2,8 @@
 
 The steps are chosen from the levels dt x 2^k (k = 0, 1, ... while dt x 2^k <= dt_max),
 so that the Crank-Nicolson factors and the rate tables of each level are computed once.
-Each block is one call of the run's compiled loop (``integrate.advance``,
-``fused.advance_fast``) at one level: a complete Strang sequence, D(h/2) S D(h) ... S
+Each block is one call of the run's compiled loop (:func:`cable.kernels.loop.advance`)
+at one level: a complete Strang sequence, D(h/2) S D(h) ... S
 D(h/2), so a change of level between blocks keeps the splitting's order. Between blocks
 the level is chosen from the state (:func:`allowed_step`):
 
@@ -34,6 +34,8 @@ import numpy as np
 
 from cable.kernels import diffusion, tables
 from cable.kernels.jit import jit, jit_inline
+from cable.kernels.loop import Rates
+from cable.kernels.state import step_of
 
 #: the bound of the potential (:func:`potential_step`): at |dV/dt| = 1 mV/ms a step may
 #: change it by ``DV_STEP_MV``, and the step scales as |dV/dt|^-``DV_POWER``: shorter than a
@@ -213,7 +215,12 @@ class Stepper:
             self.group = np.zeros(1, dtype=np.int64)
         from cable.kernels.adaptive_strand import driver
 
-        self.driver = driver(advance, fast)
+        self.driver = driver(advance)
+        self.rates = Rates(self.tables[0], self.v_lo, self.inv_dv, self.group)
+        self.grid = arrays.grid(lo, up, self.theta, self.factors[0][0], self.factors[0][1])
+        self.step = step_of(self.dt, self.splitting, self.merge, self.gating, setup.ion_scale)
+        self.stimulus = arrays.stimulus(setup.pulses)
+        self.probes = arrays.probes(setup.threshold)
         self.zones = np.ascontiguousarray(stimulus_zones(setup.pulses, self.dt, n_end))
         self.fe = euler_states(setup.model, setup.v0[0], setup.s0[0], setup.p, self.gating)
         self.s_before = arrays.s.copy()
@@ -227,11 +234,9 @@ class Stepper:
         """Advance from fine step ``n0`` to ``n1``; (status, step, node) as the loop returns, ``step``
         counted in fine steps from ``n0`` (the failure lies in the fine step ending at ``n0 + step + 1``)."""
         a = self.arrays
-        s = self.setup
         status, step, node = self.driver(
-            v, a.s, a.p, n0, n1, self.dt, np.array(self.levels), s.pulses, s.grid.lo, s.grid.up, self.theta,
-            self.halves, self.fulls, self.splitting, self.merge, self.gating, s.ion_scale, s.threshold,
-            *a.probes(), self.tables, self.v_lo, self.inv_dv, self.group, self.zones, self.fe, a.by_state, self.bounds,
+            v, a.s, a.p, n0, n1, self.dt, np.array(self.levels), self.grid, self.halves, self.fulls, self.step,
+            self.stimulus, self.probes, self.tables, self.rates, self.zones, self.fe, a.by_state, self.bounds,
             self.ctl, self.t_block, self.s_before, self.counts, self.trace)
         return int(status), int(step), int(node)
 

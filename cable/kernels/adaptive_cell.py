@@ -106,7 +106,7 @@ def advance_cell(v, s, p, n0, n1, dt, hs, tables, v_lo, inv_dv, group, pulses, z
     ``counts``: steps per level (added to); ``lohi``: a zero coupling (the probe's grid); ``trace``
     (m, 2): the fine index and level of the steps, while ``ctl[2]`` < m (counted
     there; an array with no rows keeps none). The rest as for
-    :func:`cable.kernels.integrate.advance` (states and parameters of the one node, by
+    :func:`cable.kernels.loop.advance` (states and parameters of the one node, by
     node or by state: the same order for one node).
 
     Returns (status, fine steps done from ``n0`` when it failed (else ``n1 - n0``), rows).
@@ -257,7 +257,7 @@ class CellStepper:
         status, done, got = self.loop(v, a.s, a.p, n0, n1, self.dt, self.levels, self.tables, self.v_lo,
                                       self.inv_dv, self.group, self.pulses, self.zones, self.spb, 0, self.ion_scale,
                                       self.threshold, self.fe, self.bounds, self.ctl, self.s_last, self.cols, out,
-                                      self.counts, *a.probes()[:8], self.lohi, CHECK_EVERY,
+                                      self.counts, *a.probes(self.threshold)[1:], a.i_stim, self.lohi, CHECK_EVERY,
                                       self.trace)
         return status, done, out[:got]
 

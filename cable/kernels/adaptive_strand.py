@@ -5,10 +5,10 @@ chosen by :func:`cable.kernels.adaptive.allowed_step` at the start of each block
 fine step inside stimulus zones), the block cut to the next zone edge, output time and
 ``BLOCK_STEPS`` steps, ``dlast`` rescaled on a change of level, the states kept for the
 forward-Euler bound, and the block run by the run's own compiled loop
-(``fused.advance_fast`` or ``integrate.advance``, unchanged) at that level's factors
-and rate table. Same arithmetic in the same order, so the results are those of the
-Python driver bit for bit; what goes is numba's dispatch of the loop's ~30 arguments
-per block (~20-40 us, up to 12 blocks per millisecond of fine steps). One call runs one
+(:func:`cable.kernels.loop.advance`, unchanged) at that level's factors, step and rate
+table. Same arithmetic in the same order, so the results are those of the
+Python driver bit for bit; what goes is numba's dispatch of the loop's arguments per
+block (~20-40 us, up to 12 blocks per millisecond of fine steps). One call runs one
 output interval (``cable.simulate`` samples, checks and reports between them).
 """
 
@@ -18,44 +18,22 @@ import functools
 
 from cable.kernels.adaptive import BLOCK_STEPS, allowed_step
 from cable.kernels.jit import specialise
+from cable.kernels.loop import Grid, Rates, Step
 
 
-def loop(*args):  # bound by specialise(): the run's compiled time loop
+def loop(v, s, p, t0, nsteps, grid, step, stimulus, probes, rates):  # bound by specialise(): the run's loop
     raise NotImplementedError
 
 
-def run_block(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale, threshold,
-              vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table, v_lo, inv_dv,
-              group):
-    # bound by specialise(): fast_block or reference_block
-    raise NotImplementedError
-
-
-def fast_block(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale, threshold,
-               vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table, v_lo, inv_dv,
-              group):
-    """One block of ``fused.advance_fast`` (one strand) at one level."""
-    return loop(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale, threshold,
-                vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table, v_lo, inv_dv,
-                group, 1)
-
-
-def reference_block(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale,
-                    threshold, vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, table,
-                    v_lo, inv_dv, group):
-    """One block of ``integrate.advance`` at one level (no table)."""
-    return loop(v, s, p, t0, m, h, pulses, lo, up, theta, half, full, splitting, merge, gating, ion_scale, threshold,
-                vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every)
-
-
-def advance_levels(v, s, p, n0, n1, dt, hs, pulses, lo, up, theta, halves, fulls, splitting, merge, gating, ion_scale,
-                   threshold, vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work, check_every, tables,
-                   v_lo, inv_dv, group, zones, fe, by_state, bounds, ctl, t_block, s_before, counts, trace):
+def advance_levels(v, s, p, n0, n1, dt, hs, grid, halves, fulls, step, stimulus, probes, tables, rates, zones, fe,
+                   by_state, bounds, ctl, t_block, s_before, counts, trace):
     """Advance from fine step ``n0`` to ``n1`` in blocks (see the module docstring).
 
-    ``hs``: the levels; ``halves``, ``fulls``: the factors of D(h/2) and D(h) per level
-    (each part stacked (nlev, ...)); ``tables`` (nlev, ngroup, rows, cols), ``group`` each node's
-    table group; ``zones`` (m, 2):
+    ``hs``: the levels; ``grid``, ``step``, ``stimulus``, ``probes``, ``rates``: the loop's
+    containers (:mod:`cable.kernels.loop`) at the fine step, whose factors, dt and table
+    each block replaces by its level's: ``halves``, ``fulls``, the factors of D(h/2) and
+    D(h) per level (each part stacked (nlev, ...)), and ``tables`` (nlev, ngroup, rows,
+    cols); ``zones`` (m, 2):
     ``adaptive.stimulus_zones``; ``bounds``: (dv_step, reach, rel_step, dv_power,
     dv_fast); ``ctl``: [level of the last block, zone reached, blocks traced]; ``t_block``:
     [length of the last block, ms]; ``s_before``: the states at its start; ``counts``:
@@ -68,7 +46,8 @@ def advance_levels(v, s, p, n0, n1, dt, hs, pulses, lo, up, theta, halves, fulls
     track = False
     for j in range(fe.shape[0]):
         track = track or fe[j] != 0
-    dlast = apd[0]
+    threshold = probes.threshold
+    dlast = probes.apd[0]
     n = n0
     while n < n1:
         z = ctl[1]
@@ -83,9 +62,9 @@ def advance_levels(v, s, p, n0, n1, dt, hs, pulses, lo, up, theta, halves, fulls
         cur = ctl[0]
         k = 0
         if not inside:
-            step = allowed_step(v, dlast, hs[cur], threshold, s, s_before, fe, t_block[0], by_state, hs[nlev - 1],
-                                dv_step, reach, rel_step, dv_power, dv_fast)
-            while k + 1 < nlev and hs[k + 1] <= step:
+            allowed = allowed_step(v, dlast, hs[cur], threshold, s, s_before, fe, t_block[0], by_state,
+                                   hs[nlev - 1], dv_step, reach, rel_step, dv_power, dv_fast)
+            while k + 1 < nlev and hs[k + 1] <= allowed:
                 k += 1
         span = min(edge, n1) - n
         while (1 << k) > span:
@@ -105,11 +84,11 @@ def advance_levels(v, s, p, n0, n1, dt, hs, pulses, lo, up, theta, halves, fulls
             trace[ctl[2], 1] = m
             trace[ctl[2], 2] = k
             ctl[2] += 1
-        status, done, node = run_block(v, s, p, n * dt, m, h, pulses, lo, up, theta,
-                                       (halves[0][k], halves[1][k], halves[2][k]),
-                                       (fulls[0][k], fulls[1][k], fulls[2][k]), splitting, merge, gating, ion_scale,
-                                       threshold, vprev, act, nact, pre_rate, open_up, upstroke, apd, i_stim, work,
-                                       check_every, tables[k], v_lo, inv_dv, group)
+        level_grid = Grid(grid.lo, grid.up, grid.theta, (halves[0][k], halves[1][k], halves[2][k]),
+                          (fulls[0][k], fulls[1][k], fulls[2][k]), grid.work, grid.layout)
+        level_step = Step(h, step.splitting, step.merge, step.gating, step.ion_scale, step.check_every)
+        status, done, node = loop(v, s, p, n * dt, m, level_grid, level_step, stimulus, probes,
+                                  Rates(tables[k], rates.v_lo, rates.inv_dv, rates.group))
         if status != 0:
             counts[k] += done + 1
             return status, n - n0 + (done + 1) * width - 1, node
@@ -120,10 +99,7 @@ def advance_levels(v, s, p, n0, n1, dt, hs, pulses, lo, up, theta, halves, fulls
 
 
 @functools.lru_cache(maxsize=None)
-def driver(advance, fast: bool):
+def driver(advance):
     """The compiled block driver of the run's loop ``advance`` (a specialised dispatcher of
-    ``fused.advance_fast`` when ``fast``, else of ``integrate.advance``)."""
-    template = fast_block if fast else reference_block
-    tag = advance.py_func.__qualname__
-    block = specialise(template, tag, loop=advance, depends=(advance.py_func,))
-    return specialise(advance_levels, tag, run_block=block, depends=(advance.py_func,))
+    :func:`cable.kernels.loop.advance`)."""
+    return specialise(advance_levels, advance.py_func.__qualname__, loop=advance, depends=(advance.py_func,))

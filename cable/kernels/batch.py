@@ -12,9 +12,8 @@ interval, instead of one each per strand. How:
 * diffusion: each strand with the factors it has alone (``diffusion.factor``) and the
   operations of ``diffusion.diffuse``; strands of one length on the fast path are
   stored interleaved and solved side by side (``diffusion.diffuse_interleaved``, in
-  the single-strand loop ``fused.advance_fast`` with ``strands`` > 1), others laid end
-  to end, each solved on its own slice (``fused.advance_fast_segments``, and
-  ``fused.advance_segments`` on the reference path);
+  the single-strand loop with ``Grid.layout`` > 1), others laid end to end, each solved
+  on its own slice (the loop's ``"segments"`` layout, on either path);
 * reaction, stimulus and probes act node by node, with the same
   arithmetic whatever the node's place in the batch (the pulse table keeps each
   strand's pulses in its own order);
@@ -34,7 +33,6 @@ adaptive steps ``numerics.dt_max``) runs alone.
 
 from __future__ import annotations
 
-import functools
 import time as _time
 from dataclasses import replace
 from types import SimpleNamespace
@@ -226,30 +224,6 @@ def _pulses(setups, slices, n):
     return np.ascontiguousarray(pulses[np.argsort(pulses[:, 0], kind="stable")])
 
 
-def _segments_integrator(model_name: str, fast: bool, reaction: str = "rush-larsen"):
-    """The time loop of strands laid end to end (fast or reference path), per model and
-    reaction scheme (``numerics.reaction``); one dispatcher per triple."""
-    return _segments_integrator_for(model_name, bool(fast), reaction)
-
-
-@functools.lru_cache(maxsize=None)
-def _segments_integrator_for(model_name: str, fast: bool, reaction: str):
-    from cable.kernels import fused, schemes
-    from cable.kernels.jit import specialise
-    from cable.membrane import get_model
-
-    model = get_model(model_name)
-    if fast and reaction == schemes.DEFAULT:
-        return specialise(fused.advance_fast_segments, model.name, fast_reaction=model.fast.kernel)
-    if fast:
-        return specialise(fused.advance_fast_segments, f"{model.name}_{reaction}",
-                          fast_reaction=schemes.fast_kernel(model_name, reaction), depends=(model.fast.kinetics,))
-    if reaction == schemes.DEFAULT:
-        return specialise(fused.advance_segments, model.name, reaction=model.reaction)
-    return specialise(fused.advance_segments, f"{model.name}_{reaction}", reaction=schemes.kernel(model_name, reaction),
-                      depends=(model.kinetics,))
-
-
 def _tracker_part(tracker, sl):
     """The per-beat arrays of an ApdProbe restricted to the nodes ``sl`` (contiguous)."""
     return SimpleNamespace(levels=tracker.levels,
@@ -271,9 +245,7 @@ def _run_batch(setups):
     wall0 = _time.perf_counter()
     for k in range(1, first.n_samples):
         t0 = (k - 1) * spb * dt
-        status, _, _ = b.advance(v, arrays.s, arrays.p, t0, spb, dt, b.pulses, b.lo, b.up, b.theta, b.half, b.full,
-                                 b.splitting, num.merge_half_steps, b.gating, first.ion_scale, first.threshold,
-                                 *arrays.probes(), *b.extra)
+        status, _, _ = b.advance(v, arrays.s, arrays.p, t0, spb, b.grid, b.step, b.stimulus, b.probes, b.rates)
         if status != integrate.OK:
             return None
         sample(k)
@@ -288,8 +260,9 @@ def _run_batch(setups):
 def _batch_loop(setups) -> SimpleNamespace:
     """The batch's time loop and its arguments: the strands placed side by side (:func:`_layout`),
     their diffusion factors, pulses, initial state and probes, the one rate table."""
-    from cable.kernels import diffusion, tables
-    from cable.kernels.loops import _fast_integrator
+    from cable.kernels import diffusion, loops, tables
+    from cable.kernels.loop import Rates, no_rates
+    from cable.kernels.state import step_of
 
     first = setups[0]
     model, num = first.model, first.case.numerics
@@ -301,12 +274,12 @@ def _batch_loop(setups) -> SimpleNamespace:
     interleaved, slices = _layout(setups, fast)
     grids = [(s.grid.lo, s.grid.up) for s in setups]
     if interleaved:
-        advance = _fast_integrator(model.name, num.reaction)
-        factor, last = diffusion.factor_interleaved, (len(setups),)
+        advance = loops.loop(model.name, num.reaction, fast=True)
+        factor, layout = diffusion.factor_interleaved, len(setups)
     else:
-        advance = _segments_integrator(model.name, fast, num.reaction)
+        advance = loops.loop(model.name, num.reaction, fast, layout="segments")
         factor = diffusion.factor_segments
-        last = (np.concatenate([[0], np.cumsum([s.n for s in setups])]).astype(np.int64),)
+        layout = np.concatenate([[0], np.cumsum([s.n for s in setups])]).astype(np.int64)
     v = _place([s.v0 for s in setups], slices, n)
     p_nodes = _place([np.broadcast_to(s.p, (s.n, s.p.shape[1])) for s in setups], slices, n)
     if rates.table.shape[0] > 1:   # each node's table group (numbered alike for every member: group_key)
@@ -314,12 +287,14 @@ def _batch_loop(setups) -> SimpleNamespace:
     # the crossing cap is the same for every member (group_key)
     arrays = loop_arrays(model, fast, v, _place([s.s0 for s in setups], slices, n), p_nodes, first.pulses.shape[0],
                          first.case.apd_levels)
+    grid = arrays.grid(_place([s.grid.lo for s in setups], slices, n), _place([s.grid.up for s in setups], slices, n),
+                       theta, factor(grids, 0.5 * num.dt, theta), factor(grids, num.dt, theta), layout)
     return SimpleNamespace(
-        n=n, rates=rates, interleaved=interleaved, slices=slices, advance=advance, gating=gating, theta=theta,
-        splitting=splitting, half=factor(grids, 0.5 * num.dt, theta), full=factor(grids, num.dt, theta),
-        lo=_place([s.grid.lo for s in setups], slices, n), up=_place([s.grid.up for s in setups], slices, n),
-        pulses=_pulses(setups, slices, n), v=v, arrays=arrays,
-        extra=((rates.table, rates.v_lo, rates.inv_dv, rates.group) if fast else ()) + last)
+        n=n, plan=rates, rates=Rates(rates.table, rates.v_lo, rates.inv_dv, rates.group) if fast else no_rates(),
+        interleaved=interleaved, slices=slices, advance=advance, grid=grid,
+        step=step_of(num.dt, splitting, num.merge_half_steps, gating, first.ion_scale),
+        stimulus=arrays.stimulus(_pulses(setups, slices, n)), probes=arrays.probes(first.threshold), v=v,
+        arrays=arrays)
 
 
 def _batch_fields(setups, b):
@@ -371,7 +346,7 @@ def _batch_quiet(setups, b):
                                            s.x if s.x is not None else np.zeros(1), s.pulses, t_end=t).timed_out)
                        for s, sl in zip(setups, b.slices))
 
-    return QuietCheck(b.pulses, b.v, case0.quiet_tolerance, len(case0.apd_levels), judge=judge)
+    return QuietCheck(b.stimulus.pulses, b.v, case0.quiet_tolerance, len(case0.apd_levels), judge=judge)
 
 
 def _strand_results(setups, b, fields, n_done: int, wall: float, quiet: bool) -> list:
@@ -389,7 +364,7 @@ def _strand_results(setups, b, fields, n_done: int, wall: float, quiet: bool) ->
         meas = measurements(setup, np.ascontiguousarray(arrays.act[sl]), arrays.nact[sl].copy(),
                             np.ascontiguousarray(arrays.upstroke[sl]), _tracker_part(tracker, sl), t_end=t_end)
         attrs = provenance(setup, None)
-        attrs.update(rates=b.rates.mode, wall_time_s=round(wall * setup.n / b.n, 6), status="complete",
+        attrs.update(rates=b.plan.mode, wall_time_s=round(wall * setup.n / b.n, 6), status="complete",
                      batch_size=len(setups), stop_when_quiet=int(quiet))
         if n_done < first.n_samples:
             attrs["stopped_when_quiet_ms"] = t_end

@@ -1,45 +1,30 @@
-"""The time loop: operator splitting of reaction and diffusion, stimuli, probes.
+"""One step's stimulus and per-node probe, and the codes of the time loop.
 
-``advance`` is a template: :func:`cable.kernels.jit.specialise` binds ``reaction`` to
-a membrane model's kernel and compiles one loop per model (cached on disk).
-
-Splitting (S = stimulus + ionic reaction over dt, D(h) = diffusion over h):
-
-* strang:  D(dt/2) S D(dt/2) each step (Strang 1968, SIAM J Numer Anal 5:506);
-  with ``merge`` the two half steps between consecutive steps are joined into one
-  D(dt), D(dt/2) S D(dt) S ... S D(dt/2) between outputs: same second order, half
-  the solves.
-* godunov: S D(dt) each step (first order).
-
-Probes, updated every step right after the reaction (before the closing diffusion
-step), so that every probed potential sits at the same point of the splitting whatever
-``merge`` and the output interval (with ``merge`` the potential at the end of a step
-is that point, except at the last step of each call, which closes with D(dt/2)):
-upward crossings of ``threshold`` (time by linear interpolation), the maximal dV/dt of
-each upstroke without the stimulus current, and per beat the resting potential (the
-lowest potential since the previous beat repolarised), the peak and the downward
-crossings of the repolarisation levels (:mod:`cable.measure.apd`).
+The time loop itself is :func:`cable.kernels.loop.advance` (one template for every run);
+this module holds what it shares with the single-cell adaptive loop
+(:mod:`cable.kernels.adaptive_cell`): the splitting codes, the status codes, the mean
+stimulus over a step (:func:`stimulus_current`) and the probe of a node after the
+reaction (:func:`probe_nodes`, :func:`probe`): upward crossings of the threshold (time
+by linear interpolation), the maximal dV/dt of each upstroke without the stimulus
+current, and per beat the resting potential (the lowest potential since the previous
+beat repolarised), the peak and the downward crossings of the repolarisation levels
+(:mod:`cable.measure.apd`).
 """
 
 import numpy as np
 
-from cable.kernels.diffusion import diffuse
 from cable.kernels.jit import jit
 
 STRANG = 0
 GODUNOV = 1
 
-# status codes returned by advance
+# status codes returned by the time loops
 OK = 0
 NONFINITE = 1
 RUNAWAY = 2
 
 #: |V| above this is treated as a numerical blow-up [mV]
 RUNAWAY_MV = 1000.0
-
-
-def reaction(v, s, p, i_stim, dt, ion_scale, gating):  # replaced by specialise()
-    raise NotImplementedError
 
 
 @jit
@@ -192,42 +177,3 @@ def close_probe(v, vprev, dnow, dlast):
         dlast[i] = dnow[i]
         vprev[i] = v[i]
 
-
-def advance(v, s, p, t0, nsteps, dt, pulses, lo, up, theta, half, full, splitting, merge,
-            gating, ion_scale, threshold, vprev, act, nact, pre_rate, open_up, upstroke,
-            apd, i_stim, work, check_every):
-    """Advance the strand by ``nsteps`` steps of ``dt`` from time ``t0``.
-
-    Returns (status, step, node): status OK, or NONFINITE / RUNAWAY with the step and
-    node where it was found (checked every ``check_every`` steps and at the end).
-    """
-    stim_on = True
-    first_pulse = 0
-    sub_h, cp_h, inv_h = half
-    sub_f, cp_f, inv_f = full
-    grid = (lo, up, dt if splitting == GODUNOV else 0.5 * dt, 1)   # the probe's: diffusion after it
-    for k in range(nsteps):
-        t = t0 + k * dt
-        if splitting == STRANG:
-            if merge and k > 0:
-                diffuse(v, lo, up, dt, theta, sub_f, cp_f, inv_f, work)
-            else:
-                diffuse(v, lo, up, 0.5 * dt, theta, sub_h, cp_h, inv_h, work)
-        any_on, first_pulse = stimulus_current(t, dt, pulses, i_stim, first_pulse)
-        if stim_on and not any_on:
-            i_stim[:] = 0.0
-        stim_on = any_on
-        reaction(v, s, p, i_stim, dt, ion_scale, gating)
-        probe(v, vprev, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, grid)
-        if splitting == GODUNOV:
-            diffuse(v, lo, up, dt, theta, sub_f, cp_f, inv_f, work)
-        elif not merge or k == nsteps - 1:
-            diffuse(v, lo, up, 0.5 * dt, theta, sub_h, cp_h, inv_h, work)
-        if (k + 1) % check_every == 0 or k == nsteps - 1:
-            for i in range(v.shape[0]):
-                vi = v[i]
-                if not np.isfinite(vi):
-                    return NONFINITE, k, i
-                if abs(vi) > RUNAWAY_MV:
-                    return RUNAWAY, k, i
-    return OK, nsteps, -1

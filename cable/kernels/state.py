@@ -9,7 +9,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from cable.kernels import diffusion, integrate, tables
-from cable.measure.apd import ApdProbe
+from cable.kernels.loop import Grid, Probes, Step, Stimulus
+from cable.measure.apd import ApdProbe, no_probe
 
 #: how often the loop checks for NaN / runaway potential [steps]: often enough that a
 #: potential blown up by a huge stimulus cannot recover unseen between checks (the
@@ -48,14 +49,36 @@ class LoopArrays:
     i_stim: np.ndarray
     work: np.ndarray
 
-    def probes(self) -> tuple:
-        """The probe arguments of the time loop, in its order (then ``CHECK_EVERY``)."""
-        return (self.vprev, self.act, self.nact, self.pre_rate, self.open_up, self.upstroke, self.apd.args(),
-                self.i_stim, self.work, CHECK_EVERY)
+    def probes(self, threshold: float) -> Probes:
+        """The probes of the time loop, with the activation ``threshold`` [mV]."""
+        return Probes(float(threshold), self.vprev, self.act, self.nact, self.pre_rate, self.open_up, self.upstroke,
+                      self.apd.args())
+
+    def stimulus(self, pulses: np.ndarray) -> Stimulus:
+        """The stimulus schedule of the time loop (``pulses`` as ``preparation.stimulus_pulses`` makes them)."""
+        return Stimulus(pulses, self.i_stim)
+
+    def grid(self, lo, up, theta: float, half, full, layout=1) -> Grid:
+        """The grid of the time loop: couplings, theta, the factors of D(dt/2) and D(dt), layout."""
+        return Grid(lo, up, float(theta), tuple(half), tuple(full), self.work, layout)
 
     def state(self, j: int) -> np.ndarray:
         """State ``j`` at every node."""
         return self.s[j] if self.by_state else self.s[:, j]
+
+
+def step_of(dt: float, splitting: int, merge: bool, gating: int, ion_scale: float,
+            check_every: int = CHECK_EVERY) -> Step:
+    """The step of the time loop (codes from :func:`scheme_codes`)."""
+    return Step(float(dt), int(splitting), bool(merge), int(gating), float(ion_scale), int(check_every))
+
+
+def unprobed(v: np.ndarray) -> Probes:
+    """Probes that record nothing (threshold out of reach, no repolarisation levels), for
+    runs that want only the states (settling, the rest of a cell)."""
+    n = v.shape[0]
+    return Probes(1e9, v.copy(), np.full((n, 1), np.nan), np.zeros(n, dtype=np.int64), np.zeros(n),
+                  np.zeros(n, dtype=np.int64), np.full((n, 1), np.nan), no_probe(n, 1))
 
 
 def loop_arrays(model, fast: bool, v: np.ndarray, s0: np.ndarray, p: np.ndarray, n_pulses: int,
@@ -65,7 +88,7 @@ def loop_arrays(model, fast: bool, v: np.ndarray, s0: np.ndarray, p: np.ndarray,
     ``levels``: the repolarisation levels [%] probed."""
     n = v.shape[0]
     by_state = bool(fast and model.fast.by_state)
-    if by_state:  # stored by state and by parameter (see cable.kernels.fused)
+    if by_state:  # stored by state and by parameter (see cable.kernels.loop)
         s = np.array(s0.T, order="C")   # a copy: the transpose of one state is a view of s0
         p = tables.by_parameter(p)
     else:

@@ -102,17 +102,16 @@ def _time_loops(models: set) -> list:
     """Every compiled time loop a run of these (model, rates, reaction) triples may load: the
     single strand's loops (fast path and reference, the latter also used to settle nodes) and
     the batch's loop of strands laid end to end, for each reaction scheme asked for."""
-    from cable.kernels.batch import _segments_integrator
+    from cable.kernels.loops import loop
     from cable.membrane import get_model
-    from cable.kernels.loops import _fast_integrator, _integrator
 
     loops = []
     for name in sorted({key[0] for key in models}):
-        loops += [_integrator(name), _segments_integrator(name, False)]
+        loops += [loop(name), loop(name, layout="segments")]
         if get_model(name).fast is not None:
-            loops += [_fast_integrator(name), _segments_integrator(name, True)]
+            loops += [loop(name, fast=True), loop(name, fast=True, layout="segments")]
     for name, _, reaction in sorted(key for key in models if key[2:] and key[2] != "rush-larsen"):
-        loops += [_integrator(name, reaction), _segments_integrator(name, False, reaction)]
+        loops += [loop(name, reaction), loop(name, reaction, layout="segments")]
         if get_model(name).fast is not None and get_model(name).fast.kinetics is not None:
-            loops += [_fast_integrator(name, reaction), _segments_integrator(name, True, reaction)]
+            loops += [loop(name, reaction, fast=True), loop(name, reaction, fast=True, layout="segments")]
     return loops

@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 
 import cable
-from cable.kernels import diffusion, fused, integrate, tables
+from cable.kernels import diffusion, integrate, loop, tables
 from cable.kernels.elementary import exp, exp_nonpositive, fma
 
 #: IEEE 754 double: a correctly rounded result is within 0.5 ulp; the C library's exp
@@ -133,7 +133,7 @@ def test_block_probe_equals_plain_probe(rng):
         arrays[name] = dict(vprev=np.full(n, -70.0), act=np.full((n, 4), np.nan), nact=np.zeros(n, np.int64),
                             pre=np.zeros(n), open_up=np.zeros(n, np.int64), ups=np.full((n, 4), np.nan),
                             apd=ApdProbe(np.full(n, -70.0), 4, (90.0, 30.0, 50.0)))
-    bounds = fused.probe_bounds(arrays["block"]["open_up"], arrays["block"]["apd"].args())
+    bounds = loop.probe_bounds(arrays["block"]["open_up"], arrays["block"]["apd"].args())
     dnow = np.empty(n)
     i_stim = np.zeros(n)
     x = np.arange(n)
@@ -152,7 +152,7 @@ def test_block_probe_equals_plain_probe(rng):
                         a["apd"].args(), i_stim, grid)
         a = arrays["block"]
         # the fast loop's dlast is this step's dnow (it swaps the two): here copied
-        fused.block_probe(v, a["vprev"], dnow, k * dt, dt, thr, a["act"], a["nact"], a["pre"], a["open_up"],
+        loop.block_probe(v, a["vprev"], dnow, k * dt, dt, thr, a["act"], a["nact"], a["pre"], a["open_up"],
                           a["ups"], a["apd"].args(), i_stim, grid, stim_on, *bounds)
         a["apd"].dlast[:] = dnow
     assert np.isfinite(arrays["plain"]["apd"].repol).sum() > 100   # the pattern does repolarise

@@ -70,11 +70,10 @@ class _KernelClock:
 
 
 def measure(cases, repeat: int) -> tuple:
-    sim = sys.modules["cable.simulate"]
-    bat = sys.modules["cable.kernels.batch"]
-    original, original_segments = sim._fast_integrator, bat._segments_integrator
-    fast = original(cases[0].membrane.model)
-    segments = original_segments(cases[0].membrane.model, True)
+    loops = sys.modules["cable.kernels.loops"]
+    original = loops.loop
+    fast = original(cases[0].membrane.model, fast=True)
+    segments = original(cases[0].membrane.model, fast=True, layout="segments")
     best = {}
     last = {}
     for label, run in (("separate", lambda: [cable.simulate(c) for c in cases]),
@@ -82,14 +81,14 @@ def measure(cases, repeat: int) -> tuple:
         run()                                   # warm
         for _ in range(repeat):
             clock, clock_segments = _KernelClock(fast), _KernelClock(segments)
-            sim._fast_integrator = lambda _name, *_, c=clock: c
-            bat._segments_integrator = lambda _name, _fast, *_, c=clock_segments: c
+            loops.loop = lambda _name, *_, layout="strands", c=clock, cs=clock_segments, **__: \
+                cs if layout == "segments" else c
             try:
                 t = time.perf_counter()
                 results = run()
                 wall = time.perf_counter() - t
             finally:
-                sim._fast_integrator, bat._segments_integrator = original, original_segments
+                loops.loop = original
             loop = sum(float(ds.attrs["wall_time_s"]) for ds in results)
             row = (wall, loop, clock.total + clock_segments.total)
             best[label] = tuple(min(a, b) for a, b in zip(best.get(label, row), row))
