@@ -76,8 +76,10 @@ P11 = 2.500007602189905e-08
 
 
 @jit_inline
-def _exp_reduced(x):
-    # exp(x) for x already within [EXP_MIN, EXP_MAX]
+def exp_reduction(x):
+    """(2^k, r, u) for x within [EXP_MIN, EXP_MAX]: x = k ln 2 + r with |r| <= ln(2)/2 and
+    exp(r) = 1 + r u, u = 1 + r Q(r); so exp(x) = 2^k (1 + r u) and, without cancellation,
+    exp(x) - 1 = 2^k r u + (2^k - 1) (used by ``equations.vecmath.expm1_ratio``)."""
     k = np.floor(fma(x, LOG2E, 0.5))
     r = fma(k, -LN2_HI, x)
     r = fma(k, -LN2_LO, r)
@@ -90,9 +92,15 @@ def _exp_reduced(x):
     p = fma(p, r, P4)
     p = fma(p, r, P3)
     p = fma(p, r, P2)
-    p = fma(p, r, 1.0)
-    p = fma(p, r, 1.0)
-    return p * _bits_to_float((int(k) + 1023) << 52)
+    u = fma(p, r, 1.0)
+    return _bits_to_float((int(k) + 1023) << 52), r, u
+
+
+@jit_inline
+def _exp_reduced(x):
+    # exp(x) for x already within [EXP_MIN, EXP_MAX]
+    s, r, u = exp_reduction(x)
+    return fma(u, r, 1.0) * s
 
 
 @jit_inline

@@ -14,9 +14,12 @@ reduction of fdlibm's ``log``):
   (|s| <= 0.172: the first term left out is below 1e-18 of the result); then
   k ln2_hi + (log(m) + k ln2_lo). Measured against numpy in
   ``tests/membrane/equations/test_vecmath.py``.
-* ``expm1_ratio``: (exp(x) - 1)/x, 1 at x = 0; for |x| <= 1/2 the Taylor series
-  sum x^j/(j + 1)!, j = 0..16 (the remainder is below 1e-19), otherwise
-  (exp(x) - 1)/x with the vectorisable ``exp`` (no cancellation there: |exp(x) - 1| > 0.39).
+* ``expm1_ratio``: (exp(x) - 1)/x, 1 at x = 0, from the reduction of the vectorisable
+  ``exp`` (``cable.kernels.elementary.exp_reduction``: x = k ln 2 + r, exp(r) = 1 + r u):
+  exp(x) - 1 = 2^k r u + (2^k - 1), which cancels nowhere (for k = 0 it is r u, r = x
+  exactly; for k < 0, |x| > 0.34, the two terms differ in sign by at most a factor 2).
+  One polynomial and one division, the cost of ``exp`` and a division (the 17-term Taylor
+  series it replaces cost 16 more operations per gate); 2 ulp against numpy, measured.
 """
 
 import numpy as np
@@ -24,7 +27,7 @@ from llvmlite import ir
 from numba import types
 from numba.extending import intrinsic
 
-from cable.kernels.elementary import _bits_to_float, exp, fma
+from cable.kernels.elementary import EXP_MAX, EXP_MIN, _bits_to_float, exp, exp_reduction, fma
 from cable.kernels.jit import jit_inline
 
 
@@ -83,36 +86,12 @@ def log(x):
     return np.nan if (x < 0.0) | (x != x) else out
 
 
-#: 1/(j + 1)!, j = 1..16
-_C = [1.0]
-for _j in range(2, 18):
-    _C.append(_C[-1] / _j)
-C1, C2, C3, C4, C5, C6, C7, C8 = _C[1:9]
-C9, C10, C11, C12, C13, C14, C15, C16 = _C[9:17]
-del _C, _j
-
-
 @jit_inline
 def expm1_ratio(x):
-    """(exp(x) - 1)/x (1 at x = 0), vectorisable; NaN for a NaN argument."""
-    p = fma(C16, x, C15)
-    p = fma(p, x, C14)
-    p = fma(p, x, C13)
-    p = fma(p, x, C12)
-    p = fma(p, x, C11)
-    p = fma(p, x, C10)
-    p = fma(p, x, C9)
-    p = fma(p, x, C8)
-    p = fma(p, x, C7)
-    p = fma(p, x, C6)
-    p = fma(p, x, C5)
-    p = fma(p, x, C4)
-    p = fma(p, x, C3)
-    p = fma(p, x, C2)
-    p = fma(p, x, C1)
-    p = fma(p, x, 1.0)
-    q = (exp(x) - 1.0) / x
-    return p if abs(x) <= 0.5 else q
+    """(exp(x) - 1)/x (1 at x = 0), vectorisable, for x <= EXP_MAX (709); NaN for a NaN argument."""
+    s, r, u = exp_reduction(min(max(x, EXP_MIN), EXP_MAX))
+    q = fma(s, r * u, s - 1.0) / x
+    return 1.0 if x == 0.0 else q
 
 
 @jit_inline
