@@ -12,7 +12,7 @@ What CellML has no place for (the citation and summary, the activation threshold
 parameter's unit string, meaning, kind, bounds and whether it is scalable, each state's
 unit and meaning, the temperature parameter, ``current_states``, ``euler_order``, the earlier
 names, the labels of a labelled parameter and the defaults that follow them, the buffered
-states and the stimulus in a state's derivative) is written as one XML
+states, the stimulus in a state's derivative and the order of the currents) is written as one XML
 comment, ``<!-- cable-description: {JSON} -->`` (:data:`METADATA`), which CellML tools
 ignore and :mod:`.cellml_import` reads back (:func:`read_metadata`).
 """
@@ -145,7 +145,8 @@ def export(eq: Equations) -> str:
     buffers = _buffered(parsed, deriv, maths, variables, taken)
     used = any(parsed.sym[STIMULUS] in e.free_symbols for e in parsed.derivatives.values())
     extra = {"buffers": buffers, "stimulus": istim if used else None,
-             "stimulus_capacitance": cm if used and eq.current_basis == "area" else None}
+             "stimulus_capacitance": cm if used and eq.current_basis == "area" else None,
+             "currents": [cur[n] for n in parsed.currents]}
     equations = _equations(eq, parsed, deriv, maths, cur, istim, cm, iion)
     text = _document(eq, units, variables, equations, maths.ident, extra)
     _validate(eq, text)

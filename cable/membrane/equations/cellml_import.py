@@ -6,7 +6,11 @@ What is recognised (each decision is a note shown by ``cable models FILE``):
   voltage units, else (files in dimensionless units) the state named V, v, Vm or V_m,
   preferring one in a component whose name contains "membrane";
 * the stimulus current: the option ``stimulus_current``, else the variables that depend
-  on time and whose name contains "stim"; it is set to zero (the case's stimuli are used);
+  on time and whose name contains "stim"; it is set to zero (the case's stimuli are used).
+  Without the option, a constant of value 0 whose name contains "stim" in the potential's
+  equation (the ``I_stim = 0`` of a file written by ``cable models NAME --cellml``) is the
+  stimulus's place too: it is left out of the potential's equation, so that it is not taken
+  for a current, and out of the parameters where nothing else uses it;
 * the capacitance: a constant in the potential's equation with units of capacitance per
   area (currents per area, ``current_basis = "area"``; the value is the model's C_m) or
   of capacitance (currents divided by it: per capacitance); with neither, the currents
@@ -27,8 +31,8 @@ P<capital>..., are scalable.
 A file written by ``cable models NAME --cellml`` carries the package's own data of the
 model in a comment (:mod:`.cellml_export`): where the file's variables still have the
 units the export gave them, their unit strings, meanings, kinds, bounds and scalable flags
-are taken from it, and so are the citation, summary, threshold, temperature parameter and
-``current_states`` (a note says so).
+are taken from it, and so are the citation, summary, threshold, temperature parameter,
+``current_states`` and the order of the currents (a note says so).
 """
 
 from __future__ import annotations
@@ -168,8 +172,9 @@ def build(path, potential: str | None = None, stimulus_current: str | None = Non
     else:
         stim = [k for k in depends_t if "stim" in names[k].lower()]
     zero = {sym[k]: sympy.Integer(0) for k in stim}
-    notes.append("stimulus removed (the case's stimuli are used): "
-                 + (", ".join(names[k] for k in stim) if stim else "none found"))
+    idle = [] if stimulus_current else _idle_stimulus(names, sym, eqs, values, vkey)
+    found = [names[k] for k in stim] + [f"{names[k]} (a constant 0 in the potential's equation)" for k in idle]
+    notes.append("stimulus removed (the case's stimuli are used): " + (", ".join(found) if found else "none found"))
 
     # the sign convention
     v0 = values["states"][vkey[1]] * s_v
@@ -189,8 +194,17 @@ def build(path, potential: str | None = None, stimulus_current: str | None = Non
                      f"negative ({why}); potentials reported as V = {HH1952_REST:g} mV - V_file")
     V = sympy.Symbol(POTENTIAL, real=True)
     to_file = {sym[vkey]: c0 + c1 * V}
-    eq = _assemble(code, names, sym, eqs, values, vkey, (c0, c1, s_t), to_file, zero, voi, notes, name)
+    eq = _assemble(code, names, sym, eqs, values, vkey, (c0, c1, s_t), to_file, (zero, {sym[k] for k in idle}),
+                   voi, notes, name)
     return _restore(eq, path) if (s_v, s_t, convention) == (1.0, 1.0, "modern") else eq
+
+
+def _idle_stimulus(names, sym, eqs, values, vkey) -> list:
+    """The constants of value 0 named like a stimulus in the potential's equation (see the
+    module docstring)."""
+    used = eqs[("rates", vkey[1])].free_symbols
+    return [("constants", k) for k, v in enumerate(values["constants"])
+            if float(v) == 0.0 and "stim" in names[("constants", k)].lower() and sym[("constants", k)] in used]
 
 
 def _restore(eq: Equations, path) -> Equations:
@@ -220,12 +234,16 @@ def _restore(eq: Equations, path) -> Equations:
     derivatives, buffers, params = _restore_balances(eq, meta, params)
     state_names = {s.name for s in states}
     old = {k: v for k, v in meta.get("old_names", {}).items() if v in names | state_names}
+    currents = dict(eq.currents)
+    order = meta.get("currents") or []
+    if sorted(order) == sorted(currents):  # the exported model's order (the import's is by name)
+        currents = {n: currents[n] for n in order}
     return replace(eq, citation=meta.get("citation", eq.citation), summary=meta.get("summary", eq.summary),
                    threshold=float(meta.get("threshold", eq.threshold)), parameters=params, states=states,
                    temperature_parameter=temperature if temperature in names else None,
                    current_states=meta.get("current_states", eq.current_states),
                    euler_order=meta.get("euler_order", eq.euler_order), derivatives=derivatives,
-                   buffers=buffers, old_names=old,
+                   buffers=buffers, old_names=old, currents=tuple(currents.items()),
                    notes=eq.notes + (f"written by cable: the citation, threshold, current_states and the units, "
                                      f"meanings and scalable flags of {kept} variables read from the file's "
                                      f"cable-description comment",))
@@ -304,11 +322,15 @@ def _current_terms(dvdt, inter: dict, algebraic: set):
     expanded = dvdt
     for _ in range(4):
         subs = {}
+        single = len([s for s in expanded.free_symbols if str(s) in algebraic]) == 1
         for s in expanded.free_symbols:
             d = inter.get(str(s))
-            if str(s) in algebraic and isinstance(d, sympy.Add) and all(
+            # the total as another name of the one current (I_ion = I_L); a current named as a
+            # term of the total keeps that name (I_CaL = i_CaL)
+            alias = single and isinstance(d, sympy.Symbol) and str(d) in algebraic
+            if str(s) in algebraic and (alias or isinstance(d, sympy.Add) and all(
                     any(str(f) in algebraic for f in t.free_symbols) and len(t.free_symbols) == 1
-                    for t in d.args):
+                    for t in d.args)):
                 subs[s] = d
         if not subs:
             break
@@ -317,8 +339,9 @@ def _current_terms(dvdt, inter: dict, algebraic: set):
     return expanded, sorted(terms, key=str)
 
 
-def _assemble(code, names, sym, eqs, values, vkey, scales, to_file, zero, voi, notes, name):
+def _assemble(code, names, sym, eqs, values, vkey, scales, to_file, stimulus, voi, notes, name):
     c0, c1, s_t = scales
+    zero, idle = stimulus  # the stimulus variables (zero everywhere); the constants 0 in its place
     path, info = code.path, code.info
     inter = {names[k]: e for k, e in eqs.items() if k[0] in ("computed_constants", "algebraic_variables")}
     for s in zero:
@@ -357,13 +380,17 @@ def _assemble(code, names, sym, eqs, values, vkey, scales, to_file, zero, voi, n
 
     basis, k_ion, capacitance = _capacitance(code, names, rates[vkey[1]], consts, notes)
     algebraic = {names[("algebraic_variables", k)] for k in range(len(info["algebraic_variables"]))}
-    currents = _currents(dvdt, inter, algebraic - {str(s) for s in zero}, k_ion)
+    currents = _currents(dvdt.xreplace({s: sympy.Integer(0) for s in idle}), inter,
+                         algebraic - {str(s) for s in zero}, k_ion)
+    others = list(inter.values()) + [e for _, e in deriv]
+    unused = {str(s) for s in idle if not any(s in e.free_symbols for e in others)}
 
     params = []
     for k, c in enumerate(info["constants"]):
         n = names[("constants", k)]
-        params.append(EqParameter(n, consts[n], c["units"], f"constant of {c['component']}",
-                                  scalable=_scalable(code.model, c, n)))
+        if n not in unused:
+            params.append(EqParameter(n, consts[n], c["units"], f"constant of {c['component']}",
+                                      scalable=_scalable(code.model, c, n)))
     v0 = (values["states"][vkey[1]] - c0) / c1
     return Equations(
         name=name or Path(path).stem, citation=f"CellML model '{code.model.name()}' ({Path(path).name})",

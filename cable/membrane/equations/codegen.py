@@ -6,6 +6,12 @@ right-hand side the loop's other reaction schemes use) of the
 the same equations (the reference), and ``INFO``, the data the model is built from. The
 same printer writes all three, with numpy's scalar functions (numba compiles them to the
 same code as ``math``'s).
+
+Every one of them evaluates an intermediate with a removable singular point (a rate
+x/(1 - exp(-x/k)) at x = 0, a Goldman-Hodgkin-Katz factor at 0 mV) in the guarded form the
+fast path uses (:mod:`cable.membrane.equations.singular`): within ``singular.DELTA`` of the
+point, the line through its values on both sides (the limit, to ~1e-10 relative); elsewhere
+the formula as written, so that every other potential gives the same bits as without it.
 """
 
 from __future__ import annotations
@@ -14,7 +20,7 @@ import json
 
 from sympy.printing.pycode import PythonCodePrinter
 
-from cable.membrane.equations import fastpath
+from cable.membrane.equations import fastpath, singular
 from cable.membrane.equations.analysis import Analysis, free_derivative, needed, split_states, update_text
 from cable.membrane.equations.description import POTENTIAL, STIMULUS
 
@@ -51,6 +57,29 @@ class _Printer(PythonCodePrinter):
         return text.replace("math.", "np.")
 
 
+class _Texts:
+    """The text of each intermediate: the guarded form of those with a removable singular
+    point (see the module docstring), the formula as written for the others."""
+
+    def __init__(self, an: Analysis, pr):
+        parsed = an.parsed
+        self.pr, self.parsed = pr, parsed
+        v_only, self.const = fastpath.classify(an)
+        self.guards = singular.guarded(an, list(parsed.intermediates), v_only)
+
+    def __call__(self, n: str) -> str:
+        parsed, pr = self.parsed, self.pr
+        plain = pr.doprint_np(parsed.intermediates[n])
+        if n not in self.guards:
+            return plain
+        f, points = self.guards[n]
+        # its values beside the point in terms of the parameter-only intermediates it uses
+        # (assigned before it in every generated function), not written out again
+        mine = self.const.intersection(needed(parsed, [parsed.intermediates[n]]))
+        f = f.xreplace(singular.written_out(parsed, mine))
+        return singular.text(pr, f, points, plain, parsed.sym[POTENTIAL])
+
+
 def _names(an: Analysis) -> dict:
     m = an.parsed.model
     names = {POTENTIAL: "V", STIMULUS: "istim"}
@@ -60,11 +89,11 @@ def _names(an: Analysis) -> dict:
     return names
 
 
-def _assign(pr, names, parsed, which, indent):
-    return [f"{indent}{names[n]} = {pr.doprint_np(parsed.intermediates[n])}" for n in which]
+def _assign(texts, names, which, indent):
+    return [f"{indent}{names[n]} = {texts(n)}" for n in which]
 
 
-def _body(an: Analysis, pr, names, indent, load_state, load_param, store_state):
+def _body(an: Analysis, pr, texts, names, indent, load_state, load_param, store_state):
     """Lines of one node's reaction step (gates, then the other states and the potential)."""
     parsed, m = an.parsed, an.parsed.model
     sidx = {s.name: k for k, s in enumerate(m.states)}
@@ -73,7 +102,7 @@ def _body(an: Analysis, pr, names, indent, load_state, load_param, store_state):
     rl = {n: b for n, b in an.linear.items() if b is not None}
     early, late = split_states(an)
     first = needed(parsed, [parsed.derivatives[n] for n in early] + list(rl.values()))
-    lines += _assign(pr, names, parsed, first, indent)
+    lines += _assign(texts, names, first, indent)
     for n in early:
         lines.append(f"{indent}d{sidx[n]} = {pr.doprint_np(parsed.derivatives[n])}")
     if rl:
@@ -94,7 +123,7 @@ def _body(an: Analysis, pr, names, indent, load_state, load_param, store_state):
     cur = list(parsed.currents.values())
     exprs = [parsed.derivatives[n] for n in late] + cur
     after = [n for n in needed(parsed, exprs) if n in an.gate_dependent or n not in first]
-    lines += _assign(pr, names, parsed, after, indent)
+    lines += _assign(texts, names, after, indent)
     for n in late:
         lines.append(f"{indent}d{sidx[n]} = {pr.doprint_np(parsed.derivatives[n])}")
     lines.append(f"{indent}ion = " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
@@ -104,7 +133,7 @@ def _body(an: Analysis, pr, names, indent, load_state, load_param, store_state):
     return lines
 
 
-def _kinetics(an: Analysis, pr, names) -> list:
+def _kinetics(an: Analysis, pr, texts, names) -> list:
     """Lines of ``kinetics(V, y, p, i, istim, a, b)`` (contract: cable.membrane.base): for a state whose
     derivative is linear in itself, f = A + B y, the rate b = -B and a = f + b y (= A, to rounding);
     for the others b = 0 and a = f; I_ion with every state as given."""
@@ -117,7 +146,7 @@ def _kinetics(an: Analysis, pr, names) -> list:
     out += [f"    y{k} = y[{k}]" for k in range(len(m.states))]
     out += [f"    p{k} = p[i, {k}]" for k in range(len(m.parameters))]
     use = needed(parsed, list(parsed.derivatives.values()) + list(rl.values()) + cur)
-    out += _assign(pr, names, parsed, use, "    ")
+    out += _assign(texts, names, use, "    ")
     for k, s in enumerate(m.states):
         if s.name in rl:
             out.append(f"    b[{k}] = -({pr.doprint_np(rl[s.name])})")
@@ -134,6 +163,7 @@ def module_source(an: Analysis, info: dict) -> str:
     parsed, m = an.parsed, an.parsed.model
     names = _names(an)
     pr = _Printer(names)
+    texts = _Texts(an, pr)
     nstate, nparam = len(m.states), len(m.parameters)
     out = [f'"""Generated by cable.membrane.equations for the model {m.name!r}; do not edit."""', "",
            "import numpy as np", "", "from cable.kernels.jit import jit, jit_inline",
@@ -141,7 +171,7 @@ def module_source(an: Analysis, info: dict) -> str:
            f"INFO = json.loads({json.dumps(json.dumps(info))})".replace("json.loads", "_json.loads"),
            "", "", "@jit", "def reaction(v, s, p, i_stim, dt, ion_scale, gating):",
            "    for i in range(v.shape[0]):", "        V = v[i]", "        istim = i_stim[i]"]
-    out += _body(an, pr, names, "        ", lambda k: f"s[i, {k}]", lambda k: f"p[i, {k}]",
+    out += _body(an, pr, texts, names, "        ", lambda k: f"s[i, {k}]", lambda k: f"p[i, {k}]",
                  lambda k: f"s[i, {k}]")
     out += ["        v[i] = V + dt * (i_stim[i] - ion_scale * ion)", ""]
     cur = list(parsed.currents.values())
@@ -149,17 +179,17 @@ def module_source(an: Analysis, info: dict) -> str:
     out += ["", "@jit", "def currents(v, s, p, out):", "    for i in range(v.shape[0]):", "        V = v[i]"]
     out += [f"        y{k} = s[i, {k}]" for k in range(nstate)]
     out += [f"        p{k} = p[i, {k}]" for k in range(nparam)]
-    out += _assign(pr, names, parsed, use, "        ")
+    out += _assign(texts, names, use, "        ")
     out += [f"        out[i, {j}] = {pr.doprint_np(e)}" for j, e in enumerate(cur)]
     out += ["", "", "def point(V, y, p, istim=0.0):",
             '    """State derivatives [unit/ms] and I_ion at one node with the stimulus istim [mV/ms] '
             '(plain Python)."""']
     out += [f"    y{k} = y[{k}]" for k in range(nstate)]
     out += [f"    p{k} = p[{k}]" for k in range(nparam)]
-    out += _assign(pr, names, parsed, needed(parsed, list(parsed.derivatives.values()) + cur), "    ")
+    out += _assign(texts, names, needed(parsed, list(parsed.derivatives.values()) + cur), "    ")
     out.append("    ds = [" + ", ".join(pr.doprint_np(free_derivative(an, s.name)) for s in m.states) + "]")
     out.append("    return ds, " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
-    out += _kinetics(an, pr, names)
+    out += _kinetics(an, pr, texts, names)
     out += fastpath.kernel_lines(an, pr, names, fastpath.plan(an))
     text = "\n".join(out) + "\n"
     return text.replace('"""\n\nimport numpy', '"""\n\nimport json as _json\n\nimport numpy', 1)

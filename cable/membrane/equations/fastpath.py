@@ -102,8 +102,19 @@ def _closure(name, inter):
     return out
 
 
-def _classify(an: Analysis):
-    """(V-only intermediates, parameter-only intermediates)."""
+def classify(an: Analysis) -> tuple[set, set]:
+    """(the intermediates of V and parameters alone, those of parameters alone): no state in either.
+
+    Parameters
+    ----------
+    an : Analysis
+        The analysed description.
+
+    Returns
+    -------
+    v_only, const : set of str
+        Intermediate names.
+    """
     inter = an.parsed.intermediates
     states = {s.name for s in an.parsed.model.states}
     v_only, const = set(), set()
@@ -120,7 +131,7 @@ def plan(an: Analysis) -> dict:
     parsed, m = an.parsed, an.parsed.model
     params = {p.name for p in m.parameters}
     inter = parsed.intermediates
-    v_only, const = _classify(an)
+    v_only, const = classify(an)
     free = v_only | const | params | {POTENTIAL}
     rl = {n: b for n, b in an.linear.items() if b is not None}
 

@@ -11,8 +11,10 @@ Where the generated kernel differs from the hand-written one:
 
 * the removable singularities of alpha_m (V = -47.13 mV) and of X_i (V = -77 mV) are
   written as the paper's quotients; the hand-written kernel evaluates them by their
-  limits (and by expm1, a few ulps more accurate near them), the generated exact path
-  gives NaN exactly there and its tables average both sides (see DEVELOPERS.md);
+  limits (and by expm1, a few ulps more accurate near them), every generated function
+  within 1e-4 mV of them by the line through the values on both sides (the limit to
+  ~1e-10 relative, cable/membrane/equations/singular.py) and its tables average both sides
+  (see DEVELOPERS.md);
 * the h and j rates switch at V = -40 mV and X_i at V = -100 mV as piecewise expressions,
   as published (the tabulated path interpolates across the jump within one table row).
 

@@ -7,7 +7,8 @@ sweep workers included). ``equations:MODULE`` names the description
 ``cable.membrane.equations.MODULE.EQUATIONS`` (``equations:hodgkin_huxley_1952``); the
 built-in models without a hand-written module are such descriptions too, under their
 registry names (:func:`load_description`). The generated module of a CellML file is cached
-under the hash of the file's content, the options and the compiler, that of a description
+under the hash of the file's content, the options, the import's sources (:data:`READERS`) and
+the compiler, that of a description
 under the hash of the description module's source and the compiler
 (:func:`cable.membrane.equations.cache.load_cached`), so a second run reads neither
 libcellml nor sympy.
@@ -25,6 +26,8 @@ from cable.membrane.equations.errors import EquationError
 
 OPTIONS = ("potential", "stimulus_current", "convention")
 PREFIX = "equations:"
+#: the modules that make a CellML file's description: an edited import makes a new cache key
+READERS = ("cellml_read", "cellml_import", "cellml_export")
 
 
 def is_generated_name(name) -> bool:
@@ -100,7 +103,7 @@ def load(name: str):
         content = path.read_bytes()
     except OSError as exc:
         raise EquationError(f"CellML file '{path}' cannot be read: {exc.strerror or exc}.") from None
-    key = cache.source_key(content, repr(sorted(options.items())).encode())
+    key = cache.source_key(content, repr(sorted(options.items())).encode(), _readers_source())
     module = cache.load_cached(key)
     if module is None:
         from cable.membrane.equations import compile as comp
@@ -109,3 +112,10 @@ def load(name: str):
         eq = build(path, name=path.stem, **options)
         module = cache.store_keyed(key, comp.generate_source(eq))
     return cache.model_from_module(module, name)
+
+
+@functools.lru_cache(maxsize=1)
+def _readers_source() -> bytes:
+    """The sources of :data:`READERS` (read as files: nothing is imported)."""
+    here = Path(__file__).parent
+    return b"".join((here / f"{m}.py").read_bytes() for m in READERS)

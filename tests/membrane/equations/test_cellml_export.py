@@ -8,6 +8,7 @@ import pytest
 
 import cable
 from cable.cli import main
+from cable.membrane import model_names
 from cable.membrane.equations import EquationError
 from cable.membrane.equations.cellml_export import equations_of, export
 from cable.membrane.equations.registry import cellml_model_name
@@ -30,6 +31,7 @@ def test_round_trip_of_the_hh_description(tmp_path):
     back = cable.get_model(cellml_model_name(out))
     gen = cable.get_model("equations:hodgkin_huxley_1952")
     assert back.state_names == gen.state_names
+    assert back.current_names == gen.current_names == cable.get_model("hodgkin-huxley-1952").current_names
     np.testing.assert_allclose(back.initial_states(), gen.initial_states(), rtol=1e-15)
     # the same equations, rewritten by libcellml: CV and APD90 to 1e-6 (the bound)
     for a, b in zip(axon(back.name), axon("equations:hodgkin_huxley_1952")):
@@ -74,6 +76,9 @@ def test_described_builtins_export_and_read_back(tmp_path, name):
     for key in ("current_states", "euler_order", "buffers"):  # (TP06: buffered calcium, after-gates)
         assert json.loads(back.equations)[key] == json.loads(hand.equations)[key]
     assert back.old_names == hand.old_names
+    # the export's I_stim = 0 is the stimulus's place: neither a current (I_other) nor a parameter
+    assert back.current_names == hand.current_names
+    assert "I_stim" not in back.parameter_names
     assert sorted(back.conductances) == sorted(hand.conductances)
     assert back.temperature_parameter == hand.temperature_parameter
     by_name = {p.name: p for p in back.parameters}
@@ -96,6 +101,20 @@ def test_described_builtins_export_and_read_back(tmp_path, name):
     _, ds2, ion2 = back.reference(v, s_back, p_back)
     np.testing.assert_allclose(ds2[:, order], ds1, rtol=1e-12, atol=1e-300)
     np.testing.assert_allclose(ion2, ion1, rtol=1e-12, atol=1e-12)
+
+
+@pytest.mark.parametrize("name", model_names())
+def test_every_builtin_keeps_its_currents_through_the_export(tmp_path, name):
+    # exported by the CLI and read back as a description (no kernel generated): the same currents,
+    # in the same order, and no I_other (the export's I_stim = 0 taken for one)
+    from cable.membrane.equations.cellml_import import build
+
+    out = tmp_path / f"{name}.cellml"
+    assert main(["models", name, "--cellml", str(out)]) == 0
+    back = build(out)
+    assert tuple(n for n, _ in back.currents) == cable.get_model(name).current_names
+    assert "I_stim" not in [p.name for p in back.parameters]
+    assert any("I_stim (a constant 0" in note for note in back.notes)
 
 
 @pytest.mark.slow
