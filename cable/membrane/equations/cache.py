@@ -159,7 +159,8 @@ def model_from_module(module, name: str | None = None) -> GeneratedModel:
         temperature_parameter=eq["temperature_parameter"],
         fast=FastPath(kernel=module.reaction_fast, build_table=module.build_table,
                       table_parameters=tuple(module.TABLE_PARAMETERS), v_lo=-150.0, v_hi=100.0, dv=0.05,
-                      by_state=getattr(module, "FAST_BY_STATE", False)),
+                      by_state=getattr(module, "FAST_BY_STATE", False),
+                      kinetics=getattr(module, "kinetics_fast", None)),
         kinetics=module.kinetics,
         integration=tuple(info["integration"]), notes=tuple(eq["notes"]),
         capacitance=eq["capacitance"], equations=info["equations"], old_names=dict(eq.get("old_names", {})))

@@ -158,6 +158,41 @@ def _kinetics(an: Analysis, pr, texts, names) -> list:
     return out
 
 
+def _kinetics_fast(an: Analysis, pr, names) -> list:
+    """Lines of ``kinetics_fast(v, sT, pT, i_stim, a, b, ion)`` (contract:
+    cable.membrane.base.FastPath.kinetics): :func:`_kinetics` at every node, states and
+    parameters stored by state and by parameter, with the vectorisable functions of the fast
+    path (``pr``, :func:`fastpath.fast_printer`) so that the node loop is SIMD code. One body
+    for shared parameters (loaded once) and per-node ones: a node's arithmetic is the same."""
+    parsed, m = an.parsed, an.parsed.model
+    texts = _Texts(an, pr)
+    rl = {n: b for n, b in an.linear.items() if b is not None}
+    cur = list(parsed.currents.values())
+    nparam = len(m.parameters)
+    body = ["V = v[i]", "istim = i_stim[i]"] + [f"y{k} = sT[{k}, i]" for k in range(len(m.states))]
+    use = needed(parsed, list(parsed.derivatives.values()) + list(rl.values()) + cur)
+    body += [line.strip() for line in _assign(texts, names, use, "")]
+    for k, s in enumerate(m.states):
+        if s.name in rl:
+            body.append(f"b{k} = -({pr.doprint_np(rl[s.name])})")
+            body.append(f"b[{k}, i] = b{k}")
+            body.append(f"a[{k}, i] = {pr.doprint_np(parsed.derivatives[s.name])} + b{k} * y{k}")
+        else:
+            body.append(f"b[{k}, i] = 0.0")
+            body.append(f"a[{k}, i] = {pr.doprint_np(free_derivative(an, s.name))}")
+    body.append("ion[i] = " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
+    out = ["", "", "@jit", "def kinetics_fast(v, sT, pT, i_stim, a, b, ion):",
+           '    """a, b (nstate, n) and I_ion (n) of every node (contract: '
+           'cable.membrane.base.FastPath.kinetics)."""',
+           "    if pT.shape[1] == 1:"]
+    out += [f"        p{k} = pT[{k}, 0]" for k in range(nparam)]
+    out += ["        for i in range(v.shape[0]):"] + [f"            {line}" for line in body]
+    out += ["        return", "    for i in range(v.shape[0]):"]
+    out += [f"        p{k} = pT[{k}, i]" for k in range(nparam)]
+    out += [f"        {line}" for line in body]
+    return out
+
+
 def module_source(an: Analysis, info: dict) -> str:
     """The generated module's text."""
     parsed, m = an.parsed, an.parsed.model
@@ -191,5 +226,9 @@ def module_source(an: Analysis, info: dict) -> str:
     out.append("    return ds, " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
     out += _kinetics(an, pr, texts, names)
     out += fastpath.kernel_lines(an, pr, names, fastpath.plan(an))
+    # the vectorised right-hand side of the loop's other reaction schemes, for the models whose
+    # whole-strand steps are generated (the same limit on compile time, fastpath.ARRAY_STATES)
+    if nstate <= fastpath.ARRAY_STATES:
+        out += _kinetics_fast(an, fastpath.fast_printer(pr), names)
     text = "\n".join(out) + "\n"
     return text.replace('"""\n\nimport numpy', '"""\n\nimport json as _json\n\nimport numpy', 1)
