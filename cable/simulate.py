@@ -361,7 +361,8 @@ def _intervals(run: _Run, progress):
         if status != integrate.OK:
             return (status, t0 + (step + 1) * dt, node)
         t_k = k * spb * dt
-        if setup.safety is not None: setup.safety.update(v, t_k, arrays.nact)  # noqa: E701
+        if setup.safety is not None:
+            setup.safety.update(v, t_k, arrays.nact)
         run.sample(k)
         if progress is not None:
             progress(t_k, t_total)

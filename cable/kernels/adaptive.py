@@ -175,6 +175,11 @@ def euler_states(model, v0: float, s0: np.ndarray, p: np.ndarray, gating: int) -
     return (b == 0.0).astype(np.int64)
 
 
+def _stacked(parts) -> np.ndarray:
+    """The arrays of ``parts`` (one per level) stacked along a first axis, contiguous."""
+    return np.ascontiguousarray(np.stack([np.asarray(x) for x in parts]))
+
+
 class Stepper:
     """Runs output intervals as blocks of steps at the levels (see the module docstring).
 
@@ -202,12 +207,11 @@ class Stepper:
         lo, up = setup.grid.lo, setup.grid.up
         self.factors = [(diffusion.factor(lo, up, 0.5 * h, self.theta), diffusion.factor(lo, up, h, self.theta))
                         for h in self.levels]
-        stack = lambda part: np.ascontiguousarray(np.stack([np.asarray(x) for x in part]))  # noqa: E731
-        self.halves = tuple(stack([f[0][j] for f in self.factors]) for j in range(3))
-        self.fulls = tuple(stack([f[1][j] for f in self.factors]) for j in range(3))
+        self.halves = tuple(_stacked([f[0][j] for f in self.factors]) for j in range(3))
+        self.fulls = tuple(_stacked([f[1][j] for f in self.factors]) for j in range(3))
         fast = rates[0] is not None
         if fast:
-            self.tables = stack([r.table for r in rates])   # (level, group, row, column)
+            self.tables = _stacked([r.table for r in rates])   # (level, group, row, column)
             self.v_lo, self.inv_dv = float(rates[0].v_lo), float(rates[0].inv_dv)
             self.group = np.ascontiguousarray(rates[0].group)  # the table groups: the same at every level
         else:
