@@ -65,8 +65,8 @@ def oracle(name: str):
     """The hand-written module of the built-in model ``name``, kept as a test oracle.
 
     ``tests/membrane/oracles/<name with _>.py`` (passive, fitzhugh-nagumo, mitchell-schaeffer-2003,
-    luo-rudy-1991, ten-tusscher-panfilov-2006: the models the package now generates from their
-    descriptions).
+    luo-rudy-1991, ten-tusscher-panfilov-2006, hodgkin-huxley-1952: the models the package now
+    generates from their descriptions).
     """
     stem = name.replace("-", "_")
     full = f"cable_oracle_{stem}"

@@ -6,9 +6,10 @@ A model is one file: a module of this package that defines ``MODEL`` (a
 :class:`cable.membrane.equations.Equations`; its kernels are generated and cached, see
 :func:`cable.membrane.equations.registry.load_description`). The registry name is the
 module name with ``_`` written as ``-`` (``luo_rudy_1991.py`` -> ``luo-rudy-1991``); where a
-name has both, the hand-written module is the model (HH: its description is reachable as
-``equations:hodgkin_huxley_1952``). Adding a model means adding one file, and the contract
-tests pick it up by themselves.
+name has both, the hand-written module is the model (its description stays reachable as
+``equations:MODULE``). Every built-in model is now a description (the hand-written kernels
+they replaced are test oracles, tests/membrane/oracles/). Adding a model means adding one
+file, and the contract tests pick it up by themselves.
 """
 
 from __future__ import annotations

@@ -30,7 +30,7 @@ from cable.membrane.base import FastPath, MembraneModel, Parameter, State
 COMPILER = ("description", "analysis", "codegen", "fastpath", "blocks", "singular", "vecmath", "compile", "cache")
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)  # the short repr of MembraneModel, not every field
 class GeneratedModel(MembraneModel):
     """A model generated from equations: the contract plus what ``cable models`` shows.
 

@@ -1,10 +1,16 @@
 """Hodgkin & Huxley (1952) written as equations (the description form of the built-in model).
 
-Hodgkin AL, Huxley AF (1952) J Physiol 117:500-544: the same rates, reversal potentials
-and Q10 scaling as cable/membrane/hodgkin_huxley_1952.py (modern sign convention, rest
--65 mV). It serves the tests that compare the generated kernels with the hand-written
-ones, and the CellML export of ``hodgkin-huxley-1952``; the built-in models are
-rewritten in this form in a later step.
+Hodgkin AL, Huxley AF (1952) J Physiol 117:500-544: the rates, reversal potentials and
+Q10 scaling of the hand-written model it replaced (tests/membrane/oracles/hodgkin_huxley_1952.py,
+a test oracle), modern sign convention, rest -65 mV, with the same parameters, states and
+initial values (the gates' steady states at -65 mV that module computes at import, written
+here as numbers; the test checks they are the same). ``get_model("hodgkin-huxley-1952")``
+is the model generated from it; the CellML export of ``hodgkin-huxley-1952`` writes it.
+
+Where the generated kernel differs from the hand-written one: the removable singularities
+of alpha_m (V = -40 mV) and alpha_n (V = -55 mV) are written as the paper's quotients; the
+hand-written kernel evaluates them by their limits, every generated function within 1e-4 mV
+of them by the line through the values on both sides (cable/membrane/equations/singular.py).
 """
 
 from cable.membrane.equations.description import EqParameter, EqState, Equations
@@ -15,9 +21,9 @@ EQUATIONS = Equations(
     summary="squid giant axon: Na, K and leak channels, gates m, h, n",
     resting_potential=-65.0,
     states=(
-        EqState("m", 0.052932485257249, "1", "sodium activation gate"),
-        EqState("h", 0.596120753508460, "1", "sodium inactivation gate"),
-        EqState("n", 0.317676914060697, "1", "potassium activation gate"),
+        EqState("m", 0.05293248525724958, "1", "sodium activation gate"),
+        EqState("h", 0.5961207535084603, "1", "sodium inactivation gate"),
+        EqState("n", 0.3176769140606974, "1", "potassium activation gate"),
     ),
     parameters=(
         EqParameter("g_Na", 120.0, "mS/cm^2", "maximal sodium conductance", "conductance", True, 0.0),

@@ -4,7 +4,8 @@ oracles in tests/membrane/oracles/ (issue 12): the same parameters and states, o
 and the kinetics on random states to rounding, a single-cell action potential to 1e-6 and, for
 the cardiac models, a short strand (CV, APD90, upstroke velocity to 1e-6).
 
-Hodgkin-Huxley has its own tests in test_equations_compile.py (same pattern)."""
+Hodgkin-Huxley (the last one switched) also has tests of its own in test_equations_compile.py
+(the axon strand, the tabulated rates)."""
 
 from importlib import import_module
 
@@ -23,6 +24,7 @@ DESCRIBED = {
     "mitchell-schaeffer-2003": "mitchell_schaeffer_2003",
     "luo-rudy-1991": "luo_rudy_1991",
     "ten-tusscher-panfilov-2006": "ten_tusscher_panfilov_2006",
+    "hodgkin-huxley-1952": "hodgkin_huxley_1952",
 }
 
 #: single-cell stimulus (amplitude in the model's current basis, duration [ms]) and run length [ms]
@@ -34,6 +36,8 @@ BEAT = {
     # 52 pA/pF for 1 ms (ten Tusscher et al. 2004 single-cell protocol; from memory); the M cell's
     # APD90 is ~390 ms (measured here)
     "ten-tusscher-panfilov-2006": (52.0, 1.0, 450.0),
+    # 40 mV/ms for 1 ms at 6.3 degC (a scenario of our own): one spike and its recovery to rest
+    "hodgkin-huxley-1952": (40.0, 1.0, 30.0),
 }
 
 

@@ -1,5 +1,5 @@
-"""Models from equations: the generated kernels against the hand-written Hodgkin-Huxley model,
-the linearity analysis that chooses Rush-Larsen, and the contract of cable/membrane/base.py."""
+"""Models from equations: the generated kernels against the hand-written Hodgkin-Huxley model
+(tests/membrane/oracles/hodgkin_huxley_1952.py, the test oracle), the linearity analysis that chooses Rush-Larsen, and the contract of cable/membrane/base.py."""
 
 import numpy as np
 import pytest
@@ -8,6 +8,7 @@ import cable
 from cable.kernels import tables
 from cable.membrane.equations import EqParameter, EqState, EquationError, Equations
 from cable.membrane.equations.compile import build_model
+from conftest import oracle
 
 GENERATED_HH = "equations:hodgkin_huxley_1952"
 
@@ -86,7 +87,7 @@ def test_generated_kernels_follow_the_contract():
 
 
 def test_generated_step_equals_the_hand_written_kernel():
-    gen, hand = cable.get_model(GENERATED_HH), cable.get_model("hodgkin-huxley-1952")
+    gen, hand = cable.get_model(GENERATED_HH), oracle("hodgkin-huxley-1952").MODEL
     assert gen.parameter_names == hand.parameter_names and gen.state_names == hand.state_names
     v = np.linspace(-100.0, 60.0, 33) + 0.013  # off the removable singularities at -40 and -55 mV
     s = np.tile(hand.initial_states(), (v.size, 1))
@@ -112,10 +113,10 @@ def axon(model, **numerics):
 
 
 @pytest.mark.slow
-def test_generated_hh_strand_equals_the_hand_written_one():
+def test_generated_hh_strand_equals_the_hand_written_one(oracles_registered):
     # same scheme (Rush-Larsen, exact rates, Strang, Crank-Nicolson): CV, APD90, upstroke to 1e-6
     # (the generated fast path without a table: the reaction kernel to rounding, tested above)
-    hand = axon("hodgkin-huxley-1952", rates="reference")
+    hand = axon("oracle-hodgkin-huxley-1952", rates="reference")
     gen = axon(GENERATED_HH, rates="exact")
     for a, b in zip(gen, hand):
         assert a == pytest.approx(b, rel=1e-6)

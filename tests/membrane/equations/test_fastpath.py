@@ -51,7 +51,7 @@ def test_lr1_exact_rates_at_the_removable_singularities():
 def test_hh_exact_rates_at_the_removable_singularities():
     # Hodgkin & Huxley 1952 (J Physiol 117:500), alpha_m and alpha_n: x/(exp(x/10) - 1), limit 10 at
     # x = 0 (-40 and -55 mV here); the hand-written kernel guards both (the oracle)
-    gen, hand = cable.get_model(GENERATED_HH), cable.get_model("hodgkin-huxley-1952")
+    gen, hand = cable.get_model(GENERATED_HH), oracle("hodgkin-huxley-1952").MODEL
     v = np.array([-40.0, -40.0 + 1e-9, -55.0, -55.0 - 1e-7, 0.0])
     n = v.size
     s = np.tile(hand.initial_states(), (n, 1))

@@ -7,6 +7,11 @@ Potentials are absolute (rest near -65 mV): the paper's reversal potentials rela
 rest (+115, -12, +10.613 mV, Table 3, sign-flipped to the modern convention) become
 E_Na = 50, E_K = -77, E_L = -54.387 mV. Rates are the paper's at 6.3 degC, multiplied by
 phi = 3^((T - 6.3)/10) (Q10 = 3).
+
+The hand-written model that ``hodgkin-huxley-1952`` was until the package generated it from
+its description (cable/membrane/equations/hodgkin_huxley_1952.py): kept here only as a test
+oracle (``conftest.oracle("hodgkin-huxley-1952").MODEL``; kernel, numpy reference, currents,
+kinetics and the hand-written fast path with its tables and vectorised kinetics).
 """
 
 from dataclasses import replace
