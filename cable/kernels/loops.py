@@ -106,6 +106,8 @@ def needs_compiling(case: Case) -> bool:
 
         model = get_model(name)
         cell_loop = _cell_loop(model, case.numerics.rates != "reference" and model.fast is not None)
+    # settling takes the Rush-Larsen reference loop, pre-pacing the case's reaction scheme
+    cell_loops = ([loop(name)] if settles else []) + \
+        ([loop(name, case.numerics.reaction)] if mem.prepace is not None else [])
     return not is_compiled(name, case.numerics.rates, case.numerics.reaction) or \
-        (settles and not _in_cache(loop(name, case.numerics.reaction))) or \
-        (cell_loop is not None and not _in_cache(cell_loop))
+        any(not _in_cache(fn) for fn in cell_loops) or (cell_loop is not None and not _in_cache(cell_loop))
