@@ -133,10 +133,25 @@ def _body(an: Analysis, pr, texts, names, indent, load_state, load_param, store_
     return lines
 
 
+def _rate_lines(an: Analysis, pr, b_at, a_at) -> list:
+    """The rates of every state, unindented, stored at ``b_at(k)`` and ``a_at(k)``: for a state
+    whose derivative is linear in itself, f = A + B y, the rate b = -B and a = f + b y (= A, to
+    rounding); for the others b = 0 and a = f (``y{k}`` and the intermediates assigned before)."""
+    parsed, m = an.parsed, an.parsed.model
+    rl = {n: b for n, b in an.linear.items() if b is not None}
+    out = []
+    for k, s in enumerate(m.states):
+        if s.name in rl:
+            out += [f"b{k} = -({pr.doprint_np(rl[s.name])})", f"{b_at(k)} = b{k}",
+                    f"{a_at(k)} = {pr.doprint_np(parsed.derivatives[s.name])} + b{k} * y{k}"]
+        else:
+            out += [f"{b_at(k)} = 0.0", f"{a_at(k)} = {pr.doprint_np(free_derivative(an, s.name))}"]
+    return out
+
+
 def _kinetics(an: Analysis, pr, texts, names) -> list:
-    """Lines of ``kinetics(V, y, p, i, istim, a, b)`` (contract: cable.membrane.base): for a state whose
-    derivative is linear in itself, f = A + B y, the rate b = -B and a = f + b y (= A, to rounding);
-    for the others b = 0 and a = f; I_ion with every state as given."""
+    """Lines of ``kinetics(V, y, p, i, istim, a, b)`` (contract: cable.membrane.base): the rates of
+    :func:`_rate_lines` and I_ion with every state as given."""
     parsed, m = an.parsed, an.parsed.model
     rl = {n: b for n, b in an.linear.items() if b is not None}
     cur = list(parsed.currents.values())
@@ -147,13 +162,7 @@ def _kinetics(an: Analysis, pr, texts, names) -> list:
     out += [f"    p{k} = p[i, {k}]" for k in range(len(m.parameters))]
     use = needed(parsed, list(parsed.derivatives.values()) + list(rl.values()) + cur)
     out += _assign(texts, names, use, "    ")
-    for k, s in enumerate(m.states):
-        if s.name in rl:
-            out.append(f"    b[{k}] = -({pr.doprint_np(rl[s.name])})")
-            out.append(f"    a[{k}] = {pr.doprint_np(parsed.derivatives[s.name])} + b[{k}] * y{k}")
-        else:
-            out.append(f"    b[{k}] = 0.0")
-            out.append(f"    a[{k}] = {pr.doprint_np(free_derivative(an, s.name))}")
+    out += [f"    {line}" for line in _rate_lines(an, pr, lambda k: f"b[{k}]", lambda k: f"a[{k}]")]
     out.append("    return " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
     return out
 
@@ -172,14 +181,7 @@ def _kinetics_fast(an: Analysis, pr, names) -> list:
     body = ["V = v[i]", "istim = i_stim[i]"] + [f"y{k} = sT[{k}, i]" for k in range(len(m.states))]
     use = needed(parsed, list(parsed.derivatives.values()) + list(rl.values()) + cur)
     body += [line.strip() for line in _assign(texts, names, use, "")]
-    for k, s in enumerate(m.states):
-        if s.name in rl:
-            body.append(f"b{k} = -({pr.doprint_np(rl[s.name])})")
-            body.append(f"b[{k}, i] = b{k}")
-            body.append(f"a[{k}, i] = {pr.doprint_np(parsed.derivatives[s.name])} + b{k} * y{k}")
-        else:
-            body.append(f"b[{k}, i] = 0.0")
-            body.append(f"a[{k}, i] = {pr.doprint_np(free_derivative(an, s.name))}")
+    body += _rate_lines(an, pr, lambda k: f"b[{k}, i]", lambda k: f"a[{k}, i]")
     body.append("ion[i] = " + " + ".join(f"({pr.doprint_np(e)})" for e in cur))
     out = ["", "", "@jit", "def kinetics_fast(v, sT, pT, i_stim, a, b, ion):",
            '    """a, b (nstate, n) and I_ion (n) of every node (contract: '

@@ -279,24 +279,13 @@ class _InLocals(_InBuffer):
         return f"c{c}"
 
 
-class _InArrays:
+class _InArrays(_InLocals):
     """Where the node loop of ``array_step`` finds its values: the strand's arrays (node i),
     and the work array W of the interpolated columns (``_gather_lines``), whose pure gates
     are one column each, already advanced."""
 
-    loop = "    for i in range(n):"
-
     def __init__(self, work: dict):
         self.work = work
-
-    def v(self):
-        return "v[i]"
-
-    def stim(self):
-        return "i_stim[i]"
-
-    def state(self, k):
-        return f"sT[{k}, i]"
 
     def col(self, c):
         return f"W[{self.work[c]}, i]"
