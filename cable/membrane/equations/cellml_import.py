@@ -6,7 +6,9 @@ What is recognised (each decision is a note shown by ``cable models FILE``):
   voltage units, else (files in dimensionless units) the state named V, v, Vm or V_m,
   preferring one in a component whose name contains "membrane";
 * the stimulus current: the option ``stimulus_current``, else the variables that depend
-  on time and whose name contains "stim"; it is set to zero (the case's stimuli are used).
+  on time and whose name contains "stim"; it is set to zero in the potential's equation (the
+  case's stimuli are used), and replaced by the case's stimulus in any other state's
+  derivative that carries it (a charge balance: O'Hara-Rudy 2011's ki).
   Without the option, a constant of value 0 whose name contains "stim" in the potential's
   equation (the ``I_stim = 0`` of a file written by ``cable models NAME --cellml``) is the
   stimulus's place too: it is left out of the potential's equation, so that it is not taken
@@ -339,6 +341,31 @@ def _current_terms(dvdt, inter: dict, algebraic: set):
     return expanded, sorted(terms, key=str)
 
 
+def _carried_stimulus(rates, zero, v_index, v_scale, notes, names, constant) -> dict:
+    """The case's stimulus in place of the file's in the other states' derivatives (a charge
+    balance carrying it, O'Hara et al. 2011's K_i): the file's stimulus variable s enters the
+    potential's derivative as c s, c = d(dV/dt)/ds (mV/ms per file unit; it carries the sign
+    and C_m); the case's stimulus i_stim [mV/ms] is that term, so s = i_stim / c there. Where
+    c is not a nonzero expression of the file's constants (``constant``: their symbols), the
+    variable stays 0 there too (as in the potential's equation) and a note says so."""
+    stim = sympy.Symbol(STIMULUS, real=True)
+    dvdt = rates[v_index] / v_scale
+    out = {}
+    for s in zero:
+        users = [names[("states", k)] for k, e in rates.items() if k != v_index and s in e.free_symbols]
+        if not users:
+            continue
+        c = sympy.diff(dvdt, s)
+        if c == 0 or not c.free_symbols <= constant:
+            notes.append(f"stimulus: {s} set to 0 in the derivative of {', '.join(sorted(users))} too (its "
+                         f"factor in dV/dt is not a constant)")
+            continue
+        out[s] = stim / c
+        notes.append(f"stimulus: the case's stimulus enters the derivative of {', '.join(sorted(users))} in "
+                     f"place of {s} (the charge it carries)")
+    return out
+
+
 def _assemble(code, names, sym, eqs, values, vkey, scales, to_file, stimulus, voi, notes, name):
     c0, c1, s_t = scales
     zero, idle = stimulus  # the stimulus variables (zero everywhere); the constants 0 in its place
@@ -366,8 +393,10 @@ def _assemble(code, names, sym, eqs, values, vkey, scales, to_file, stimulus, vo
                             f"with [membrane] stimulus_current = \"component.variable\".")
     sub = dict(to_file)
     sub.update(zero)
+    constant = {sym[k] for k in sym if k[0] in ("constants", "computed_constants")}
+    carried = _carried_stimulus(rates, zero, vkey[1], c1 * s_t, notes, names, constant)
     inter = {n: e.xreplace(sub) for n, e in inter.items() if n not in still}
-    rates = {k: e.xreplace(sub) for k, e in rates.items()}
+    rates = {k: e.xreplace(carried if k != vkey[1] else {}).xreplace(sub) for k, e in rates.items()}
 
     states, deriv = [], []
     for k, st in enumerate(info["states"]):

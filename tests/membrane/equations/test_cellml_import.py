@@ -102,6 +102,46 @@ def test_ohara_rudy_apd_matches_solve_ivp_and_cell_types_in_order():
     assert apd["endo"] == pytest.approx(270.0, rel=0.1)  # "about 270 ms", from memory: 10%
 
 
+
+@pytest.mark.slow
+def test_ohara_rudy_stimulus_charge_enters_ki_as_in_the_file():
+    # O'Hara et al. 2011 let the stimulus current carry K+ (dki/dt includes Istim), so that long
+    # pacing conserves charge; the import puts the case's stimulus there in place of the file's.
+    # Against libcellml's own generated code: at the initial state, the file's derivatives with
+    # its stimulus on (t = 0.1 ms, inside its pulse) and off (t = 1e12, as the C yardstick) give
+    # the stimulus in dV/dt; the imported model's kinetics with that stimulus equal the file's
+    # derivatives with it on, and without it those with it off (rounding of the same formulae:
+    # 1e-9 relative; the ki term is ~1e-4 of the others, so 1e-9 would not hide it)
+    from cable.membrane.equations.cellml_read import ieee_namespace, initial_values, read
+
+    code = read(path("ohara_rudy_2011"))
+    ns = ieee_namespace(code)
+    a = initial_values(code)
+    names = [s["name"] for s in code.info["states"]]
+    rates = {}
+    for label, t_file in (("on", 0.1), ("off", 1e12)):
+        r = np.zeros_like(a["states"])
+        ns["compute_rates"](t_file, a["states"], r, a["constants"], a["computed_constants"], a["algebraic_variables"])
+        rates[label] = dict(zip(names, r))
+    i_v = names.index("v")
+    stim = rates["on"]["v"] - rates["off"]["v"]   # [mV/ms] (time in ms, v in mV in this file)
+    assert stim > 10.0   # the pulse is on at 0.1 ms
+    ord_ = model("ohara_rudy_2011")
+    mine = [s.name for s in ord_.states]
+    y = np.array([a["states"][names.index(n)] for n in mine])
+    p = ord_.default_parameters()[None]
+    m = len(mine)
+    for label, istim in (("on", stim), ("off", 0.0)):
+        ka, kb = np.empty(m), np.empty(m)
+        ion = ord_.kinetics(float(a["states"][i_v]), y, p, 0, istim, ka, kb)
+        d = ka - kb * y
+        for n in ("ki", "nai", "cai"):
+            assert d[mine.index(n)] == pytest.approx(rates[label][n], rel=1e-9, abs=1e-15), (label, n)
+        assert istim - ion == pytest.approx(rates[label]["v"], rel=1e-9)
+    # the stimulus moves ki: the check could fail without it
+    assert abs(rates["on"]["ki"] - rates["off"]["ki"]) > 1e-6 * abs(rates["off"]["ki"])
+
+
 @pytest.mark.slow
 def test_fabbri_period_matches_solve_ivp():
     # Fabbri et al. 2017 (J Physiol 595:2365), human sinoatrial node: spontaneously active; time in
