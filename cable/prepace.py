@@ -12,9 +12,9 @@ from __future__ import annotations
 import numpy as np
 
 from cable.case import CaseError
-from cable.kernels import diffusion, integrate
-from cable.kernels.loop import Grid, Probes, Stimulus, no_rates
-from cable.kernels.state import step_of, unprobed
+from cable.kernels import integrate
+from cable.kernels.loop import Probes, Stimulus, no_rates
+from cable.kernels.state import godunov_steps, unprobed
 from cable.measure.apd import ApdProbe
 
 
@@ -31,9 +31,7 @@ def _pace_cell(advance, model, p_row, v0, s_row, beats, cl, amp, dur, dt, ion_sc
     s = np.ascontiguousarray(s_row.reshape(1, -1).copy())
     p = np.ascontiguousarray(p_row.reshape(1, -1))
     lo = np.zeros(1)
-    fac = diffusion.factor(lo, lo, dt, 0.5)
-    grid = Grid(lo, lo, 0.5, fac, fac, np.zeros(1), 1)
-    step = step_of(dt, integrate.GODUNOV, False, gating, ion_scale, 200)   # one cell: no diffusion to split
+    grid, step = godunov_steps(lo, lo, dt, gating, ion_scale)   # one cell: no diffusion to split
     cap = 4
     act = np.full((n, cap), np.nan)
     nact = np.zeros(n, dtype=np.int64)
@@ -181,9 +179,7 @@ NOTE_SHIFT = 0.01
 def _settle_cell(advance, model, p_row, v0, s0, dt, ion_scale):
     """Integrate one unstimulated cell until dV/dt < SETTLE_RATE; None if it diverged."""
     lo = np.zeros(1)
-    fac = diffusion.factor(lo, lo, dt, 0.5)
-    grid = Grid(lo, lo, 0.5, fac, fac, np.zeros(1), 1)
-    step = step_of(dt, integrate.GODUNOV, False, 0, ion_scale, 200)
+    grid, step = godunov_steps(lo, lo, dt, 0, ion_scale)
     steps = max(1, int(round(SETTLE_CHUNK / dt)))
     v = np.array([v0])
     s = np.ascontiguousarray(np.asarray(s0).reshape(1, -1).copy())

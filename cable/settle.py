@@ -17,9 +17,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from cable.kernels import diffusion, integrate
-from cable.kernels.loop import Grid, Stimulus, no_rates
-from cable.kernels.state import step_of, unprobed
+from cable.kernels import integrate
+from cable.kernels.loop import Stimulus, no_rates
+from cable.kernels.state import godunov_steps, unprobed
 
 #: settle in chunks of this much time [ms], until max |dV/dt| < RATE [mV/ms], at most
 #: LONGEST ms; RATE is 1/10 of the drift a 100 ms run could show within 0.1 mV
@@ -40,9 +40,7 @@ def needs_settling(v0: np.ndarray) -> bool:
 def _settle(advance, model, p, grid, v0, s0, dt, ion_scale):
     v = v0.copy()
     s = np.ascontiguousarray(s0.copy())
-    fac = diffusion.factor(grid.lo, grid.up, dt, 0.5)
-    loop_grid = Grid(grid.lo, grid.up, 0.5, fac, fac, np.zeros(v.size), 1)
-    step = step_of(dt, integrate.GODUNOV, False, 0, ion_scale, 200)
+    loop_grid, step = godunov_steps(grid.lo, grid.up, dt, 0, ion_scale)
     stimulus = Stimulus(np.zeros((0, 5)), np.zeros(v.size))
     steps = max(1, int(round(CHUNK / dt)))
     t, rate = 0.0, np.inf

@@ -73,6 +73,15 @@ def step_of(dt: float, splitting: int, merge: bool, gating: int, ion_scale: floa
     return Step(float(dt), int(splitting), bool(merge), int(gating), float(ion_scale), int(check_every))
 
 
+def godunov_steps(lo, up, dt: float, gating: int, ion_scale: float) -> tuple[Grid, Step]:
+    """(Grid, Step) of a run that wants only the states reached (settling, pre-pacing a cell):
+    Godunov splitting, Crank-Nicolson, the check every 200 steps; ``lo``, ``up`` the couplings
+    (zero for one cell, where the diffusion changes nothing)."""
+    fac = diffusion.factor(lo, up, dt, 0.5)
+    return (Grid(lo, up, 0.5, fac, fac, np.zeros(lo.shape[0]), 1),
+            Step(float(dt), integrate.GODUNOV, False, int(gating), float(ion_scale), 200))
+
+
 def unprobed(v: np.ndarray) -> Probes:
     """Probes that record nothing (threshold out of reach, no repolarisation levels), for
     runs that want only the states (settling, the rest of a cell)."""
