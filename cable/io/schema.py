@@ -73,6 +73,9 @@ VARIABLES = {
     # adaptive time steps (numerics.dt_max; cable.kernels.adaptive): present only then
     "step_dt": (("step_level",), "ms", "time step of the level (adaptive steps: dt x 2^k)", None),
     "steps_taken": (("step_level",), "1", "steps taken at the level (adaptive steps)", None),
+    "steps_windowed": ((), "1", "fine steps in which only a front's nodes reacted, the others once per block "
+                                "(adaptive steps on a strand)", None),
+    "reactions_saved": ((), "1", "node reaction steps those blocks saved (adaptive steps on a strand)", None),
     # pseudo-ECG (cable.measure.ecg)
     "pseudo_ecg": (("electrode", "t"), "mV", "extracellular potential at the electrode (far-field, 1D strand)", None),
     "electrode_x": (("electrode",), "cm", "electrode position along the strand axis", None),

@@ -18,6 +18,15 @@ the level is chosen from the state (:func:`allowed_step`):
   ``REL_STEP`` of its magnitude per step (the rate measured over the last block);
   Rush-Larsen gates are exact for a constant potential and allow any step.
 
+While the fine step is needed at a few nodes only (a front crossing the strand: the
+nodes in its upstroke, those rising toward the threshold within ``WINDOW_REACH_MV``, those
+whose forward-Euler states change fast behind it), a block of fine steps reacts only
+those nodes (the reaction's window, widened by ``WINDOW_MARGIN`` nodes, at most
+``WINDOW_MOST`` of the strand) every step, and the others once per block, at its middle
+step, over the longest level their own rates allow (:func:`window_choice`; the
+diffusion of every node stays at the fine step). The result's ``steps_windowed`` and
+``reactions_saved`` count those blocks' steps and the node reactions they saved.
+
 The blocks are driven from compiled code (:mod:`cable.kernels.adaptive_strand`, one call
 per output interval); a single cell has its own loop (:mod:`cable.kernels.adaptive_cell`).
 Blocks end at every output time (samples stay on the output grid), at stimulus edges,
@@ -52,6 +61,13 @@ REACH_MV = 15.0
 REL_STEP = 0.02
 #: the level is chosen again after at most this many steps of a block
 BLOCK_STEPS = 16
+#: nodes beside those that need the fine step that take it with them (the reaction's
+#: window, :func:`window_choice`)
+WINDOW_MARGIN = 3
+#: a node below the threshold and rising, closer to it than this, is in the window [mV]
+WINDOW_REACH_MV = 60.0
+#: the window is used only while it holds at most this fraction of the nodes
+WINDOW_MOST = 0.5
 #: the magnitude of a forward-Euler state is at least this fraction of its largest
 #: magnitude over the nodes (a state near zero is judged on its scale, not on zero)
 FLOOR_FRACTION = 1e-3
@@ -139,7 +155,16 @@ def allowed_step(v, dlast, dt_last, threshold, s, s_before, fe, t_block, by_stat
     step = potential_step(rate, dt_max, dv_step, dv_power, dv_fast)
     if t_block <= 0.0:
         return step
+    return euler_bound(s, s_before, fe, t_block, by_state, rel_step, step, 0, 0)
+
+
+@jit_inline
+def euler_bound(s, s_before, fe, t_block, by_state, rel_step, step, skip0, skip1):
+    """``step`` cut so that no forward-Euler state changes by more than ``rel_step`` of
+    its magnitude per step (its rate over the last block of ``t_block`` ms), nodes
+    skip0 .. skip1 - 1 left out."""
     nstate = fe.shape[0]
+    n = s.shape[1] if by_state else s.shape[0]
     for j in range(nstate):
         if fe[j] == 0:
             continue
@@ -150,6 +175,8 @@ def allowed_step(v, dlast, dt_last, threshold, s, s_before, fe, t_block, by_stat
                 big = y
         floor = FLOOR_FRACTION * big + 1e-300
         for i in range(n):
+            if skip0 <= i < skip1:
+                continue
             if by_state:
                 y, y0 = s[j, i], s_before[j, i]
             else:
@@ -160,6 +187,72 @@ def allowed_step(v, dlast, dt_last, threshold, s, s_before, fe, t_block, by_stat
                 if limit < step:
                     step = limit
     return step
+
+
+@jit_inline
+def _node_step(v, dlast, dt_last, v_start, i, s, s_before, fe, floors, t_block, by_state, dt_max, dv_step, dv_power,
+               dv_fast, rel_step):
+    """The longest step node ``i`` allows alone: its potential's bound at its rate (the
+    larger of its last step's and its mean over the last block, since ``v_start``) and
+    its forward-Euler states' (``floors``: each state's floor, :data:`FLOOR_FRACTION`)."""
+    rate = abs(dlast[i]) / dt_last
+    if t_block > 0.0:
+        rate = max(rate, abs(v[i] - v_start[i]) / t_block)
+    step = potential_step(rate, dt_max, dv_step, dv_power, dv_fast)
+    if t_block > 0.0:
+        for j in range(fe.shape[0]):
+            if fe[j] == 0:
+                continue
+            if by_state:
+                y, y0 = s[j, i], s_before[j, i]
+            else:
+                y, y0 = s[i, j], s_before[i, j]
+            change = abs(y - y0)
+            if change > 0.0:
+                step = min(step, rel_step * max(abs(y), floors[j]) * t_block / change)
+    return step
+
+
+@jit
+def window_choice(v, dlast, dt_last, v_start, threshold, s, s_before, fe, t_block, by_state, h_fine, dt_max,
+                  dv_step, reach, rel_step, dv_power, dv_fast, margin, most):
+    """The reaction's window when the fine step is needed at a few nodes only (a front).
+
+    The nodes that need the fine step by the rules of :func:`allowed_step` applied to
+    each node alone (rising below the threshold within ``reach``, or a step shorter
+    than ``h_fine``, the second level, by :func:`_node_step`), widened by ``margin``
+    nodes on each side, are the window [start, stop). Returns (start, stop, the longest
+    step the other nodes allow [ms]); the step is 0 when there is no window to use (no
+    node needs the fine step, or more than ``most`` of them do).
+    """
+    n = v.shape[0]
+    nstate = fe.shape[0]
+    floors = np.zeros(nstate)
+    for j in range(nstate):
+        if fe[j] != 0:
+            big = 0.0
+            for i in range(n):
+                big = max(big, abs(s[j, i]) if by_state else abs(s[i, j]))
+            floors[j] = FLOOR_FRACTION * big + 1e-300
+    first, last = n, -1
+    step = dt_max
+    for i in range(n):
+        vi = v[i]
+        node = _node_step(v, dlast, dt_last, v_start, i, s, s_before, fe, floors, t_block, by_state, dt_max,
+                          dv_step, dv_power, dv_fast, rel_step)
+        if (vi < threshold and vi > threshold - reach and dlast[i] > 0.0) or node < h_fine:
+            first = min(first, i)
+            last = i
+    if last < 0:
+        return 0, 0, 0.0
+    start, stop = max(0, first - margin), min(n, last + 1 + margin)
+    if stop - start > most * n:
+        return start, stop, 0.0
+    for i in range(n):
+        if i < start or i >= stop:
+            step = min(step, _node_step(v, dlast, dt_last, v_start, i, s, s_before, fe, floors, t_block, by_state,
+                                        dt_max, dv_step, dv_power, dv_fast, rel_step))
+    return start, stop, step
 
 
 def euler_states(model, v0: float, s0: np.ndarray, p: np.ndarray, gating: int) -> np.ndarray:
@@ -196,9 +289,13 @@ class Stepper:
     codes : (gating, theta, splitting, merge)
     n_end : int
         Fine steps of the whole run.
+    windows : bool
+        Let the reaction of a front's nodes take the fine step while the others take a
+        long one (``window_choice``, ``cable.kernels.adaptive_strand``); False: every
+        node at the level of the block.
     """
 
-    def __init__(self, advance, setup, arrays, levels, rates, codes, n_end):
+    def __init__(self, advance, setup, arrays, levels, rates, codes, n_end, windows=True):
         self.setup = setup
         self.arrays = arrays
         self.levels = tuple(levels)
@@ -231,7 +328,10 @@ class Stepper:
         self.ctl = np.zeros(3, dtype=np.int64)    # level of the last block (0 at first), zone reached, blocks traced
         self.t_block = np.zeros(1)
         self.counts = np.zeros(len(self.levels), dtype=np.int64)
-        self.bounds = (DV_STEP_MV, REACH_MV, REL_STEP, DV_POWER, DV_FAST_MV)
+        self.windowed = np.zeros(2, dtype=np.int64)   # steps with a reaction window, node-reactions saved
+        self.v_start = np.zeros(setup.grid.lo.shape[0])
+        self.bounds = (DV_STEP_MV, REACH_MV, REL_STEP, DV_POWER, DV_FAST_MV, float(WINDOW_MARGIN), WINDOW_MOST,
+                       1.0 if windows else 0.0, WINDOW_REACH_MV)
         self.trace = np.zeros((0, 3), dtype=np.int64)   # give rows to record the blocks (fine index, steps, level)
 
     def run(self, v, n0: int, n1: int) -> tuple[int, int, int]:
@@ -241,13 +341,15 @@ class Stepper:
         status, step, node = self.driver(
             v, a.s, a.p, n0, n1, self.dt, np.array(self.levels), self.grid, self.halves, self.fulls, self.step,
             self.stimulus, self.probes, self.tables, self.rates, self.zones, self.fe, a.by_state, self.bounds,
-            self.ctl, self.t_block, self.s_before, self.counts, self.trace)
+            self.ctl, self.t_block, self.s_before, self.counts, self.trace, self.v_start, self.windowed)
         return int(status), int(step), int(node)
 
     def outputs(self) -> dict:
         """The steps taken per level, as measurements (``step_dt``, ``steps_taken``)."""
         return {"step_dt": (("step_level",), np.array(self.levels)),
-                "steps_taken": (("step_level",), self.counts.copy())}
+                "steps_taken": (("step_level",), self.counts.copy()),
+                "steps_windowed": ((), int(self.windowed[0])),
+                "reactions_saved": ((), int(self.windowed[1]))}
 
 
 def level_plans(model, p, levels, gating, rates: str, reaction: str) -> list:

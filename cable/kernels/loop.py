@@ -33,6 +33,12 @@ The reaction is the model's own kernel (``reaction``, states by node) or its fas
 applied to the model's ``kinetics``: which one is bound to ``react`` by
 :func:`cable.kernels.loops.loop`.
 
+With a reaction window (``Step.window``, given only by the adaptive strand driver,
+:mod:`cable.kernels.adaptive_strand`) the nodes of the window react every step (in work
+arrays that hold their states for the call) and the others once, at one step of the
+call, over a longer step; without one (:func:`no_window`, every other run) the
+reaction is the one call above, unchanged.
+
 Probes, updated every step right after the reaction (before the closing diffusion
 step), so that every probed potential sits at the same point of the splitting whatever
 ``merge`` and the output interval (with ``merge`` the potential at the end of a step
@@ -70,8 +76,14 @@ from cable.kernels.jit import jit, jit_inline
 #: laid end to end
 Grid = namedtuple("Grid", "lo up theta half full work layout")
 #: the step: dt [ms], splitting (STRANG, GODUNOV), merge (bool), gating (0 Rush-Larsen,
-#: 1 forward Euler), ion_scale (1/C_m or 1), check_every [steps]
-Step = namedtuple("Step", "dt splitting merge gating ion_scale check_every")
+#: 1 forward Euler), ion_scale (1/C_m or 1), check_every [steps], window (:data:`Window`)
+Step = namedtuple("Step", "dt splitting merge gating ion_scale check_every window")
+#: the reaction's window (adaptive strands, ``cable.kernels.adaptive_strand``): with
+#: ``on``, the nodes ``inner`` react every step and the nodes ``outer`` once, at step
+#: ``at`` of the call, over ``dt`` [ms] with the rate table ``table`` (that level's);
+#: ``work`` and ``rest``: (v, s, p, i_stim, group) work arrays of each (:func:`make_window`);
+#: ``by_state``: the states' layout. Off (:func:`no_window`): every node every step
+Window = namedtuple("Window", "on at dt table by_state inner outer work rest")
 #: the stimulus schedule: pulses (m, 5) = (on, off [ms], first node, end node, amplitude
 #: [mV/ms]), sorted by onset, and the step's stimulus at each node i_stim (n) [mV/ms]
 Stimulus = namedtuple("Stimulus", "pulses i_stim")
@@ -86,6 +98,13 @@ Rates = namedtuple("Rates", "table v_lo inv_dv group")
 def no_rates() -> Rates:
     """Rates for the reference path (and exact rates on the fast path): a table with no rows."""
     return Rates(np.zeros((1, 0, 1)), 0.0, 1.0, np.zeros(1, dtype=np.int64))
+
+
+def no_window() -> Window:
+    """The reaction of every node at every step (no window)."""
+    none = (np.zeros(0), np.zeros((0, 0)), np.zeros((0, 0)), np.zeros(0), np.zeros(0, dtype=np.int64))
+    return Window(False, -1, 0.0, np.zeros((1, 0, 1)), False, np.zeros(0, dtype=np.int64),
+                  np.zeros(0, dtype=np.int64), none, none)
 
 
 # ----------------------------------------------------------------------------- bindings
@@ -259,6 +278,89 @@ def check(v):
     return OK, -1
 
 
+
+# ----------------------------------------------------------------------------- window
+@jit_inline
+def _gather(v, s, p, i_stim, group, by_state, nodes, vw, sw, pw, iw, gw, shared_p, shared_g):
+    """Copy the nodes ``nodes`` (indices) of the node arrays into the work arrays (``pw``,
+    ``gw`` only where the parameters / table groups differ by node)."""
+    for c in range(nodes.shape[0]):
+        i = nodes[c]
+        vw[c] = v[i]
+        iw[c] = i_stim[i]
+        if by_state:
+            for j in range(s.shape[0]):
+                sw[j, c] = s[j, i]
+            if not shared_p:
+                for j in range(p.shape[0]):
+                    pw[j, c] = p[j, i]
+        else:
+            for j in range(s.shape[1]):
+                sw[c, j] = s[i, j]
+            if not shared_p:
+                for j in range(p.shape[1]):
+                    pw[c, j] = p[i, j]
+        if not shared_g:
+            gw[c] = group[i]
+
+
+@jit_inline
+def _scatter(v, s, by_state, nodes, vw, sw, with_v):
+    """The states (and with ``with_v`` the potential) of the work arrays back to their nodes."""
+    for c in range(nodes.shape[0]):
+        i = nodes[c]
+        if with_v:
+            v[i] = vw[c]
+        if by_state:
+            for j in range(s.shape[0]):
+                s[j, i] = sw[j, c]
+        else:
+            for j in range(s.shape[1]):
+                s[i, j] = sw[c, j]
+
+
+@jit_inline
+def _work(v, s, p, group, by_state, count):
+    """Work arrays for ``count`` nodes in the layout of ``s`` and ``p`` (``p`` itself when
+    the parameters are shared by every node, ``group`` itself with one table group)."""
+    n = v.shape[0]
+    shared_p = (p.shape[1] == 1) if by_state else (p.shape[0] == 1)
+    shared_g = group.shape[0] != n
+    if by_state:
+        sw = np.empty((s.shape[0], count))
+        pw = p if shared_p else np.empty((p.shape[0], count))
+    else:
+        sw = np.empty((count, s.shape[1]))
+        pw = p if shared_p else np.empty((count, p.shape[1]))
+    gw = group if shared_g else np.empty(count, dtype=group.dtype)
+    return np.empty(count), sw, pw, np.empty(count), gw, shared_p, shared_g
+
+
+@jit_inline
+def _parts(v, s, p, i_stim, group, by_state, nodes):
+    """Work arrays of ``nodes`` with their parameters and table groups copied in."""
+    vw, sw, pw, iw, gw, shared_p, shared_g = _work(v, s, p, group, by_state, nodes.shape[0])
+    _gather(v, s, p, i_stim, group, by_state, nodes, vw, sw, pw, iw, gw, shared_p, shared_g)
+    return vw, sw, pw, iw, gw
+
+
+@jit_inline
+def make_window(v, s, p, i_stim, group, by_state, start, stop, at, dt, table):
+    """The window of nodes start .. stop - 1 (see :data:`Window`), the others reacting at
+    step ``at`` over ``dt`` with ``table``."""
+    n = v.shape[0]
+    inner = np.arange(start, stop)
+    outer = np.concatenate((np.arange(0, start), np.arange(stop, n)))
+    return Window(True, at, dt, table, by_state, inner, outer, _parts(v, s, p, i_stim, group, by_state, inner),
+                  _parts(v, s, p, i_stim, group, by_state, outer))
+
+@jit_inline
+def window_close(v, s, window, inner, work):
+    """The window's states back to the node arrays (the end of the call)."""
+    if window.on:
+        _scatter(v, s, window.by_state, inner, work[0], work[1], False)   # the potential is v's own
+
+
 # ----------------------------------------------------------------------------- the loop
 def advance(v, s, p, t0, nsteps, grid, step, stimulus, probes, rates):
     """Advance by ``nsteps`` steps of ``step.dt`` from time ``t0`` (see the module docstring).
@@ -267,8 +369,13 @@ def advance(v, s, p, t0, nsteps, grid, step, stimulus, probes, rates):
     node where it was found (checked every ``step.check_every`` steps and at the end).
     """
     lo, up, theta, half, full, work, layout = grid
-    dt, splitting, merge, gating, ion_scale, check_every = step
+    dt, splitting, merge, gating, ion_scale, check_every, window = step
     pulses, i_stim = stimulus
+    table, v_lo, inv_dv, group = rates
+    windowed, inner, outer, wwork, wrest = window.on, window.inner, window.outer, window.work, window.rest
+    if windowed:    # the window's states stay in its work arrays until the end of the call
+        _gather(v, s, p, i_stim, group, window.by_state, inner, wwork[0], wwork[1], wwork[2], wwork[3], wwork[4],
+                True, True)
     threshold, vprev, act, nact, pre_rate, open_up, upstroke, apd = probes
     level, ceiling, busy = probe_bounds(open_up, apd)
     dlast0 = apd[0]
@@ -288,7 +395,21 @@ def advance(v, s, p, t0, nsteps, grid, step, stimulus, probes, rates):
         if stim_on and not any_on:
             i_stim[:] = 0.0
         stim_on = any_on
-        react(v, s, p, i_stim, dt, ion_scale, gating, rates)
+        if windowed:     # the window every step, the others once (see Window)
+            vw, sw, pw, iw, gw = wwork
+            for c in range(inner.shape[0]):
+                vw[c] = v[inner[c]]
+                iw[c] = i_stim[inner[c]]
+            react(vw, sw, pw, iw, dt, ion_scale, gating, Rates(table, v_lo, inv_dv, gw))
+            for c in range(inner.shape[0]):
+                v[inner[c]] = vw[c]
+            if k == window.at:
+                vr, sr, pr, ir, gr = wrest
+                _gather(v, s, p, i_stim, group, window.by_state, outer, vr, sr, pr, ir, gr, True, True)
+                react(vr, sr, pr, ir, window.dt, ion_scale, gating, Rates(window.table, v_lo, inv_dv, gr))
+                _scatter(v, s, window.by_state, outer, vr, sr, True)
+        else:
+            react(v, s, p, i_stim, dt, ion_scale, gating, rates)
         block_probe(v, vprev, dnow, t, dt, threshold, act, nact, pre_rate, open_up, upstroke, apd, i_stim, where,
                     stim_on, level, ceiling, busy)
         dnow, apd = apd[0], (dnow,) + apd[1:]    # this step's changes are the next step's dlast
@@ -300,6 +421,8 @@ def advance(v, s, p, t0, nsteps, grid, step, stimulus, probes, rates):
             status, node = check(v)
             if status != OK:
                 _keep_dlast(dlast0, apd[0], k + 1)
+                window_close(v, s, window, inner, wwork)
                 return status, k, node
     _keep_dlast(dlast0, apd[0], nsteps)
+    window_close(v, s, window, inner, wwork)
     return OK, nsteps, -1

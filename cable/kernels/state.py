@@ -9,7 +9,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from cable.kernels import diffusion, integrate, tables
-from cable.kernels.loop import Grid, Probes, Step, Stimulus
+from cable.kernels.loop import Grid, Probes, Step, Stimulus, no_window
 from cable.measure.apd import ApdProbe, no_probe
 
 #: how often the loop checks for NaN / runaway potential [steps]: often enough that a
@@ -70,7 +70,7 @@ class LoopArrays:
 def step_of(dt: float, splitting: int, merge: bool, gating: int, ion_scale: float,
             check_every: int = CHECK_EVERY) -> Step:
     """The step of the time loop (codes from :func:`scheme_codes`)."""
-    return Step(float(dt), int(splitting), bool(merge), int(gating), float(ion_scale), int(check_every))
+    return Step(float(dt), int(splitting), bool(merge), int(gating), float(ion_scale), int(check_every), no_window())
 
 
 def godunov_steps(lo, up, dt: float, gating: int, ion_scale: float) -> tuple[Grid, Step]:
@@ -79,7 +79,7 @@ def godunov_steps(lo, up, dt: float, gating: int, ion_scale: float) -> tuple[Gri
     (zero for one cell, where the diffusion changes nothing)."""
     fac = diffusion.factor(lo, up, dt, 0.5)
     return (Grid(lo, up, 0.5, fac, fac, np.zeros(lo.shape[0]), 1),
-            Step(float(dt), integrate.GODUNOV, False, int(gating), float(ion_scale), 200))
+            Step(float(dt), integrate.GODUNOV, False, int(gating), float(ion_scale), 200, no_window()))
 
 
 def unprobed(v: np.ndarray) -> Probes:

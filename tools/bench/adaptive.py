@@ -38,6 +38,7 @@ import time
 import numpy as np
 
 import cable
+from cable.kernels import adaptive
 
 
 def case(beats: int, length: float, dt: float, dt_max: float | None = None) -> dict:
@@ -129,17 +130,20 @@ def main(argv=None) -> None:
         return
     runs = [("fixed 20 us", case(args.beats, args.length, 0.02)),
             ("adaptive 5 us - 0.5 ms", case(args.beats, args.length, 0.005, 0.5)),
+            ("  without the window", case(args.beats, args.length, 0.005, 0.5)),
             ("adaptive 20 us - 0.5 ms", case(args.beats, args.length, 0.02, 0.5))]
     for _, c in runs:                  # warm-up: the compiled kernels loaded once
         warm = dict(c, run={"duration": 20.0}, stimulus=[dict(c["stimulus"][0], count=1)])
         cable.simulate(warm)
     ref = timed(case(args.beats, args.length, 0.005), 1)[2] if args.reference else None
     base = None
+    most = adaptive.WINDOW_MOST
     import os
 
     print(f"TP06 strand {args.length:g} cm, dx 100 um, {args.beats} beats at 1 Hz, output every 1 ms; "
           f"load average {os.getloadavg()[0]:.2f}")
     for name, c in runs:
+        adaptive.WINDOW_MOST = 0.0 if "without" in name else most   # no node-window: every node at the block's level
         wall, cpu, ds = timed(c, args.rounds)
         base = (wall, cpu) if base is None else base
         steps = "" if "steps_taken" not in ds else \
